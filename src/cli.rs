@@ -1,0 +1,155 @@
+//! The command line: commands, options and what each prints.
+
+use crate::error::Error;
+use crate::run::{self, Prepared, Preprocessed, RunOptions, RunSummary};
+use crate::stages::select::pct;
+use clap::{Parser, Subcommand};
+use std::fmt::Write;
+use std::path::PathBuf;
+
+/// Principal component analysis from a recipe file: deterministic results, every
+/// input and output hashed, and a manifest that says how they were made.
+#[derive(Debug, Parser)]
+#[command(name = "sextant", version, about, long_about = None)]
+#[command(after_help = "Exit codes: 0 success, 1 the analysis failed, 2 the recipe or an input is invalid.")]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Run a recipe and write its results folder (tables and manifest.json).
+    ///
+    /// Results are written to a temporary folder and moved into place only when
+    /// complete. An existing results folder is replaced only if it came from the
+    /// same recipe and inputs, unless --replace is given.
+    Run {
+        /// The recipe file (TOML). Paths inside it are relative to its folder.
+        recipe: PathBuf,
+        /// Replace an existing results folder made from a different recipe or input.
+        #[arg(long)]
+        replace: bool,
+    },
+    /// Check a recipe and its input table without computing the analysis.
+    ///
+    /// Reads the table, matches the recipe's column names and patterns, checks
+    /// every cell's type, and runs the missing-value, transform and scaling steps,
+    /// then prints what it found: rows, features kept and dropped, missing cells.
+    Check {
+        /// The recipe file (TOML).
+        recipe: PathBuf,
+    },
+}
+
+/// Runs the parsed command; returns the text for standard output.
+pub fn execute(cli: Cli) -> Result<String, Error> {
+    match cli.command {
+        Command::Run { recipe, replace } => {
+            let summary = run::run(&recipe, &RunOptions { replace })?;
+            Ok(describe_run(&summary))
+        }
+        Command::Check { recipe } => {
+            let prepared = run::prepare(&recipe)?;
+            let pre = run::preprocess(&prepared)?;
+            Ok(describe_check(&prepared, &pre))
+        }
+    }
+}
+
+fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
+    let plan = &prepared.plan;
+    let table = &prepared.table;
+    let _ = writeln!(
+        out,
+        "input      {}: {} rows, {} columns, sha256 {}",
+        table.display,
+        table.n_rows(),
+        table.columns.len(),
+        prepared.input.sha256
+    );
+    if let Some(id) = &plan.input.id {
+        let _ = writeln!(out, "id         {id}");
+    }
+    if !plan.input.groups.is_empty() {
+        let _ = writeln!(out, "groups     {}", plan.input.groups.join(", "));
+    }
+    for (column, why) in &plan.unused {
+        let _ = writeln!(out, "unused     {column}: {why}");
+    }
+    let m = &pre.missing;
+    let used = pre.scaled.names.len();
+    let _ = writeln!(out, "features   {} selected, {used} used", plan.features.len());
+    for f in &m.features {
+        if let Some(why) = &f.dropped {
+            let _ = writeln!(out, "  dropped  {}: {} missing ({} %), {why}", f.feature, f.missing, pct(f.share));
+        }
+    }
+    for name in &pre.scaling.dropped_constant {
+        let _ = writeln!(out, "  dropped  {name}: constant");
+    }
+    let missing_cells: usize = m.features.iter().filter(|f| f.dropped.is_none()).map(|f| f.missing).sum();
+    let _ = match m.method {
+        crate::recipe::raw::MissingMethod::DropRows => writeln!(
+            out,
+            "missing    {missing_cells} cells in used features; {} rows with a missing cell dropped, {} rows left",
+            m.rows_dropped,
+            pre.scaled.matrix.rows
+        ),
+        method => writeln!(
+            out,
+            "missing    {missing_cells} cells in used features filled with the feature {}",
+            if method == crate::recipe::raw::MissingMethod::Median { "median" } else { "mean" }
+        ),
+    };
+    for f in m.features.iter().filter(|f| f.dropped.is_none() && f.missing > 0) {
+        let _ = writeln!(out, "  {:<24} {:>5} missing ({} %)", f.feature, f.missing, pct(f.share));
+    }
+    if !pre.transforms.is_empty() {
+        let list: Vec<String> = pre.transforms.iter().map(|t| format!("{} {}", t.transform_name(), t.feature)).collect();
+        let _ = writeln!(out, "transform  {}", list.join(", "));
+    }
+    let _ = writeln!(out, "scaling    {} ({} matrix)", plan.scaling.name(), run::matrix_name(plan));
+}
+
+/// The text `sextant check` prints.
+pub fn describe_check(prepared: &Prepared, pre: &Preprocessed) -> String {
+    let mut out = String::new();
+    let _ = writeln!(out, "recipe     {}: valid", prepared.recipe.path.display());
+    describe_input(&mut out, prepared, pre);
+    let _ = writeln!(out, "output     {}", prepared.plan.output.display());
+    out
+}
+
+/// The text `sextant run` prints.
+pub fn describe_run(s: &RunSummary) -> String {
+    let mut out = String::new();
+    if let Some(title) = &s.prepared.plan.title {
+        let _ = writeln!(out, "{title}");
+    }
+    describe_input(&mut out, &s.prepared, &s.pre);
+    let d = &s.analysis.decomposition;
+    let sel = &s.analysis.selection;
+    let kept: f64 = d.eigenvalues[..sel.kept].iter().sum::<f64>() / d.total_variance;
+    let _ = writeln!(
+        out,
+        "components {} kept of {} computed, {} % of the variance ({}: {})",
+        sel.kept,
+        sel.computed,
+        pct(kept),
+        sel.rule,
+        sel.reason
+    );
+    for a in &sel.adjustments {
+        let _ = writeln!(out, "  note     {a}");
+    }
+    let _ = writeln!(
+        out,
+        "results    {} ({} files and manifest.json, digest {})",
+        s.prepared.plan.output.display(),
+        s.outputs.len(),
+        s.digest
+    );
+    let _ = writeln!(out, "time       {:.3} s", s.seconds);
+    out
+}

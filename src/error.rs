@@ -1,0 +1,300 @@
+//! Error types for every layer, and the one place that maps them to exit codes.
+//!
+//! All wording lives in `Display`; variants carry the facts (file, line, column,
+//! offending text) so a message can name the thing, the rule and the fix.
+
+use std::fmt;
+use std::path::PathBuf;
+
+/// Exit code for success.
+pub const EXIT_OK: i32 = 0;
+/// Exit code when the analysis or a verification failed.
+pub const EXIT_FAILED: i32 = 1;
+/// Exit code when the recipe or an input is invalid.
+pub const EXIT_INVALID: i32 = 2;
+
+/// Any error sextant reports to the user.
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    #[error(transparent)]
+    Recipe(#[from] RecipeError),
+    #[error(transparent)]
+    Input(#[from] InputError),
+    #[error(transparent)]
+    Analysis(#[from] AnalysisError),
+    #[error(transparent)]
+    Output(#[from] OutputError),
+}
+
+impl Error {
+    /// The documented exit code: 2 for a bad recipe or input (including a refused
+    /// output folder), 1 when the computation or writing failed.
+    pub fn exit_code(&self) -> i32 {
+        match self {
+            Error::Recipe(_) | Error::Input(_) => EXIT_INVALID,
+            Error::Output(OutputError::Refused { .. }) => EXIT_INVALID,
+            Error::Analysis(_) | Error::Output(_) => EXIT_FAILED,
+        }
+    }
+}
+
+/// A place in a text file, 1-based, with the text of that line for context.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Position {
+    pub line: usize,
+    pub column: usize,
+    pub line_text: String,
+}
+
+impl Position {
+    /// Locates byte offset `offset` in `text`. Columns count characters, not bytes.
+    pub fn locate(text: &str, offset: usize) -> Position {
+        let offset = offset.min(text.len());
+        let before = &text[..offset];
+        let line = before.matches('\n').count() + 1;
+        let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+        let column = text[line_start..offset].chars().count() + 1;
+        let line_text = text[line_start..]
+            .split('\n')
+            .next()
+            .unwrap_or("")
+            .trim_end_matches('\r')
+            .to_string();
+        Position {
+            line,
+            column,
+            line_text,
+        }
+    }
+}
+
+/// A mistake in the recipe file, with its position when one is known.
+#[derive(Debug)]
+pub struct RecipeError {
+    pub file: PathBuf,
+    pub at: Option<Position>,
+    pub problem: RecipeProblem,
+}
+
+impl std::error::Error for RecipeError {}
+
+impl fmt::Display for RecipeError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let file = self.file.display();
+        match &self.at {
+            Some(at) => {
+                writeln!(f, "{file}:{}:{}: {}", at.line, at.column, self.problem)?;
+                let gutter = at.line.to_string().len();
+                writeln!(f, "{:gutter$} |", "")?;
+                writeln!(f, "{} | {}", at.line, at.line_text)?;
+                write!(f, "{:gutter$} | {:>col$}", "", "^", col = at.column)
+            }
+            None => write!(f, "{file}: {}", self.problem),
+        }
+    }
+}
+
+/// What is wrong with a recipe.
+#[derive(Debug, thiserror::Error)]
+pub enum RecipeProblem {
+    #[error("cannot read the recipe: {0}")]
+    Read(std::io::Error),
+    #[error("{0}")]
+    Syntax(String),
+    #[error("recipe format {found} is not supported; this version of sextant reads format = 1")]
+    Format { found: i64 },
+    #[error("column `{name}` is not in the header of {table}{}", did_you_mean(.suggestion))]
+    UnknownColumn {
+        name: String,
+        table: String,
+        suggestion: Option<String>,
+    },
+    #[error("pattern `{pattern}` matches no column of {table}{}", did_you_mean(.suggestion))]
+    NoMatch {
+        pattern: String,
+        table: String,
+        suggestion: Option<String>,
+    },
+    #[error("column `{name}` is used twice: as {first} and as {second}; a column can have one role")]
+    TwoRoles {
+        name: String,
+        first: &'static str,
+        second: &'static str,
+    },
+    #[error(
+        "feature `{name}` is given two transforms (`{first}` and `{second}`); choose one per feature"
+    )]
+    TwoTransforms {
+        name: String,
+        first: &'static str,
+        second: &'static str,
+    },
+    #[error("transform `{transform}` names `{name}`, which is not a feature of this analysis")]
+    TransformNotFeature {
+        name: String,
+        transform: &'static str,
+    },
+    #[error(
+        "keep = {keep} asks for more components than compute = {compute}; raise compute or lower keep"
+    )]
+    KeepAboveCompute { keep: usize, compute: usize },
+    #[error(
+        "keep = {keep} asks for more components than the data can give: at most {available} ({reason})"
+    )]
+    KeepAboveRank {
+        keep: usize,
+        available: usize,
+        reason: String,
+    },
+    #[error(
+        "output folder `{folder}` would contain {what} `{path}`; results are written into a folder of their own, which a rerun replaces"
+    )]
+    OutputContains {
+        folder: String,
+        what: &'static str,
+        path: String,
+    },
+    #[error(
+        "input.sha256 pins {path} to {expected}, but the file now hashes to {found}; if the change is intended, update the pin"
+    )]
+    PinMismatch {
+        path: String,
+        expected: String,
+        found: String,
+    },
+}
+
+fn did_you_mean(suggestion: &Option<String>) -> String {
+    match suggestion {
+        Some(s) => format!("; did you mean `{s}`?"),
+        None => String::new(),
+    }
+}
+
+/// A problem with an input table.
+#[derive(Debug, thiserror::Error)]
+pub enum InputError {
+    #[error("{path}: cannot read the file: {source}")]
+    Io {
+        path: String,
+        source: std::io::Error,
+    },
+    #[error("{path}: the file is empty; expected a header row and data rows")]
+    Empty { path: String },
+    #[error("{path}:{line}: {message}")]
+    Csv {
+        path: String,
+        line: u64,
+        message: String,
+    },
+    #[error("{path}:{line}: the row has {found} fields but the header has {expected}")]
+    Ragged {
+        path: String,
+        line: u64,
+        expected: usize,
+        found: usize,
+    },
+    #[error("{path}:1: header column {column} has no name; every column needs a name")]
+    EmptyColumnName { path: String, column: usize },
+    #[error(
+        "{path}:1: column name `{name}` appears twice (columns {first} and {second}); names must be unique"
+    )]
+    DuplicateColumn {
+        path: String,
+        name: String,
+        first: usize,
+        second: usize,
+    },
+    #[error(
+        "{path}:{line}: column `{column}` has a non-numeric cell `{text}`{}",
+        numeric_hint(.text)
+    )]
+    NotNumeric {
+        path: String,
+        line: u64,
+        column: String,
+        text: String,
+    },
+    #[error("{path}:{line}: column `{column}` has the non-finite value `{text}`; mark it as missing in input.missing or fix the cell")]
+    NonFinite {
+        path: String,
+        line: u64,
+        column: String,
+        text: String,
+    },
+    #[error("{path}:{line}: the id column `{column}` is empty; every row needs an id")]
+    MissingId {
+        path: String,
+        line: u64,
+        column: String,
+    },
+    #[error("{path}:{line}: id `{id}` in column `{column}` already appeared at line {first_line}; ids must be unique")]
+    DuplicateId {
+        path: String,
+        line: u64,
+        column: String,
+        id: String,
+        first_line: u64,
+    },
+    #[error("{path}: {rows} usable row(s){why}; at least 2 are needed")]
+    TooFewRows {
+        path: String,
+        rows: usize,
+        why: String,
+    },
+    #[error("{path}: no usable features{why}")]
+    NoFeatures { path: String, why: String },
+    #[error("{path}:{line}: column `{column}` has the value {value} where `{transform}` needs {need}")]
+    BadTransformValue {
+        path: String,
+        line: u64,
+        column: String,
+        value: String,
+        transform: &'static str,
+        need: &'static str,
+    },
+    #[error(
+        "feature `{column}` is constant ({value}), so `{scaling}` scaling would divide by zero; set scaling.constant_features = \"drop\" or exclude it"
+    )]
+    ConstantFeature {
+        column: String,
+        value: String,
+        scaling: &'static str,
+    },
+}
+
+fn numeric_hint(text: &str) -> &'static str {
+    if text.contains(',') && text.replace(',', ".").parse::<f64>().is_ok() {
+        " (it looks like a decimal comma: sextant reads a point as the decimal mark)"
+    } else {
+        "; add it to input.missing if it means missing, or exclude the column"
+    }
+}
+
+/// The computation could not produce a trustworthy answer.
+#[derive(Debug, thiserror::Error)]
+pub enum AnalysisError {
+    #[error("the eigendecomposition did not produce finite values; the scaled data may be degenerate")]
+    NotFinite,
+}
+
+/// Writing results failed or was refused.
+#[derive(Debug, thiserror::Error)]
+pub enum OutputError {
+    #[error("{path}: {source}")]
+    Io {
+        path: String,
+        source: std::io::Error,
+    },
+    #[error("{path}: {reason}")]
+    Refused { path: String, reason: String },
+}
+
+impl OutputError {
+    pub fn io(path: &std::path::Path, source: std::io::Error) -> Self {
+        OutputError::Io {
+            path: path.display().to_string(),
+            source,
+        }
+    }
+}

@@ -1,0 +1,17 @@
+//! sextant: a principal component analysis described by a TOML recipe, run
+//! deterministically, with every input and output hashed in a manifest.
+//!
+//! The pipeline reads as a chain of types: recipe text → [`recipe::raw`] →
+//! [`recipe::plan::Plan`] → [`table::Table`] → [`stages`] (missing, transform,
+//! scale, decompose, select) → [`outputs`]. [`run`] is the only module that reads
+//! or writes files during a run.
+
+pub mod cli;
+pub mod error;
+pub mod linalg;
+pub mod outputs;
+pub mod paths;
+pub mod recipe;
+pub mod run;
+pub mod stages;
+pub mod table;

@@ -1,0 +1,144 @@
+//! Cross-products XᵀX and products X·V in a fixed order.
+//!
+//! XᵀX is accumulated over fixed blocks of `BLOCK_ROWS` rows: each block sums its
+//! rows in order into its own upper triangle, and the block partials are added in
+//! block order. Blocks may run on any number of threads; the bits stay the same.
+
+use super::Matrix;
+use rayon::prelude::*;
+
+/// Rows per block. Part of the numeric definition: changing it changes the last
+/// bits of results, so it is a constant, not a tuning knob.
+pub const BLOCK_ROWS: usize = 1024;
+
+/// XᵀX (p × p, symmetric) of a row-major n × p matrix.
+pub fn gram_of_columns(x: &Matrix) -> Matrix {
+    let p = x.cols;
+    let partials: Vec<Vec<f64>> = x
+        .data
+        .par_chunks(BLOCK_ROWS * p.max(1))
+        .map(|block| block_upper(block, p))
+        .collect();
+    let mut upper = vec![0.0; p * p];
+    for partial in &partials {
+        for (acc, v) in upper.iter_mut().zip(partial) {
+            *acc += v;
+        }
+    }
+    symmetric_from_upper(upper, p)
+}
+
+/// Upper triangle of Σ rowᵀrow over the rows of one block, rows taken in order.
+fn block_upper(block: &[f64], p: usize) -> Vec<f64> {
+    let mut acc = vec![0.0; p * p];
+    for row in block.chunks_exact(p) {
+        for i in 0..p {
+            let xi = row[i];
+            let target = &mut acc[i * p + i..(i + 1) * p];
+            for (a, &xj) in target.iter_mut().zip(&row[i..]) {
+                *a += xi * xj;
+            }
+        }
+    }
+    acc
+}
+
+fn symmetric_from_upper(mut m: Vec<f64>, p: usize) -> Matrix {
+    for i in 0..p {
+        for j in 0..i {
+            m[i * p + j] = m[j * p + i];
+        }
+    }
+    Matrix {
+        rows: p,
+        cols: p,
+        data: m,
+    }
+}
+
+/// XXᵀ (n × n) of a row-major n × p matrix: dot products of rows, each summed in
+/// feature order. Used for tables with more features than rows.
+pub fn gram_of_rows(x: &Matrix) -> Matrix {
+    let n = x.rows;
+    let mut upper = vec![0.0; n * n];
+    upper.par_chunks_mut(n).enumerate().for_each(|(i, out)| {
+        let ri = x.row(i);
+        for j in i..n {
+            out[j] = dot(ri, x.row(j));
+        }
+    });
+    symmetric_from_upper(upper, n)
+}
+
+/// X·V for a row-major n × p matrix X and p × k matrix V; each entry is a dot
+/// product summed in feature order.
+pub fn times(x: &Matrix, v: &Matrix) -> Matrix {
+    assert_eq!(x.cols, v.rows, "inner dimensions differ");
+    let k = v.cols;
+    let vt = v.transpose();
+    let mut out = Matrix::zeros(x.rows, k);
+    if k == 0 {
+        return out;
+    }
+    out.data.par_chunks_mut(k).enumerate().for_each(|(i, row)| {
+        let xi = x.row(i);
+        for (a, slot) in row.iter_mut().enumerate() {
+            *slot = dot(xi, vt.row(a));
+        }
+    });
+    out
+}
+
+/// Xᵀ·U for a row-major n × p matrix X and n × k matrix U; each entry summed in row order.
+pub fn transpose_times(x: &Matrix, u: &Matrix) -> Matrix {
+    times(&x.transpose(), u)
+}
+
+/// A dot product summed strictly left to right.
+pub fn dot(a: &[f64], b: &[f64]) -> f64 {
+    let mut s = 0.0;
+    for (x, y) in a.iter().zip(b) {
+        s += x * y;
+    }
+    s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn sample(n: usize, p: usize) -> Matrix {
+        let data = (0..n * p).map(|i| ((i * 7919) % 101) as f64 / 10.0 - 5.0).collect();
+        Matrix { rows: n, cols: p, data }
+    }
+
+    #[test]
+    fn gram_matches_naive_sum() {
+        let x = sample(2500, 5);
+        let g = gram_of_columns(&x);
+        for i in 0..5 {
+            for j in 0..5 {
+                let naive: f64 = (0..x.rows).map(|r| x.get(r, i) * x.get(r, j)).sum();
+                assert!((g.get(i, j) - naive).abs() <= 1e-9 * naive.abs().max(1.0));
+            }
+        }
+    }
+
+    #[test]
+    fn gram_is_the_same_on_one_thread() {
+        let x = sample(5000, 7);
+        let many = gram_of_columns(&x);
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+        let one = pool.install(|| gram_of_columns(&x));
+        assert_eq!(many.data, one.data);
+    }
+
+    #[test]
+    fn products_agree() {
+        let x = sample(30, 4);
+        let u = sample(30, 2);
+        let xtu = transpose_times(&x, &u);
+        let naive: f64 = (0..30).map(|r| x.get(r, 3) * u.get(r, 1)).sum();
+        assert!((xtu.get(3, 1) - naive).abs() < 1e-12);
+    }
+}

@@ -1,0 +1,13 @@
+use clap::Parser;
+use sextant::cli::{Cli, execute};
+
+fn main() {
+    let cli = Cli::parse();
+    match execute(cli) {
+        Ok(text) => print!("{text}"),
+        Err(e) => {
+            eprintln!("error: {e}");
+            std::process::exit(e.exit_code());
+        }
+    }
+}

@@ -1,0 +1,94 @@
+//! Writing a results folder all at once.
+//!
+//! Files go into a hidden temporary folder beside the target; only when every file
+//! is written is the folder moved into place. A failed run therefore leaves no
+//! partial results and never touches an earlier run's folder. An existing folder
+//! is replaced only if it holds sextant results of the same recipe and inputs, or
+//! when the caller says `replace`.
+
+use super::manifest::fingerprint;
+use crate::error::OutputError;
+use serde_json::Value;
+use std::fs;
+use std::path::{Path, PathBuf};
+
+/// Decides whether `target` may be replaced by results with `new_fingerprint`.
+pub fn check_replaceable(
+    target: &Path,
+    new_fingerprint: &(String, Vec<String>),
+    replace: bool,
+) -> Result<(), OutputError> {
+    if !target.exists() {
+        return Ok(());
+    }
+    let refuse = |reason: String| OutputError::Refused {
+        path: target.display().to_string(),
+        reason,
+    };
+    if !target.is_dir() {
+        return Err(refuse("exists and is not a folder; choose another output.folder".into()));
+    }
+    let manifest = target.join("manifest.json");
+    let old: Option<Value> = fs::read(&manifest).ok().and_then(|b| serde_json::from_slice(&b).ok());
+    let old = match old {
+        Some(v) if v.pointer("/tool/name").and_then(Value::as_str) == Some("sextant") => v,
+        _ => {
+            let empty = fs::read_dir(target).map(|mut d| d.next().is_none()).unwrap_or(false);
+            if empty {
+                return Ok(());
+            }
+            return Err(refuse(
+                "exists and is not a sextant results folder (no manifest.json); sextant will not replace it".into(),
+            ));
+        }
+    };
+    if replace || fingerprint(&old).as_ref() == Some(new_fingerprint) {
+        return Ok(());
+    }
+    Err(refuse(
+        "holds results of a different recipe or input; pass --replace to replace them, or choose another output.folder"
+            .into(),
+    ))
+}
+
+/// Writes `files` (relative path, bytes) into a new folder and moves it to `target`.
+pub fn write_folder(target: &Path, files: &[(String, Vec<u8>)]) -> Result<(), OutputError> {
+    let parent = match target.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    fs::create_dir_all(&parent).map_err(|e| OutputError::io(&parent, e))?;
+    let staging = tempfile::Builder::new()
+        .prefix(".sextant-new-")
+        .tempdir_in(&parent)
+        .map_err(|e| OutputError::io(&parent, e))?;
+    for (name, bytes) in files {
+        let path = staging.path().join(name);
+        if let Some(dir) = path.parent() {
+            fs::create_dir_all(dir).map_err(|e| OutputError::io(dir, e))?;
+        }
+        fs::write(&path, bytes).map_err(|e| OutputError::io(&path, e))?;
+    }
+    // Move any earlier results aside first, so a failed move can be undone.
+    let old = if target.exists() {
+        let aside = tempfile::Builder::new()
+            .prefix(".sextant-old-")
+            .tempdir_in(&parent)
+            .map_err(|e| OutputError::io(&parent, e))?;
+        let aside_path = aside.path().join("results");
+        fs::rename(target, &aside_path).map_err(|e| OutputError::io(target, e))?;
+        Some((aside, aside_path))
+    } else {
+        None
+    };
+    let staged = staging.keep();
+    if let Err(e) = fs::rename(&staged, target) {
+        if let Some((_, aside_path)) = &old {
+            let _ = fs::rename(aside_path, target);
+        }
+        let _ = fs::remove_dir_all(&staged);
+        return Err(OutputError::io(target, e));
+    }
+    drop(old); // removes the earlier results
+    Ok(())
+}

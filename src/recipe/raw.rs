@@ -1,0 +1,307 @@
+//! The recipe exactly as written: plain structs that mirror the TOML file.
+//!
+//! Every struct denies unknown keys, and every choice is an enum or a checked
+//! newtype, so the `toml` crate reports a typo or an out-of-range value with its
+//! line, column and the valid choices. Nothing here knows about the data; the
+//! `plan` module turns a raw recipe into a checked plan once the table is read.
+
+use serde::{Deserialize, Deserializer, Serialize};
+use std::num::NonZeroUsize;
+use toml::Spanned;
+
+/// The whole recipe file.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawRecipe {
+    /// Recipe format version; only 1 exists.
+    pub format: Spanned<i64>,
+    pub title: Option<String>,
+    pub notes: Option<String>,
+    pub input: RawInput,
+    #[serde(default)]
+    pub missing: RawMissing,
+    #[serde(default)]
+    pub transform: RawTransform,
+    #[serde(default)]
+    pub scaling: RawScaling,
+    #[serde(default)]
+    pub components: RawComponents,
+    pub output: RawOutput,
+}
+
+/// `[input]`: which table, and the role of its columns.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawInput {
+    pub file: Spanned<String>,
+    /// Optional pin: the run refuses a file whose SHA-256 differs.
+    pub sha256: Option<Spanned<Sha256Hex>>,
+    pub id: Option<Spanned<String>>,
+    #[serde(default)]
+    pub groups: Vec<Spanned<String>>,
+    /// Names or glob patterns; absent means every numeric column.
+    pub features: Option<Vec<Spanned<String>>>,
+    #[serde(default)]
+    pub exclude: Vec<Spanned<String>>,
+    /// Cell texts that mean "missing".
+    pub missing: Option<Vec<String>>,
+    pub delimiter: Option<Delimiter>,
+}
+
+/// The cell texts read as missing when the recipe does not say.
+pub const DEFAULT_MISSING_TOKENS: [&str; 4] = ["", "NA", "N/A", "-"];
+
+/// `[missing]`: what to do with empty cells.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawMissing {
+    #[serde(default)]
+    pub method: MissingMethod,
+    #[serde(default = "default_max_feature_missing")]
+    pub max_feature_missing: Share,
+}
+
+impl Default for RawMissing {
+    fn default() -> Self {
+        RawMissing {
+            method: MissingMethod::default(),
+            max_feature_missing: default_max_feature_missing(),
+        }
+    }
+}
+
+fn default_max_feature_missing() -> Share {
+    Share(0.3)
+}
+
+/// How missing cells are handled.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum MissingMethod {
+    /// Drop every row with a missing cell in a kept feature.
+    DropRows,
+    /// Fill with the feature's mean over its observed cells.
+    #[default]
+    Mean,
+    /// Fill with the feature's median over its observed cells.
+    Median,
+}
+
+/// `[transform]`: per-feature transforms applied before scaling.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawTransform {
+    #[serde(default)]
+    pub log10: Vec<Spanned<String>>,
+    #[serde(default)]
+    pub ln: Vec<Spanned<String>>,
+    #[serde(default)]
+    pub sqrt: Vec<Spanned<String>>,
+}
+
+/// `[scaling]`: centring and scaling of each feature.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawScaling {
+    #[serde(default)]
+    pub method: ScalingMethod,
+    #[serde(default)]
+    pub constant_features: ConstantPolicy,
+}
+
+/// How features are centred and scaled before the decomposition.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum ScalingMethod {
+    /// Neither centred nor scaled: the decomposition is of XᵀX / (n − 1).
+    None,
+    /// Centred on the mean.
+    Center,
+    /// Centred and divided by the standard deviation (n − 1): correlation PCA.
+    #[default]
+    UnitVariance,
+    /// Centred and divided by the square root of the standard deviation.
+    Pareto,
+    /// Centred and divided by the range (max − min).
+    Range,
+}
+
+impl ScalingMethod {
+    pub fn name(self) -> &'static str {
+        match self {
+            ScalingMethod::None => "none",
+            ScalingMethod::Center => "center",
+            ScalingMethod::UnitVariance => "unit-variance",
+            ScalingMethod::Pareto => "pareto",
+            ScalingMethod::Range => "range",
+        }
+    }
+
+    /// Whether the scaling divides by a measure of spread.
+    pub fn divides(self) -> bool {
+        matches!(
+            self,
+            ScalingMethod::UnitVariance | ScalingMethod::Pareto | ScalingMethod::Range
+        )
+    }
+
+    pub fn centers(self) -> bool {
+        self != ScalingMethod::None
+    }
+}
+
+/// What happens to a feature with zero spread under a dividing scaling.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum ConstantPolicy {
+    /// Stop with an error naming the feature.
+    #[default]
+    Error,
+    /// Drop the feature and report it.
+    Drop,
+}
+
+/// `[components]`: how many components are computed and kept.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawComponents {
+    pub keep: Option<Spanned<Keep>>,
+    pub compute: Option<Spanned<NonZeroUsize>>,
+}
+
+/// The rule that chooses the number of kept components.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Keep {
+    /// A fixed count.
+    Count(NonZeroUsize),
+    /// The smallest count whose cumulative share of variance reaches the share.
+    Variance(Share),
+    /// Components whose eigenvalue exceeds the mean eigenvalue (Kaiser 1960).
+    Kaiser,
+    /// Components that explain more than the broken-stick expectation
+    /// (Frontier 1976; Jackson 1993).
+    BrokenStick,
+}
+
+/// The number of kept components when the recipe does not say.
+pub const DEFAULT_KEEP: usize = 2;
+/// The largest number of computed components when the recipe does not say.
+pub const DEFAULT_COMPUTE: usize = 10;
+
+const KEEP_EXPECTED: &str =
+    "a component count such as 3, { variance = 0.9 }, \"kaiser\" or \"broken-stick\"";
+
+impl<'de> Deserialize<'de> for Keep {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        deserializer.deserialize_any(KeepVisitor)
+    }
+}
+
+struct KeepVisitor;
+
+impl<'de> serde::de::Visitor<'de> for KeepVisitor {
+    type Value = Keep;
+
+    fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+        f.write_str(KEEP_EXPECTED)
+    }
+
+    fn visit_i64<E: serde::de::Error>(self, v: i64) -> Result<Keep, E> {
+        usize::try_from(v)
+            .ok()
+            .and_then(NonZeroUsize::new)
+            .map(Keep::Count)
+            .ok_or_else(|| E::custom(format!("keep = {v} is not a positive count; expected {KEEP_EXPECTED}")))
+    }
+
+    fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<Keep, E> {
+        match v {
+            "kaiser" => Ok(Keep::Kaiser),
+            "broken-stick" => Ok(Keep::BrokenStick),
+            _ => Err(E::custom(format!(
+                "unknown rule `{v}` for keep; expected {KEEP_EXPECTED}"
+            ))),
+        }
+    }
+
+    fn visit_map<A: serde::de::MapAccess<'de>>(self, mut map: A) -> Result<Keep, A::Error> {
+        use serde::de::Error;
+        let mut share = None;
+        while let Some(key) = map.next_key::<String>()? {
+            match key.as_str() {
+                "variance" => share = Some(map.next_value::<Share>()?),
+                other => {
+                    return Err(A::Error::custom(format!(
+                        "unknown key `{other}` in keep; expected {KEEP_EXPECTED}"
+                    )));
+                }
+            }
+        }
+        share
+            .map(Keep::Variance)
+            .ok_or_else(|| A::Error::custom(format!("keep table needs `variance`; expected {KEEP_EXPECTED}")))
+    }
+}
+
+/// `[output]`: where the results folder goes.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawOutput {
+    pub folder: Spanned<String>,
+}
+
+/// A share between 0 and 1 inclusive.
+#[derive(Debug, Clone, Copy, PartialEq, PartialOrd, Deserialize, Serialize)]
+#[serde(try_from = "f64", into = "f64")]
+pub struct Share(pub f64);
+
+impl TryFrom<f64> for Share {
+    type Error = String;
+    fn try_from(v: f64) -> Result<Self, String> {
+        if (0.0..=1.0).contains(&v) {
+            Ok(Share(v))
+        } else {
+            Err(format!("{v} is not a share; expected a number from 0 to 1"))
+        }
+    }
+}
+
+impl From<Share> for f64 {
+    fn from(s: Share) -> f64 {
+        s.0
+    }
+}
+
+/// A field delimiter: a single ASCII character.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(try_from = "String")]
+pub struct Delimiter(pub u8);
+
+impl TryFrom<String> for Delimiter {
+    type Error = String;
+    fn try_from(v: String) -> Result<Self, String> {
+        match v.as_bytes() {
+            [b] if b.is_ascii() && *b != b'"' && *b != b'\n' && *b != b'\r' => Ok(Delimiter(*b)),
+            _ => Err(format!(
+                "delimiter `{v}` is not one ASCII character; expected e.g. \",\", \";\", \"\\t\" or \"|\""
+            )),
+        }
+    }
+}
+
+/// A SHA-256 digest written as 64 hexadecimal digits.
+#[derive(Debug, Clone, PartialEq, Eq, Deserialize)]
+#[serde(try_from = "String")]
+pub struct Sha256Hex(pub String);
+
+impl TryFrom<String> for Sha256Hex {
+    type Error = String;
+    fn try_from(v: String) -> Result<Self, String> {
+        if v.len() == 64 && v.bytes().all(|b| b.is_ascii_hexdigit()) {
+            Ok(Sha256Hex(v.to_ascii_lowercase()))
+        } else {
+            Err(format!("`{v}` is not a SHA-256 digest; expected 64 hexadecimal digits"))
+        }
+    }
+}

@@ -1,0 +1,65 @@
+//! The resolved recipe: every setting the run used, defaults included, in a
+//! canonical JSON form. Its hash identifies the analysis, so a change of a default
+//! in a later version of sextant shows up as a changed recipe.
+
+use super::LoadedRecipe;
+use super::plan::InputPlan;
+use super::raw::{DEFAULT_COMPUTE, DEFAULT_KEEP, Keep};
+use serde_json::{Value, json};
+use toml::Spanned;
+
+fn names(list: &[Spanned<String>]) -> Vec<String> {
+    list.iter().map(|s| s.get_ref().clone()).collect()
+}
+
+fn keep_value(keep: Option<Keep>) -> Value {
+    match keep {
+        None => json!(DEFAULT_KEEP),
+        Some(Keep::Count(k)) => json!(k.get()),
+        Some(Keep::Variance(s)) => json!({ "variance": s.0 }),
+        Some(Keep::Kaiser) => json!("kaiser"),
+        Some(Keep::BrokenStick) => json!("broken-stick"),
+    }
+}
+
+/// The recipe with every default filled in.
+pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
+    let raw = &recipe.raw;
+    let features = match &raw.input.features {
+        Some(list) => json!(names(list)),
+        None => json!("every numeric column that is not the id, a group or excluded"),
+    };
+    json!({
+        "format": 1,
+        "title": raw.title,
+        "notes": raw.notes,
+        "input": {
+            "file": raw.input.file.get_ref(),
+            "sha256": raw.input.sha256.as_ref().map(|s| s.get_ref().0.clone()),
+            "id": input.id,
+            "groups": input.groups,
+            "features": features,
+            "exclude": names(&raw.input.exclude),
+            "missing": input.options.missing_tokens,
+            "delimiter": (input.options.delimiter as char).to_string(),
+        },
+        "missing": {
+            "method": raw.missing.method,
+            "max_feature_missing": raw.missing.max_feature_missing.0,
+        },
+        "transform": {
+            "log10": names(&raw.transform.log10),
+            "ln": names(&raw.transform.ln),
+            "sqrt": names(&raw.transform.sqrt),
+        },
+        "scaling": {
+            "method": raw.scaling.method,
+            "constant_features": raw.scaling.constant_features,
+        },
+        "components": {
+            "keep": keep_value(raw.components.keep.as_ref().map(|k| *k.get_ref())),
+            "compute": raw.components.compute.as_ref().map_or(DEFAULT_COMPUTE, |c| c.get_ref().get()),
+        },
+        "output": { "folder": raw.output.folder.get_ref() },
+    })
+}

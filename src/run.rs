@@ -1,0 +1,306 @@
+//! The one orchestrator: it reads the recipe and the input, runs the stages in
+//! order, and writes the results folder. All file I/O of a run happens here.
+
+use crate::error::{Error, InputError, RecipeError, RecipeProblem};
+use crate::linalg::Matrix;
+use crate::outputs::folder::{check_replaceable, write_folder};
+use crate::outputs::hashing::sha256_hex;
+use crate::outputs::manifest::{self, FileRecord, InputRecord, ManifestBody, RunInfo};
+use crate::outputs::tables::{self, RowLabels};
+use crate::recipe::plan::{Plan, check_names, input_plan, make_plan};
+use crate::recipe::resolved::resolved_recipe;
+use crate::recipe::{self, LoadedRecipe};
+use crate::stages::decompose::{Decomposition, decompose, scores};
+use crate::stages::missing::{MissingReport, handle_missing};
+use crate::stages::scale::{ScaleReport, Scaled, scale};
+use crate::stages::select::{Selection, select};
+use crate::stages::transform::{Applied, apply_transforms};
+use crate::stages::FeatureData;
+use crate::table::{ColumnData, Table, read_header, read_table};
+use serde_json::{Value, json};
+use std::path::Path;
+use std::time::Instant;
+
+/// A recipe with its table read and its plan checked.
+pub struct Prepared {
+    pub recipe: LoadedRecipe,
+    pub plan: Plan,
+    pub table: Table,
+    pub input: InputRecord,
+}
+
+/// The data after every preprocessing stage, with the stages' reports.
+pub struct Preprocessed {
+    pub scaled: Scaled,
+    pub missing: MissingReport,
+    pub transforms: Vec<Applied>,
+    pub scaling: ScaleReport,
+}
+
+/// Loads the recipe, reads and hashes the input, and checks the plan.
+pub fn prepare(recipe_path: &Path) -> Result<Prepared, Error> {
+    let recipe = recipe::load(recipe_path)?;
+    let input = input_plan(&recipe);
+    let shown = input.file.display().to_string();
+    let bytes = std::fs::read(&input.file).map_err(|source| InputError::Io {
+        path: shown.clone(),
+        source,
+    })?;
+    let sha256 = sha256_hex(&bytes);
+    if let Some((expected, at)) = &input.pin {
+        if *expected != sha256 {
+            return Err(RecipeError {
+                file: recipe.path.clone(),
+                at: Some(at.clone()),
+                problem: RecipeProblem::PinMismatch {
+                    path: shown,
+                    expected: expected.clone(),
+                    found: sha256,
+                },
+            }
+            .into());
+        }
+    }
+    let header = read_header(&bytes, &shown, input.options.delimiter)?;
+    check_names(&recipe, &header)?;
+    let table = read_table(&bytes, &shown, &input.options)?;
+    check_ids(&table, input.id.as_deref())?;
+    let record = InputRecord {
+        path: input.display.clone(),
+        bytes: bytes.len() as u64,
+        sha256,
+        rows: table.n_rows(),
+        columns: table.columns.len(),
+    };
+    let plan = make_plan(&recipe, input, &table)?;
+    Ok(Prepared {
+        recipe,
+        plan,
+        table,
+        input: record,
+    })
+}
+
+/// Ids must be present and unique, so every result row can be traced back.
+fn check_ids(table: &Table, id: Option<&str>) -> Result<(), InputError> {
+    let Some(name) = id else { return Ok(()) };
+    let Some(ColumnData::Text(values)) = table.column(name).map(|c| &c.data) else {
+        return Ok(());
+    };
+    let mut seen = std::collections::BTreeMap::new();
+    for (i, v) in values.iter().enumerate() {
+        let line = table.lines[i];
+        if v.is_empty() {
+            return Err(InputError::MissingId { path: table.display.clone(), line, column: name.into() });
+        }
+        if let Some(first_line) = seen.insert(v.as_str(), line) {
+            return Err(InputError::DuplicateId {
+                path: table.display.clone(),
+                line,
+                column: name.into(),
+                id: v.clone(),
+                first_line,
+            });
+        }
+    }
+    Ok(())
+}
+
+/// Runs the missing, transform and scaling stages.
+pub fn preprocess(prepared: &Prepared) -> Result<Preprocessed, Error> {
+    let plan = &prepared.plan;
+    let data = FeatureData::from_table(&prepared.table, plan);
+    if data.n_rows() < 2 {
+        let rows = data.n_rows();
+        return Err(InputError::TooFewRows { path: data.source, rows, why: String::new() }.into());
+    }
+    let (data, missing) = handle_missing(data, plan.missing_method, plan.max_feature_missing)?;
+    let (data, transforms) = apply_transforms(data)?;
+    let (scaled, scaling) = scale(data, plan.scaling, plan.constant_features)?;
+    Ok(Preprocessed { scaled, missing, transforms, scaling })
+}
+
+/// The decomposition, the choice of k and the scores.
+pub struct Analysis {
+    pub decomposition: Decomposition,
+    pub selection: Selection,
+    pub scores: Matrix,
+}
+
+/// Decomposes the scaled data and chooses the number of components.
+pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Error> {
+    let plan = &prepared.plan;
+    let decomposition = decompose(&pre.scaled.matrix, plan.scaling.centers(), None)?;
+    if decomposition.rank == 0 {
+        return Err(InputError::NoFeatures {
+            path: prepared.table.display.clone(),
+            why: " (the scaled data has no variance)".into(),
+        }
+        .into());
+    }
+    let selection = select(
+        &decomposition.eigenvalues,
+        decomposition.total_variance,
+        decomposition.rank,
+        &plan.components,
+    )
+    .map_err(|e| {
+        let at = plan.components.keep_written.clone();
+        Error::Recipe(RecipeError {
+            file: prepared.recipe.path.clone(),
+            at,
+            problem: RecipeProblem::KeepAboveRank {
+                keep: e.keep,
+                available: e.available,
+                reason: format!(
+                    "{} rows and {} features after preprocessing",
+                    pre.scaled.matrix.rows, pre.scaled.matrix.cols
+                ),
+            },
+        })
+    })?;
+    let scores = scores(&pre.scaled.matrix, &decomposition.loadings, selection.kept);
+    Ok(Analysis { decomposition, selection, scores })
+}
+
+/// Options of `sextant run`.
+#[derive(Debug, Clone, Default)]
+pub struct RunOptions {
+    /// Replace an existing results folder made from another recipe or input.
+    pub replace: bool,
+}
+
+/// What a finished run reports to the user.
+pub struct RunSummary {
+    pub prepared: Prepared,
+    pub pre: Preprocessed,
+    pub analysis: Analysis,
+    pub outputs: Vec<FileRecord>,
+    pub digest: String,
+    pub seconds: f64,
+}
+
+/// Runs a recipe end to end and writes its results folder.
+pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error> {
+    let start = Instant::now();
+    let started_utc = manifest::utc_now();
+    let prepared = prepare(recipe_path)?;
+    let pre = preprocess(&prepared)?;
+    let analysis = analyse(&prepared, &pre)?;
+
+    let resolved = resolved_recipe(&prepared.recipe, &prepared.plan.input);
+    let resolved_sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
+    let fingerprint = (resolved_sha.clone(), vec![prepared.input.sha256.clone()]);
+    check_replaceable(&prepared.plan.output, &fingerprint, options.replace)?;
+
+    let files = result_files(&prepared, &pre, &analysis);
+    let outputs: Vec<FileRecord> = files
+        .iter()
+        .map(|(path, bytes)| FileRecord { path: path.clone(), bytes: bytes.len() as u64, sha256: sha256_hex(bytes) })
+        .collect();
+    let body = ManifestBody {
+        recipe: json!({
+            "path": crate::paths::relative(&prepared.plan.output, &prepared.recipe.path),
+            "sha256": sha256_hex(prepared.recipe.text.as_bytes()),
+            "resolved": resolved,
+            "resolved_sha256": resolved_sha,
+        }),
+        inputs: vec![prepared.input.clone()],
+        steps: steps_json(&prepared, &pre, &analysis),
+    };
+    let seconds = start.elapsed().as_secs_f64();
+    let run_info = RunInfo {
+        started_utc,
+        seconds: (seconds * 1000.0).round() / 1000.0,
+        host: manifest::host_name(),
+        threads: rayon::current_num_threads(),
+        platform: format!("{}-{}", std::env::consts::ARCH, std::env::consts::OS),
+    };
+    let (manifest_text, digest) = manifest::render(&body, &outputs, &run_info);
+    let mut all = files;
+    all.push(("manifest.json".to_string(), manifest_text.into_bytes()));
+    write_folder(&prepared.plan.output, &all)?;
+    Ok(RunSummary { prepared, pre, analysis, outputs, digest, seconds })
+}
+
+/// The result tables, in a fixed order.
+fn result_files(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> Vec<(String, Vec<u8>)> {
+    let table = &prepared.table;
+    let plan = &prepared.plan;
+    let text = |name: &str| match table.column(name).map(|c| &c.data) {
+        Some(ColumnData::Text(v)) => v.as_slice(),
+        _ => unreachable!("id and group columns are read as text"),
+    };
+    let labels = RowLabels {
+        rows: &pre.scaled.rows,
+        id: plan.input.id.as_deref().map(|n| (n, text(n))),
+        groups: plan.input.groups.iter().map(|g| (g.as_str(), text(g))).collect(),
+    };
+    let d = &analysis.decomposition;
+    let s = &analysis.selection;
+    vec![
+        ("scores.csv".into(), tables::scores_csv(&labels, &analysis.scores)),
+        ("loadings.csv".into(), tables::loadings_csv(&pre.scaled.names, d, s.computed)),
+        ("variance.csv".into(), tables::variance_csv(d, s)),
+        (
+            "preprocessing.csv".into(),
+            tables::preprocessing_csv(&plan.features, &plan.transforms, &pre.missing, &pre.scaling),
+        ),
+    ]
+}
+
+/// What each step did, for the manifest.
+fn steps_json(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> Value {
+    let plan = &prepared.plan;
+    let d = &analysis.decomposition;
+    let s = &analysis.selection;
+    let kept_share: f64 = d.eigenvalues[..s.kept].iter().sum::<f64>() / d.total_variance;
+    json!({
+        "read": {
+            "rows": prepared.table.n_rows(),
+            "columns": prepared.table.columns.len(),
+            "id": plan.input.id,
+            "groups": plan.input.groups,
+            "features": plan.features,
+            "unused_columns": plan.unused.iter().map(|(c, why)| json!({"column": c, "reason": why})).collect::<Vec<_>>(),
+        },
+        "missing": pre.missing,
+        "transform": pre.transforms,
+        "scaling": {
+            "method": pre.scaling.method,
+            "constant_features": pre.scaling.constant_features,
+            "dropped_constant": pre.scaling.dropped_constant,
+            "divisor": "n - 1",
+        },
+        "decomposition": {
+            "matrix": matrix_name(plan),
+            "route": d.route,
+            "rows": pre.scaled.matrix.rows,
+            "features": pre.scaled.matrix.cols,
+            "divisor": "n - 1",
+            "rank": d.rank,
+            "total_variance": d.total_variance,
+            "sign_rule": "the largest-magnitude loading of each component is positive; ties go to the first feature",
+        },
+        "components": {
+            "rule": s.rule,
+            "kept": s.kept,
+            "computed": s.computed,
+            "reason": s.reason,
+            "adjustments": s.adjustments,
+            "kept_share": kept_share,
+        },
+    })
+}
+
+/// The name of the matrix whose eigenvectors are the loadings.
+pub fn matrix_name(plan: &Plan) -> &'static str {
+    use crate::recipe::raw::ScalingMethod::*;
+    match plan.scaling {
+        None => "second moments (uncentred)",
+        Center => "covariance",
+        UnitVariance => "correlation",
+        Pareto => "covariance of Pareto-scaled features",
+        Range => "covariance of range-scaled features",
+    }
+}

@@ -1,0 +1,119 @@
+//! The eigendecomposition of the scaled data's covariance matrix.
+//!
+//! With n rows and p features the covariance is C = ZᵀZ / (n − 1) (divisor n − 1,
+//! as R's `prcomp` and scikit-learn's `explained_variance_`). Under unit-variance
+//! scaling C is the correlation matrix; without centring it is the second-moment
+//! matrix. When the table has fewer rows than features, the n × n matrix
+//! G = ZZᵀ / (n − 1) is decomposed instead: it has the same non-zero eigenvalues,
+//! and each loading is v = Zᵀu / √((n − 1) μ) (the "dual" route).
+//!
+//! Sign rule: in each loading vector the entry of largest magnitude is positive;
+//! ties go to the first feature. So reruns and other machines agree.
+
+use crate::error::AnalysisError;
+use crate::linalg::crossprod::{gram_of_columns, gram_of_rows, times, transpose_times};
+use crate::linalg::eigen::{fix_signs, symmetric_eigen};
+use crate::linalg::Matrix;
+use serde::Serialize;
+
+/// Which matrix was decomposed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Route {
+    /// The p × p covariance matrix (tables with at least as many rows as features).
+    Features,
+    /// The n × n matrix of row products (tables with more features than rows).
+    Samples,
+}
+
+/// Eigenvalues and loadings of the scaled data.
+#[derive(Debug, Clone)]
+pub struct Decomposition {
+    /// All p eigenvalues, descending; numerically negative values are set to 0.
+    pub eigenvalues: Vec<f64>,
+    /// The sum of the feature variances (trace of the covariance matrix).
+    pub total_variance: f64,
+    /// How many eigenvalues are non-zero within rounding (see [`rank_tolerance`]).
+    pub rank: usize,
+    /// p × rank: the loading vectors (unit length) as columns, sign-fixed.
+    pub loadings: Matrix,
+    pub route: Route,
+}
+
+/// Decomposes the scaled data, choosing the route by shape unless one is forced.
+/// `centred` says whether the columns were centred, which lowers the rank bound
+/// to n − 1.
+pub fn decompose(z: &Matrix, centred: bool, route: Option<Route>) -> Result<Decomposition, AnalysisError> {
+    let (n, p) = (z.rows, z.cols);
+    let route = route.unwrap_or(if n < p { Route::Samples } else { Route::Features });
+    let divisor = (n - 1) as f64;
+    let total_variance = (0..p)
+        .map(|j| z.column(j).iter().map(|v| v * v).sum::<f64>())
+        .sum::<f64>()
+        / divisor;
+    let bound = if centred { n - 1 } else { n }.min(p);
+
+    let (values, loadings) = match route {
+        Route::Features => {
+            let mut c = gram_of_columns(z);
+            c.data.iter_mut().for_each(|v| *v /= divisor);
+            let eig = symmetric_eigen(&c)?;
+            (eig.values, eig.vectors)
+        }
+        Route::Samples => {
+            let mut g = gram_of_rows(z);
+            g.data.iter_mut().for_each(|v| *v /= divisor);
+            let eig = symmetric_eigen(&g)?;
+            let r = rank(&eig.values, n, p, bound);
+            let mut u = Matrix::zeros(n, r);
+            for a in 0..r {
+                let norm = (divisor * eig.values[a]).sqrt();
+                for i in 0..n {
+                    u.set(i, a, eig.vectors.get(i, a) / norm);
+                }
+            }
+            let mut values = eig.values;
+            values.resize(p, 0.0);
+            (values, transpose_times(z, &u))
+        }
+    };
+    let values: Vec<f64> = values.into_iter().map(|v| v.max(0.0)).collect();
+    let r = rank(&values, n, p, bound);
+    let mut kept = Matrix::zeros(p, r);
+    for i in 0..p {
+        for a in 0..r {
+            kept.set(i, a, loadings.get(i, a));
+        }
+    }
+    fix_signs(&mut kept);
+    Ok(Decomposition {
+        eigenvalues: values,
+        total_variance,
+        rank: r,
+        loadings: kept,
+        route,
+    })
+}
+
+/// The tolerance below which an eigenvalue counts as zero: λ₁ · max(n, p) · ε, the
+/// rule numpy's `matrix_rank` applies to the eigenvalues of a symmetric matrix.
+pub fn rank_tolerance(largest: f64, n: usize, p: usize) -> f64 {
+    largest * n.max(p) as f64 * f64::EPSILON
+}
+
+fn rank(values: &[f64], n: usize, p: usize, bound: usize) -> usize {
+    let largest = values.first().copied().unwrap_or(0.0);
+    let tol = rank_tolerance(largest, n, p);
+    values.iter().take_while(|&&v| v > tol).count().min(bound)
+}
+
+/// Scores: the scaled rows times the first `k` loadings.
+pub fn scores(z: &Matrix, loadings: &Matrix, k: usize) -> Matrix {
+    let mut v = Matrix::zeros(loadings.rows, k);
+    for i in 0..loadings.rows {
+        for a in 0..k {
+            v.set(i, a, loadings.get(i, a));
+        }
+    }
+    times(z, &v)
+}

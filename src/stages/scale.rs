@@ -1,0 +1,126 @@
+//! Centring and scaling, feature by feature.
+//!
+//! Definitions (van den Berg et al. 2006, "Centering, scaling, and transformations",
+//! BMC Genomics 7:142): unit variance divides by the standard deviation, Pareto by
+//! its square root, range by max − min; all of them centre on the mean first.
+//! Standard deviations use the divisor n − 1.
+
+use super::FeatureData;
+use crate::error::InputError;
+use crate::linalg::Matrix;
+use crate::recipe::raw::{ConstantPolicy, ScalingMethod};
+use serde::Serialize;
+
+/// How one feature was centred and scaled: scaled = (x − centre) / scale.
+#[derive(Debug, Clone, Serialize)]
+pub struct FeatureScale {
+    pub feature: String,
+    pub mean: f64,
+    pub sd: f64,
+    pub min: f64,
+    pub max: f64,
+    pub centre: f64,
+    pub scale: f64,
+}
+
+/// The scaling stage's report.
+#[derive(Debug, Clone, Serialize)]
+pub struct ScaleReport {
+    pub method: ScalingMethod,
+    pub constant_features: ConstantPolicy,
+    pub features: Vec<FeatureScale>,
+    /// Constant features dropped under `constant_features = "drop"`.
+    pub dropped_constant: Vec<String>,
+}
+
+/// The scaled data: rows × features, ready for the decomposition.
+#[derive(Debug, Clone)]
+pub struct Scaled {
+    pub names: Vec<String>,
+    pub matrix: Matrix,
+    pub rows: Vec<usize>,
+}
+
+/// Centres and scales every feature.
+pub fn scale(
+    data: FeatureData,
+    method: ScalingMethod,
+    constant: ConstantPolicy,
+) -> Result<(Scaled, ScaleReport), InputError> {
+    let mut report = ScaleReport {
+        method,
+        constant_features: constant,
+        features: Vec::new(),
+        dropped_constant: Vec::new(),
+    };
+    let mut columns = Vec::new();
+    let mut names = Vec::new();
+    for feature in data.features {
+        let stats = FeatureScale::measure(&feature.name, &feature.values, method);
+        if method.divides() && stats.min == stats.max {
+            match constant {
+                ConstantPolicy::Error => {
+                    return Err(InputError::ConstantFeature {
+                        column: feature.name,
+                        value: crate::outputs::tables::number(stats.min),
+                        scaling: method.name(),
+                    });
+                }
+                ConstantPolicy::Drop => {
+                    report.dropped_constant.push(feature.name);
+                    continue;
+                }
+            }
+        }
+        let column = feature
+            .values
+            .iter()
+            .map(|v| (v - stats.centre) / stats.scale)
+            .collect();
+        columns.push(column);
+        names.push(feature.name);
+        report.features.push(stats);
+    }
+    if names.is_empty() {
+        return Err(InputError::NoFeatures {
+            path: data.source,
+            why: " (every feature is constant)".into(),
+        });
+    }
+    Ok((
+        Scaled {
+            names,
+            matrix: Matrix::from_columns(&columns),
+            rows: data.rows,
+        },
+        report,
+    ))
+}
+
+impl FeatureScale {
+    fn measure(name: &str, values: &[f64], method: ScalingMethod) -> FeatureScale {
+        let n = values.len() as f64;
+        let mean = super::missing::mean(values);
+        // Two passes (mean, then squared deviations) for accuracy.
+        let ss: f64 = values.iter().map(|v| (v - mean) * (v - mean)).sum();
+        let sd = (ss / (n - 1.0)).sqrt();
+        let min = values.iter().copied().fold(f64::INFINITY, f64::min);
+        let max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let centre = if method.centers() { mean } else { 0.0 };
+        let scale = match method {
+            ScalingMethod::None | ScalingMethod::Center => 1.0,
+            ScalingMethod::UnitVariance => sd,
+            ScalingMethod::Pareto => sd.sqrt(),
+            ScalingMethod::Range => max - min,
+        };
+        FeatureScale {
+            feature: name.to_string(),
+            mean,
+            sd,
+            min,
+            max,
+            centre,
+            scale,
+        }
+    }
+}

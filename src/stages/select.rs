@@ -1,0 +1,193 @@
+//! Choosing how many components to keep, and saying why.
+//!
+//! Rules: a fixed count; the smallest count reaching a cumulative share of
+//! variance; Kaiser (1960): eigenvalues above the mean eigenvalue, which is 1 on a
+//! correlation matrix; the broken stick (Frontier 1976; Jackson 1993, Ecology
+//! 74:2204–2214): component k is kept while its share exceeds
+//! bₖ = (1/p) Σ_{i=k..p} 1/i, the expected share of the k-th longest piece of a
+//! stick broken at random into p pieces.
+
+use crate::recipe::plan::ComponentsPlan;
+use crate::recipe::raw::{DEFAULT_COMPUTE, Keep};
+use serde::Serialize;
+
+/// The chosen number of components and the evidence.
+#[derive(Debug, Clone, Serialize)]
+pub struct Selection {
+    /// Components used downstream (scores).
+    pub kept: usize,
+    /// Components reported (variance table, loadings).
+    pub computed: usize,
+    pub rule: &'static str,
+    pub reason: String,
+    /// Changes made to the recipe's numbers because of the data, each explained.
+    pub adjustments: Vec<String>,
+    /// The broken-stick expected share for each of the p components.
+    #[serde(skip)]
+    pub broken_stick: Vec<f64>,
+    /// The mean eigenvalue, Kaiser's threshold.
+    pub mean_eigenvalue: f64,
+}
+
+/// Why a recipe's fixed count cannot be honoured.
+#[derive(Debug, Clone, PartialEq)]
+pub struct KeepAboveRank {
+    pub keep: usize,
+    pub available: usize,
+}
+
+/// The broken-stick expectations b₁..b_p.
+pub fn broken_stick(p: usize) -> Vec<f64> {
+    (1..=p)
+        .map(|k| (k..=p).map(|i| 1.0 / i as f64).sum::<f64>() / p as f64)
+        .collect()
+}
+
+/// Applies the recipe's rule to the eigenvalues.
+pub fn select(
+    eigenvalues: &[f64],
+    total: f64,
+    rank: usize,
+    plan: &ComponentsPlan,
+) -> Result<Selection, KeepAboveRank> {
+    let p = eigenvalues.len();
+    let shares: Vec<f64> = eigenvalues.iter().map(|v| v / total).collect();
+    let sticks = broken_stick(p);
+    let mean_eigenvalue = total / p as f64;
+    let mut adjustments = Vec::new();
+
+    let (rule, mut kept, reason) = match plan.keep {
+        Keep::Count(k) => {
+            let k = k.get();
+            let why = match plan.keep_written {
+                Some(_) => format!("keep = {k} is set in the recipe"),
+                None => format!("keep is not set, so the default of {k} components is used"),
+            };
+            if k > rank {
+                if plan.keep_written.is_some() {
+                    return Err(KeepAboveRank { keep: k, available: rank });
+                }
+                adjustments.push(format!("the default keep = {k} was lowered to {rank}, the rank of the data"));
+                ("count", rank, why)
+            } else {
+                ("count", k, why)
+            }
+        }
+        Keep::Variance(share) => by_variance(&shares, share.0, rank),
+        Keep::Kaiser => {
+            let k = eigenvalues.iter().take_while(|&&v| v > mean_eigenvalue).count();
+            let why = format!(
+                "{k} eigenvalue(s) exceed the mean eigenvalue {} (Kaiser 1960)",
+                fmt_short(mean_eigenvalue)
+            );
+            ("kaiser", k, why)
+        }
+        Keep::BrokenStick => {
+            let k = shares.iter().zip(&sticks).take_while(|(s, b)| s > b).count();
+            let why = match (shares.get(k), sticks.get(k)) {
+                (Some(s), Some(b)) => format!(
+                    "components 1 to {k} each explain more than the broken-stick expectation; component {} explains {} % against {} %",
+                    k + 1,
+                    pct(*s),
+                    pct(*b)
+                ),
+                _ => format!("all {k} components explain more than the broken-stick expectation"),
+            };
+            ("broken-stick", k, why)
+        }
+    };
+    if kept == 0 {
+        adjustments.push(format!("the rule `{rule}` kept no component; one component is kept, the least that can be analysed"));
+        kept = 1;
+    }
+    kept = kept.min(rank);
+
+    let default_compute = DEFAULT_COMPUTE.min(rank);
+    let mut computed = plan.compute.unwrap_or(default_compute);
+    if computed > rank {
+        adjustments.push(format!("compute = {computed} was lowered to {rank}, the rank of the data"));
+        computed = rank;
+    }
+    if kept > computed {
+        adjustments.push(format!("compute was raised from {computed} to {kept} to report every kept component"));
+        computed = kept;
+    }
+    Ok(Selection {
+        kept,
+        computed,
+        rule,
+        reason,
+        adjustments,
+        broken_stick: sticks,
+        mean_eigenvalue,
+    })
+}
+
+fn by_variance(shares: &[f64], target: f64, rank: usize) -> (&'static str, usize, String) {
+    let mut cumulative = 0.0;
+    for (i, s) in shares.iter().enumerate().take(rank) {
+        cumulative += s;
+        if cumulative >= target {
+            let why = format!(
+                "the first {} component(s) explain {} % of the variance, the fewest to reach {} %",
+                i + 1,
+                pct(cumulative),
+                pct(target)
+            );
+            return ("variance", i + 1, why);
+        }
+    }
+    let why = format!(
+        "no count of components reaches {} % (all {rank} explain {} %), so all are kept",
+        pct(target),
+        pct(cumulative)
+    );
+    ("variance", rank, why)
+}
+
+/// A share as a percentage with one decimal.
+pub fn pct(share: f64) -> String {
+    format!("{:.1}", share * 100.0)
+}
+
+fn fmt_short(v: f64) -> String {
+    let s = format!("{v:.4}");
+    s.trim_end_matches('0').trim_end_matches('.').to_string()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::num::NonZeroUsize;
+
+    fn plan(keep: Keep) -> ComponentsPlan {
+        ComponentsPlan { keep, keep_written: None, compute: None }
+    }
+
+    #[test]
+    fn broken_stick_for_seven_parts() {
+        // Published worked example, p = 7: 0.3704, 0.2276, 0.1561 (4 decimals).
+        let b = broken_stick(7);
+        assert_eq!(format!("{:.4} {:.4} {:.4}", b[0], b[1], b[2]), "0.3704 0.2276 0.1561");
+    }
+
+    #[test]
+    fn variance_rule_takes_the_fewest() {
+        let s = select(&[6.0, 3.0, 1.0], 10.0, 3, &plan(Keep::Variance(crate::recipe::raw::Share(0.9)))).unwrap();
+        assert_eq!(s.kept, 2);
+    }
+
+    #[test]
+    fn kaiser_counts_above_mean() {
+        let s = select(&[2.0, 0.9, 0.1], 3.0, 3, &plan(Keep::Kaiser)).unwrap();
+        assert_eq!(s.kept, 1);
+        assert_eq!(s.mean_eigenvalue, 1.0);
+    }
+
+    #[test]
+    fn written_count_above_rank_is_refused() {
+        let mut p = plan(Keep::Count(NonZeroUsize::new(4).unwrap()));
+        p.keep_written = Some(crate::error::Position::locate("keep = 4", 7));
+        assert_eq!(select(&[2.0, 1.0, 0.0, 0.0], 3.0, 2, &p).unwrap_err(), KeepAboveRank { keep: 4, available: 2 });
+    }
+}

@@ -1,0 +1,69 @@
+//! The input table: its header, and each column either as numbers or as text.
+//!
+//! Missing cells are `NaN` inside numeric columns; a real `NaN` or infinity in the
+//! file is never accepted as data, so `NaN` always means "missing" here.
+
+pub mod read;
+
+pub use read::{read_header, read_table, ReadOptions};
+
+/// The header row of a table, in file order.
+#[derive(Debug, Clone)]
+pub struct Header {
+    pub names: Vec<String>,
+}
+
+/// A parsed table. Row `i` came from line `lines[i]` of the file.
+#[derive(Debug, Clone)]
+pub struct Table {
+    /// The path as shown in messages (relative to the recipe, as written there).
+    pub display: String,
+    pub columns: Vec<Column>,
+    pub lines: Vec<u64>,
+}
+
+impl Table {
+    pub fn n_rows(&self) -> usize {
+        self.lines.len()
+    }
+
+    pub fn column(&self, name: &str) -> Option<&Column> {
+        self.columns.iter().find(|c| c.name == name)
+    }
+}
+
+/// One column of the table.
+#[derive(Debug, Clone)]
+pub struct Column {
+    pub name: String,
+    pub data: ColumnData,
+}
+
+/// A column's cells, kept as text for id and group columns and as numbers otherwise.
+#[derive(Debug, Clone)]
+pub enum ColumnData {
+    Text(Vec<String>),
+    Numeric(NumericColumn),
+}
+
+/// A column read as numbers, with the count of cells that were not numbers.
+#[derive(Debug, Clone, Default)]
+pub struct NumericColumn {
+    /// One value per row; `NaN` where the cell was missing or not a number.
+    pub values: Vec<f64>,
+    /// Cells that matched a missing-value text.
+    pub missing: usize,
+    /// Cells that were neither missing nor a finite number.
+    pub bad: usize,
+    /// The first such cell: its line and text.
+    pub first_bad: Option<(u64, String)>,
+}
+
+impl NumericColumn {
+    /// A column counts as text when most of its non-missing cells are not numbers;
+    /// a few bad cells in a mostly numeric column are mistakes worth an error.
+    pub fn looks_textual(&self) -> bool {
+        let present = self.values.len() - self.missing;
+        self.bad > 0 && 2 * self.bad > present
+    }
+}

@@ -1,0 +1,206 @@
+//! CSV and TSV parsing into a [`Table`], with errors that name file, line and column.
+//!
+//! The reader works on bytes the orchestrator has already read (and hashed), so it
+//! does no I/O of its own. Quoted fields and a UTF-8 byte-order mark are handled by
+//! the `csv` crate; a ragged row, a duplicate or empty column name and an empty file
+//! are reported here with their line.
+
+use super::{Column, ColumnData, Header, NumericColumn, Table};
+use crate::error::InputError;
+use std::collections::BTreeMap;
+
+/// How to read a table.
+#[derive(Debug, Clone)]
+pub struct ReadOptions {
+    pub delimiter: u8,
+    /// Cell texts (after trimming spaces) that mean "missing".
+    pub missing_tokens: Vec<String>,
+    /// Columns kept as text (the id and group columns).
+    pub text_columns: Vec<String>,
+}
+
+fn csv_reader(bytes: &[u8], delimiter: u8) -> csv::Reader<&[u8]> {
+    csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(true)
+        .flexible(true)
+        .from_reader(bytes)
+}
+
+fn csv_error(display: &str, err: csv::Error) -> InputError {
+    let line = err.position().map_or(0, |p| p.line());
+    let message = match err.kind() {
+        csv::ErrorKind::Utf8 { err, .. } => {
+            format!("the text is not valid UTF-8 (field {})", err.field() + 1)
+        }
+        _ => err.to_string(),
+    };
+    InputError::Csv {
+        path: display.to_string(),
+        line,
+        message,
+    }
+}
+
+/// Reads and checks the header row only.
+pub fn read_header(bytes: &[u8], display: &str, delimiter: u8) -> Result<Header, InputError> {
+    let empty = || InputError::Empty {
+        path: display.to_string(),
+    };
+    if bytes.iter().all(|b| b.is_ascii_whitespace()) || bytes == b"\xef\xbb\xbf" {
+        return Err(empty());
+    }
+    let mut reader = csv_reader(bytes, delimiter);
+    let names: Vec<String> = reader
+        .headers()
+        .map_err(|e| csv_error(display, e))?
+        .iter()
+        .map(|s| s.trim().to_string())
+        .collect();
+    let mut seen: BTreeMap<&str, usize> = BTreeMap::new();
+    for (i, name) in names.iter().enumerate() {
+        if name.is_empty() {
+            return Err(InputError::EmptyColumnName {
+                path: display.to_string(),
+                column: i + 1,
+            });
+        }
+        if let Some(first) = seen.insert(name, i + 1) {
+            return Err(InputError::DuplicateColumn {
+                path: display.to_string(),
+                name: name.clone(),
+                first,
+                second: i + 1,
+            });
+        }
+    }
+    Ok(Header { names })
+}
+
+/// Reads the whole table. Columns in `text_columns` keep their text; every other
+/// column is parsed as numbers, counting cells that are not numbers.
+pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<Table, InputError> {
+    let header = read_header(bytes, display, options.delimiter)?;
+    let width = header.names.len();
+    let is_text: Vec<bool> = header
+        .names
+        .iter()
+        .map(|n| options.text_columns.iter().any(|t| t == n))
+        .collect();
+    let mut texts: Vec<Vec<String>> = vec![Vec::new(); width];
+    let mut numbers: Vec<NumericColumn> = vec![NumericColumn::default(); width];
+    let mut lines = Vec::new();
+
+    let mut reader = csv_reader(bytes, options.delimiter);
+    let mut record = csv::StringRecord::new();
+    loop {
+        match reader.read_record(&mut record) {
+            Ok(false) => break,
+            Ok(true) => {}
+            Err(e) => return Err(csv_error(display, e)),
+        }
+        let line = record.position().map_or(0, |p| p.line());
+        if record.len() == 1 && record[0].trim().is_empty() && width > 1 {
+            continue; // a blank line, e.g. at the end of the file
+        }
+        if record.len() != width {
+            return Err(InputError::Ragged {
+                path: display.to_string(),
+                line,
+                expected: width,
+                found: record.len(),
+            });
+        }
+        lines.push(line);
+        for (j, field) in record.iter().enumerate() {
+            let cell = field.trim();
+            if is_text[j] {
+                texts[j].push(cell.to_string());
+            } else {
+                push_number(&mut numbers[j], cell, line, &options.missing_tokens);
+            }
+        }
+    }
+
+    let columns = header
+        .names
+        .into_iter()
+        .zip(texts.into_iter().zip(numbers))
+        .zip(is_text)
+        .map(|((name, (text, number)), text_kind)| Column {
+            name,
+            data: if text_kind {
+                ColumnData::Text(text)
+            } else {
+                ColumnData::Numeric(number)
+            },
+        })
+        .collect();
+    Ok(Table {
+        display: display.to_string(),
+        columns,
+        lines,
+    })
+}
+
+fn push_number(column: &mut NumericColumn, cell: &str, line: u64, missing: &[String]) {
+    if missing.iter().any(|m| m == cell) {
+        column.missing += 1;
+        column.values.push(f64::NAN);
+        return;
+    }
+    match cell.parse::<f64>() {
+        Ok(v) if v.is_finite() => column.values.push(v),
+        _ => {
+            column.bad += 1;
+            if column.first_bad.is_none() {
+                column.first_bad = Some((line, cell.to_string()));
+            }
+            column.values.push(f64::NAN);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn options() -> ReadOptions {
+        ReadOptions {
+            delimiter: b',',
+            missing_tokens: vec!["".into(), "NA".into()],
+            text_columns: vec!["id".into()],
+        }
+    }
+
+    #[test]
+    fn quoted_fields_bom_and_missing_cells() {
+        let text = "\u{feff}id,\"a\",b\n\"x,1\",1.5,NA\ny,\"2\",\n";
+        let t = read_table(text.as_bytes(), "t.csv", &options()).unwrap();
+        assert_eq!(t.columns[0].name, "id");
+        assert_eq!(t.lines, vec![2, 3]);
+        match &t.columns[0].data {
+            ColumnData::Text(v) => assert_eq!(v, &["x,1", "y"]),
+            _ => panic!("id should be text"),
+        }
+        match &t.columns[2].data {
+            ColumnData::Numeric(c) => assert_eq!(c.missing, 2),
+            _ => panic!("b should be numeric"),
+        }
+    }
+
+    #[test]
+    fn ragged_row_names_its_line() {
+        let err = read_table(b"id,a\nx,1\ny,2,3\n", "t.csv", &options()).unwrap_err();
+        assert_eq!(err.to_string(), "t.csv:3: the row has 3 fields but the header has 2");
+    }
+
+    #[test]
+    fn non_finite_text_is_not_data() {
+        let t = read_table(b"id,a\nx,inf\ny,2\n", "t.csv", &options()).unwrap();
+        match &t.columns[1].data {
+            ColumnData::Numeric(c) => assert_eq!(c.first_bad, Some((2, "inf".into()))),
+            _ => panic!(),
+        }
+    }
+}
