@@ -11,7 +11,9 @@ use std::path::PathBuf;
 /// input and output hashed, and a manifest that says how they were made.
 #[derive(Debug, Parser)]
 #[command(name = "sextant", version, about, long_about = None)]
-#[command(after_help = "Exit codes: 0 success, 1 the analysis failed, 2 the recipe or an input is invalid.")]
+#[command(
+    after_help = "Exit codes: 0 success, 1 the analysis failed, 2 the recipe or an input is invalid."
+)]
 pub struct Cli {
     #[command(subcommand)]
     pub command: Command,
@@ -79,37 +81,74 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
     }
     let m = &pre.missing;
     let used = pre.scaled.names.len();
-    let _ = writeln!(out, "features   {} selected, {used} used", plan.features.len());
+    let _ = writeln!(
+        out,
+        "features   {} selected, {used} used",
+        plan.features.len()
+    );
     for f in &m.features {
         if let Some(why) = &f.dropped {
-            let _ = writeln!(out, "  dropped  {}: {} missing ({} %), {why}", f.feature, f.missing, pct(f.share));
+            let _ = writeln!(
+                out,
+                "  dropped  {}: {} missing ({} %), {why}",
+                f.feature,
+                f.missing,
+                pct(f.share)
+            );
         }
     }
     for name in &pre.scaling.dropped_constant {
         let _ = writeln!(out, "  dropped  {name}: constant");
     }
-    let missing_cells: usize = m.features.iter().filter(|f| f.dropped.is_none()).map(|f| f.missing).sum();
+    let missing_cells: usize = m
+        .features
+        .iter()
+        .filter(|f| f.dropped.is_none())
+        .map(|f| f.missing)
+        .sum();
     let _ = match m.method {
         crate::recipe::raw::MissingMethod::DropRows => writeln!(
             out,
             "missing    {missing_cells} cells in used features; {} rows with a missing cell dropped, {} rows left",
-            m.rows_dropped,
-            pre.scaled.matrix.rows
+            m.rows_dropped, pre.scaled.matrix.rows
         ),
         method => writeln!(
             out,
             "missing    {missing_cells} cells in used features filled with the feature {}",
-            if method == crate::recipe::raw::MissingMethod::Median { "median" } else { "mean" }
+            if method == crate::recipe::raw::MissingMethod::Median {
+                "median"
+            } else {
+                "mean"
+            }
         ),
     };
-    for f in m.features.iter().filter(|f| f.dropped.is_none() && f.missing > 0) {
-        let _ = writeln!(out, "  {:<24} {:>5} missing ({} %)", f.feature, f.missing, pct(f.share));
+    for f in m
+        .features
+        .iter()
+        .filter(|f| f.dropped.is_none() && f.missing > 0)
+    {
+        let _ = writeln!(
+            out,
+            "  {:<24} {:>5} missing ({} %)",
+            f.feature,
+            f.missing,
+            pct(f.share)
+        );
     }
     if !pre.transforms.is_empty() {
-        let list: Vec<String> = pre.transforms.iter().map(|t| format!("{} {}", t.transform_name(), t.feature)).collect();
+        let list: Vec<String> = pre
+            .transforms
+            .iter()
+            .map(|t| format!("{} {}", t.transform_name(), t.feature))
+            .collect();
         let _ = writeln!(out, "transform  {}", list.join(", "));
     }
-    let _ = writeln!(out, "scaling    {} ({} matrix)", plan.scaling.name(), run::matrix_name(plan));
+    let _ = writeln!(
+        out,
+        "scaling    {} ({} matrix)",
+        plan.scaling.name(),
+        run::matrix_name(plan)
+    );
 }
 
 /// The text `sextant check` prints.

@@ -115,7 +115,9 @@ pub enum RecipeProblem {
         table: String,
         suggestion: Option<String>,
     },
-    #[error("column `{name}` is used twice: as {first} and as {second}; a column can have one role")]
+    #[error(
+        "column `{name}` is used twice: as {first} and as {second}; a column can have one role"
+    )]
     TwoRoles {
         name: String,
         first: &'static str,
@@ -215,7 +217,9 @@ pub enum InputError {
         column: String,
         text: String,
     },
-    #[error("{path}:{line}: column `{column}` has the non-finite value `{text}`; mark it as missing in input.missing or fix the cell")]
+    #[error(
+        "{path}:{line}: column `{column}` has the non-finite value `{text}`; mark it as missing in input.missing or fix the cell"
+    )]
     NonFinite {
         path: String,
         line: u64,
@@ -228,7 +232,9 @@ pub enum InputError {
         line: u64,
         column: String,
     },
-    #[error("{path}:{line}: id `{id}` in column `{column}` already appeared at line {first_line}; ids must be unique")]
+    #[error(
+        "{path}:{line}: id `{id}` in column `{column}` already appeared at line {first_line}; ids must be unique"
+    )]
     DuplicateId {
         path: String,
         line: u64,
@@ -244,7 +250,9 @@ pub enum InputError {
     },
     #[error("{path}: no usable features{why}")]
     NoFeatures { path: String, why: String },
-    #[error("{path}:{line}: column `{column}` has the value {value} where `{transform}` needs {need}")]
+    #[error(
+        "{path}:{line}: column `{column}` has the value {value} where `{transform}` needs {need}"
+    )]
     BadTransformValue {
         path: String,
         line: u64,
@@ -274,7 +282,9 @@ fn numeric_hint(text: &str) -> &'static str {
 /// The computation could not produce a trustworthy answer.
 #[derive(Debug, thiserror::Error)]
 pub enum AnalysisError {
-    #[error("the eigendecomposition did not produce finite values; the scaled data may be degenerate")]
+    #[error(
+        "the eigendecomposition did not produce finite values; the scaled data may be degenerate"
+    )]
     NotFinite,
 }
 

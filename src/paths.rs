@@ -19,6 +19,26 @@ pub fn normalize(path: &Path) -> PathBuf {
     out
 }
 
+/// The path with `name/..` pairs and `.` parts removed lexically, kept relative
+/// when it was relative; used to show paths in messages.
+pub fn tidy(path: &Path) -> PathBuf {
+    let mut out: Vec<Component> = Vec::new();
+    for part in path.components() {
+        match part {
+            Component::CurDir => {}
+            Component::ParentDir if matches!(out.last(), Some(Component::Normal(_))) => {
+                out.pop();
+            }
+            other => out.push(other),
+        }
+    }
+    if out.is_empty() {
+        PathBuf::from(".")
+    } else {
+        out.iter().collect()
+    }
+}
+
 /// The path of `to` relative to the folder `from`, with `/` separators, so a
 /// manifest never holds an absolute path.
 pub fn relative(from: &Path, to: &Path) -> String {
@@ -28,8 +48,16 @@ pub fn relative(from: &Path, to: &Path) -> String {
     let b: Vec<_> = to.components().collect();
     let common = a.iter().zip(&b).take_while(|(x, y)| x == y).count();
     let mut parts: Vec<String> = vec!["..".to_string(); a.len() - common];
-    parts.extend(b[common..].iter().map(|c| c.as_os_str().to_string_lossy().into_owned()));
-    if parts.is_empty() { ".".to_string() } else { parts.join("/") }
+    parts.extend(
+        b[common..]
+            .iter()
+            .map(|c| c.as_os_str().to_string_lossy().into_owned()),
+    );
+    if parts.is_empty() {
+        ".".to_string()
+    } else {
+        parts.join("/")
+    }
 }
 
 #[cfg(test)]
@@ -38,7 +66,15 @@ mod tests {
 
     #[test]
     fn relative_paths() {
-        assert_eq!(relative(Path::new("/a/b/results"), Path::new("/a/b/recipes/r.toml")), "../recipes/r.toml");
+        assert_eq!(
+            relative(Path::new("/a/b/results"), Path::new("/a/b/recipes/r.toml")),
+            "../recipes/r.toml"
+        );
         assert_eq!(relative(Path::new("/a"), Path::new("/a/x/../y")), "y");
+        assert_eq!(
+            tidy(Path::new("recipes/../data/x.csv")),
+            PathBuf::from("data/x.csv")
+        );
+        assert_eq!(tidy(Path::new("../a/./b")), PathBuf::from("../a/b"));
     }
 }

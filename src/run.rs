@@ -10,12 +10,12 @@ use crate::outputs::tables::{self, RowLabels};
 use crate::recipe::plan::{Plan, check_names, input_plan, make_plan};
 use crate::recipe::resolved::resolved_recipe;
 use crate::recipe::{self, LoadedRecipe};
+use crate::stages::FeatureData;
 use crate::stages::decompose::{Decomposition, decompose, scores};
 use crate::stages::missing::{MissingReport, handle_missing};
 use crate::stages::scale::{ScaleReport, Scaled, scale};
 use crate::stages::select::{Selection, select};
 use crate::stages::transform::{Applied, apply_transforms};
-use crate::stages::FeatureData;
 use crate::table::{ColumnData, Table, read_header, read_table};
 use serde_json::{Value, json};
 use std::path::Path;
@@ -91,7 +91,11 @@ fn check_ids(table: &Table, id: Option<&str>) -> Result<(), InputError> {
     for (i, v) in values.iter().enumerate() {
         let line = table.lines[i];
         if v.is_empty() {
-            return Err(InputError::MissingId { path: table.display.clone(), line, column: name.into() });
+            return Err(InputError::MissingId {
+                path: table.display.clone(),
+                line,
+                column: name.into(),
+            });
         }
         if let Some(first_line) = seen.insert(v.as_str(), line) {
             return Err(InputError::DuplicateId {
@@ -112,12 +116,22 @@ pub fn preprocess(prepared: &Prepared) -> Result<Preprocessed, Error> {
     let data = FeatureData::from_table(&prepared.table, plan);
     if data.n_rows() < 2 {
         let rows = data.n_rows();
-        return Err(InputError::TooFewRows { path: data.source, rows, why: String::new() }.into());
+        return Err(InputError::TooFewRows {
+            path: data.source,
+            rows,
+            why: String::new(),
+        }
+        .into());
     }
     let (data, missing) = handle_missing(data, plan.missing_method, plan.max_feature_missing)?;
     let (data, transforms) = apply_transforms(data)?;
     let (scaled, scaling) = scale(data, plan.scaling, plan.constant_features)?;
-    Ok(Preprocessed { scaled, missing, transforms, scaling })
+    Ok(Preprocessed {
+        scaled,
+        missing,
+        transforms,
+        scaling,
+    })
 }
 
 /// The decomposition, the choice of k and the scores.
@@ -160,7 +174,11 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         })
     })?;
     let scores = scores(&pre.scaled.matrix, &decomposition.loadings, selection.kept);
-    Ok(Analysis { decomposition, selection, scores })
+    Ok(Analysis {
+        decomposition,
+        selection,
+        scores,
+    })
 }
 
 /// Options of `sextant run`.
@@ -196,7 +214,11 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
     let files = result_files(&prepared, &pre, &analysis);
     let outputs: Vec<FileRecord> = files
         .iter()
-        .map(|(path, bytes)| FileRecord { path: path.clone(), bytes: bytes.len() as u64, sha256: sha256_hex(bytes) })
+        .map(|(path, bytes)| FileRecord {
+            path: path.clone(),
+            bytes: bytes.len() as u64,
+            sha256: sha256_hex(bytes),
+        })
         .collect();
     let body = ManifestBody {
         recipe: json!({
@@ -220,11 +242,22 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
     let mut all = files;
     all.push(("manifest.json".to_string(), manifest_text.into_bytes()));
     write_folder(&prepared.plan.output, &all)?;
-    Ok(RunSummary { prepared, pre, analysis, outputs, digest, seconds })
+    Ok(RunSummary {
+        prepared,
+        pre,
+        analysis,
+        outputs,
+        digest,
+        seconds,
+    })
 }
 
 /// The result tables, in a fixed order.
-fn result_files(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> Vec<(String, Vec<u8>)> {
+fn result_files(
+    prepared: &Prepared,
+    pre: &Preprocessed,
+    analysis: &Analysis,
+) -> Vec<(String, Vec<u8>)> {
     let table = &prepared.table;
     let plan = &prepared.plan;
     let text = |name: &str| match table.column(name).map(|c| &c.data) {
@@ -234,13 +267,24 @@ fn result_files(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) ->
     let labels = RowLabels {
         rows: &pre.scaled.rows,
         id: plan.input.id.as_deref().map(|n| (n, text(n))),
-        groups: plan.input.groups.iter().map(|g| (g.as_str(), text(g))).collect(),
+        groups: plan
+            .input
+            .groups
+            .iter()
+            .map(|g| (g.as_str(), text(g)))
+            .collect(),
     };
     let d = &analysis.decomposition;
     let s = &analysis.selection;
     vec![
-        ("scores.csv".into(), tables::scores_csv(&labels, &analysis.scores)),
-        ("loadings.csv".into(), tables::loadings_csv(&pre.scaled.names, d, s.computed)),
+        (
+            "scores.csv".into(),
+            tables::scores_csv(&labels, &analysis.scores),
+        ),
+        (
+            "loadings.csv".into(),
+            tables::loadings_csv(&pre.scaled.names, d, s.computed),
+        ),
         ("variance.csv".into(), tables::variance_csv(d, s)),
         (
             "preprocessing.csv".into(),
@@ -280,7 +324,7 @@ fn steps_json(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> V
             "divisor": "n - 1",
             "rank": d.rank,
             "total_variance": d.total_variance,
-            "sign_rule": "the largest-magnitude loading of each component is positive; ties go to the first feature",
+            "sign_rule": "the largest-magnitude loading of each component is positive; magnitudes within 1e-9 relative are ties, won by the first feature",
         },
         "components": {
             "rule": s.rule,

@@ -108,8 +108,14 @@ mod tests {
     use super::*;
 
     fn sample(n: usize, p: usize) -> Matrix {
-        let data = (0..n * p).map(|i| ((i * 7919) % 101) as f64 / 10.0 - 5.0).collect();
-        Matrix { rows: n, cols: p, data }
+        let data = (0..n * p)
+            .map(|i| ((i * 7919) % 101) as f64 / 10.0 - 5.0)
+            .collect();
+        Matrix {
+            rows: n,
+            cols: p,
+            data,
+        }
     }
 
     #[test]
@@ -128,7 +134,10 @@ mod tests {
     fn gram_is_the_same_on_one_thread() {
         let x = sample(5000, 7);
         let many = gram_of_columns(&x);
-        let pool = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(1)
+            .build()
+            .unwrap();
         let one = pool.install(|| gram_of_columns(&x));
         assert_eq!(many.data, one.data);
     }

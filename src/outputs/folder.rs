@@ -26,14 +26,20 @@ pub fn check_replaceable(
         reason,
     };
     if !target.is_dir() {
-        return Err(refuse("exists and is not a folder; choose another output.folder".into()));
+        return Err(refuse(
+            "exists and is not a folder; choose another output.folder".into(),
+        ));
     }
     let manifest = target.join("manifest.json");
-    let old: Option<Value> = fs::read(&manifest).ok().and_then(|b| serde_json::from_slice(&b).ok());
+    let old: Option<Value> = fs::read(&manifest)
+        .ok()
+        .and_then(|b| serde_json::from_slice(&b).ok());
     let old = match old {
         Some(v) if v.pointer("/tool/name").and_then(Value::as_str) == Some("sextant") => v,
         _ => {
-            let empty = fs::read_dir(target).map(|mut d| d.next().is_none()).unwrap_or(false);
+            let empty = fs::read_dir(target)
+                .map(|mut d| d.next().is_none())
+                .unwrap_or(false);
             if empty {
                 return Ok(());
             }

@@ -52,7 +52,10 @@ pub struct ManifestBody {
 /// The fingerprint of what a run was asked to do: the resolved recipe and the
 /// inputs' hashes. Two runs with equal fingerprints may replace each other.
 pub fn fingerprint(manifest: &Value) -> Option<(String, Vec<String>)> {
-    let recipe = manifest.pointer("/recipe/resolved_sha256")?.as_str()?.to_string();
+    let recipe = manifest
+        .pointer("/recipe/resolved_sha256")?
+        .as_str()?
+        .to_string();
     let inputs = manifest
         .get("inputs")?
         .as_array()?
@@ -89,7 +92,12 @@ pub fn utc_now() -> String {
         .map_or(0, |d| d.as_secs());
     let (days, rem) = (secs / 86_400, secs % 86_400);
     let (y, m, d) = civil_from_days(days as i64);
-    format!("{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z", rem / 3600, rem % 3600 / 60, rem % 60)
+    format!(
+        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
+        rem / 3600,
+        rem % 3600 / 60,
+        rem % 60
+    )
 }
 
 /// Days since 1970-01-01 to a proleptic Gregorian date (H. Hinnant's
@@ -130,7 +138,11 @@ mod tests {
 
     #[test]
     fn digest_ignores_the_run_block() {
-        let body = ManifestBody { recipe: json!({"a": 1}), inputs: vec![], steps: json!({}) };
+        let body = ManifestBody {
+            recipe: json!({"a": 1}),
+            inputs: vec![],
+            steps: json!({}),
+        };
         let run = |host: &str| RunInfo {
             started_utc: "x".into(),
             seconds: 1.0,

@@ -22,11 +22,17 @@ struct CsvOut(csv::Writer<Vec<u8>>);
 
 impl CsvOut {
     fn new() -> Self {
-        CsvOut(csv::WriterBuilder::new().terminator(csv::Terminator::Any(b'\n')).from_writer(Vec::new()))
+        CsvOut(
+            csv::WriterBuilder::new()
+                .terminator(csv::Terminator::Any(b'\n'))
+                .from_writer(Vec::new()),
+        )
     }
 
     fn row<I: IntoIterator<Item = S>, S: AsRef<[u8]>>(&mut self, fields: I) {
-        self.0.write_record(fields).expect("writing to memory cannot fail");
+        self.0
+            .write_record(fields)
+            .expect("writing to memory cannot fail");
     }
 
     fn finish(self) -> Vec<u8> {
@@ -82,7 +88,14 @@ pub fn loadings_csv(names: &[String], d: &Decomposition, computed: usize) -> Vec
 /// variance.csv: eigenvalue, shares and the evidence of the rule, per computed component.
 pub fn variance_csv(d: &Decomposition, s: &Selection) -> Vec<u8> {
     let mut out = CsvOut::new();
-    out.row(["component", "eigenvalue", "share", "cumulative_share", "broken_stick_share", "kept"]);
+    out.row([
+        "component",
+        "eigenvalue",
+        "share",
+        "cumulative_share",
+        "broken_stick_share",
+        "kept",
+    ]);
     let mut cumulative = 0.0;
     for a in 0..s.computed {
         let share = d.eigenvalues[a] / d.total_variance;
@@ -108,11 +121,24 @@ pub fn preprocessing_csv(
 ) -> Vec<u8> {
     let mut out = CsvOut::new();
     out.row([
-        "feature", "status", "missing", "missing_share", "filled", "fill_value", "transform", "mean", "sd", "centre",
+        "feature",
+        "status",
+        "missing",
+        "missing_share",
+        "filled",
+        "fill_value",
+        "transform",
+        "mean",
+        "sd",
+        "centre",
         "scale",
     ]);
     for (name, transform) in features.iter().zip(transforms) {
-        let m = missing.features.iter().find(|m| &m.feature == name).expect("every feature has a missing report");
+        let m = missing
+            .features
+            .iter()
+            .find(|m| &m.feature == name)
+            .expect("every feature has a missing report");
         let s = scale.features.iter().find(|s| &s.feature == name);
         let status = match (&m.dropped, s) {
             (Some(why), _) => format!("dropped: {why}"),

@@ -10,10 +10,10 @@ use super::raw::{
     ConstantPolicy, DEFAULT_KEEP, DEFAULT_MISSING_TOKENS, Keep, MissingMethod, ScalingMethod,
 };
 use crate::error::{Error, InputError, Position, RecipeError, RecipeProblem};
+use crate::paths::normalize;
 use crate::table::{ColumnData, Header, ReadOptions, Table};
 use serde::Serialize;
 use std::num::NonZeroUsize;
-use crate::paths::normalize;
 use std::path::{Path, PathBuf};
 use toml::Spanned;
 
@@ -84,7 +84,7 @@ pub struct Plan {
 pub fn input_plan(recipe: &LoadedRecipe) -> InputPlan {
     let input = &recipe.raw.input;
     let display = input.file.get_ref().clone();
-    let file = recipe.dir().join(&display);
+    let file = crate::paths::tidy(&recipe.dir().join(&display));
     let delimiter = input.delimiter.map(|d| d.0).unwrap_or_else(|| {
         let ext = Path::new(&display)
             .extension()
@@ -97,7 +97,12 @@ pub fn input_plan(recipe: &LoadedRecipe) -> InputPlan {
     let missing_tokens = input
         .missing
         .clone()
-        .unwrap_or_else(|| DEFAULT_MISSING_TOKENS.iter().map(|s| s.to_string()).collect())
+        .unwrap_or_else(|| {
+            DEFAULT_MISSING_TOKENS
+                .iter()
+                .map(|s| s.to_string())
+                .collect()
+        })
         .into_iter()
         .map(|s| s.trim().to_string())
         .collect();
@@ -108,10 +113,12 @@ pub fn input_plan(recipe: &LoadedRecipe) -> InputPlan {
     InputPlan {
         file,
         display,
-        pin: input
-            .sha256
-            .as_ref()
-            .map(|s| (s.get_ref().0.clone(), Position::locate(&recipe.text, s.span().start))),
+        pin: input.sha256.as_ref().map(|s| {
+            (
+                s.get_ref().0.clone(),
+                Position::locate(&recipe.text, s.span().start),
+            )
+        }),
         options: ReadOptions {
             delimiter,
             missing_tokens,
@@ -159,7 +166,11 @@ pub fn check_names(recipe: &LoadedRecipe, header: &Header) -> Result<(), RecipeE
     }
     let patterns = input.features.iter().flatten().chain(&input.exclude);
     for pattern in patterns {
-        if !header.names.iter().any(|n| glob_match(pattern.get_ref(), n)) {
+        if !header
+            .names
+            .iter()
+            .any(|n| glob_match(pattern.get_ref(), n))
+        {
             return Err(unknown_column(recipe, pattern, &header.names, table));
         }
     }
@@ -230,7 +241,12 @@ fn closest(wanted: &str, names: &[String]) -> Option<String> {
     let pattern = wanted.replace(['*', '?'], "");
     names
         .iter()
-        .map(|n| (strsim::levenshtein(&pattern.to_lowercase(), &n.to_lowercase()), n))
+        .map(|n| {
+            (
+                strsim::levenshtein(&pattern.to_lowercase(), &n.to_lowercase()),
+                n,
+            )
+        })
         .filter(|(d, n)| *d <= (n.chars().count() / 3).max(2))
         .min_by_key(|(d, _)| *d)
         .map(|(_, n)| n.clone())
@@ -273,7 +289,8 @@ fn select_features(
     table: &Table,
 ) -> Result<Selection, Error> {
     let raw = &recipe.raw.input;
-    let has_role = |name: &str| input.id.as_deref() == Some(name) || input.groups.iter().any(|g| g == name);
+    let has_role =
+        |name: &str| input.id.as_deref() == Some(name) || input.groups.iter().any(|g| g == name);
     let excluded = |name: &str| raw.exclude.iter().any(|p| glob_match(p.get_ref(), name));
     let listed = |name: &str| -> Option<&Spanned<String>> {
         raw.features
@@ -287,9 +304,20 @@ fn select_features(
         let name = column.name.as_str();
         if has_role(name) {
             if let Some(p) = listed(name).filter(|p| p.get_ref() == name) {
-                let role = if input.id.as_deref() == Some(name) { "the id" } else { "a group" };
+                let role = if input.id.as_deref() == Some(name) {
+                    "the id"
+                } else {
+                    "a group"
+                };
                 return Err(recipe
-                    .error_at(p.span(), RecipeProblem::TwoRoles { name: name.into(), first: role, second: "a feature" })
+                    .error_at(
+                        p.span(),
+                        RecipeProblem::TwoRoles {
+                            name: name.into(),
+                            first: role,
+                            second: "a feature",
+                        },
+                    )
                     .into());
             }
             continue;
@@ -315,9 +343,19 @@ fn select_features(
             let path = table.display.clone();
             let column = name.to_string();
             return Err(if text.parse::<f64>().is_ok() {
-                InputError::NonFinite { path, line, column, text }
+                InputError::NonFinite {
+                    path,
+                    line,
+                    column,
+                    text,
+                }
             } else {
-                InputError::NotNumeric { path, line, column, text }
+                InputError::NotNumeric {
+                    path,
+                    line,
+                    column,
+                    text,
+                }
             }
             .into());
         }
@@ -330,7 +368,11 @@ fn assign_transforms(
     features: &[String],
 ) -> Result<Vec<Option<Transform>>, RecipeError> {
     let t = &recipe.raw.transform;
-    let lists = [(Transform::Log10, &t.log10), (Transform::Ln, &t.ln), (Transform::Sqrt, &t.sqrt)];
+    let lists = [
+        (Transform::Log10, &t.log10),
+        (Transform::Ln, &t.ln),
+        (Transform::Sqrt, &t.sqrt),
+    ];
     let mut assigned: Vec<Option<Transform>> = vec![None; features.len()];
     for (kind, patterns) in lists {
         for pattern in patterns {
@@ -344,7 +386,11 @@ fn assign_transforms(
                     if first != kind {
                         return Err(recipe.error_at(
                             pattern.span(),
-                            RecipeProblem::TwoTransforms { name: f.clone(), first: first.name(), second: kind.name() },
+                            RecipeProblem::TwoTransforms {
+                                name: f.clone(),
+                                first: first.name(),
+                                second: kind.name(),
+                            },
                         ));
                     }
                 }
@@ -353,7 +399,10 @@ fn assign_transforms(
             if !matched {
                 return Err(recipe.error_at(
                     pattern.span(),
-                    RecipeProblem::TransformNotFeature { name: pattern.get_ref().clone(), transform: kind.name() },
+                    RecipeProblem::TransformNotFeature {
+                        name: pattern.get_ref().clone(),
+                        transform: kind.name(),
+                    },
                 ));
             }
         }
@@ -363,31 +412,46 @@ fn assign_transforms(
 
 fn components_plan(recipe: &LoadedRecipe) -> Result<ComponentsPlan, RecipeError> {
     let c = &recipe.raw.components;
-    let keep = c
-        .keep
-        .as_ref()
-        .map(|k| *k.get_ref())
-        .unwrap_or(Keep::Count(NonZeroUsize::new(DEFAULT_KEEP).expect("non-zero")));
+    let keep = c.keep.as_ref().map(|k| *k.get_ref()).unwrap_or(Keep::Count(
+        NonZeroUsize::new(DEFAULT_KEEP).expect("non-zero"),
+    ));
     let compute = c.compute.as_ref().map(|n| n.get_ref().get());
-    if let (Keep::Count(k), Some(compute), Some(span)) = (keep, compute, c.keep.as_ref().map(|k| k.span())) {
+    if let (Keep::Count(k), Some(compute), Some(span)) =
+        (keep, compute, c.keep.as_ref().map(|k| k.span()))
+    {
         if k.get() > compute {
-            return Err(recipe.error_at(span, RecipeProblem::KeepAboveCompute { keep: k.get(), compute }));
+            return Err(recipe.error_at(
+                span,
+                RecipeProblem::KeepAboveCompute {
+                    keep: k.get(),
+                    compute,
+                },
+            ));
         }
     }
     Ok(ComponentsPlan {
         keep,
-        keep_written: c.keep.as_ref().map(|k| Position::locate(&recipe.text, k.span().start)),
+        keep_written: c
+            .keep
+            .as_ref()
+            .map(|k| Position::locate(&recipe.text, k.span().start)),
         compute,
     })
 }
 
 /// Resolves the results folder and refuses one that would hold the recipe or the
 /// input, since a rerun replaces the whole folder.
-fn output_folder(recipe: &LoadedRecipe, input: &InputPlan) -> Result<(PathBuf, String), RecipeError> {
+fn output_folder(
+    recipe: &LoadedRecipe,
+    input: &InputPlan,
+) -> Result<(PathBuf, String), RecipeError> {
     let written = recipe.raw.output.folder.get_ref();
-    let folder = recipe.dir().join(written);
+    let folder = crate::paths::tidy(&recipe.dir().join(written));
     let folder_abs = normalize(&folder);
-    let guarded = [("the recipe", &recipe.path), ("the input table", &input.file)];
+    let guarded = [
+        ("the recipe", &recipe.path),
+        ("the input table", &input.file),
+    ];
     for (what, path) in guarded {
         if normalize(path).starts_with(&folder_abs) {
             return Err(recipe.error_at(

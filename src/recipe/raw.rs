@@ -212,7 +212,11 @@ impl<'de> serde::de::Visitor<'de> for KeepVisitor {
             .ok()
             .and_then(NonZeroUsize::new)
             .map(Keep::Count)
-            .ok_or_else(|| E::custom(format!("keep = {v} is not a positive count; expected {KEEP_EXPECTED}")))
+            .ok_or_else(|| {
+                E::custom(format!(
+                    "keep = {v} is not a positive count; expected {KEEP_EXPECTED}"
+                ))
+            })
     }
 
     fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<Keep, E> {
@@ -238,9 +242,11 @@ impl<'de> serde::de::Visitor<'de> for KeepVisitor {
                 }
             }
         }
-        share
-            .map(Keep::Variance)
-            .ok_or_else(|| A::Error::custom(format!("keep table needs `variance`; expected {KEEP_EXPECTED}")))
+        share.map(Keep::Variance).ok_or_else(|| {
+            A::Error::custom(format!(
+                "keep table needs `variance`; expected {KEEP_EXPECTED}"
+            ))
+        })
     }
 }
 
@@ -301,7 +307,9 @@ impl TryFrom<String> for Sha256Hex {
         if v.len() == 64 && v.bytes().all(|b| b.is_ascii_hexdigit()) {
             Ok(Sha256Hex(v.to_ascii_lowercase()))
         } else {
-            Err(format!("`{v}` is not a SHA-256 digest; expected 64 hexadecimal digits"))
+            Err(format!(
+                "`{v}` is not a SHA-256 digest; expected 64 hexadecimal digits"
+            ))
         }
     }
 }

@@ -11,9 +11,9 @@
 //! ties go to the first feature. So reruns and other machines agree.
 
 use crate::error::AnalysisError;
+use crate::linalg::Matrix;
 use crate::linalg::crossprod::{gram_of_columns, gram_of_rows, times, transpose_times};
 use crate::linalg::eigen::{fix_signs, symmetric_eigen};
-use crate::linalg::Matrix;
 use serde::Serialize;
 
 /// Which matrix was decomposed.
@@ -43,9 +43,17 @@ pub struct Decomposition {
 /// Decomposes the scaled data, choosing the route by shape unless one is forced.
 /// `centred` says whether the columns were centred, which lowers the rank bound
 /// to n − 1.
-pub fn decompose(z: &Matrix, centred: bool, route: Option<Route>) -> Result<Decomposition, AnalysisError> {
+pub fn decompose(
+    z: &Matrix,
+    centred: bool,
+    route: Option<Route>,
+) -> Result<Decomposition, AnalysisError> {
     let (n, p) = (z.rows, z.cols);
-    let route = route.unwrap_or(if n < p { Route::Samples } else { Route::Features });
+    let route = route.unwrap_or(if n < p {
+        Route::Samples
+    } else {
+        Route::Features
+    });
     let divisor = (n - 1) as f64;
     let total_variance = (0..p)
         .map(|j| z.column(j).iter().map(|v| v * v).sum::<f64>())

@@ -45,11 +45,17 @@ pub fn handle_missing(
     let mut kept = Vec::new();
     for feature in data.features.drain(..) {
         let missing = feature.values.iter().filter(|v| v.is_nan()).count();
-        let share = if n == 0 { 0.0 } else { missing as f64 / n as f64 };
+        let share = if n == 0 {
+            0.0
+        } else {
+            missing as f64 / n as f64
+        };
         let dropped = if missing == n {
             Some("no observed cells".to_string())
         } else if share > max_share {
-            Some(format!("missing share above max_feature_missing = {max_share}"))
+            Some(format!(
+                "missing share above max_feature_missing = {max_share}"
+            ))
         } else {
             None
         };
@@ -69,7 +75,9 @@ pub fn handle_missing(
     if data.features.is_empty() {
         return Err(InputError::NoFeatures {
             path: data.source.clone(),
-            why: format!(" (every feature misses more than max_feature_missing = {max_share} of its cells)"),
+            why: format!(
+                " (every feature misses more than max_feature_missing = {max_share} of its cells)"
+            ),
         });
     }
 
@@ -126,7 +134,12 @@ fn retain_where<T>(items: &mut Vec<T>, keep: &[bool]) {
 
 fn fill(data: &mut FeatureData, method: MissingMethod, reports: &mut [FeatureMissing]) {
     for feature in &mut data.features {
-        let observed: Vec<f64> = feature.values.iter().copied().filter(|v| !v.is_nan()).collect();
+        let observed: Vec<f64> = feature
+            .values
+            .iter()
+            .copied()
+            .filter(|v| !v.is_nan())
+            .collect();
         let missing = feature.values.len() - observed.len();
         let value = match method {
             MissingMethod::Median => median(observed),
@@ -171,7 +184,11 @@ mod tests {
             features: columns
                 .into_iter()
                 .enumerate()
-                .map(|(j, values)| Feature { name: format!("f{j}"), values, transform: None })
+                .map(|(j, values)| Feature {
+                    name: format!("f{j}"),
+                    values,
+                    transform: None,
+                })
                 .collect(),
             rows: (0..n).collect(),
             lines: (2..n as u64 + 2).collect(),

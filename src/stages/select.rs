@@ -65,9 +65,14 @@ pub fn select(
             };
             if k > rank {
                 if plan.keep_written.is_some() {
-                    return Err(KeepAboveRank { keep: k, available: rank });
+                    return Err(KeepAboveRank {
+                        keep: k,
+                        available: rank,
+                    });
                 }
-                adjustments.push(format!("the default keep = {k} was lowered to {rank}, the rank of the data"));
+                adjustments.push(format!(
+                    "the default keep = {k} was lowered to {rank}, the rank of the data"
+                ));
                 ("count", rank, why)
             } else {
                 ("count", k, why)
@@ -75,7 +80,10 @@ pub fn select(
         }
         Keep::Variance(share) => by_variance(&shares, share.0, rank),
         Keep::Kaiser => {
-            let k = eigenvalues.iter().take_while(|&&v| v > mean_eigenvalue).count();
+            let k = eigenvalues
+                .iter()
+                .take_while(|&&v| v > mean_eigenvalue)
+                .count();
             let why = format!(
                 "{k} eigenvalue(s) exceed the mean eigenvalue {} (Kaiser 1960)",
                 fmt_short(mean_eigenvalue)
@@ -83,7 +91,11 @@ pub fn select(
             ("kaiser", k, why)
         }
         Keep::BrokenStick => {
-            let k = shares.iter().zip(&sticks).take_while(|(s, b)| s > b).count();
+            let k = shares
+                .iter()
+                .zip(&sticks)
+                .take_while(|(s, b)| s > b)
+                .count();
             let why = match (shares.get(k), sticks.get(k)) {
                 (Some(s), Some(b)) => format!(
                     "components 1 to {k} each explain more than the broken-stick expectation; component {} explains {} % against {} %",
@@ -105,11 +117,15 @@ pub fn select(
     let default_compute = DEFAULT_COMPUTE.min(rank);
     let mut computed = plan.compute.unwrap_or(default_compute);
     if computed > rank {
-        adjustments.push(format!("compute = {computed} was lowered to {rank}, the rank of the data"));
+        adjustments.push(format!(
+            "compute = {computed} was lowered to {rank}, the rank of the data"
+        ));
         computed = rank;
     }
     if kept > computed {
-        adjustments.push(format!("compute was raised from {computed} to {kept} to report every kept component"));
+        adjustments.push(format!(
+            "compute was raised from {computed} to {kept} to report every kept component"
+        ));
         computed = kept;
     }
     Ok(Selection {
@@ -161,19 +177,32 @@ mod tests {
     use std::num::NonZeroUsize;
 
     fn plan(keep: Keep) -> ComponentsPlan {
-        ComponentsPlan { keep, keep_written: None, compute: None }
+        ComponentsPlan {
+            keep,
+            keep_written: None,
+            compute: None,
+        }
     }
 
     #[test]
     fn broken_stick_for_seven_parts() {
         // Published worked example, p = 7: 0.3704, 0.2276, 0.1561 (4 decimals).
         let b = broken_stick(7);
-        assert_eq!(format!("{:.4} {:.4} {:.4}", b[0], b[1], b[2]), "0.3704 0.2276 0.1561");
+        assert_eq!(
+            format!("{:.4} {:.4} {:.4}", b[0], b[1], b[2]),
+            "0.3704 0.2276 0.1561"
+        );
     }
 
     #[test]
     fn variance_rule_takes_the_fewest() {
-        let s = select(&[6.0, 3.0, 1.0], 10.0, 3, &plan(Keep::Variance(crate::recipe::raw::Share(0.9)))).unwrap();
+        let s = select(
+            &[6.0, 3.0, 1.0],
+            10.0,
+            3,
+            &plan(Keep::Variance(crate::recipe::raw::Share(0.9))),
+        )
+        .unwrap();
         assert_eq!(s.kept, 2);
     }
 
@@ -188,6 +217,12 @@ mod tests {
     fn written_count_above_rank_is_refused() {
         let mut p = plan(Keep::Count(NonZeroUsize::new(4).unwrap()));
         p.keep_written = Some(crate::error::Position::locate("keep = 4", 7));
-        assert_eq!(select(&[2.0, 1.0, 0.0, 0.0], 3.0, 2, &p).unwrap_err(), KeepAboveRank { keep: 4, available: 2 });
+        assert_eq!(
+            select(&[2.0, 1.0, 0.0, 0.0], 3.0, 2, &p).unwrap_err(),
+            KeepAboveRank {
+                keep: 4,
+                available: 2
+            }
+        );
     }
 }

@@ -32,7 +32,11 @@ pub fn apply_transforms(mut data: FeatureData) -> Result<(FeatureData, Vec<Appli
                     column: feature.name.clone(),
                     value: crate::outputs::tables::number(*v),
                     transform: t.name(),
-                    need: if t == Transform::Sqrt { "a value ≥ 0" } else { "a value > 0" },
+                    need: if t == Transform::Sqrt {
+                        "a value ≥ 0"
+                    } else {
+                        "a value > 0"
+                    },
                 });
             }
             *v = match t {

@@ -5,7 +5,7 @@
 
 pub mod read;
 
-pub use read::{read_header, read_table, ReadOptions};
+pub use read::{ReadOptions, read_header, read_table};
 
 /// The header row of a table, in file order.
 #[derive(Debug, Clone)]

@@ -192,7 +192,10 @@ mod tests {
     #[test]
     fn ragged_row_names_its_line() {
         let err = read_table(b"id,a\nx,1\ny,2,3\n", "t.csv", &options()).unwrap_err();
-        assert_eq!(err.to_string(), "t.csv:3: the row has 3 fields but the header has 2");
+        assert_eq!(
+            err.to_string(),
+            "t.csv:3: the row has 3 fields but the header has 2"
+        );
     }
 
     #[test]
