@@ -14,4 +14,5 @@ pub mod paths;
 pub mod recipe;
 pub mod run;
 pub mod stages;
+pub mod stats;
 pub mod table;

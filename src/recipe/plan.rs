@@ -184,7 +184,7 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
     if features.is_empty() {
         return Err(InputError::NoFeatures {
             path: table.display.clone(),
-            why: " (no numeric column is left after the id, groups and exclusions)".into(),
+            why: no_feature_reason(table, input.options.delimiter),
         }
         .into());
     }
@@ -206,6 +206,20 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
         output_display,
         output,
     })
+}
+
+/// Explains an empty feature list, spotting the common case of a wrong delimiter.
+fn no_feature_reason(table: &Table, delimiter: u8) -> String {
+    if let [only] = table.columns.as_slice() {
+        let other = [b',', b';', b'\t', b'|'].into_iter().find(|&d| d != delimiter && only.name.contains(d as char));
+        if let Some(d) = other {
+            return format!(
+                " (the header is one column `{}`; the file may use {:?} as its delimiter: set input.delimiter)",
+                only.name, d as char
+            );
+        }
+    }
+    " (no numeric column is left after the id, groups and exclusions)".into()
 }
 
 fn unknown_column(

@@ -1,0 +1,1 @@
+//! Distribution functions and control limits (being written).
