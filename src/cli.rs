@@ -42,6 +42,20 @@ pub enum Command {
         /// The recipe file (TOML).
         recipe: PathBuf,
     },
+    /// Inspect a table and write a commented starter recipe that passes `check`.
+    ///
+    /// Reports each column's type and share of missing cells, and suggests the id,
+    /// group and feature columns. Never overwrites an existing file without --force.
+    New {
+        /// The table to inspect (CSV or TSV with a header row).
+        data: PathBuf,
+        /// Where to write the recipe [default: <data name>.toml beside the table].
+        #[arg(short, long, value_name = "RECIPE")]
+        output: Option<PathBuf>,
+        /// Overwrite an existing recipe file.
+        #[arg(long)]
+        force: bool,
+    },
 }
 
 /// Runs the parsed command; returns the text for standard output.
@@ -51,6 +65,7 @@ pub fn execute(cli: Cli) -> Result<String, Error> {
             let summary = run::run(&recipe, &RunOptions { replace })?;
             Ok(describe_run(&summary))
         }
+        Command::New { data, output, force } => crate::starter::run_new(&data, output.as_deref(), force),
         Command::Check { recipe } => {
             let prepared = run::prepare(&recipe)?;
             let pre = run::preprocess(&prepared)?;

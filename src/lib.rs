@@ -14,5 +14,6 @@ pub mod paths;
 pub mod recipe;
 pub mod run;
 pub mod stages;
+pub mod starter;
 pub mod stats;
 pub mod table;

@@ -121,6 +121,8 @@ fn table(v: &Value) -> Vec<Vec<f64>> {
 struct Check {
     failures: Vec<String>,
     compared: usize,
+    /// The largest error / tolerance seen (printed with `--nocapture`, to show the margin).
+    worst: f64,
 }
 
 impl Check {
@@ -128,6 +130,7 @@ impl Check {
     fn relative(&mut self, what: &str, got: f64, want: f64, tol: f64) {
         self.compared += 1;
         let err = (got - want).abs();
+        self.worst = self.worst.max(err / (tol * want.abs()));
         if !(err <= tol * want.abs()) {
             self.failures.push(format!(
                 "{what}: got {got:.17e}, want {want:.17e}, relative error {:.3e} > {tol:e}",
@@ -143,6 +146,7 @@ impl Check {
     fn entry(&mut self, what: &str, got: f64, want: f64, tol: f64) {
         self.compared += 1;
         let err = (got - want).abs();
+        self.worst = self.worst.max(err / (tol * want.abs().max(1.0)));
         if !(err <= tol * want.abs().max(1.0)) {
             self.failures.push(format!("{what}: got {got:.17e}, want {want:.17e}, error {err:.3e} > {tol:e}·max(1,|want|)"));
         }
@@ -166,6 +170,7 @@ impl Check {
     }
 
     fn finish(self, name: &str) {
+        println!("{name}: {} comparisons, largest error / tolerance {:.2e}", self.compared, self.worst);
         assert!(self.compared > 0, "{name}: nothing compared");
         assert!(
             self.failures.is_empty(),
