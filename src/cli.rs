@@ -65,7 +65,11 @@ pub fn execute(cli: Cli) -> Result<String, Error> {
             let summary = run::run(&recipe, &RunOptions { replace })?;
             Ok(describe_run(&summary))
         }
-        Command::New { data, output, force } => crate::starter::run_new(&data, output.as_deref(), force),
+        Command::New {
+            data,
+            output,
+            force,
+        } => crate::starter::run_new(&data, output.as_deref(), force),
         Command::Check { recipe } => {
             let prepared = run::prepare(&recipe)?;
             let pre = run::preprocess(&prepared)?;

@@ -103,6 +103,10 @@ pub enum RecipeProblem {
     Syntax(String),
     #[error("recipe format {found} is not supported; this version of sextant reads format = 1")]
     Format { found: i64 },
+    #[error("{key} is empty; give a name")]
+    EmptyName { key: &'static str },
+    #[error("output folder `{folder}` cannot be created: `{file}` is a file, not a folder")]
+    OutputBlocked { folder: String, file: String },
     #[error("column `{name}` is not in the header of {table}{}", did_you_mean(.suggestion))]
     UnknownColumn {
         name: String,
@@ -141,10 +145,12 @@ pub enum RecipeProblem {
     )]
     KeepAboveCompute { keep: usize, compute: usize },
     #[error(
-        "keep = {keep} asks for more components than the data can give: at most {available} ({reason})"
+        "keep = {keep}{} asks for more components than the data can give: at most {available} ({reason}); set components.keep",
+        if *.default { " (the default)" } else { "" }
     )]
     KeepAboveRank {
         keep: usize,
+        default: bool,
         available: usize,
         reason: String,
     },
@@ -181,6 +187,8 @@ pub enum InputError {
         path: String,
         source: std::io::Error,
     },
+    #[error("{path}: not a sextant results folder: {reason}")]
+    NotResults { path: String, reason: String },
     #[error("{path}: the file is empty; expected a header row and data rows")]
     Empty { path: String },
     #[error("{path}:{line}: {message}")]
@@ -207,10 +215,7 @@ pub enum InputError {
         first: usize,
         second: usize,
     },
-    #[error(
-        "{path}:{line}: column `{column}` has a non-numeric cell `{text}`{}",
-        numeric_hint(.text)
-    )]
+    #[error("{path}:{line}: column `{column}` has {}", describe_cell(.text))]
     NotNumeric {
         path: String,
         line: u64,
@@ -262,26 +267,41 @@ pub enum InputError {
         need: &'static str,
     },
     #[error(
-        "feature `{column}` is constant ({value}), so `{scaling}` scaling would divide by zero; set scaling.constant_features = \"drop\" or exclude it"
+        "{path}: feature `{column}` is constant ({value}), so `{scaling}` scaling would divide by zero; set scaling.constant_features = \"drop\" or exclude it"
     )]
     ConstantFeature {
+        path: String,
         column: String,
         value: String,
         scaling: &'static str,
     },
 }
 
-fn numeric_hint(text: &str) -> &'static str {
-    if text.contains(',') && text.replace(',', ".").parse::<f64>().is_ok() {
-        " (it looks like a decimal comma: sextant reads a point as the decimal mark)"
+fn describe_cell(text: &str) -> String {
+    if text.is_empty() {
+        "an empty cell; add \"\" to input.missing if empty cells mean missing".into()
+    } else if text.contains(',') && text.replace(',', ".").parse::<f64>().is_ok() {
+        format!(
+            "a non-numeric cell `{text}` (it looks like a decimal comma: sextant reads a point as the decimal mark)"
+        )
     } else {
-        "; add it to input.missing if it means missing, or exclude the column"
+        format!(
+            "a non-numeric cell `{text}`; add it to input.missing if it means missing, or exclude the column"
+        )
     }
 }
 
 /// The computation could not produce a trustworthy answer.
 #[derive(Debug, thiserror::Error)]
 pub enum AnalysisError {
+    #[error(
+        "{path}: feature `{column}` has values too large for double precision: {what} overflows; rescale it (a change of unit) or use unit-variance scaling"
+    )]
+    Overflow {
+        path: String,
+        column: String,
+        what: &'static str,
+    },
     #[error(
         "the eigendecomposition did not produce finite values; the scaled data may be degenerate"
     )]

@@ -17,3 +17,4 @@ pub mod stages;
 pub mod starter;
 pub mod stats;
 pub mod table;
+pub mod verify;

@@ -8,6 +8,7 @@ use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, ManifestBody, RunInfo};
 use crate::outputs::tables::{self, RowLabels};
 use crate::recipe::plan::{Plan, check_names, input_plan, make_plan};
+use crate::recipe::raw::Keep;
 use crate::recipe::resolved::resolved_recipe;
 use crate::recipe::{self, LoadedRecipe};
 use crate::stages::FeatureData;
@@ -39,7 +40,11 @@ pub struct Preprocessed {
 
 /// Loads the recipe, reads and hashes the input, and checks the plan.
 pub fn prepare(recipe_path: &Path) -> Result<Prepared, Error> {
-    let recipe = recipe::load(recipe_path)?;
+    prepare_recipe(recipe::load(recipe_path)?)
+}
+
+/// Reads and hashes the input of a loaded recipe, and checks the plan.
+pub fn prepare_recipe(recipe: LoadedRecipe) -> Result<Prepared, Error> {
     let input = input_plan(&recipe);
     let shown = input.file.display().to_string();
     let bytes = std::fs::read(&input.file).map_err(|source| InputError::Io {
@@ -126,11 +131,38 @@ pub fn preprocess(prepared: &Prepared) -> Result<Preprocessed, Error> {
     let (data, missing) = handle_missing(data, plan.missing_method, plan.max_feature_missing)?;
     let (data, transforms) = apply_transforms(data)?;
     let (scaled, scaling) = scale(data, plan.scaling, plan.constant_features)?;
-    Ok(Preprocessed {
+    let pre = Preprocessed {
         scaled,
         missing,
         transforms,
         scaling,
+    };
+    // The rank cannot exceed min(n − 1, p) for centred data (n, p without centring),
+    // so a fixed count above that fails now, in `check` too, rather than after the
+    // decomposition.
+    let (n, p) = (pre.scaled.matrix.rows, pre.scaled.matrix.cols);
+    let bound = if plan.scaling.centers() { n - 1 } else { n }.min(p);
+    if let Keep::Count(k) = plan.components.keep {
+        if k.get() > bound {
+            return Err(keep_error(prepared, &pre, k.get(), bound));
+        }
+    }
+    Ok(pre)
+}
+
+/// The error for a fixed count of components above what the data can give.
+fn keep_error(prepared: &Prepared, pre: &Preprocessed, keep: usize, available: usize) -> Error {
+    let at = prepared.plan.components.keep_written.clone();
+    let (n, p) = (pre.scaled.matrix.rows, pre.scaled.matrix.cols);
+    Error::Recipe(RecipeError {
+        file: prepared.recipe.path.clone(),
+        at: at.clone(),
+        problem: RecipeProblem::KeepAboveRank {
+            keep,
+            default: at.is_none(),
+            available,
+            reason: format!("{n} rows and {p} features after preprocessing"),
+        },
     })
 }
 
@@ -158,21 +190,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         decomposition.rank,
         &plan.components,
     )
-    .map_err(|e| {
-        let at = plan.components.keep_written.clone();
-        Error::Recipe(RecipeError {
-            file: prepared.recipe.path.clone(),
-            at,
-            problem: RecipeProblem::KeepAboveRank {
-                keep: e.keep,
-                available: e.available,
-                reason: format!(
-                    "{} rows and {} features after preprocessing",
-                    pre.scaled.matrix.rows, pre.scaled.matrix.cols
-                ),
-            },
-        })
-    })?;
+    .map_err(|e| keep_error(prepared, pre, e.keep, e.available))?;
     let scores = scores(&pre.scaled.matrix, &decomposition.loadings, selection.kept);
     Ok(Analysis {
         decomposition,
@@ -198,21 +216,25 @@ pub struct RunSummary {
     pub seconds: f64,
 }
 
-/// Runs a recipe end to end and writes its results folder.
-pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error> {
-    let start = Instant::now();
-    let started_utc = manifest::utc_now();
-    let prepared = prepare(recipe_path)?;
-    let pre = preprocess(&prepared)?;
-    let analysis = analyse(&prepared, &pre)?;
+/// The bytes of every result file and the hashed part of the manifest.
+pub struct Computed {
+    /// Result files in their fixed order, without the manifest.
+    pub files: Vec<(String, Vec<u8>)>,
+    pub outputs: Vec<FileRecord>,
+    pub body: ManifestBody,
+    /// The resolved recipe's hash and the inputs' hashes.
+    pub fingerprint: (String, Vec<String>),
+}
 
+/// Runs every stage and renders the results in memory.
+pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed), Error> {
+    let pre = preprocess(prepared)?;
+    let analysis = analyse(prepared, &pre)?;
     let resolved = resolved_recipe(&prepared.recipe, &prepared.plan.input);
     let resolved_sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
     let fingerprint = (resolved_sha.clone(), vec![prepared.input.sha256.clone()]);
-    check_replaceable(&prepared.plan.output, &fingerprint, options.replace)?;
-
-    let files = result_files(&prepared, &pre, &analysis);
-    let outputs: Vec<FileRecord> = files
+    let files = result_files(prepared, &pre, &analysis);
+    let outputs = files
         .iter()
         .map(|(path, bytes)| FileRecord {
             path: path.clone(),
@@ -228,8 +250,31 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
             "resolved_sha256": resolved_sha,
         }),
         inputs: vec![prepared.input.clone()],
-        steps: steps_json(&prepared, &pre, &analysis),
+        steps: steps_json(prepared, &pre, &analysis),
     };
+    Ok((
+        pre,
+        analysis,
+        Computed {
+            files,
+            outputs,
+            body,
+            fingerprint,
+        },
+    ))
+}
+
+/// Runs a recipe end to end and writes its results folder.
+pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error> {
+    let start = Instant::now();
+    let started_utc = manifest::utc_now();
+    let prepared = prepare(recipe_path)?;
+    let (pre, analysis, computed) = compute(&prepared)?;
+    check_replaceable(
+        &prepared.plan.output,
+        &computed.fingerprint,
+        options.replace,
+    )?;
     let seconds = start.elapsed().as_secs_f64();
     let run_info = RunInfo {
         started_utc,
@@ -238,15 +283,15 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
         threads: rayon::current_num_threads(),
         platform: format!("{}-{}", std::env::consts::ARCH, std::env::consts::OS),
     };
-    let (manifest_text, digest) = manifest::render(&body, &outputs, &run_info);
-    let mut all = files;
+    let (manifest_text, digest) = manifest::render(&computed.body, &computed.outputs, &run_info);
+    let mut all = computed.files;
     all.push(("manifest.json".to_string(), manifest_text.into_bytes()));
     write_folder(&prepared.plan.output, &all)?;
     Ok(RunSummary {
         prepared,
         pre,
         analysis,
-        outputs,
+        outputs: computed.outputs,
         digest,
         seconds,
     })

@@ -1,5 +1,6 @@
 //! Recipes: reading the TOML file ([`raw`]) and checking it against the data ([`plan`]).
 
+pub mod explain;
 pub mod plan;
 pub mod raw;
 pub mod resolved;
@@ -44,23 +45,38 @@ pub fn load(path: &Path) -> Result<LoadedRecipe, RecipeError> {
         at: None,
         problem: RecipeProblem::Read(e),
     })?;
+    parse(path, text)
+}
+
+/// Parses recipe text as if it were the file at `path` (which sets the folder
+/// that relative paths start from).
+pub fn parse(path: &Path, text: String) -> Result<LoadedRecipe, RecipeError> {
     let raw: RawRecipe = toml::from_str(&text).map_err(|e| RecipeError {
         file: path.to_path_buf(),
         at: e.span().map(|s| Position::locate(&text, s.start)),
-        problem: RecipeProblem::Syntax(e.message().trim_end().to_string()),
+        problem: RecipeProblem::Syntax(plain_words(e.message().trim_end())),
     })?;
     let loaded = LoadedRecipe {
         path: path.to_path_buf(),
         text,
         raw,
     };
-    if *loaded.raw.format.get_ref() != 1 {
+    if loaded.raw.format.get_ref().0 != 1 {
         return Err(loaded.error_at(
             loaded.raw.format.span(),
             RecipeProblem::Format {
-                found: *loaded.raw.format.get_ref(),
+                found: loaded.raw.format.get_ref().0,
             },
         ));
     }
     Ok(loaded)
+}
+
+/// Rewords the few serde phrases that would puzzle a recipe author.
+fn plain_words(message: &str) -> String {
+    let mut m = message.replace("unknown variant", "unknown choice");
+    if m.starts_with("missing field") {
+        m.push_str("; the README's recipe reference lists every section and key");
+    }
+    m
 }

@@ -53,7 +53,7 @@ pub struct InputPlan {
 #[derive(Debug, Clone)]
 pub struct ComponentsPlan {
     pub keep: Keep,
-    /// Whether `keep` came from the recipe (a written count is never adjusted).
+    /// Where `keep` was written in the recipe, if it was.
     pub keep_written: Option<Position>,
     pub compute: Option<usize>,
 }
@@ -135,6 +135,20 @@ pub fn check_names(recipe: &LoadedRecipe, header: &Header) -> Result<(), RecipeE
     let input = &recipe.raw.input;
     let table = input.file.get_ref();
     let named = input.id.iter().chain(&input.groups);
+    for name in named
+        .clone()
+        .chain(input.features.iter().flatten())
+        .chain(&input.exclude)
+    {
+        if name.get_ref().trim().is_empty() {
+            return Err(recipe.error_at(
+                name.span(),
+                RecipeProblem::EmptyName {
+                    key: "a column name in [input]",
+                },
+            ));
+        }
+    }
     for name in named {
         if !header.names.contains(name.get_ref()) {
             return Err(unknown_column(recipe, name, &header.names, table));
@@ -211,7 +225,9 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
 /// Explains an empty feature list, spotting the common case of a wrong delimiter.
 fn no_feature_reason(table: &Table, delimiter: u8) -> String {
     if let [only] = table.columns.as_slice() {
-        let other = [b',', b';', b'\t', b'|'].into_iter().find(|&d| d != delimiter && only.name.contains(d as char));
+        let other = [b',', b';', b'\t', b'|']
+            .into_iter()
+            .find(|&d| d != delimiter && only.name.contains(d as char));
         if let Some(d) = other {
             return format!(
                 " (the header is one column `{}`; the file may use {:?} as its delimiter: set input.delimiter)",
@@ -257,11 +273,13 @@ fn closest(wanted: &str, names: &[String]) -> Option<String> {
         .iter()
         .map(|n| {
             (
-                strsim::levenshtein(&pattern.to_lowercase(), &n.to_lowercase()),
+                strsim::damerau_levenshtein(&pattern.to_lowercase(), &n.to_lowercase()),
                 n,
             )
         })
-        .filter(|(d, n)| *d <= (n.chars().count() / 3).max(2))
+        // Up to a third of the name may differ (at least one edit), but never the
+        // whole of what was written: `d` is one edit from `a`, yet no typo of it.
+        .filter(|(d, n)| *d <= (n.chars().count() / 3).max(1) && *d < pattern.chars().count())
         .min_by_key(|(d, _)| *d)
         .map(|(_, n)| n.clone())
 }
@@ -429,7 +447,7 @@ fn components_plan(recipe: &LoadedRecipe) -> Result<ComponentsPlan, RecipeError>
     let keep = c.keep.as_ref().map(|k| *k.get_ref()).unwrap_or(Keep::Count(
         NonZeroUsize::new(DEFAULT_KEEP).expect("non-zero"),
     ));
-    let compute = c.compute.as_ref().map(|n| n.get_ref().get());
+    let compute = c.compute.as_ref().map(|n| n.get_ref().0.get());
     if let (Keep::Count(k), Some(compute), Some(span)) =
         (keep, compute, c.keep.as_ref().map(|k| k.span()))
     {
@@ -460,8 +478,27 @@ fn output_folder(
     input: &InputPlan,
 ) -> Result<(PathBuf, String), RecipeError> {
     let written = recipe.raw.output.folder.get_ref();
+    let span = recipe.raw.output.folder.span();
+    if written.trim().is_empty() {
+        return Err(recipe.error_at(
+            span,
+            RecipeProblem::EmptyName {
+                key: "output.folder",
+            },
+        ));
+    }
     let folder = crate::paths::tidy(&recipe.dir().join(written));
     let folder_abs = normalize(&folder);
+    // A file where a folder must go would only fail at the very end of a run.
+    if let Some(file) = folder_abs.ancestors().skip(1).find(|a| a.is_file()) {
+        return Err(recipe.error_at(
+            span,
+            RecipeProblem::OutputBlocked {
+                folder: written.clone(),
+                file: file.display().to_string(),
+            },
+        ));
+    }
     let guarded = [
         ("the recipe", &recipe.path),
         ("the input table", &input.file),

@@ -14,7 +14,7 @@ use toml::Spanned;
 #[serde(deny_unknown_fields)]
 pub struct RawRecipe {
     /// Recipe format version; only 1 exists.
-    pub format: Spanned<i64>,
+    pub format: Spanned<Whole>,
     pub title: Option<String>,
     pub notes: Option<String>,
     pub input: RawInput,
@@ -166,7 +166,7 @@ pub enum ConstantPolicy {
 #[serde(deny_unknown_fields)]
 pub struct RawComponents {
     pub keep: Option<Spanned<Keep>>,
-    pub compute: Option<Spanned<NonZeroUsize>>,
+    pub compute: Option<Spanned<Count>>,
 }
 
 /// The rule that chooses the number of kept components.
@@ -258,24 +258,77 @@ pub struct RawOutput {
 }
 
 /// A share between 0 and 1 inclusive.
-#[derive(Debug, Clone, Copy, PartialEq, PartialOrd, Deserialize, Serialize)]
-#[serde(try_from = "f64", into = "f64")]
+#[derive(Debug, Clone, Copy, PartialEq, PartialOrd, Serialize)]
+#[serde(into = "f64")]
 pub struct Share(pub f64);
-
-impl TryFrom<f64> for Share {
-    type Error = String;
-    fn try_from(v: f64) -> Result<Self, String> {
-        if (0.0..=1.0).contains(&v) {
-            Ok(Share(v))
-        } else {
-            Err(format!("{v} is not a share; expected a number from 0 to 1"))
-        }
-    }
-}
 
 impl From<Share> for f64 {
     fn from(s: Share) -> f64 {
         s.0
+    }
+}
+
+impl<'de> Deserialize<'de> for Share {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        deserializer.deserialize_any(NumberVisitor("a number from 0 to 1", |v| {
+            (0.0..=1.0)
+                .contains(&v)
+                .then_some(Share(v))
+                .ok_or_else(|| format!("{v} is not a share; expected a number from 0 to 1"))
+        }))
+    }
+}
+
+/// A whole number (the recipe format).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Whole(pub i64);
+
+impl<'de> Deserialize<'de> for Whole {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        deserializer.deserialize_any(NumberVisitor("a whole number such as 1", |v| {
+            (v.fract() == 0.0 && v.abs() < 1e15)
+                .then_some(Whole(v as i64))
+                .ok_or_else(|| format!("{v} is not a whole number"))
+        }))
+    }
+}
+
+/// A positive whole number (a count of components).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Count(pub NonZeroUsize);
+
+impl<'de> Deserialize<'de> for Count {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        deserializer.deserialize_any(NumberVisitor("a positive whole number", |v| {
+            (v.fract() == 0.0 && (1.0..1e15).contains(&v))
+                .then(|| Count(NonZeroUsize::new(v as usize).expect("at least 1")))
+                .ok_or_else(|| format!("{v} is not a positive whole number"))
+        }))
+    }
+}
+
+/// Reads a TOML number (integer or float) and checks it, so that a wrong type is
+/// reported in the recipe's words ("expected a number from 0 to 1") rather than
+/// as a Rust type.
+struct NumberVisitor<T>(&'static str, fn(f64) -> Result<T, String>);
+
+impl<'de, T> serde::de::Visitor<'de> for NumberVisitor<T> {
+    type Value = T;
+
+    fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+        f.write_str(self.0)
+    }
+
+    fn visit_i64<E: serde::de::Error>(self, v: i64) -> Result<T, E> {
+        (self.1)(v as f64).map_err(E::custom)
+    }
+
+    fn visit_u64<E: serde::de::Error>(self, v: u64) -> Result<T, E> {
+        (self.1)(v as f64).map_err(E::custom)
+    }
+
+    fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<T, E> {
+        (self.1)(v).map_err(E::custom)
     }
 }
 

@@ -58,8 +58,39 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
         },
         "components": {
             "keep": keep_value(raw.components.keep.as_ref().map(|k| *k.get_ref())),
-            "compute": raw.components.compute.as_ref().map_or(DEFAULT_COMPUTE, |c| c.get_ref().get()),
+            "compute": raw.components.compute.as_ref().map_or(DEFAULT_COMPUTE, |c| c.get_ref().0.get()),
         },
         "output": { "folder": raw.output.folder.get_ref() },
+    })
+}
+
+/// Turns a resolved recipe (as stored in a manifest) back into recipe text that
+/// describes the same analysis: nulls and the default feature rule are left out.
+pub fn recipe_text(resolved: &Value) -> Result<String, String> {
+    let mut value = resolved.clone();
+    if let Some(input) = value.get_mut("input").and_then(Value::as_object_mut) {
+        if input.get("features").is_some_and(Value::is_string) {
+            input.remove("features");
+        }
+    }
+    let toml_value = to_toml(&value).ok_or("the resolved recipe is not a table")?;
+    toml::to_string(&toml_value).map_err(|e| e.to_string())
+}
+
+fn to_toml(value: &Value) -> Option<toml::Value> {
+    Some(match value {
+        Value::Null => return None,
+        Value::Bool(b) => toml::Value::Boolean(*b),
+        Value::Number(n) => match n.as_i64() {
+            Some(i) => toml::Value::Integer(i),
+            None => toml::Value::Float(n.as_f64()?),
+        },
+        Value::String(s) => toml::Value::String(s.clone()),
+        Value::Array(items) => toml::Value::Array(items.iter().filter_map(to_toml).collect()),
+        Value::Object(map) => toml::Value::Table(
+            map.iter()
+                .filter_map(|(k, v)| Some((k.clone(), to_toml(v)?)))
+                .collect(),
+        ),
     })
 }

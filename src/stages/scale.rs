@@ -6,7 +6,7 @@
 //! Standard deviations use the divisor n − 1.
 
 use super::FeatureData;
-use crate::error::InputError;
+use crate::error::{AnalysisError, Error, InputError};
 use crate::linalg::Matrix;
 use crate::recipe::raw::{ConstantPolicy, ScalingMethod};
 use serde::Serialize;
@@ -46,7 +46,7 @@ pub fn scale(
     data: FeatureData,
     method: ScalingMethod,
     constant: ConstantPolicy,
-) -> Result<(Scaled, ScaleReport), InputError> {
+) -> Result<(Scaled, ScaleReport), Error> {
     let mut report = ScaleReport {
         method,
         constant_features: constant,
@@ -61,10 +61,12 @@ pub fn scale(
             match constant {
                 ConstantPolicy::Error => {
                     return Err(InputError::ConstantFeature {
+                        path: data.source.clone(),
                         column: feature.name,
                         value: crate::outputs::tables::number(stats.min),
                         scaling: method.name(),
-                    });
+                    }
+                    .into());
                 }
                 ConstantPolicy::Drop => {
                     report.dropped_constant.push(feature.name);
@@ -72,11 +74,12 @@ pub fn scale(
                 }
             }
         }
-        let column = feature
+        let column: Vec<f64> = feature
             .values
             .iter()
             .map(|v| (v - stats.centre) / stats.scale)
             .collect();
+        check_finite(&data.source, &feature.name, &stats, &column)?;
         columns.push(column);
         names.push(feature.name);
         report.features.push(stats);
@@ -85,7 +88,8 @@ pub fn scale(
         return Err(InputError::NoFeatures {
             path: data.source,
             why: " (every feature is constant)".into(),
-        });
+        }
+        .into());
     }
     Ok((
         Scaled {
@@ -95,6 +99,33 @@ pub fn scale(
         },
         report,
     ))
+}
+
+/// Refuses values whose mean, spread or squares overflow double precision: the
+/// decomposition sums squares of the scaled values, and an infinity there would
+/// silently turn into a zero loading or a meaningless total.
+fn check_finite(
+    source: &str,
+    name: &str,
+    stats: &FeatureScale,
+    column: &[f64],
+) -> Result<(), AnalysisError> {
+    let overflow = |what| AnalysisError::Overflow {
+        path: source.to_string(),
+        column: name.to_string(),
+        what,
+    };
+    if !stats.mean.is_finite() {
+        return Err(overflow("the sum of its values"));
+    }
+    if !stats.sd.is_finite() || !stats.scale.is_finite() {
+        return Err(overflow("its spread"));
+    }
+    let squares: f64 = column.iter().map(|z| z * z).sum();
+    if !squares.is_finite() {
+        return Err(overflow("the sum of squares of its scaled values"));
+    }
+    Ok(())
 }
 
 impl FeatureScale {

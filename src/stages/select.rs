@@ -64,19 +64,12 @@ pub fn select(
                 None => format!("keep is not set, so the default of {k} components is used"),
             };
             if k > rank {
-                if plan.keep_written.is_some() {
-                    return Err(KeepAboveRank {
-                        keep: k,
-                        available: rank,
-                    });
-                }
-                adjustments.push(format!(
-                    "the default keep = {k} was lowered to {rank}, the rank of the data"
-                ));
-                ("count", rank, why)
-            } else {
-                ("count", k, why)
+                return Err(KeepAboveRank {
+                    keep: k,
+                    available: rank,
+                });
             }
+            ("count", k, why)
         }
         Keep::Variance(share) => by_variance(&shares, share.0, rank),
         Keep::Kaiser => {
@@ -139,11 +132,15 @@ pub fn select(
     })
 }
 
+/// Cumulative shares within this of the target count as reaching it, so that the
+/// rounding of a sum (0.6 + 0.3 < 0.9 in binary) does not decide the count.
+pub const SHARE_TOLERANCE: f64 = 1e-12;
+
 fn by_variance(shares: &[f64], target: f64, rank: usize) -> (&'static str, usize, String) {
     let mut cumulative = 0.0;
     for (i, s) in shares.iter().enumerate().take(rank) {
         cumulative += s;
-        if cumulative >= target {
+        if cumulative >= target - SHARE_TOLERANCE {
             let why = format!(
                 "the first {} component(s) explain {} % of the variance, the fewest to reach {} %",
                 i + 1,

@@ -1,0 +1,163 @@
+//! `sextant explain`: the analysis a recipe describes, as numbered plain
+//! sentences with every default made explicit, for a reviewer who would rather
+//! not read TOML. The table is not read, so nothing here depends on the data.
+
+use super::LoadedRecipe;
+use super::plan::input_plan;
+use super::raw::{
+    ConstantPolicy, DEFAULT_COMPUTE, DEFAULT_KEEP, Keep, MissingMethod, ScalingMethod,
+};
+use std::fmt::Write;
+use toml::Spanned;
+
+fn list(items: &[Spanned<String>]) -> String {
+    let names: Vec<String> = items.iter().map(|s| format!("`{}`", s.get_ref())).collect();
+    join_words(&names)
+}
+
+/// Joins with commas and a final "and".
+fn join_words(items: &[String]) -> String {
+    match items {
+        [] => String::new(),
+        [one] => one.clone(),
+        [rest @ .., last] => format!("{} and {last}", rest.join(", ")),
+    }
+}
+
+fn percent(share: f64) -> String {
+    let p = share * 100.0;
+    let s = format!("{p:.2}");
+    format!("{} %", s.trim_end_matches('0').trim_end_matches('.'))
+}
+
+/// The numbered sentences.
+pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
+    let raw = &recipe.raw;
+    let input = input_plan(recipe);
+    let mut s = Vec::new();
+
+    let delimiter = match input.options.delimiter {
+        b'\t' => "tab".to_string(),
+        b',' => "comma".to_string(),
+        d => format!("`{}`", d as char),
+    };
+    let tokens: Vec<String> = input
+        .options
+        .missing_tokens
+        .iter()
+        .map(|t| format!("\"{t}\""))
+        .collect();
+    s.push(format!(
+        "Read the table `{}` (relative to the recipe's folder) as {delimiter}-separated text with a header row; cells reading {} count as missing.",
+        raw.input.file.get_ref(),
+        join_words(&tokens).replace(" and ", " or ")
+    ));
+    if let Some(pin) = &raw.input.sha256 {
+        s.push(format!(
+            "Refuse to run unless the table's SHA-256 is {}.",
+            pin.get_ref().0
+        ));
+    }
+    match &raw.input.id {
+        Some(id) => s.push(format!(
+            "Label rows by the column `{}`, whose values must be present and unique.",
+            id.get_ref()
+        )),
+        None => s.push("Label rows by their number in the table (no id column is set).".into()),
+    }
+    if !raw.input.groups.is_empty() {
+        s.push(format!(
+            "Carry the group column(s) {} into the results; they take no part in the analysis.",
+            list(&raw.input.groups)
+        ));
+    }
+    let mut features = match &raw.input.features {
+        Some(f) => format!("Use as features the columns matching {}", list(f)),
+        None => "Use as features every numeric column that is not the id or a group".to_string(),
+    };
+    if !raw.input.exclude.is_empty() {
+        let _ = write!(
+            features,
+            ", except those matching {}",
+            list(&raw.input.exclude)
+        );
+    }
+    features.push_str("; a mostly numeric column with a stray text cell stops the run.");
+    s.push(features);
+
+    let m = &raw.missing;
+    s.push(format!(
+        "Drop every feature with more than {} of its cells missing, and report it.",
+        percent(m.max_feature_missing.0)
+    ));
+    s.push(match m.method {
+        MissingMethod::DropRows => "Then drop every row that still has a missing cell in a feature.".into(),
+        MissingMethod::Mean => "Then fill each remaining missing cell with the mean of its feature's observed cells (filling shrinks the variance).".into(),
+        MissingMethod::Median => "Then fill each remaining missing cell with the median of its feature's observed cells (filling shrinks the variance).".into(),
+    });
+
+    let t = &raw.transform;
+    for (name, items, domain) in [
+        ("base-10 logarithm", &t.log10, "a value ≤ 0"),
+        ("natural logarithm", &t.ln, "a value ≤ 0"),
+        ("square root", &t.sqrt, "a negative value"),
+    ] {
+        if !items.is_empty() {
+            s.push(format!(
+                "Take the {name} of {}; {domain} stops the run.",
+                list(items)
+            ));
+        }
+    }
+    if t.log10.is_empty() && t.ln.is_empty() && t.sqrt.is_empty() {
+        s.push("Transform no feature.".into());
+    }
+
+    let sc = &raw.scaling;
+    s.push(match sc.method {
+        ScalingMethod::None => "Neither centre nor scale the features, so the analysis is of the uncentred second-moment matrix XᵀX / (n − 1).".into(),
+        ScalingMethod::Center => "Centre each feature on its mean without scaling, so the analysis is of the covariance matrix and features with large spread weigh most.".into(),
+        ScalingMethod::UnitVariance => "Centre each feature on its mean and divide it by its standard deviation (divisor n − 1), so the analysis is of the correlation matrix and every feature weighs the same.".into(),
+        ScalingMethod::Pareto => "Centre each feature on its mean and divide it by the square root of its standard deviation (Pareto scaling).".into(),
+        ScalingMethod::Range => "Centre each feature on its mean and divide it by its range (max − min).".into(),
+    });
+    if sc.method.divides() {
+        s.push(match sc.constant_features {
+            ConstantPolicy::Error => "A feature with no spread stops the run.".into(),
+            ConstantPolicy::Drop => "Drop and report any feature with no spread.".into(),
+        });
+    }
+
+    s.push("Compute the eigenvalues and loadings of that matrix with divisor n − 1; make the largest loading of each component positive (ties go to the first feature).".into());
+    let c = &raw.components;
+    let compute = c
+        .compute
+        .as_ref()
+        .map_or(DEFAULT_COMPUTE, |n| n.get_ref().0.get());
+    let keep = c.keep.as_ref().map(|k| *k.get_ref());
+    s.push(match keep {
+        None => format!("Keep {DEFAULT_KEEP} components (the default, as no rule is set); more than the data's rank stops the run."),
+        Some(Keep::Count(k)) => format!("Keep {k} component(s); more than the data's rank stops the run."),
+        Some(Keep::Variance(v)) => format!("Keep the fewest components whose cumulative share of the variance reaches {}.", percent(v.0)),
+        Some(Keep::Kaiser) => "Keep the components whose eigenvalue exceeds the mean eigenvalue (Kaiser's rule; the mean is 1 for a correlation matrix).".into(),
+        Some(Keep::BrokenStick) => "Keep the leading components that each explain more than the broken-stick expectation.".into(),
+    });
+    s.push(format!("Report {compute} components in the variance and loadings tables (fewer if the data's rank is lower, more if more are kept)."));
+    s.push(format!(
+        "Write scores, loadings, variance, preprocessing and a manifest with SHA-256 hashes to `{}`, replacing an earlier folder only if it came from the same recipe and inputs.",
+        raw.output.folder.get_ref()
+    ));
+    s
+}
+
+/// The explanation as printed: the title, then the numbered sentences.
+pub fn render(recipe: &LoadedRecipe) -> String {
+    let mut out = String::new();
+    if let Some(title) = &recipe.raw.title {
+        let _ = writeln!(out, "{title}\n");
+    }
+    for (i, sentence) in explain(recipe).iter().enumerate() {
+        let _ = writeln!(out, "{:>2}. {sentence}", i + 1);
+    }
+    out
+}
