@@ -42,6 +42,51 @@ pub enum Command {
         /// The recipe file (TOML).
         recipe: PathBuf,
     },
+    /// Print the analysis a recipe describes as numbered plain sentences.
+    ///
+    /// Every default is spelt out, so a reviewer can read this instead of the
+    /// TOML. The input table is not read.
+    Explain {
+        /// The recipe file (TOML).
+        recipe: PathBuf,
+    },
+    /// Re-hash every input and output named in a results folder's manifest.
+    ///
+    /// Reports each file as unchanged, changed or missing, and checks the
+    /// manifest's own digest. Exit code 0 when everything matches, 1 otherwise.
+    Verify {
+        /// A results folder (the one holding manifest.json).
+        results: PathBuf,
+        /// Also recompute the recorded recipe into a scratch folder and compare
+        /// every output byte for byte.
+        #[arg(long)]
+        rerun: bool,
+    },
+    /// Compare two analyses for a reviewer: settings, inputs, components, scores.
+    ///
+    /// Each side is a results folder or a recipe (a recipe is run in memory and
+    /// nothing is written). Shows recipe settings that differ after defaults are
+    /// resolved, inputs whose hash changed, the number of kept components,
+    /// eigenvalues and shares side by side, principal angles between the kept
+    /// loading subspaces, the largest score change and the features whose
+    /// loadings moved most.
+    Diff {
+        /// The earlier analysis: a results folder or a recipe file.
+        a: PathBuf,
+        /// The later analysis: a results folder or a recipe file.
+        b: PathBuf,
+        /// Output style.
+        #[arg(long, value_enum, default_value = "text")]
+        format: crate::compare::DiffFormat,
+    },
+    /// Write the input table's current SHA-256 into the recipe (input.sha256).
+    ///
+    /// Comments and layout of the recipe are kept. Later runs and checks refuse a
+    /// table whose hash differs from the pin.
+    Pin {
+        /// The recipe file (TOML).
+        recipe: PathBuf,
+    },
     /// Inspect a table and write a commented starter recipe that passes `check`.
     ///
     /// Reports each column's type and share of missing cells, and suggests the id,
@@ -58,24 +103,79 @@ pub enum Command {
     },
 }
 
-/// Runs the parsed command; returns the text for standard output.
-pub fn execute(cli: Cli) -> Result<String, Error> {
-    match cli.command {
+/// What a command prints and the exit code it ends with.
+pub struct Outcome {
+    pub text: String,
+    pub code: i32,
+}
+
+impl From<String> for Outcome {
+    fn from(text: String) -> Self {
+        Outcome {
+            text,
+            code: crate::error::EXIT_OK,
+        }
+    }
+}
+
+/// Runs the parsed command.
+pub fn execute(cli: Cli) -> Result<Outcome, Error> {
+    Ok(match cli.command {
         Command::Run { recipe, replace } => {
-            let summary = run::run(&recipe, &RunOptions { replace })?;
-            Ok(describe_run(&summary))
+            describe_run(&run::run(&recipe, &RunOptions { replace })?).into()
+        }
+        Command::Check { recipe } => {
+            let prepared = run::prepare(&recipe)?;
+            let pre = run::preprocess(&prepared)?;
+            describe_check(&prepared, &pre).into()
+        }
+        Command::Explain { recipe } => {
+            crate::recipe::explain::render(&crate::recipe::load(&recipe)?).into()
+        }
+        Command::Verify { results, rerun } => {
+            let report = crate::verify::verify(&results, rerun)?;
+            let code = if report.passed() {
+                crate::error::EXIT_OK
+            } else {
+                crate::error::EXIT_FAILED
+            };
+            Outcome {
+                text: crate::verify::describe(&results, &report),
+                code,
+            }
+        }
+        Command::Diff { a, b, format } => {
+            let (sa, sb) = (
+                crate::compare::load_side(&a)?,
+                crate::compare::load_side(&b)?,
+            );
+            let c = crate::compare::compare(&sa, &sb);
+            crate::compare::render_comparison(&sa, &sb, &c, format).into()
+        }
+        Command::Pin { recipe } => {
+            let (input, pinned) = crate::pin::pin(&recipe)?;
+            let text = match pinned {
+                crate::pin::Pinned::Added { hash } => {
+                    format!("pinned {input} to sha256 {hash} in {}\n", recipe.display())
+                }
+                crate::pin::Pinned::Updated { old, hash } => {
+                    format!(
+                        "re-pinned {input}: sha256 {old} → {hash} in {}\n",
+                        recipe.display()
+                    )
+                }
+                crate::pin::Pinned::Unchanged { hash } => {
+                    format!("{input} is already pinned to sha256 {hash}\n")
+                }
+            };
+            text.into()
         }
         Command::New {
             data,
             output,
             force,
-        } => crate::starter::run_new(&data, output.as_deref(), force),
-        Command::Check { recipe } => {
-            let prepared = run::prepare(&recipe)?;
-            let pre = run::preprocess(&prepared)?;
-            Ok(describe_check(&prepared, &pre))
-        }
-    }
+        } => crate::starter::run_new(&data, output.as_deref(), force)?.into(),
+    })
 }
 
 fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {

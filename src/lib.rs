@@ -7,10 +7,12 @@
 //! or writes files during a run.
 
 pub mod cli;
+pub mod compare;
 pub mod error;
 pub mod linalg;
 pub mod outputs;
 pub mod paths;
+pub mod pin;
 pub mod recipe;
 pub mod run;
 pub mod stages;

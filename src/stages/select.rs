@@ -107,8 +107,9 @@ pub fn select(
     }
     kept = kept.min(rank);
 
-    let default_compute = DEFAULT_COMPUTE.min(rank);
-    let mut computed = plan.compute.unwrap_or(default_compute);
+    // The default is treated exactly like a written 10, so that a recipe rebuilt
+    // from a manifest (where every default is written) runs identically.
+    let mut computed = plan.compute.unwrap_or(DEFAULT_COMPUTE);
     if computed > rank {
         adjustments.push(format!(
             "compute = {computed} was lowered to {rank}, the rank of the data"
