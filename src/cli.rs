@@ -309,5 +309,8 @@ pub fn describe_run(s: &RunSummary) -> String {
         s.digest
     );
     let _ = writeln!(out, "time       {:.3} s", s.seconds);
+    for note in &s.notes {
+        let _ = writeln!(out, "note       {note}");
+    }
     out
 }

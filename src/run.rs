@@ -208,6 +208,8 @@ pub struct RunOptions {
 
 /// What a finished run reports to the user.
 pub struct RunSummary {
+    /// Things the user should know that are not results (e.g. a stale lock removed).
+    pub notes: Vec<String>,
     pub prepared: Prepared,
     pub pre: Preprocessed,
     pub analysis: Analysis,
@@ -269,6 +271,7 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
     let start = Instant::now();
     let started_utc = manifest::utc_now();
     let prepared = prepare(recipe_path)?;
+    let lock = crate::outputs::lock::lock(&prepared.plan.output)?;
     let (pre, analysis, computed) = compute(&prepared)?;
     check_replaceable(
         &prepared.plan.output,
@@ -281,13 +284,16 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
         seconds: (seconds * 1000.0).round() / 1000.0,
         host: manifest::host_name(),
         threads: rayon::current_num_threads(),
-        platform: format!("{}-{}", std::env::consts::ARCH, std::env::consts::OS),
+        platform: platform(),
     };
     let (manifest_text, digest) = manifest::render(&computed.body, &computed.outputs, &run_info);
     let mut all = computed.files;
     all.push(("manifest.json".to_string(), manifest_text.into_bytes()));
     write_folder(&prepared.plan.output, &all)?;
+    let notes = lock.stale_note.clone().into_iter().collect();
+    drop(lock);
     Ok(RunSummary {
+        notes,
         prepared,
         pre,
         analysis,
@@ -295,6 +301,20 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
         digest,
         seconds,
     })
+}
+
+/// The platform the binary was built for: architecture, OS and C environment.
+pub fn platform() -> String {
+    let env = if cfg!(target_env = "gnu") {
+        "-gnu"
+    } else if cfg!(target_env = "musl") {
+        "-musl"
+    } else if cfg!(target_env = "msvc") {
+        "-msvc"
+    } else {
+        ""
+    };
+    format!("{}-{}{env}", std::env::consts::ARCH, std::env::consts::OS)
 }
 
 /// The result tables, in a fixed order.

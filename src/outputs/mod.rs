@@ -3,5 +3,6 @@
 
 pub mod folder;
 pub mod hashing;
+pub mod lock;
 pub mod manifest;
 pub mod tables;
