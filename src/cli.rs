@@ -89,15 +89,19 @@ pub enum Command {
     },
     /// Inspect a table and write a commented starter recipe that passes `check`.
     ///
-    /// Reports each column's type and share of missing cells, and suggests the id,
-    /// group and feature columns. Never overwrites an existing file without --force.
+    /// Reads the table, gives each column a role (id, group, feature or excluded)
+    /// and writes a recipe whose comments give the reason for each choice and the
+    /// other choices. Prints the role of every column and the next command to run.
+    /// Never overwrites an existing file without --force.
     New {
         /// The table to inspect (CSV or TSV with a header row).
         data: PathBuf,
-        /// Where to write the recipe [default: <data name>.toml beside the table].
+        /// Where to write the recipe: a file, or an existing folder to put
+        /// <data name>.toml in [default: <data name>.toml in the current folder,
+        /// so a read-only data folder is never written to].
         #[arg(short, long, value_name = "RECIPE")]
         output: Option<PathBuf>,
-        /// Overwrite an existing recipe file.
+        /// Replace an existing recipe file.
         #[arg(long)]
         force: bool,
     },

@@ -157,6 +157,9 @@ fn flatten(prefix: &str, v: &Value, out: &mut BTreeMap<String, String>) {
     }
 }
 
+/// A component number with (eigenvalue, share) on each side, where it exists.
+pub type VarianceRow = (usize, Option<(f64, f64)>, Option<(f64, f64)>);
+
 /// The comparison of two sides.
 #[derive(Debug, Clone)]
 pub struct Comparison {
@@ -166,7 +169,7 @@ pub struct Comparison {
     pub inputs: Vec<(String, String, String)>,
     pub kept: (usize, usize),
     pub rules: (String, String),
-    pub variance: Vec<(usize, Option<(f64, f64)>, Option<(f64, f64)>)>,
+    pub variance: Vec<VarianceRow>,
     /// Principal angles in degrees, largest first, on the common features.
     pub angles: Vec<f64>,
     pub common_features: usize,

@@ -294,6 +294,8 @@ fn describe_cell(text: &str) -> String {
 /// The computation could not produce a trustworthy answer.
 #[derive(Debug, thiserror::Error)]
 pub enum AnalysisError {
+    #[error("cross-validation cannot run: {reason}")]
+    CrossValidation { reason: String },
     #[error(
         "{path}: feature `{column}` has values too large for double precision: {what} overflows; rescale it (a change of unit) or use unit-variance scaling"
     )]

@@ -8,14 +8,18 @@ use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, ManifestBody, RunInfo};
 use crate::outputs::tables::{self, RowLabels};
 use crate::recipe::plan::{Plan, check_names, input_plan, make_plan};
+use crate::recipe::raw::DEFAULT_COMPUTE;
 use crate::recipe::raw::Keep;
 use crate::recipe::resolved::resolved_recipe;
 use crate::recipe::{self, LoadedRecipe};
 use crate::stages::FeatureData;
+use crate::stages::crossval::cross_validate;
 use crate::stages::decompose::{Decomposition, decompose, scores};
+use crate::stages::diagnose::{Diagnostics, contributions, diagnose};
 use crate::stages::missing::{MissingReport, handle_missing};
+use crate::stages::parallel::parallel_analysis;
 use crate::stages::scale::{ScaleReport, Scaled, scale};
-use crate::stages::select::{Selection, select};
+use crate::stages::select::{Evidence, Selection, select};
 use crate::stages::transform::{Applied, apply_transforms};
 use crate::table::{ColumnData, Table, read_header, read_table};
 use serde_json::{Value, json};
@@ -171,12 +175,16 @@ pub struct Analysis {
     pub decomposition: Decomposition,
     pub selection: Selection,
     pub scores: Matrix,
+    pub diagnostics: Diagnostics,
 }
 
-/// Decomposes the scaled data and chooses the number of components.
+/// Decomposes the scaled data, chooses the number of components and computes the
+/// per-row diagnostics.
 pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Error> {
     let plan = &prepared.plan;
-    let decomposition = decompose(&pre.scaled.matrix, plan.scaling.centers(), None)?;
+    let z = &pre.scaled.matrix;
+    let centred = plan.scaling.centers();
+    let decomposition = decompose(z, centred, None)?;
     if decomposition.rank == 0 {
         return Err(InputError::NoFeatures {
             path: prepared.table.display.clone(),
@@ -184,18 +192,53 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         }
         .into());
     }
+    let components = &plan.components;
+    let mut evidence = Evidence::default();
+    match components.keep {
+        Keep::ParallelAnalysis => {
+            evidence.parallel = Some(parallel_analysis(
+                z,
+                centred,
+                &components.parallel_analysis,
+            )?);
+        }
+        Keep::CrossValidation => {
+            let max_k = components
+                .compute
+                .unwrap_or(DEFAULT_COMPUTE)
+                .min(decomposition.rank);
+            evidence.cross_validation = Some(cross_validate(
+                z,
+                centred,
+                max_k,
+                &components.cross_validation,
+            )?);
+        }
+        _ => {}
+    }
     let selection = select(
         &decomposition.eigenvalues,
         decomposition.total_variance,
         decomposition.rank,
-        &plan.components,
+        components,
+        evidence,
     )
     .map_err(|e| keep_error(prepared, pre, e.keep, e.available))?;
-    let scores = scores(&pre.scaled.matrix, &decomposition.loadings, selection.kept);
+    let scores = scores(z, &decomposition.loadings, selection.kept);
+    let diagnostics = diagnose(
+        z,
+        &decomposition.loadings,
+        &scores,
+        &decomposition.eigenvalues,
+        decomposition.rank,
+        &plan.diagnostics.confidence.0,
+        plan.diagnostics.spe_limit,
+    );
     Ok(Analysis {
         decomposition,
         selection,
         scores,
+        diagnostics,
     })
 }
 
@@ -341,19 +384,42 @@ fn result_files(
     };
     let d = &analysis.decomposition;
     let s = &analysis.selection;
+    let z = &pre.scaled.matrix;
+    let flagged: Vec<(usize, Vec<(f64, f64)>)> = analysis
+        .diagnostics
+        .flagged_rows()
+        .into_iter()
+        .map(|i| {
+            (
+                i,
+                contributions(
+                    &analysis.diagnostics,
+                    z,
+                    &d.loadings,
+                    &analysis.scores,
+                    &d.eigenvalues,
+                    i,
+                ),
+            )
+        })
+        .collect();
     vec![
         (
             "scores.csv".into(),
-            tables::scores_csv(&labels, &analysis.scores),
+            tables::scores_csv(&labels, &analysis.scores, &analysis.diagnostics),
         ),
         (
             "loadings.csv".into(),
             tables::loadings_csv(&pre.scaled.names, d, s.computed),
         ),
-        ("variance.csv".into(), tables::variance_csv(d, s)),
+        ("variance.csv".into(), tables::variance_csv(d, s, z.rows)),
         (
             "preprocessing.csv".into(),
             tables::preprocessing_csv(&plan.features, &plan.transforms, &pre.missing, &pre.scaling),
+        ),
+        (
+            "contributions.csv".into(),
+            tables::contributions_csv(&labels, &pre.scaled.names, &flagged),
         ),
     ]
 }
@@ -391,6 +457,7 @@ fn steps_json(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> V
             "total_variance": d.total_variance,
             "sign_rule": "the largest-magnitude loading of each component is positive; magnitudes within 1e-9 relative are ties, won by the first feature",
         },
+        "diagnostics": diagnostics_json(&analysis.diagnostics, d.rank, s.kept),
         "components": {
             "rule": s.rule,
             "kept": s.kept,
@@ -399,6 +466,21 @@ fn steps_json(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> V
             "adjustments": s.adjustments,
             "kept_share": kept_share,
         },
+    })
+}
+
+/// The diagnostics' limits and counts, for the manifest.
+fn diagnostics_json(diag: &Diagnostics, rank: usize, kept: usize) -> Value {
+    json!({
+        "t2": "sum over kept components of score² / eigenvalue",
+        "t2_limit": "Tracy, Young & Mason (1992) Beta form for the analysed rows; F form (NIST/SEMATECH e-Handbook 6.5.4.3.4) recorded for new rows",
+        "spe": "squared residual after the kept components",
+        "spe_limit": diag.spe_method,
+        "residual_eigenvalues": rank - kept,
+        "residual_moments": diag.moments,
+        "limits": diag.limits,
+        "flagged_rows": diag.flagged_rows().len(),
+        "notes": diag.notes,
     })
 }
 

@@ -99,6 +99,7 @@ fn every_recipe_checks_runs_and_reruns_identically() {
         assert_eq!(
             names,
             [
+                "contributions.csv",
                 "loadings.csv",
                 "manifest.json",
                 "preprocessing.csv",
@@ -187,5 +188,5 @@ fn demo_results_match_the_summary() {
     );
     let scores = fs::read_to_string(results_folder(&recipe).join("scores.csv")).unwrap();
     assert_eq!(scores.lines().count(), 401);
-    assert!(scores.starts_with("row,sample,farm,season,PC1,PC2\n"));
+    assert!(scores.starts_with("row,sample,farm,season,PC1,PC2,T2,SPE,T2_above_95,SPE_above_95\n"));
 }

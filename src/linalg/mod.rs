@@ -10,5 +10,6 @@
 pub mod crossprod;
 pub mod eigen;
 pub mod matrix;
+pub mod random;
 
 pub use matrix::Matrix;

@@ -3,9 +3,10 @@
 
 use crate::linalg::Matrix;
 use crate::stages::decompose::Decomposition;
+use crate::stages::diagnose::Diagnostics;
 use crate::stages::missing::MissingReport;
 use crate::stages::scale::ScaleReport;
-use crate::stages::select::Selection;
+use crate::stages::select::{Selection, bartlett_rest};
 
 /// A number as the shortest round-trip text; negative zero is written as 0.
 pub fn number(v: f64) -> String {
@@ -53,20 +54,73 @@ pub struct RowLabels<'a> {
     pub groups: Vec<(&'a str, &'a [String])>,
 }
 
-/// scores.csv: one line per analysed row.
-pub fn scores_csv(labels: &RowLabels, scores: &Matrix) -> Vec<u8> {
-    let mut out = CsvOut::new();
+/// A confidence level as a column suffix: 0.95 → "95", 0.975 → "97.5".
+pub fn level_label(confidence: f64) -> String {
+    number(confidence * 100.0)
+}
+
+/// The label columns of a row: its number, then id and groups.
+fn label_fields(labels: &RowLabels, row: usize) -> Vec<String> {
+    let mut fields = vec![(row + 1).to_string()];
+    fields.extend(labels.id.iter().map(|(_, v)| v[row].clone()));
+    fields.extend(labels.groups.iter().map(|(_, v)| v[row].clone()));
+    fields
+}
+
+fn label_header(labels: &RowLabels) -> Vec<String> {
     let mut header = vec!["row".to_string()];
     header.extend(labels.id.iter().map(|(n, _)| n.to_string()));
     header.extend(labels.groups.iter().map(|(n, _)| n.to_string()));
+    header
+}
+
+fn yes_no(flag: bool) -> String {
+    if flag { "yes" } else { "no" }.to_string()
+}
+
+/// scores.csv: one line per analysed row: labels, scores, T², SPE and, per
+/// confidence level, whether each exceeds its limit.
+pub fn scores_csv(labels: &RowLabels, scores: &Matrix, diagnostics: &Diagnostics) -> Vec<u8> {
+    let mut out = CsvOut::new();
+    let mut header = label_header(labels);
     header.extend(component_names(scores.cols));
+    header.extend(["T2".to_string(), "SPE".to_string()]);
+    for l in &diagnostics.limits {
+        let level = level_label(l.confidence);
+        header.extend([format!("T2_above_{level}"), format!("SPE_above_{level}")]);
+    }
     out.row(&header);
     for (i, &row) in labels.rows.iter().enumerate() {
-        let mut fields = vec![(row + 1).to_string()];
-        fields.extend(labels.id.iter().map(|(_, v)| v[row].clone()));
-        fields.extend(labels.groups.iter().map(|(_, v)| v[row].clone()));
+        let mut fields = label_fields(labels, row);
         fields.extend(scores.row(i).iter().map(|&v| number(v)));
+        fields.extend([number(diagnostics.t2[i]), number(diagnostics.spe[i])]);
+        for level in 0..diagnostics.limits.len() {
+            let (t2, spe) = diagnostics.flags(i, level);
+            fields.extend([yes_no(t2), yes_no(spe)]);
+        }
         out.row(&fields);
+    }
+    out.finish()
+}
+
+/// contributions.csv: for each flagged row, each feature's contribution to its T²
+/// and to its SPE (in scaled units; each sums over features to the row's value).
+pub fn contributions_csv(
+    labels: &RowLabels,
+    features: &[String],
+    flagged: &[(usize, Vec<(f64, f64)>)],
+) -> Vec<u8> {
+    let mut out = CsvOut::new();
+    let mut header = label_header(labels);
+    header.extend(["feature", "T2_contribution", "SPE_contribution"].map(String::from));
+    out.row(&header);
+    for (i, parts) in flagged {
+        let base = label_fields(labels, labels.rows[*i]);
+        for (name, (t2, spe)) in features.iter().zip(parts) {
+            let mut fields = base.clone();
+            fields.extend([name.clone(), number(*t2), number(*spe)]);
+            out.row(&fields);
+        }
     }
     out.finish()
 }
@@ -85,29 +139,60 @@ pub fn loadings_csv(names: &[String], d: &Decomposition, computed: usize) -> Vec
     out.finish()
 }
 
-/// variance.csv: eigenvalue, shares and the evidence of the rule, per computed component.
-pub fn variance_csv(d: &Decomposition, s: &Selection) -> Vec<u8> {
+/// variance.csv: per computed component, the eigenvalue, shares and the evidence
+/// of the rules (broken stick always; Bartlett's test of the remaining
+/// eigenvalues; parallel-analysis thresholds and PRESS when those rules ran).
+pub fn variance_csv(d: &Decomposition, s: &Selection, n: usize) -> Vec<u8> {
     let mut out = CsvOut::new();
-    out.row([
+    let mut header: Vec<String> = [
         "component",
         "eigenvalue",
         "share",
         "cumulative_share",
         "broken_stick_share",
-        "kept",
-    ]);
+    ]
+    .map(String::from)
+    .to_vec();
+    if s.parallel_analysis.is_some() {
+        header.extend(["random_eigenvalue_mean", "random_eigenvalue_threshold"].map(String::from));
+    }
+    if s.cross_validation.is_some() {
+        header.extend(["press", "press_standard_error"].map(String::from));
+    }
+    header.extend(
+        [
+            "bartlett_chi2_rest",
+            "bartlett_df_rest",
+            "bartlett_p_rest",
+            "kept",
+        ]
+        .map(String::from),
+    );
+    out.row(&header);
     let mut cumulative = 0.0;
     for a in 0..s.computed {
         let share = d.eigenvalues[a] / d.total_variance;
         cumulative += share;
-        out.row([
+        let mut row = vec![
             format!("PC{}", a + 1),
             number(d.eigenvalues[a]),
             number(share),
             number(cumulative),
             number(s.broken_stick[a]),
-            if a < s.kept { "yes" } else { "no" }.to_string(),
-        ]);
+        ];
+        if let Some(pa) = &s.parallel_analysis {
+            row.extend([number(pa.means[a]), number(pa.thresholds[a])]);
+        }
+        if let Some(cv) = &s.cross_validation {
+            let cell = |v: &[f64]| v.get(a + 1).map_or(String::new(), |x| number(*x));
+            row.extend([cell(&cv.press), cell(&cv.standard_error)]);
+        }
+        match bartlett_rest(&d.eigenvalues, d.rank, n, a + 1) {
+            Some((chi2, df, p)) => row.extend([number(chi2), number(df), number(p)]),
+            None => row.extend([String::new(), String::new(), String::new()]),
+        }
+        row.push(yes_no(a < s.kept));
+        out.row(&row);
     }
     out.finish()
 }

@@ -141,7 +141,50 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         Some(Keep::Variance(v)) => format!("Keep the fewest components whose cumulative share of the variance reaches {}.", percent(v.0)),
         Some(Keep::Kaiser) => "Keep the components whose eigenvalue exceeds the mean eigenvalue (Kaiser's rule; the mean is 1 for a correlation matrix).".into(),
         Some(Keep::BrokenStick) => "Keep the leading components that each explain more than the broken-stick expectation.".into(),
+        Some(Keep::ParallelAnalysis) => {
+            let pa = &c.parallel_analysis;
+            format!(
+                "Keep the leading components whose eigenvalues exceed the {}th percentile of those of {} random tables of the same shape ({}), drawn from seed {} (Horn's parallel analysis).",
+                pa.percentile.0,
+                pa.replicates.0,
+                match pa.random_data {
+                    super::raw::RandomData::PermutedColumns => "each column of the scaled data shuffled on its own",
+                    super::raw::RandomData::Normal => "normal values with each column's spread",
+                },
+                pa.seed
+            )
+        }
+        Some(Keep::CrossValidation) => {
+            let cv = &c.cross_validation;
+            format!(
+                "Keep the number of components that best predicts held-out cells from the rest of their row, over {} {} folds of rows ({}).",
+                cv.folds.0,
+                match cv.folds_by {
+                    super::raw::FoldsBy::Interleaved => "interleaved",
+                    super::raw::FoldsBy::Contiguous => "contiguous",
+                },
+                match cv.choose {
+                    super::raw::CvChoice::Minimum => "the count with the smallest prediction error",
+                    super::raw::CvChoice::OneStandardError => "the fewest components within one standard error of the smallest prediction error",
+                }
+            )
+        }
     });
+    let levels: Vec<String> = raw
+        .diagnostics
+        .confidence
+        .0
+        .iter()
+        .map(|c| percent(*c))
+        .collect();
+    s.push(format!(
+        "For every row compute Hotelling's T² over the kept components and the squared prediction error (SPE) after them, and flag rows above their limits at {} confidence (T² by the Beta form for the analysed rows; SPE by the {} approximation); list each flagged row's feature contributions.",
+        join_words(&levels),
+        match raw.diagnostics.spe_limit {
+            super::raw::SpeLimit::JacksonMudholkar => "Jackson–Mudholkar",
+            super::raw::SpeLimit::Box => "Box",
+        }
+    ));
     s.push(format!("Report {compute} components in the variance and loadings tables (fewer if the data's rank is lower, more if more are kept)."));
     s.push(format!(
         "Write scores, loadings, variance, preprocessing and a manifest with SHA-256 hashes to `{}`, replacing an earlier folder only if it came from the same recipe and inputs.",

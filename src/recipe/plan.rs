@@ -53,6 +53,8 @@ pub struct InputPlan {
 #[derive(Debug, Clone)]
 pub struct ComponentsPlan {
     pub keep: Keep,
+    pub parallel_analysis: super::raw::RawParallel,
+    pub cross_validation: super::raw::RawCrossValidation,
     /// Where `keep` was written in the recipe, if it was.
     pub keep_written: Option<Position>,
     pub compute: Option<usize>,
@@ -75,6 +77,7 @@ pub struct Plan {
     pub scaling: ScalingMethod,
     pub constant_features: ConstantPolicy,
     pub components: ComponentsPlan,
+    pub diagnostics: super::raw::RawDiagnostics,
     /// The results folder as written in the recipe, and as a path to write.
     pub output_display: String,
     pub output: PathBuf,
@@ -217,6 +220,7 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
         scaling: raw.scaling.method,
         constant_features: raw.scaling.constant_features,
         components,
+        diagnostics: raw.diagnostics.clone(),
         output_display,
         output,
     })
@@ -463,6 +467,8 @@ fn components_plan(recipe: &LoadedRecipe) -> Result<ComponentsPlan, RecipeError>
     }
     Ok(ComponentsPlan {
         keep,
+        parallel_analysis: c.parallel_analysis.clone(),
+        cross_validation: c.cross_validation.clone(),
         keep_written: c
             .keep
             .as_ref()

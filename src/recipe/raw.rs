@@ -26,6 +26,8 @@ pub struct RawRecipe {
     pub scaling: RawScaling,
     #[serde(default)]
     pub components: RawComponents,
+    #[serde(default)]
+    pub diagnostics: RawDiagnostics,
     pub output: RawOutput,
 }
 
@@ -167,6 +169,210 @@ pub enum ConstantPolicy {
 pub struct RawComponents {
     pub keep: Option<Spanned<Keep>>,
     pub compute: Option<Spanned<Count>>,
+    #[serde(default)]
+    pub parallel_analysis: RawParallel,
+    #[serde(default)]
+    pub cross_validation: RawCrossValidation,
+}
+
+/// `[components.parallel_analysis]`: Horn's (1965) parallel analysis.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawParallel {
+    /// Random tables generated.
+    #[serde(default = "default_replicates")]
+    pub replicates: Count,
+    /// The percentile of the random eigenvalues a component must exceed.
+    #[serde(default = "default_percentile")]
+    pub percentile: Percent,
+    /// Seed of the random stream; the same seed gives the same thresholds.
+    #[serde(default = "default_seed")]
+    pub seed: u64,
+    #[serde(default)]
+    pub random_data: RandomData,
+}
+
+impl Default for RawParallel {
+    fn default() -> Self {
+        RawParallel {
+            replicates: default_replicates(),
+            percentile: default_percentile(),
+            seed: default_seed(),
+            random_data: RandomData::default(),
+        }
+    }
+}
+
+fn default_replicates() -> Count {
+    Count(NonZeroUsize::new(200).expect("non-zero"))
+}
+
+fn default_percentile() -> Percent {
+    Percent(95.0)
+}
+
+fn default_seed() -> u64 {
+    20_260_101
+}
+
+/// What random tables parallel analysis compares against.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum RandomData {
+    /// Each column of the scaled data shuffled on its own: same values, no correlation.
+    #[default]
+    PermutedColumns,
+    /// Independent normal values with each column's standard deviation.
+    Normal,
+}
+
+/// `[components.cross_validation]`: PRESS over held-out cells.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawCrossValidation {
+    #[serde(default = "default_folds")]
+    pub folds: Count,
+    #[serde(default)]
+    pub folds_by: FoldsBy,
+    #[serde(default)]
+    pub choose: CvChoice,
+}
+
+impl Default for RawCrossValidation {
+    fn default() -> Self {
+        RawCrossValidation {
+            folds: default_folds(),
+            folds_by: FoldsBy::default(),
+            choose: CvChoice::default(),
+        }
+    }
+}
+
+fn default_folds() -> Count {
+    Count(NonZeroUsize::new(7).expect("non-zero"))
+}
+
+/// How rows are dealt into cross-validation folds.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum FoldsBy {
+    /// Row i goes to fold i mod folds, so each fold spans the whole table.
+    #[default]
+    Interleaved,
+    /// Consecutive blocks of rows.
+    Contiguous,
+}
+
+/// Which count of components cross-validation picks.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum CvChoice {
+    /// The fewest components whose PRESS is within one standard error of the minimum.
+    #[default]
+    OneStandardError,
+    /// The count with the smallest PRESS.
+    Minimum,
+}
+
+/// `[diagnostics]`: control limits for T² and SPE.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawDiagnostics {
+    #[serde(default)]
+    pub confidence: Confidences,
+    #[serde(default)]
+    pub spe_limit: SpeLimit,
+}
+
+/// The formula for the SPE limit.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum SpeLimit {
+    /// Jackson & Mudholkar (1979), the normal approximation.
+    #[default]
+    JacksonMudholkar,
+    /// Box (1954), the scaled χ² approximation.
+    Box,
+}
+
+/// One or more confidence levels, each strictly between 0 and 1.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Confidences(pub Vec<f64>);
+
+impl Default for Confidences {
+    fn default() -> Self {
+        Confidences(vec![0.95])
+    }
+}
+
+fn check_confidence(v: f64) -> Result<f64, String> {
+    if v > 0.0 && v < 1.0 {
+        Ok(v)
+    } else {
+        Err(format!(
+            "{v} is not a confidence level; expected a number between 0 and 1, such as 0.95"
+        ))
+    }
+}
+
+impl<'de> Deserialize<'de> for Confidences {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> serde::de::Visitor<'de> for V {
+            type Value = Confidences;
+            fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+                f.write_str("a confidence level such as 0.95, or a list such as [0.95, 0.99]")
+            }
+            fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<Confidences, E> {
+                check_confidence(v)
+                    .map(|v| Confidences(vec![v]))
+                    .map_err(E::custom)
+            }
+            fn visit_i64<E: serde::de::Error>(self, v: i64) -> Result<Confidences, E> {
+                self.visit_f64(v as f64)
+            }
+            fn visit_seq<A: serde::de::SeqAccess<'de>>(
+                self,
+                mut seq: A,
+            ) -> Result<Confidences, A::Error> {
+                use serde::de::Error;
+                let mut levels = Vec::new();
+                while let Some(v) = seq.next_element::<f64>()? {
+                    levels.push(check_confidence(v).map_err(A::Error::custom)?);
+                }
+                if levels.is_empty() {
+                    return Err(A::Error::custom("the list of confidence levels is empty"));
+                }
+                let mut sorted = levels.clone();
+                sorted.sort_by(f64::total_cmp);
+                sorted.dedup();
+                if sorted != levels {
+                    return Err(A::Error::custom(
+                        "list confidence levels once each, lowest first, e.g. [0.95, 0.99]",
+                    ));
+                }
+                Ok(Confidences(levels))
+            }
+        }
+        deserializer.deserialize_any(V)
+    }
+}
+
+/// A percentage strictly between 0 and 100.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Percent(pub f64);
+
+impl<'de> Deserialize<'de> for Percent {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        deserializer.deserialize_any(NumberVisitor(
+            "a percentile between 0 and 100, such as 95",
+            |v| {
+                (v > 0.0 && v < 100.0)
+                    .then_some(Percent(v))
+                    .ok_or_else(|| format!("{v} is not a percentile between 0 and 100"))
+            },
+        ))
+    }
 }
 
 /// The rule that chooses the number of kept components.
@@ -182,6 +388,12 @@ pub enum Keep {
     /// Components that explain more than the broken-stick expectation
     /// (Frontier 1976; Jackson 1993).
     BrokenStick,
+    /// Components whose eigenvalue exceeds a percentile of those of random tables
+    /// of the same shape (Horn 1965).
+    ParallelAnalysis,
+    /// The count with the best cross-validated prediction of held-out cells
+    /// (Bro, Kjeldahl, Smilde & Kiers 2008).
+    CrossValidation,
 }
 
 /// The number of kept components when the recipe does not say.
@@ -189,8 +401,7 @@ pub const DEFAULT_KEEP: usize = 2;
 /// The largest number of computed components when the recipe does not say.
 pub const DEFAULT_COMPUTE: usize = 10;
 
-const KEEP_EXPECTED: &str =
-    "a component count such as 3, { variance = 0.9 }, \"kaiser\" or \"broken-stick\"";
+const KEEP_EXPECTED: &str = "a component count such as 3, { variance = 0.9 }, \"kaiser\", \"broken-stick\", \"parallel-analysis\" or \"cross-validation\"";
 
 impl<'de> Deserialize<'de> for Keep {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
@@ -223,6 +434,8 @@ impl<'de> serde::de::Visitor<'de> for KeepVisitor {
         match v {
             "kaiser" => Ok(Keep::Kaiser),
             "broken-stick" => Ok(Keep::BrokenStick),
+            "parallel-analysis" => Ok(Keep::ParallelAnalysis),
+            "cross-validation" => Ok(Keep::CrossValidation),
             _ => Err(E::custom(format!(
                 "unknown rule `{v}` for keep; expected {KEEP_EXPECTED}"
             ))),
@@ -294,7 +507,7 @@ impl<'de> Deserialize<'de> for Whole {
 }
 
 /// A positive whole number (a count of components).
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 pub struct Count(pub NonZeroUsize);
 
 impl<'de> Deserialize<'de> for Count {

@@ -19,6 +19,8 @@ fn keep_value(keep: Option<Keep>) -> Value {
         Some(Keep::Variance(s)) => json!({ "variance": s.0 }),
         Some(Keep::Kaiser) => json!("kaiser"),
         Some(Keep::BrokenStick) => json!("broken-stick"),
+        Some(Keep::ParallelAnalysis) => json!("parallel-analysis"),
+        Some(Keep::CrossValidation) => json!("cross-validation"),
     }
 }
 
@@ -59,6 +61,12 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
         "components": {
             "keep": keep_value(raw.components.keep.as_ref().map(|k| *k.get_ref())),
             "compute": raw.components.compute.as_ref().map_or(DEFAULT_COMPUTE, |c| c.get_ref().0.get()),
+            "parallel_analysis": raw.components.parallel_analysis,
+            "cross_validation": raw.components.cross_validation,
+        },
+        "diagnostics": {
+            "confidence": raw.diagnostics.confidence,
+            "spe_limit": raw.diagnostics.spe_limit,
         },
         "output": { "folder": raw.output.folder.get_ref() },
     })

@@ -4,8 +4,11 @@
 //! table → [`FeatureData`] → [`missing`] → [`transform`] → [`scale`] →
 //! [`decompose`] → [`select`].
 
+pub mod crossval;
 pub mod decompose;
+pub mod diagnose;
 pub mod missing;
+pub mod parallel;
 pub mod scale;
 pub mod select;
 pub mod transform;

@@ -5,11 +5,23 @@
 //! correlation matrix; the broken stick (Frontier 1976; Jackson 1993, Ecology
 //! 74:2204–2214): component k is kept while its share exceeds
 //! bₖ = (1/p) Σ_{i=k..p} 1/i, the expected share of the k-th longest piece of a
-//! stick broken at random into p pieces.
+//! stick broken at random into p pieces; parallel analysis (Horn 1965, see
+//! [`super::parallel`]); cross-validation (Bro et al. 2008, see
+//! [`super::crossval`]). Bartlett's test of equal remaining eigenvalues is
+//! reported as evidence beside them.
 
+use super::crossval::CvEvidence;
+use super::parallel::ParallelEvidence;
 use crate::recipe::plan::ComponentsPlan;
 use crate::recipe::raw::{DEFAULT_COMPUTE, Keep};
 use serde::Serialize;
+
+/// Evidence computed from the data for the rules that need more than eigenvalues.
+#[derive(Debug, Clone, Default)]
+pub struct Evidence {
+    pub parallel: Option<ParallelEvidence>,
+    pub cross_validation: Option<CvEvidence>,
+}
 
 /// The chosen number of components and the evidence.
 #[derive(Debug, Clone, Serialize)]
@@ -27,6 +39,10 @@ pub struct Selection {
     pub broken_stick: Vec<f64>,
     /// The mean eigenvalue, Kaiser's threshold.
     pub mean_eigenvalue: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub parallel_analysis: Option<ParallelEvidence>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub cross_validation: Option<CvEvidence>,
 }
 
 /// Why a recipe's fixed count cannot be honoured.
@@ -49,6 +65,7 @@ pub fn select(
     total: f64,
     rank: usize,
     plan: &ComponentsPlan,
+    evidence: Evidence,
 ) -> Result<Selection, KeepAboveRank> {
     let p = eigenvalues.len();
     let shares: Vec<f64> = eigenvalues.iter().map(|v| v / total).collect();
@@ -100,6 +117,55 @@ pub fn select(
             };
             ("broken-stick", k, why)
         }
+        Keep::ParallelAnalysis => {
+            let pa = evidence
+                .parallel
+                .as_ref()
+                .expect("the orchestrator runs parallel analysis for this rule");
+            let k = eigenvalues
+                .iter()
+                .zip(&pa.thresholds)
+                .take_while(|(v, t)| v > t)
+                .count();
+            let why = match (eigenvalues.get(k), pa.thresholds.get(k)) {
+                (Some(v), Some(t)) => format!(
+                    "components 1 to {k} have eigenvalues above the {}th percentile of {} random tables ({}); component {} has {} against {} (Horn 1965, seed {})",
+                    fmt_short(pa.percentile),
+                    pa.replicates,
+                    random_words(pa),
+                    k + 1,
+                    fmt_short(*v),
+                    fmt_short(*t),
+                    pa.seed
+                ),
+                _ => format!("all {k} eigenvalues exceed the random tables' threshold"),
+            };
+            ("parallel-analysis", k, why)
+        }
+        Keep::CrossValidation => {
+            let cv = evidence
+                .cross_validation
+                .as_ref()
+                .expect("the orchestrator runs cross-validation for this rule");
+            let k = cv.chosen;
+            let best =
+                (1..cv.press.len()).fold(1, |b, j| if cv.press[j] < cv.press[b] { j } else { b });
+            let why = match cv.choose {
+                crate::recipe::raw::CvChoice::Minimum => format!(
+                    "{k} component(s) give the smallest PRESS ({}) over {} folds (Bro et al. 2008)",
+                    fmt_short(cv.press[k]),
+                    cv.folds
+                ),
+                crate::recipe::raw::CvChoice::OneStandardError => format!(
+                    "{k} is the fewest components with PRESS ({}) within one standard error of the smallest ({} at {best}, standard error {}), over {} folds (Bro et al. 2008)",
+                    fmt_short(cv.press[k]),
+                    fmt_short(cv.press[best]),
+                    fmt_short(cv.standard_error[best]),
+                    cv.folds
+                ),
+            };
+            ("cross-validation", k, why)
+        }
     };
     if kept == 0 {
         adjustments.push(format!("the rule `{rule}` kept no component; one component is kept, the least that can be analysed"));
@@ -130,6 +196,8 @@ pub fn select(
         adjustments,
         broken_stick: sticks,
         mean_eigenvalue,
+        parallel_analysis: evidence.parallel,
+        cross_validation: evidence.cross_validation,
     })
 }
 
@@ -159,6 +227,39 @@ fn by_variance(shares: &[f64], target: f64, rank: usize) -> (&'static str, usize
     ("variance", rank, why)
 }
 
+fn random_words(pa: &ParallelEvidence) -> &'static str {
+    match pa.random_data {
+        crate::recipe::raw::RandomData::PermutedColumns => "each column shuffled",
+        crate::recipe::raw::RandomData::Normal => "normal values",
+    }
+}
+
+/// Bartlett's test that the eigenvalues after the first `a` components are all
+/// equal: χ² = ((n − 1) − (2p + 5)/6) (q ln(mean of the last q λ) − Σ ln λ) with
+/// q = rank − a and df = (q + 2)(q − 1)/2 (Bartlett 1950, "Tests of significance in
+/// factor analysis", Brit. J. Psych. Stat. Section 3:77–85; formula as commonly
+/// given, not read in the paper). Returns (χ², df, p-value), or `None` when fewer
+/// than two non-zero eigenvalues remain.
+pub fn bartlett_rest(
+    eigenvalues: &[f64],
+    rank: usize,
+    n: usize,
+    a: usize,
+) -> Option<(f64, f64, f64)> {
+    let p = eigenvalues.len() as f64;
+    let rest = eigenvalues.get(a..rank)?;
+    let q = rest.len();
+    if q < 2 {
+        return None;
+    }
+    let mean = rest.iter().sum::<f64>() / q as f64;
+    let logs: f64 = rest.iter().map(|&l| libm::log(l)).sum();
+    let chi2 = ((n as f64 - 1.0) - (2.0 * p + 5.0) / 6.0) * (q as f64 * libm::log(mean) - logs);
+    let df = ((q + 2) * (q - 1) / 2) as f64;
+    let p_value = crate::stats::distributions::chi2_sf(chi2, df).ok()?;
+    Some((chi2, df, p_value))
+}
+
 /// A share as a percentage with one decimal.
 pub fn pct(share: f64) -> String {
     format!("{:.1}", share * 100.0)
@@ -177,6 +278,8 @@ mod tests {
     fn plan(keep: Keep) -> ComponentsPlan {
         ComponentsPlan {
             keep,
+            parallel_analysis: Default::default(),
+            cross_validation: Default::default(),
             keep_written: None,
             compute: None,
         }
@@ -199,6 +302,7 @@ mod tests {
             10.0,
             3,
             &plan(Keep::Variance(crate::recipe::raw::Share(0.9))),
+            Evidence::default(),
         )
         .unwrap();
         assert_eq!(s.kept, 2);
@@ -206,7 +310,14 @@ mod tests {
 
     #[test]
     fn kaiser_counts_above_mean() {
-        let s = select(&[2.0, 0.9, 0.1], 3.0, 3, &plan(Keep::Kaiser)).unwrap();
+        let s = select(
+            &[2.0, 0.9, 0.1],
+            3.0,
+            3,
+            &plan(Keep::Kaiser),
+            Evidence::default(),
+        )
+        .unwrap();
         assert_eq!(s.kept, 1);
         assert_eq!(s.mean_eigenvalue, 1.0);
     }
@@ -216,7 +327,7 @@ mod tests {
         let mut p = plan(Keep::Count(NonZeroUsize::new(4).unwrap()));
         p.keep_written = Some(crate::error::Position::locate("keep = 4", 7));
         assert_eq!(
-            select(&[2.0, 1.0, 0.0, 0.0], 3.0, 2, &p).unwrap_err(),
+            select(&[2.0, 1.0, 0.0, 0.0], 3.0, 2, &p, Evidence::default()).unwrap_err(),
             KeepAboveRank {
                 keep: 4,
                 available: 2

@@ -1,0 +1,176 @@
+//! Per-sample diagnostics: Hotelling's T² over the kept components, the squared
+//! prediction error (SPE, Q) after them, control limits, flags and the usual
+//! contributions of each feature for flagged samples.
+//!
+//! - T²ᵢ = Σₐ tᵢₐ² / λₐ over the k kept components (λ with divisor n − 1);
+//!   Σᵢ T²ᵢ = k(n − 1) exactly.
+//! - SPEᵢ = Σⱼ eᵢⱼ², e = z − t Pᵀ the residual after k components;
+//!   Σᵢ SPEᵢ = (n − 1) Σ_{j>k} λⱼ.
+//! - Limits: T² of the calibration rows by the Beta form of Tracy, Young & Mason
+//!   (1992); T² of new rows by the F form (NIST/SEMATECH e-Handbook §6.5.4.3.4),
+//!   recorded for scoring new batches; SPE by Jackson & Mudholkar (1979) or Box
+//!   (1954). See [`crate::stats::limits`].
+//! - Contributions (Westerhuis, Gurden & Smilde 2000, "Generalized contribution
+//!   plots in multivariate statistical process monitoring", Chemometrics and
+//!   Intelligent Laboratory Systems 51:95–114): to T², cᵢⱼ = Σₐ (tᵢₐ/λₐ) pⱼₐ zᵢⱼ,
+//!   which sum to T²ᵢ; to SPE, eᵢⱼ², which sum to SPEᵢ. Both are in scaled units.
+
+use crate::linalg::Matrix;
+use crate::recipe::raw::SpeLimit;
+use crate::stats::limits::{ResidualMoments, t2_limit_new_observation, t2_limit_phase1};
+use serde::Serialize;
+
+/// The limits at one confidence level; `None` where a limit is not defined for
+/// this data, with the reason in [`Diagnostics::notes`].
+#[derive(Debug, Clone, Serialize)]
+pub struct Limits {
+    pub confidence: f64,
+    /// For the calibration rows (Beta form); used for the flags here.
+    pub t2: Option<f64>,
+    /// For new rows scored against this model (F form).
+    pub t2_new_rows: Option<f64>,
+    pub spe: Option<f64>,
+    pub t2_flagged: usize,
+    pub spe_flagged: usize,
+}
+
+/// The diagnostics of every analysed row.
+#[derive(Debug, Clone)]
+pub struct Diagnostics {
+    pub t2: Vec<f64>,
+    pub spe: Vec<f64>,
+    pub limits: Vec<Limits>,
+    pub spe_method: SpeLimit,
+    pub moments: Option<ResidualMoments>,
+    /// Why a limit is missing, in plain words.
+    pub notes: Vec<String>,
+    /// Residuals e = z − t Pᵀ (rows × features), kept for contributions.
+    pub residuals: Matrix,
+}
+
+impl Diagnostics {
+    /// Whether row `i` exceeds the T² or the SPE limit at level `level`.
+    pub fn flags(&self, i: usize, level: usize) -> (bool, bool) {
+        let l = &self.limits[level];
+        (
+            l.t2.is_some_and(|u| self.t2[i] > u),
+            l.spe.is_some_and(|u| self.spe[i] > u),
+        )
+    }
+
+    /// Rows flagged at any level (the lowest confidence flags the most).
+    pub fn flagged_rows(&self) -> Vec<usize> {
+        (0..self.t2.len())
+            .filter(|&i| {
+                (0..self.limits.len()).any(|l| {
+                    let (a, b) = self.flags(i, l);
+                    a || b
+                })
+            })
+            .collect()
+    }
+}
+
+/// Computes T², SPE and their limits.
+///
+/// `z` is the scaled data (n × p), `loadings` p × (≥ k), `scores` n × k,
+/// `eigenvalues` all p eigenvalues, `rank` the numerical rank.
+pub fn diagnose(
+    z: &Matrix,
+    loadings: &Matrix,
+    scores: &Matrix,
+    eigenvalues: &[f64],
+    rank: usize,
+    confidences: &[f64],
+    spe_method: SpeLimit,
+) -> Diagnostics {
+    let (n, p, k) = (z.rows, z.cols, scores.cols);
+    let t2: Vec<f64> = (0..n)
+        .map(|i| {
+            (0..k)
+                .map(|a| scores.get(i, a) * scores.get(i, a) / eigenvalues[a])
+                .sum()
+        })
+        .collect();
+    let mut residuals = Matrix::zeros(n, p);
+    let mut spe = vec![0.0; n];
+    for i in 0..n {
+        let t = scores.row(i);
+        let mut sum = 0.0;
+        for j in 0..p {
+            let fitted: f64 = (0..k).map(|a| t[a] * loadings.get(j, a)).sum();
+            let e = z.get(i, j) - fitted;
+            residuals.set(i, j, e);
+            sum += e * e;
+        }
+        spe[i] = sum;
+    }
+
+    let mut notes = Vec::new();
+    let moments = match ResidualMoments::from_eigenvalues(&eigenvalues[k..rank]) {
+        Ok(m) => Some(m),
+        Err(e) => {
+            notes.push(format!("no SPE limit: {e}"));
+            None
+        }
+    };
+    let mut limits = Vec::new();
+    for &c in confidences {
+        let mut note = |what: &str, e: crate::stats::limits::LimitError| {
+            let line = format!("no {what} limit at {}: {e}", c);
+            if !notes.contains(&line) {
+                notes.push(line);
+            }
+        };
+        let t2_limit = t2_limit_phase1(n, k, c).map_err(|e| note("T²", e)).ok();
+        let t2_new = t2_limit_new_observation(n, k, c)
+            .map_err(|e| note("new-row T²", e))
+            .ok();
+        let spe_limit = moments.and_then(|m| {
+            let r = match spe_method {
+                SpeLimit::JacksonMudholkar => m.jackson_mudholkar(c),
+                SpeLimit::Box => m.box_limit(c),
+            };
+            r.map_err(|e| note("SPE", e)).ok()
+        });
+        limits.push(Limits {
+            confidence: c,
+            t2: t2_limit,
+            t2_new_rows: t2_new,
+            spe: spe_limit,
+            t2_flagged: t2_limit.map_or(0, |u| t2.iter().filter(|&&v| v > u).count()),
+            spe_flagged: spe_limit.map_or(0, |u| spe.iter().filter(|&&v| v > u).count()),
+        });
+    }
+    Diagnostics {
+        t2,
+        spe,
+        limits,
+        spe_method,
+        moments,
+        notes,
+        residuals,
+    }
+}
+
+/// The contributions of each feature to row `i`'s T² and SPE.
+pub fn contributions(
+    d: &Diagnostics,
+    z: &Matrix,
+    loadings: &Matrix,
+    scores: &Matrix,
+    eigenvalues: &[f64],
+    i: usize,
+) -> Vec<(f64, f64)> {
+    let k = scores.cols;
+    (0..z.cols)
+        .map(|j| {
+            let t2: f64 = (0..k)
+                .map(|a| scores.get(i, a) / eigenvalues[a] * loadings.get(j, a))
+                .sum::<f64>()
+                * z.get(i, j);
+            let e = d.residuals.get(i, j);
+            (t2, e * e)
+        })
+        .collect()
+}
