@@ -103,6 +103,22 @@ pub enum RecipeProblem {
     Syntax(String),
     #[error("recipe format {found} is not supported; this version of sextant reads format = 1")]
     Format { found: i64 },
+    #[error("`{key}` does not apply to a `{kind}` plot")]
+    PlotKeyNotApplicable { key: &'static str, kind: &'static str },
+    #[error("component {index} is beyond compute = {compute}; raise components.compute or choose a lower component")]
+    PlotComponentBeyondCompute { index: usize, compute: usize },
+    #[error("component {index} is beyond the {available} components this data gives (its rank)")]
+    PlotComponentBeyondRank { index: usize, available: usize },
+    #[error("a loadings plot takes either `component` (bars) or `x` and `y` (scatter), not both")]
+    PlotAxesAndComponent,
+    #[error("x and y are both component {index}; choose two different components")]
+    PlotSameAxes { index: usize },
+    #[error("color = `{column}` is not a group column; the groups are: {groups} (add it to input.groups)")]
+    PlotColorNotGroup { column: String, groups: String },
+    #[error("plot file `{file}` must be a plain file name ending in .svg (letters, digits, '-', '_', '.'); plots are written inside the results folder's plots/")]
+    PlotFileName { file: String },
+    #[error("two plots would write plots/{file}; give one of them its own `file`")]
+    PlotFileTwice { file: String },
     #[error("{key} is empty; give a name")]
     EmptyName { key: &'static str },
     #[error("output folder `{folder}` cannot be created: `{file}` is a file, not a folder")]

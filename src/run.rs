@@ -278,7 +278,14 @@ pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed)
     let resolved = resolved_recipe(&prepared.recipe, &prepared.plan.input);
     let resolved_sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
     let fingerprint = (resolved_sha.clone(), vec![prepared.input.sha256.clone()]);
-    let files = result_files(prepared, &pre, &analysis);
+    let mut files = result_files(prepared, &pre, &analysis);
+    files.extend(figures_and_report(
+        prepared,
+        &pre,
+        &analysis,
+        &files,
+        &resolved_sha,
+    )?);
     let outputs = files
         .iter()
         .map(|(path, bytes)| FileRecord {
@@ -422,6 +429,76 @@ fn result_files(
             tables::contributions_csv(&labels, &pre.scaled.names, &flagged),
         ),
     ]
+}
+
+/// The plots and the report. The report's provenance names a results digest: the
+/// SHA-256 of the lines "sha256  path" of every other output, in order (the
+/// manifest's own digest covers the report too, so the report cannot show it).
+fn figures_and_report(
+    prepared: &Prepared,
+    pre: &Preprocessed,
+    analysis: &Analysis,
+    tables: &[(String, Vec<u8>)],
+    resolved_sha: &str,
+) -> Result<Vec<(String, Vec<u8>)>, Error> {
+    use crate::outputs::{plots, present, report, view::Figure};
+    let view = present::plot_view(prepared, pre, analysis);
+    let mut figures = Vec::new();
+    for plan in &prepared.plan.plots {
+        if plan.highest_component() > view.computed {
+            return Err(RecipeError {
+                file: prepared.recipe.path.clone(),
+                at: Some(plan.at.clone()),
+                problem: RecipeProblem::PlotComponentBeyondRank {
+                    index: plan.highest_component(),
+                    available: view.computed,
+                },
+            }
+            .into());
+        }
+        let svg = plots::render(plan, &view);
+        figures.push(Figure {
+            file: plan.file.clone(),
+            caption: plots::caption(plan, &view),
+            svg,
+        });
+    }
+    let mut files: Vec<(String, Vec<u8>)> = figures
+        .iter()
+        .map(|f| (format!("plots/{}", f.file), f.svg.clone().into_bytes()))
+        .collect();
+    let listing: String = tables
+        .iter()
+        .chain(&files)
+        .map(|(path, bytes)| format!("{}  {path}\n", sha256_hex(bytes)))
+        .collect();
+    let mut report_view = present::report_view(prepared, pre, analysis, &view);
+    report_view.figures = figures;
+    report_view.provenance = vec![
+        (
+            "tool".into(),
+            format!("sextant {}", env!("CARGO_PKG_VERSION")),
+        ),
+        (
+            "recipe".into(),
+            format!(
+                "{} (sha256 {})",
+                crate::paths::relative(&prepared.plan.output, &prepared.recipe.path),
+                sha256_hex(prepared.recipe.text.as_bytes())
+            ),
+        ),
+        ("resolved recipe sha256".into(), resolved_sha.to_string()),
+        (
+            "input".into(),
+            format!("{} (sha256 {})", prepared.input.path, prepared.input.sha256),
+        ),
+        ("results digest".into(), sha256_hex(listing.as_bytes())),
+    ];
+    files.push((
+        "report.html".into(),
+        report::render(&report_view).into_bytes(),
+    ));
+    Ok(files)
 }
 
 /// What each step did, for the manifest.

@@ -172,22 +172,28 @@ fn rerun_and_compare(
     recipe: &Path,
     report: &mut Verification,
 ) -> Result<(), Error> {
-    let resolved = manifest
-        .pointer("/recipe/resolved")
-        .cloned()
-        .unwrap_or(Value::Null);
-    let text = recipe_text(&resolved).map_err(|reason| InputError::NotResults {
-        path: folder.display().to_string(),
-        reason: format!("the manifest's resolved recipe cannot be read back ({reason})"),
-    })?;
-    if report
+    // The recipe file itself when it is unchanged; otherwise the resolved recipe
+    // recorded in the manifest, rebuilt as recipe text.
+    let loaded = if report
         .files
         .first()
-        .is_some_and(|f| f.state != FileState::Unchanged)
+        .is_some_and(|f| f.state == FileState::Unchanged)
     {
-        report.notes.push("the recipe file changed since the run; the rerun uses the recipe recorded in the manifest".into());
-    }
-    let loaded = crate::recipe::parse(recipe, text)?;
+        crate::recipe::load(recipe)?
+    } else {
+        let resolved = manifest
+            .pointer("/recipe/resolved")
+            .cloned()
+            .unwrap_or(Value::Null);
+        let text = recipe_text(&resolved).map_err(|reason| InputError::NotResults {
+            path: folder.display().to_string(),
+            reason: format!("the manifest's resolved recipe cannot be read back ({reason})"),
+        })?;
+        report.notes.push(
+            "the recipe file changed since the run; the rerun uses the recipe recorded in the manifest, so report.html, which shows the recipe file's hash, differs".into(),
+        );
+        crate::recipe::parse(recipe, text)?
+    };
     let prepared = prepare_recipe(loaded)?;
     let (_, _, computed) = compute(&prepared)?;
     report.rerun_done = true;

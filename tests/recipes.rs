@@ -58,13 +58,23 @@ fn results_folder(recipe: &Path) -> PathBuf {
     recipe.parent().unwrap().join(folder)
 }
 
-/// The folder's files as (name, bytes), with the manifest's `run` block removed.
+/// The folder's files as (relative path, bytes), sorted, with the manifest's
+/// `run` block removed.
 fn snapshot(folder: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut files: Vec<(String, Vec<u8>)> = fs::read_dir(folder)
-        .unwrap()
-        .map(|e| {
-            let path = e.unwrap().path();
-            let name = path.file_name().unwrap().to_string_lossy().into_owned();
+    let mut files = Vec::new();
+    let mut pending = vec![folder.to_path_buf()];
+    while let Some(dir) = pending.pop() {
+        for entry in fs::read_dir(&dir).unwrap() {
+            let path = entry.unwrap().path();
+            if path.is_dir() {
+                pending.push(path);
+                continue;
+            }
+            let name = path
+                .strip_prefix(folder)
+                .unwrap()
+                .to_string_lossy()
+                .replace('\\', "/");
             let mut bytes = fs::read(&path).unwrap();
             if name == "manifest.json" {
                 let mut v: serde_json::Value = serde_json::from_slice(&bytes).unwrap();
@@ -74,9 +84,9 @@ fn snapshot(folder: &Path) -> Vec<(String, Vec<u8>)> {
                     .expect("a run block");
                 bytes = serde_json::to_vec_pretty(&v).unwrap();
             }
-            (name, bytes)
-        })
-        .collect();
+            files.push((name, bytes));
+        }
+    }
     files.sort();
     files
 }
@@ -96,17 +106,34 @@ fn every_recipe_checks_runs_and_reruns_identically() {
         let folder = results_folder(&recipe);
         let first = snapshot(&folder);
         let names: Vec<&str> = first.iter().map(|(n, _)| n.as_str()).collect();
+        for required in [
+            "contributions.csv",
+            "loadings.csv",
+            "manifest.json",
+            "preprocessing.csv",
+            "report.html",
+            "scores.csv",
+            "variance.csv",
+        ] {
+            assert!(
+                names.contains(&required),
+                "{r} did not write {required}: {names:?}"
+            );
+        }
+        // Every file in the folder is listed, with its hash, in the manifest.
+        let manifest: serde_json::Value =
+            serde_json::from_slice(&fs::read(folder.join("manifest.json")).unwrap()).unwrap();
+        let mut listed: Vec<&str> = manifest["outputs"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|o| o["path"].as_str().unwrap())
+            .collect();
+        listed.push("manifest.json");
+        listed.sort();
         assert_eq!(
-            names,
-            [
-                "contributions.csv",
-                "loadings.csv",
-                "manifest.json",
-                "preprocessing.csv",
-                "scores.csv",
-                "variance.csv"
-            ],
-            "files written by {r}"
+            names, listed,
+            "files written by {r} against the manifest's list"
         );
 
         let (code, _, err) = sextant(&["run", r], ws.path());

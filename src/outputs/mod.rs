@@ -5,4 +5,8 @@ pub mod folder;
 pub mod hashing;
 pub mod lock;
 pub mod manifest;
+pub mod plots;
+pub mod present;
+pub mod report;
 pub mod tables;
+pub mod view;

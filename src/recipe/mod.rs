@@ -2,6 +2,7 @@
 
 pub mod explain;
 pub mod plan;
+pub mod plots;
 pub mod raw;
 pub mod resolved;
 

@@ -78,6 +78,7 @@ pub struct Plan {
     pub constant_features: ConstantPolicy,
     pub components: ComponentsPlan,
     pub diagnostics: super::raw::RawDiagnostics,
+    pub plots: Vec<super::plots::PlotPlan>,
     /// The results folder as written in the recipe, and as a path to write.
     pub output_display: String,
     pub output: PathBuf,
@@ -208,6 +209,7 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
     let transforms = assign_transforms(recipe, &features)?;
     let (output, output_display) = output_folder(recipe, &input)?;
     let components = components_plan(recipe)?;
+    let plots = super::plots::plot_plans(recipe, &input.groups)?;
     Ok(Plan {
         title: raw.title.clone(),
         notes: raw.notes.clone(),
@@ -221,6 +223,7 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
         constant_features: raw.scaling.constant_features,
         components,
         diagnostics: raw.diagnostics.clone(),
+        plots,
         output_display,
         output,
     })

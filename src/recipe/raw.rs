@@ -28,7 +28,90 @@ pub struct RawRecipe {
     pub components: RawComponents,
     #[serde(default)]
     pub diagnostics: RawDiagnostics,
+    /// `[[plot]]` tables, one per figure.
+    #[serde(default, rename = "plot")]
+    pub plots: Vec<Spanned<RawPlot>>,
     pub output: RawOutput,
+}
+
+/// One `[[plot]]` table. Which keys apply depends on the kind; the plan rejects
+/// a key that does not apply.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawPlot {
+    pub kind: PlotKind,
+    /// File name inside the results folder's plots/ (default from kind and components).
+    pub file: Option<Spanned<String>>,
+    pub title: Option<String>,
+    /// Components on the horizontal and vertical axes (1-based).
+    pub x: Option<Spanned<Count>>,
+    pub y: Option<Spanned<Count>>,
+    /// The component of a loadings bar chart (1-based).
+    pub component: Option<Spanned<Count>>,
+    /// A group column that colours the points.
+    pub color: Option<Spanned<String>>,
+    /// Which points get their id written beside them.
+    pub labels: Option<Spanned<PointLabels>>,
+    /// Draw the Hotelling T² ellipse at this confidence (scores plots).
+    pub ellipse: Option<Spanned<Confidence>>,
+    /// Above this many points, scatter plots draw a density of binned points
+    /// plus the flagged points instead of every point.
+    pub density_above: Option<Spanned<Count>>,
+}
+
+/// The kinds of figure.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum PlotKind {
+    /// Eigenvalues as bars, cumulative share as a line, the rule's evidence beside them.
+    Scree,
+    /// Scores of two components.
+    Scores,
+    /// Loadings of one component (bars) or two (scatter).
+    Loadings,
+    /// Scores and loading arrows together.
+    Biplot,
+    /// Correlations of the features with two components, in the unit circle.
+    CorrelationCircle,
+    /// T² against SPE with both limits.
+    OutlierMap,
+}
+
+impl PlotKind {
+    pub fn name(self) -> &'static str {
+        match self {
+            PlotKind::Scree => "scree",
+            PlotKind::Scores => "scores",
+            PlotKind::Loadings => "loadings",
+            PlotKind::Biplot => "biplot",
+            PlotKind::CorrelationCircle => "correlation-circle",
+            PlotKind::OutlierMap => "outlier-map",
+        }
+    }
+}
+
+/// Which points of a scatter plot get their id written beside them.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum PointLabels {
+    None,
+    /// Only rows above a T² or SPE limit.
+    #[default]
+    Flagged,
+    All,
+}
+
+/// A confidence level strictly between 0 and 1.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Confidence(pub f64);
+
+impl<'de> Deserialize<'de> for Confidence {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        deserializer.deserialize_any(NumberVisitor(
+            "a confidence level between 0 and 1, such as 0.95",
+            |v| check_confidence(v).map(Confidence),
+        ))
+    }
 }
 
 /// `[input]`: which table, and the role of its columns.

@@ -68,8 +68,44 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
             "confidence": raw.diagnostics.confidence,
             "spe_limit": raw.diagnostics.spe_limit,
         },
+        "plot": plots_value(recipe, input),
         "output": { "folder": raw.output.folder.get_ref() },
     })
+}
+
+/// The plots with every default written, using only the keys each kind takes.
+fn plots_value(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
+    use super::raw::PlotKind::*;
+    let plans = super::plots::plot_plans(recipe, &input.groups).unwrap_or_default();
+    let list: Vec<Value> = plans
+        .iter()
+        .map(|p| {
+            let mut v = json!({ "kind": p.kind, "file": p.file, "title": p.title });
+            let m = v.as_object_mut().expect("an object");
+            match p.kind {
+                Loadings if p.y == 0 => {
+                    m.insert("component".into(), json!(p.x));
+                }
+                Scores | Biplot | CorrelationCircle | Loadings => {
+                    m.insert("x".into(), json!(p.x));
+                    m.insert("y".into(), json!(p.y));
+                }
+                Scree | OutlierMap => {}
+            }
+            if matches!(p.kind, Scores | Biplot) {
+                m.insert("color".into(), json!(p.color));
+            }
+            if p.kind == Scores {
+                m.insert("ellipse".into(), json!(p.ellipse));
+            }
+            if matches!(p.kind, Scores | Biplot | OutlierMap) {
+                m.insert("labels".into(), json!(p.labels));
+                m.insert("density_above".into(), json!(p.density_above));
+            }
+            v
+        })
+        .collect();
+    Value::Array(list)
 }
 
 /// Turns a resolved recipe (as stored in a manifest) back into recipe text that

@@ -1,0 +1,319 @@
+//! Builds the plain views that figures and the report are drawn from, and the
+//! report's summary sentences and cautions.
+
+use super::view::{Evidence, FlaggedLine, PlotView, ReportView, Scores3d, VarianceLine};
+use crate::linalg::Matrix;
+use crate::recipe::raw::Keep;
+use crate::run::{Analysis, Prepared, Preprocessed};
+use crate::stages::decompose::scores;
+use crate::stages::diagnose::contributions;
+use crate::stages::select::pct;
+use crate::table::ColumnData;
+
+/// The text of a table column (id and group columns are read as text).
+fn text_column<'a>(prepared: &'a Prepared, name: &str) -> &'a [String] {
+    match prepared.table.column(name).map(|c| &c.data) {
+        Some(ColumnData::Text(v)) => v,
+        _ => unreachable!("id and group columns are read as text"),
+    }
+}
+
+/// The label of each analysed row: its id, or its row number.
+pub fn row_labels(prepared: &Prepared, pre: &Preprocessed) -> Vec<String> {
+    match &prepared.plan.input.id {
+        Some(id) => {
+            let ids = text_column(prepared, id);
+            pre.scaled.rows.iter().map(|&r| ids[r].clone()).collect()
+        }
+        None => pre
+            .scaled
+            .rows
+            .iter()
+            .map(|r| format!("row {}", r + 1))
+            .collect(),
+    }
+}
+
+/// Pearson correlation of two equally long columns.
+fn correlation(a: &[f64], b: &[f64]) -> f64 {
+    let n = a.len() as f64;
+    let (ma, mb) = (a.iter().sum::<f64>() / n, b.iter().sum::<f64>() / n);
+    let (mut sab, mut saa, mut sbb) = (0.0, 0.0, 0.0);
+    for (x, y) in a.iter().zip(b) {
+        sab += (x - ma) * (y - mb);
+        saa += (x - ma) * (x - ma);
+        sbb += (y - mb) * (y - mb);
+    }
+    if saa == 0.0 || sbb == 0.0 {
+        0.0
+    } else {
+        sab / (saa * sbb).sqrt()
+    }
+}
+
+/// The view every plot is drawn from.
+pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> PlotView {
+    let d = &analysis.decomposition;
+    let s = &analysis.selection;
+    let z = &pre.scaled.matrix;
+    let computed = s.computed;
+    let all_scores: Matrix = scores(z, &d.loadings, computed);
+    let p = z.cols;
+    let loadings = (0..p)
+        .map(|j| (0..computed).map(|a| d.loadings.get(j, a)).collect())
+        .collect();
+    let score_columns: Vec<Vec<f64>> = (0..computed).map(|a| all_scores.column(a)).collect();
+    let correlations = (0..p)
+        .map(|j| {
+            let feature = z.column(j);
+            score_columns
+                .iter()
+                .map(|t| correlation(&feature, t))
+                .collect()
+        })
+        .collect();
+    let diag = &analysis.diagnostics;
+    let first = diag.limits.first();
+    let plan = &prepared.plan;
+    PlotView {
+        features: pre.scaled.names.clone(),
+        n_rows: z.rows,
+        eigenvalues: d.eigenvalues[..computed].to_vec(),
+        total_variance: d.total_variance,
+        p,
+        kept: s.kept,
+        computed,
+        rule: s.rule.to_string(),
+        rule_reason: s.reason.clone(),
+        evidence: Evidence {
+            broken_stick: s.broken_stick[..computed].to_vec(),
+            mean_eigenvalue: s.mean_eigenvalue,
+            variance_target: match plan.components.keep {
+                Keep::Variance(v) => Some(v.0),
+                _ => None,
+            },
+            parallel_thresholds: s
+                .parallel_analysis
+                .as_ref()
+                .map(|pa| pa.thresholds[..computed].to_vec()),
+            press: s.cross_validation.as_ref().map(|cv| cv.press.clone()),
+        },
+        loadings,
+        correlations,
+        scores: (0..z.rows).map(|i| all_scores.row(i).to_vec()).collect(),
+        row_labels: row_labels(prepared, pre),
+        groups: plan
+            .input
+            .groups
+            .iter()
+            .map(|g| {
+                let values = text_column(prepared, g);
+                (
+                    g.clone(),
+                    pre.scaled.rows.iter().map(|&r| values[r].clone()).collect(),
+                )
+            })
+            .collect(),
+        t2: diag.t2.clone(),
+        spe: diag.spe.clone(),
+        confidence: first.map_or(0.95, |l| l.confidence),
+        t2_limit: first.and_then(|l| l.t2),
+        spe_limit: first.and_then(|l| l.spe),
+        flagged: (0..z.rows)
+            .map(|i| {
+                let (a, b) = if diag.limits.is_empty() {
+                    (false, false)
+                } else {
+                    diag.flags(i, 0)
+                };
+                a || b
+            })
+            .collect(),
+        scaling: plan.scaling.name().to_string(),
+    }
+}
+
+/// The summary sentences of the report.
+pub fn summary(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> Vec<String> {
+    let plan = &prepared.plan;
+    let m = &pre.missing;
+    let d = &analysis.decomposition;
+    let s = &analysis.selection;
+    let mut out = vec![format!(
+        "The table {} has {} rows and {} columns; {} rows and {} features were analysed.",
+        prepared.input.path,
+        prepared.table.n_rows(),
+        prepared.table.columns.len(),
+        pre.scaled.matrix.rows,
+        pre.scaled.matrix.cols
+    )];
+    let dropped: Vec<String> = m
+        .features
+        .iter()
+        .filter_map(|f| {
+            f.dropped
+                .as_ref()
+                .map(|_| format!("{} ({} % missing)", f.feature, pct(f.share)))
+        })
+        .chain(
+            pre.scaling
+                .dropped_constant
+                .iter()
+                .map(|f| format!("{f} (constant)")),
+        )
+        .collect();
+    if !dropped.is_empty() {
+        out.push(format!("Dropped features: {}.", dropped.join(", ")));
+    }
+    out.push(match m.method {
+        crate::recipe::raw::MissingMethod::DropRows => {
+            format!("{} rows with a missing cell were dropped.", m.rows_dropped)
+        }
+        method => format!(
+            "{} missing cells were filled with their feature's {}; filling shrinks the variance, so small components deserve less trust.",
+            m.cells_filled,
+            if method == crate::recipe::raw::MissingMethod::Median { "median" } else { "mean" }
+        ),
+    });
+    if !pre.transforms.is_empty() {
+        let names: Vec<String> = pre
+            .transforms
+            .iter()
+            .map(|t| format!("{} ({})", t.feature, t.transform_name()))
+            .collect();
+        out.push(format!("Transformed before scaling: {}.", names.join(", ")));
+    }
+    out.push(format!(
+        "Scaling: {}, so the loadings are eigenvectors of the {} matrix.",
+        plan.scaling.name(),
+        crate::run::matrix_name(plan)
+    ));
+    let kept_share: f64 = d.eigenvalues[..s.kept].iter().sum::<f64>() / d.total_variance;
+    out.push(format!(
+        "{} component(s) were kept by the rule `{}`, explaining {} % of the variance: {}.",
+        s.kept,
+        s.rule,
+        pct(kept_share),
+        s.reason
+    ));
+    for limit in &analysis.diagnostics.limits {
+        out.push(format!(
+            "At {} % confidence, {} row(s) are above the T² limit and {} above the SPE limit.",
+            super::tables::level_label(limit.confidence),
+            limit.t2_flagged,
+            limit.spe_flagged
+        ));
+    }
+    out
+}
+
+/// The cautions printed in every report.
+pub fn cautions() -> Vec<String> {
+    [
+        "Scaling changes the answer: unscaled PCA follows the features with the largest numeric spread; unit variance weighs every feature equally, noisy ones included.",
+        "Filling missing cells shrinks variances and weakens correlations; check how many cells were filled before reading small components.",
+        "Components are directions of variance, not causes, and groups that look apart in a score plot are not shown to be distinct populations.",
+        "A few extreme rows can create or rotate a component; look at the flagged rows and rerun without them to see what changes.",
+        "The rules for the number of components often disagree; they are evidence, not proof.",
+        "Decisions that affect people, health or compliance belong to qualified judgement and local rules, not to a component score.",
+    ]
+    .map(String::from)
+    .to_vec()
+}
+
+/// The report view; `figures` and `provenance` are filled by the caller.
+pub fn report_view(
+    prepared: &Prepared,
+    pre: &Preprocessed,
+    analysis: &Analysis,
+    view: &PlotView,
+) -> ReportView {
+    let d = &analysis.decomposition;
+    let s = &analysis.selection;
+    let mut cumulative = 0.0;
+    let variance = (0..s.computed)
+        .map(|a| {
+            let share = d.eigenvalues[a] / d.total_variance;
+            cumulative += share;
+            VarianceLine {
+                component: a + 1,
+                eigenvalue: d.eigenvalues[a],
+                share,
+                cumulative,
+                kept: a < s.kept,
+            }
+        })
+        .collect();
+    let top_loadings = (0..s.kept)
+        .map(|a| {
+            let mut list: Vec<(String, f64)> = view
+                .features
+                .iter()
+                .zip(&view.loadings)
+                .map(|(f, l)| (f.clone(), l[a]))
+                .collect();
+            list.sort_by(|x, y| y.1.abs().total_cmp(&x.1.abs()).then_with(|| x.0.cmp(&y.0)));
+            list.truncate(5);
+            list
+        })
+        .collect();
+    let diag = &analysis.diagnostics;
+    let z = &pre.scaled.matrix;
+    let flagged = diag
+        .flagged_rows()
+        .into_iter()
+        .map(|i| {
+            let (t2_above, spe_above) = if diag.limits.is_empty() {
+                (false, false)
+            } else {
+                diag.flags(i, 0)
+            };
+            let parts = contributions(diag, z, &d.loadings, &analysis.scores, &d.eigenvalues, i);
+            let weight = |(t2, spe): &(f64, f64)| {
+                (t2.abs() / diag.t2[i].max(f64::MIN_POSITIVE))
+                    .max(spe / diag.spe[i].max(f64::MIN_POSITIVE))
+            };
+            let mut order: Vec<usize> = (0..parts.len()).collect();
+            order.sort_by(|&a, &b| {
+                weight(&parts[b])
+                    .total_cmp(&weight(&parts[a]))
+                    .then(a.cmp(&b))
+            });
+            FlaggedLine {
+                label: view.row_labels[i].clone(),
+                t2: diag.t2[i],
+                spe: diag.spe[i],
+                t2_above,
+                spe_above,
+                top: order
+                    .iter()
+                    .take(3)
+                    .map(|&j| (view.features[j].clone(), parts[j].0, parts[j].1))
+                    .collect(),
+            }
+        })
+        .collect();
+    let scores3d = (s.computed >= 3).then(|| Scores3d {
+        axis_titles: [view.axis_title(0), view.axis_title(1), view.axis_title(2)],
+        points: view.scores.iter().map(|r| [r[0], r[1], r[2]]).collect(),
+        labels: view.row_labels.clone(),
+        group: view.groups.first().cloned(),
+    });
+    ReportView {
+        title: prepared
+            .plan
+            .title
+            .clone()
+            .unwrap_or_else(|| format!("PCA of {}", prepared.input.path)),
+        notes: prepared.plan.notes.clone(),
+        summary: summary(prepared, pre, analysis),
+        variance,
+        top_loadings,
+        confidence: view.confidence,
+        flagged,
+        figures: Vec::new(),
+        scores3d,
+        cautions: cautions(),
+        provenance: Vec::new(),
+    }
+}
