@@ -107,6 +107,11 @@ pub fn select(
                 .take_while(|(s, b)| s > b)
                 .count();
             let why = match (shares.get(k), sticks.get(k)) {
+                (Some(s), Some(b)) if k == 0 => format!(
+                    "not even component 1 explains more than the broken-stick expectation ({} % against {} %)",
+                    pct(*s),
+                    pct(*b)
+                ),
                 (Some(s), Some(b)) => format!(
                     "components 1 to {k} each explain more than the broken-stick expectation; component {} explains {} % against {} %",
                     k + 1,
@@ -128,6 +133,14 @@ pub fn select(
                 .take_while(|(v, t)| v > t)
                 .count();
             let why = match (eigenvalues.get(k), pa.thresholds.get(k)) {
+                (Some(v), Some(t)) if k == 0 => format!(
+                    "not even the first eigenvalue ({}) exceeds the {}th percentile of {} random tables ({}) (Horn 1965, seed {})",
+                    fmt_short(*v),
+                    fmt_short(pa.percentile),
+                    pa.replicates,
+                    fmt_short(*t),
+                    pa.seed
+                ),
                 (Some(v), Some(t)) => format!(
                     "components 1 to {k} have eigenvalues above the {}th percentile of {} random tables ({}); component {} has {} against {} (Horn 1965, seed {})",
                     fmt_short(pa.percentile),
