@@ -79,6 +79,25 @@ pub enum Command {
         #[arg(long, value_enum, default_value = "text")]
         format: crate::compare::DiffFormat,
     },
+    /// Score new rows with the model saved in a results folder.
+    ///
+    /// The new table is preprocessed exactly as the analysed rows were (training
+    /// fill values, centre and scale; never re-estimated), projected on the saved
+    /// loadings and given T² and SPE with flags against the saved limits for new
+    /// rows. Columns are matched by name; extra columns are ignored and reported.
+    Apply {
+        /// A results folder written by `sextant run` (it holds model.json).
+        results: PathBuf,
+        /// The new table (CSV or TSV with a header row).
+        table: PathBuf,
+        /// Where to write the scores [default: <results>-apply-<table name> beside
+        /// the results folder].
+        #[arg(long, value_name = "FOLDER")]
+        out: Option<PathBuf>,
+        /// Replace an existing folder made from another model or table.
+        #[arg(long)]
+        replace: bool,
+    },
     /// Write the input table's current SHA-256 into the recipe (input.sha256).
     ///
     /// Comments and layout of the recipe are kept. Later runs and checks refuse a
@@ -155,6 +174,19 @@ pub fn execute(cli: Cli) -> Result<Outcome, Error> {
             );
             let c = crate::compare::compare(&sa, &sb);
             crate::compare::render_comparison(&sa, &sb, &c, format).into()
+        }
+        Command::Apply {
+            results,
+            table,
+            out,
+            replace,
+        } => {
+            let s = crate::apply::apply(
+                &results,
+                &table,
+                &crate::apply::ApplyOptions { out, replace },
+            )?;
+            describe_apply(&s).into()
         }
         Command::Pin { recipe } => {
             let (input, pinned) = crate::pin::pin(&recipe)?;
@@ -316,5 +348,39 @@ pub fn describe_run(s: &RunSummary) -> String {
     for note in &s.notes {
         let _ = writeln!(out, "note       {note}");
     }
+    out
+}
+
+/// The text `sextant apply` prints.
+pub fn describe_apply(s: &crate::apply::ApplySummary) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "table      {}: {} rows, {} scored",
+        s.table, s.rows_in, s.rows_scored
+    );
+    if s.filled > 0 {
+        let _ = writeln!(
+            out,
+            "filled     {} missing cells from the training model",
+            s.filled
+        );
+    }
+    for (confidence, t2, spe) in &s.flagged {
+        let _ = writeln!(
+            out,
+            "flagged    at {} %: {t2} above the T² limit for new rows, {spe} above the SPE limit",
+            crate::outputs::tables::level_label(*confidence)
+        );
+    }
+    for note in &s.notes {
+        let _ = writeln!(out, "note       {note}");
+    }
+    let _ = writeln!(
+        out,
+        "results    {} (digest {})",
+        s.folder.display(),
+        s.digest
+    );
     out
 }

@@ -203,6 +203,8 @@ pub enum InputError {
         path: String,
         source: std::io::Error,
     },
+    #[error("{path}: the model's feature(s) {names} are not in the table's header; every feature the model was made with is needed")]
+    MissingFeatures { path: String, names: String },
     #[error("{path}: not a sextant results folder: {reason}")]
     NotResults { path: String, reason: String },
     #[error("{path}: the file is empty; expected a header row and data rows")]
@@ -310,6 +312,8 @@ fn describe_cell(text: &str) -> String {
 /// The computation could not produce a trustworthy answer.
 #[derive(Debug, thiserror::Error)]
 pub enum AnalysisError {
+    #[error("missing cells cannot be filled: {reason}")]
+    Imputation { reason: String },
     #[error("cross-validation cannot run: {reason}")]
     CrossValidation { reason: String },
     #[error(

@@ -6,6 +6,7 @@
 //! scale, decompose, select) → [`outputs`]. [`run`] is the only module that reads
 //! or writes files during a run.
 
+pub mod apply;
 pub mod cli;
 pub mod compare;
 pub mod error;

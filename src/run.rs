@@ -16,7 +16,7 @@ use crate::stages::FeatureData;
 use crate::stages::crossval::cross_validate;
 use crate::stages::decompose::{Decomposition, decompose, scores};
 use crate::stages::diagnose::{Diagnostics, contributions, diagnose};
-use crate::stages::missing::{MissingReport, handle_missing};
+use crate::stages::missing::{MissingReport, MissingSettings, handle_missing};
 use crate::stages::parallel::parallel_analysis;
 use crate::stages::scale::{ScaleReport, Scaled, scale};
 use crate::stages::select::{Evidence, Selection, select};
@@ -37,6 +37,11 @@ pub struct Prepared {
 /// The data after every preprocessing stage, with the stages' reports.
 pub struct Preprocessed {
     pub scaled: Scaled,
+    /// Every filled cell, by table row.
+    pub filled: Vec<crate::stages::missing::FilledCell>,
+    /// How new rows' missing cells are filled (one entry per feature kept by the
+    /// missing stage, in order; constant features dropped later are still here).
+    pub fill_model: crate::stages::missing::FillModel,
     pub missing: MissingReport,
     pub transforms: Vec<Applied>,
     pub scaling: ScaleReport,
@@ -132,14 +137,26 @@ pub fn preprocess(prepared: &Prepared) -> Result<Preprocessed, Error> {
         }
         .into());
     }
-    let (data, missing) = handle_missing(data, plan.missing_method, plan.max_feature_missing)?;
+    // Transforms come first, so every fill method works on the scale the analysis
+    // sees (a mean fill of a log-transformed feature is its geometric mean).
     let (data, transforms) = apply_transforms(data)?;
+    let settings = MissingSettings {
+        method: plan.missing_method,
+        max_share: plan.max_feature_missing,
+        iterative: plan.iterative_pca.clone(),
+        knn: plan.knn.clone(),
+        components: plan.imputation_components,
+        scaling: plan.scaling,
+    };
+    let (data, missing, filled, fill_model) = handle_missing(data, &settings)?;
     let (scaled, scaling) = scale(data, plan.scaling, plan.constant_features)?;
     let pre = Preprocessed {
         scaled,
         missing,
         transforms,
         scaling,
+        filled,
+        fill_model,
     };
     // The rank cannot exceed min(n − 1, p) for centred data (n, p without centring),
     // so a fixed count above that fails now, in `check` too, rather than after the
@@ -279,6 +296,8 @@ pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed)
     let resolved_sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
     let fingerprint = (resolved_sha.clone(), vec![prepared.input.sha256.clone()]);
     let mut files = result_files(prepared, &pre, &analysis);
+    let model = crate::outputs::model::build(prepared, &pre, &analysis, &resolved_sha);
+    files.push(("model.json".into(), crate::outputs::model::to_json(&model)));
     files.extend(figures_and_report(
         prepared,
         &pre,
@@ -423,6 +442,10 @@ fn result_files(
         (
             "preprocessing.csv".into(),
             tables::preprocessing_csv(&plan.features, &plan.transforms, &pre.missing, &pre.scaling),
+        ),
+        (
+            "imputed.csv".into(),
+            tables::imputed_csv(&labels, &pre.filled),
         ),
         (
             "contributions.csv".into(),

@@ -100,23 +100,43 @@ fn check_file(role: &'static str, shown: String, path: &Path, expected: &str) ->
 pub fn verify(folder: &Path, rerun: bool) -> Result<Verification, Error> {
     let manifest = read_manifest(folder)?;
     let mut report = Verification::default();
-    let recipe = recipe_path(folder, &manifest);
-    let recipe_dir = recipe.parent().map(Path::to_path_buf).unwrap_or_default();
     let text = |v: &Value, key: &str| {
         v.get(key)
             .and_then(Value::as_str)
             .unwrap_or_default()
             .to_string()
     };
-
-    report.files.push(check_file(
-        "recipe",
-        recipe.display().to_string(),
-        &recipe,
-        &text(&manifest["recipe"], "sha256"),
-    ));
+    let recipe = recipe_path(folder, &manifest);
+    // A run's inputs are named relative to its recipe; the scores of `apply`
+    // name their table and model relative to their own folder.
+    let scored = manifest.get("model").is_some() && manifest.get("recipe").is_none();
+    let inputs_dir = if scored {
+        folder.to_path_buf()
+    } else {
+        recipe.parent().map(Path::to_path_buf).unwrap_or_default()
+    };
+    if scored {
+        let model = crate::paths::tidy(
+            &folder
+                .join(text(&manifest["model"], "results"))
+                .join("model.json"),
+        );
+        report.files.push(check_file(
+            "model",
+            model.display().to_string(),
+            &model,
+            &text(&manifest["model"], "sha256"),
+        ));
+    } else {
+        report.files.push(check_file(
+            "recipe",
+            recipe.display().to_string(),
+            &recipe,
+            &text(&manifest["recipe"], "sha256"),
+        ));
+    }
     for input in manifest["inputs"].as_array().into_iter().flatten() {
-        let path = crate::paths::tidy(&recipe_dir.join(text(input, "path")));
+        let path = crate::paths::tidy(&inputs_dir.join(text(input, "path")));
         report.files.push(check_file(
             "input",
             path.display().to_string(),
@@ -150,7 +170,12 @@ pub fn verify(folder: &Path, rerun: bool) -> Result<Verification, Error> {
             env!("CARGO_PKG_VERSION")
         ));
     }
-    if rerun {
+    if rerun && scored {
+        report.notes.push(
+            "--rerun recomputes analyses; to recompute these scores, run `sextant apply` again"
+                .into(),
+        );
+    } else if rerun {
         rerun_and_compare(folder, &manifest, &recipe, &mut report)?;
     }
     Ok(report)

@@ -89,7 +89,7 @@ fn assert_same_bytes(shape: (usize, usize)) {
     let one = run_with_threads(&table, 1);
     let two = run_with_threads(&table, 2);
     let eight = run_with_threads(&table, 8);
-    assert_eq!(one.len(), 7);
+    assert_eq!(one.len(), 9, "the nine result files");
     for ((name, a), ((_, b), (_, c))) in one.iter().zip(two.iter().zip(&eight)) {
         assert!(
             a == b && a == c,

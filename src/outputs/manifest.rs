@@ -67,7 +67,7 @@ pub fn fingerprint(manifest: &Value) -> Option<(String, Vec<String>)> {
 
 /// Assembles the manifest and returns it as pretty JSON text with its digest.
 pub fn render(body: &ManifestBody, outputs: &[FileRecord], run: &RunInfo) -> (String, String) {
-    let mut value = json!({
+    let value = json!({
         "tool": { "name": "sextant", "version": env!("CARGO_PKG_VERSION") },
         "manifest_format": MANIFEST_FORMAT,
         "recipe": body.recipe,
@@ -75,6 +75,12 @@ pub fn render(body: &ManifestBody, outputs: &[FileRecord], run: &RunInfo) -> (St
         "steps": body.steps,
         "outputs": outputs,
     });
+    render_value(value, run)
+}
+
+/// Adds the digest and the run block to an assembled manifest body and returns
+/// the pretty JSON text and the digest (for manifests that are not of a run).
+pub fn render_value(mut value: Value, run: &RunInfo) -> (String, String) {
     let digest = sha256_hex(&serde_json::to_vec(&value).expect("JSON values serialise"));
     let map = value.as_object_mut().expect("an object");
     map.insert("digest".into(), Value::String(digest.clone()));

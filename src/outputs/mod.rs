@@ -5,6 +5,7 @@ pub mod folder;
 pub mod hashing;
 pub mod lock;
 pub mod manifest;
+pub mod model;
 pub mod plots;
 pub mod present;
 pub mod report;

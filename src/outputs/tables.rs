@@ -103,6 +103,21 @@ pub fn scores_csv(labels: &RowLabels, scores: &Matrix, diagnostics: &Diagnostics
     out.finish()
 }
 
+/// imputed.csv: every filled cell: the row's labels, the feature and the value
+/// filled in (on the transformed scale when the feature is transformed).
+pub fn imputed_csv(labels: &RowLabels, filled: &[crate::stages::missing::FilledCell]) -> Vec<u8> {
+    let mut out = CsvOut::new();
+    let mut header = label_header(labels);
+    header.extend(["feature", "filled_value"].map(String::from));
+    out.row(&header);
+    for cell in filled {
+        let mut fields = label_fields(labels, cell.row);
+        fields.extend([cell.feature.clone(), number(cell.value)]);
+        out.row(&fields);
+    }
+    out.finish()
+}
+
 /// contributions.csv: for each flagged row, each feature's contribution to its T²
 /// and to its SPE (in scaled units; each sums over features to the row's value).
 pub fn contributions_csv(

@@ -85,22 +85,11 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
     features.push_str("; a mostly numeric column with a stray text cell stops the run.");
     s.push(features);
 
-    let m = &raw.missing;
-    s.push(format!(
-        "Drop every feature with more than {} of its cells missing, and report it.",
-        percent(m.max_feature_missing.0)
-    ));
-    s.push(match m.method {
-        MissingMethod::DropRows => "Then drop every row that still has a missing cell in a feature.".into(),
-        MissingMethod::Mean => "Then fill each remaining missing cell with the mean of its feature's observed cells (filling shrinks the variance).".into(),
-        MissingMethod::Median => "Then fill each remaining missing cell with the median of its feature's observed cells (filling shrinks the variance).".into(),
-    });
-
     let t = &raw.transform;
     for (name, items, domain) in [
-        ("base-10 logarithm", &t.log10, "a value ≤ 0"),
-        ("natural logarithm", &t.ln, "a value ≤ 0"),
-        ("square root", &t.sqrt, "a negative value"),
+        ("base-10 logarithm", &t.log10, "an observed value ≤ 0"),
+        ("natural logarithm", &t.ln, "an observed value ≤ 0"),
+        ("square root", &t.sqrt, "a negative observed value"),
     ] {
         if !items.is_empty() {
             s.push(format!(
@@ -112,6 +101,39 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
     if t.log10.is_empty() && t.ln.is_empty() && t.sqrt.is_empty() {
         s.push("Transform no feature.".into());
     }
+
+    let m = &raw.missing;
+    s.push(format!(
+        "Drop every feature with more than {} of its cells missing, and report it; missing cells are filled on the transformed scale.",
+        percent(m.max_feature_missing.0)
+    ));
+    s.push(match m.method {
+        MissingMethod::DropRows => "Then drop every row that still has a missing cell in a feature.".into(),
+        MissingMethod::Mean => "Then fill each remaining missing cell with the mean of its feature's observed cells (filling shrinks the variance).".into(),
+        MissingMethod::Median => "Then fill each remaining missing cell with the median of its feature's observed cells (filling shrinks the variance).".into(),
+        MissingMethod::IterativePca => {
+            let it = &m.iterative_pca;
+            format!(
+                "Then fill the remaining missing cells by {} iterative PCA with {} component(s) (Josse & Husson 2012), starting from the feature {}s, until the filled cells change by less than {:e} (relative), at most {} iterations{}.",
+                match it.variant {
+                    super::raw::IterativeVariant::Regularized => "regularized",
+                    super::raw::IterativeVariant::Em => "plain EM",
+                },
+                super::plan::imputation_components(recipe),
+                match it.start {
+                    super::raw::StartValue::Mean => "mean",
+                    super::raw::StartValue::Median => "median",
+                },
+                it.tolerance.0,
+                it.max_iterations.0,
+                if it.allow_unconverged { "; a fill that has not converged is accepted and reported" } else { "; not converging stops the run" }
+            )
+        }
+        MissingMethod::Knn => format!(
+            "Then fill each remaining missing cell with the mean of the {} nearest rows that observe it (distance over the standardised features both rows observe).",
+            m.knn.neighbours.0
+        ),
+    });
 
     let sc = &raw.scaling;
     s.push(match sc.method {

@@ -72,6 +72,11 @@ pub struct Plan {
     pub unused: Vec<(String, String)>,
     pub missing_method: MissingMethod,
     pub max_feature_missing: f64,
+    pub iterative_pca: super::raw::RawIterative,
+    pub knn: super::raw::RawKnn,
+    /// Components of the iterative PCA imputation model: its own setting, else
+    /// the recipe's fixed `keep`, else 2.
+    pub imputation_components: usize,
     /// One entry per feature.
     pub transforms: Vec<Option<Transform>>,
     pub scaling: ScalingMethod,
@@ -218,6 +223,9 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
         unused,
         missing_method: raw.missing.method,
         max_feature_missing: raw.missing.max_feature_missing.0,
+        iterative_pca: raw.missing.iterative_pca.clone(),
+        knn: raw.missing.knn.clone(),
+        imputation_components: imputation_components(recipe),
         transforms,
         scaling: raw.scaling.method,
         constant_features: raw.scaling.constant_features,
@@ -447,6 +455,19 @@ fn assign_transforms(
         }
     }
     Ok(assigned)
+}
+
+/// The number of components of the iterative PCA imputation model.
+pub fn imputation_components(recipe: &LoadedRecipe) -> usize {
+    let raw = &recipe.raw;
+    match (
+        raw.missing.iterative_pca.components,
+        raw.components.keep.as_ref().map(|k| *k.get_ref()),
+    ) {
+        (Some(c), _) => c.0.get(),
+        (None, Some(Keep::Count(k))) => k.get(),
+        _ => 2,
+    }
 }
 
 fn components_plan(recipe: &LoadedRecipe) -> Result<ComponentsPlan, RecipeError> {

@@ -144,6 +144,10 @@ pub struct RawMissing {
     pub method: MissingMethod,
     #[serde(default = "default_max_feature_missing")]
     pub max_feature_missing: Share,
+    #[serde(default)]
+    pub iterative_pca: RawIterative,
+    #[serde(default)]
+    pub knn: RawKnn,
 }
 
 impl Default for RawMissing {
@@ -151,6 +155,8 @@ impl Default for RawMissing {
         RawMissing {
             method: MissingMethod::default(),
             max_feature_missing: default_max_feature_missing(),
+            iterative_pca: RawIterative::default(),
+            knn: RawKnn::default(),
         }
     }
 }
@@ -170,6 +176,120 @@ pub enum MissingMethod {
     Mean,
     /// Fill with the feature's median over its observed cells.
     Median,
+    /// Alternate a PCA fit and re-estimation of the missing cells (Josse & Husson 2012).
+    IterativePca,
+    /// Fill from the nearest rows on the observed features.
+    Knn,
+}
+
+impl MissingMethod {
+    pub fn name(self) -> &'static str {
+        match self {
+            MissingMethod::DropRows => "drop-rows",
+            MissingMethod::Mean => "mean",
+            MissingMethod::Median => "median",
+            MissingMethod::IterativePca => "iterative-pca",
+            MissingMethod::Knn => "knn",
+        }
+    }
+}
+
+/// `[missing.iterative_pca]`: iterative PCA imputation.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawIterative {
+    /// Components of the imputation model; absent means the recipe's fixed
+    /// `keep`, or 2 when `keep` is a rule.
+    pub components: Option<Count>,
+    #[serde(default)]
+    pub variant: IterativeVariant,
+    /// Stop when the relative change of the filled cells falls below this.
+    #[serde(default = "default_tolerance")]
+    pub tolerance: Tolerance,
+    #[serde(default = "default_max_iterations")]
+    pub max_iterations: Count,
+    /// The first guess of each missing cell.
+    #[serde(default)]
+    pub start: StartValue,
+    /// Accept the last iterate when the tolerance is not reached (reported);
+    /// otherwise that is an error.
+    #[serde(default)]
+    pub allow_unconverged: bool,
+}
+
+impl Default for RawIterative {
+    fn default() -> Self {
+        RawIterative {
+            components: None,
+            variant: IterativeVariant::default(),
+            tolerance: default_tolerance(),
+            max_iterations: default_max_iterations(),
+            start: StartValue::default(),
+            allow_unconverged: false,
+        }
+    }
+}
+
+fn default_tolerance() -> Tolerance {
+    Tolerance(1e-9)
+}
+
+fn default_max_iterations() -> Count {
+    Count(NonZeroUsize::new(1000).expect("non-zero"))
+}
+
+/// The two variants of iterative PCA imputation.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum IterativeVariant {
+    /// Singular values shrunk by the estimated noise variance (Josse & Husson 2012).
+    #[default]
+    Regularized,
+    /// The plain EM fit, without shrinkage; may overfit and fill extreme values.
+    Em,
+}
+
+/// The first guess of each missing cell.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum StartValue {
+    #[default]
+    Mean,
+    Median,
+}
+
+/// `[missing.knn]`: nearest-neighbour filling.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawKnn {
+    #[serde(default = "default_neighbours")]
+    pub neighbours: Count,
+}
+
+impl Default for RawKnn {
+    fn default() -> Self {
+        RawKnn {
+            neighbours: default_neighbours(),
+        }
+    }
+}
+
+fn default_neighbours() -> Count {
+    Count(NonZeroUsize::new(5).expect("non-zero"))
+}
+
+/// A positive tolerance below 1.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Tolerance(pub f64);
+
+impl<'de> Deserialize<'de> for Tolerance {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        deserializer.deserialize_any(NumberVisitor("a small positive number such as 1e-9", |v| {
+            (v > 0.0 && v < 1.0)
+                .then_some(Tolerance(v))
+                .ok_or_else(|| format!("{v} is not a tolerance; expected a number between 0 and 1"))
+        }))
+    }
 }
 
 /// `[transform]`: per-feature transforms applied before scaling.

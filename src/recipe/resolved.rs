@@ -48,6 +48,15 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
         "missing": {
             "method": raw.missing.method,
             "max_feature_missing": raw.missing.max_feature_missing.0,
+            "iterative_pca": {
+                "components": super::plan::imputation_components(recipe),
+                "variant": raw.missing.iterative_pca.variant,
+                "tolerance": raw.missing.iterative_pca.tolerance,
+                "max_iterations": raw.missing.iterative_pca.max_iterations,
+                "start": raw.missing.iterative_pca.start,
+                "allow_unconverged": raw.missing.iterative_pca.allow_unconverged,
+            },
+            "knn": raw.missing.knn,
         },
         "transform": {
             "log10": names(&raw.transform.log10),

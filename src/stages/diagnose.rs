@@ -71,19 +71,14 @@ impl Diagnostics {
     }
 }
 
-/// Computes T², SPE and their limits.
-///
-/// `z` is the scaled data (n × p), `loadings` p × (≥ k), `scores` n × k,
-/// `eigenvalues` all p eigenvalues, `rank` the numerical rank.
-pub fn diagnose(
+/// T², SPE and the residual matrix of each row, in one fixed order of summation
+/// (shared by the analysis and by scoring new rows, so both give the same bits).
+pub fn row_statistics(
     z: &Matrix,
     loadings: &Matrix,
     scores: &Matrix,
     eigenvalues: &[f64],
-    rank: usize,
-    confidences: &[f64],
-    spe_method: SpeLimit,
-) -> Diagnostics {
+) -> (Vec<f64>, Vec<f64>, Matrix) {
     let (n, p, k) = (z.rows, z.cols, scores.cols);
     let t2: Vec<f64> = (0..n)
         .map(|i| {
@@ -105,6 +100,25 @@ pub fn diagnose(
         }
         spe[i] = sum;
     }
+    (t2, spe, residuals)
+}
+
+/// Computes T², SPE and their limits.
+///
+/// `z` is the scaled data (n × p), `loadings` p × (≥ k), `scores` n × k,
+/// `eigenvalues` all p eigenvalues, `rank` the numerical rank.
+pub fn diagnose(
+    z: &Matrix,
+    loadings: &Matrix,
+    scores: &Matrix,
+    eigenvalues: &[f64],
+    rank: usize,
+    confidences: &[f64],
+    spe_method: SpeLimit,
+) -> Diagnostics {
+    let k = scores.cols;
+    let n = z.rows;
+    let (t2, spe, residuals) = row_statistics(z, loadings, scores, eigenvalues);
 
     let mut notes = Vec::new();
     let moments = match ResidualMoments::from_eigenvalues(&eigenvalues[k..rank]) {

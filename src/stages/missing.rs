@@ -1,11 +1,15 @@
 //! Missing cells: drop features that miss too much, then drop rows or fill cells.
 //!
 //! The share of missing cells is measured on every row of the table, before any
-//! row is dropped. Fill values come from the observed cells of the same feature.
+//! row is dropped. Cells are filled from the same feature's observed cells
+//! (mean, median), from a PCA model of the table (iterative PCA) or from the
+//! nearest rows (knn); see [`super::impute`]. Every filled cell is listed, and a
+//! filled value outside its feature's observed range is reported as a warning.
 
 use super::FeatureData;
-use crate::error::InputError;
-use crate::recipe::raw::MissingMethod;
+use super::impute::{IterativeReport, iterative_pca, knn};
+use crate::error::{Error, InputError};
+use crate::recipe::raw::{MissingMethod, RawIterative, RawKnn, ScalingMethod};
 use serde::Serialize;
 
 /// What the missing stage did to one feature.
@@ -17,10 +21,15 @@ pub struct FeatureMissing {
     /// Why the feature was dropped, if it was.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub dropped: Option<String>,
-    /// Cells filled, and the value used.
+    /// Cells filled; the single fill value (mean, median) or the mean of the
+    /// values filled by a model.
     pub filled: usize,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub fill_value: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub mean_filled: Option<f64>,
+    /// Filled values below the observed minimum or above the observed maximum.
+    pub filled_outside_observed_range: usize,
 }
 
 /// The missing stage's report.
@@ -32,15 +41,55 @@ pub struct MissingReport {
     pub rows_dropped: usize,
     pub cells_filled: usize,
     pub features: Vec<FeatureMissing>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub iterative_pca: Option<IterativeReport>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub knn_neighbours: Option<usize>,
+    pub warnings: Vec<String>,
+}
+
+/// How missing cells of new rows are to be filled, learnt from the analysed table
+/// (one entry per kept feature, in order).
+#[derive(Debug, Clone)]
+pub enum FillModel {
+    /// Rows with a missing cell are not analysed.
+    DropRows,
+    /// One value per feature.
+    Constant(Vec<f64>),
+    /// The iterative PCA imputation model.
+    Iterative(super::impute::ImputationModel),
+    /// The analysed rows before filling (`NaN` where missing), for neighbours.
+    Knn { reference: Vec<Vec<f64>> },
+}
+
+/// One filled cell: the table row (0-based), the feature and the value.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FilledCell {
+    pub row: usize,
+    pub feature: String,
+    pub value: f64,
+}
+
+/// The recipe's missing-cell settings.
+#[derive(Debug, Clone)]
+pub struct MissingSettings {
+    pub method: MissingMethod,
+    pub max_share: f64,
+    pub iterative: RawIterative,
+    pub knn: RawKnn,
+    /// Components of the iterative PCA model (already resolved from the recipe).
+    pub components: usize,
+    /// The recipe's scaling, which iterative PCA re-estimates each iteration.
+    pub scaling: ScalingMethod,
 }
 
 /// Applies the recipe's missing-cell policy; the output has no `NaN`.
 pub fn handle_missing(
     mut data: FeatureData,
-    method: MissingMethod,
-    max_share: f64,
-) -> Result<(FeatureData, MissingReport), InputError> {
+    settings: &MissingSettings,
+) -> Result<(FeatureData, MissingReport, Vec<FilledCell>, FillModel), Error> {
     let n = data.n_rows();
+    let max_share = settings.max_share;
     let mut reports = Vec::new();
     let mut kept = Vec::new();
     for feature in data.features.drain(..) {
@@ -66,6 +115,8 @@ pub fn handle_missing(
             dropped: dropped.clone(),
             filled: 0,
             fill_value: None,
+            mean_filled: None,
+            filled_outside_observed_range: 0,
         });
         if dropped.is_none() {
             kept.push(feature);
@@ -78,16 +129,109 @@ pub fn handle_missing(
             why: format!(
                 " (every feature misses more than max_feature_missing = {max_share} of its cells)"
             ),
-        });
+        }
+        .into());
     }
 
-    let rows_dropped = match method {
-        MissingMethod::DropRows => drop_incomplete_rows(&mut data),
+    let gaps: Vec<Vec<bool>> = data
+        .features
+        .iter()
+        .map(|f| f.values.iter().map(|v| v.is_nan()).collect())
+        .collect();
+    let ranges: Vec<(f64, f64)> = data
+        .features
+        .iter()
+        .map(|f| {
+            f.values
+                .iter()
+                .filter(|v| !v.is_nan())
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+                    (a.min(v), b.max(v))
+                })
+        })
+        .collect();
+    let mut iterative_report = None;
+    let mut fill_model = FillModel::DropRows;
+    let mut rows_dropped = 0;
+    match settings.method {
+        MissingMethod::DropRows => rows_dropped = drop_incomplete_rows(&mut data),
         MissingMethod::Mean | MissingMethod::Median => {
-            fill(&mut data, method, &mut reports);
-            0
+            fill_model =
+                FillModel::Constant(fill_constant(&mut data, settings.method, &mut reports));
         }
-    };
+        MissingMethod::IterativePca | MissingMethod::Knn => {
+            let mut columns: Vec<Vec<f64>> =
+                data.features.iter().map(|f| f.values.clone()).collect();
+            if settings.method == MissingMethod::Knn {
+                fill_model = FillModel::Knn {
+                    reference: columns.clone(),
+                };
+                knn(&mut columns, settings.knn.neighbours.0.get());
+            } else {
+                let (r, model) = iterative_pca(
+                    &mut columns,
+                    &settings.iterative,
+                    settings.components,
+                    settings.scaling,
+                )?;
+                fill_model = FillModel::Iterative(model);
+                if !r.converged && !settings.iterative.allow_unconverged {
+                    return Err(crate::error::AnalysisError::Imputation {
+                        reason: format!(
+                            "iterative PCA did not converge in {} iterations (last relative change {:e}, tolerance {:e}); raise max_iterations, lower components, or set allow_unconverged = true",
+                            r.iterations, r.final_change, r.tolerance
+                        ),
+                    }
+                    .into());
+                }
+                iterative_report = Some(r);
+            }
+            for (f, c) in data.features.iter_mut().zip(columns) {
+                f.values = c;
+            }
+        }
+    }
+
+    let mut filled_cells = Vec::new();
+    let mut warnings = Vec::new();
+    if settings.method != MissingMethod::DropRows {
+        for (j, f) in data.features.iter().enumerate() {
+            let report = reports
+                .iter_mut()
+                .find(|r| r.feature == f.name)
+                .expect("every kept feature has a report");
+            let values: Vec<f64> = (0..n)
+                .filter(|&i| gaps[j][i])
+                .map(|i| f.values[i])
+                .collect();
+            for (i, &gap) in gaps[j].iter().enumerate() {
+                if gap {
+                    filled_cells.push(FilledCell {
+                        row: data.rows[i],
+                        feature: f.name.clone(),
+                        value: f.values[i],
+                    });
+                }
+            }
+            report.filled = values.len();
+            if !values.is_empty() {
+                report.mean_filled = Some(mean(&values));
+            }
+            let (lo, hi) = ranges[j];
+            report.filled_outside_observed_range =
+                values.iter().filter(|&&v| v < lo || v > hi).count();
+            if report.filled_outside_observed_range > 0 {
+                warnings.push(format!(
+                    "{} filled value(s) of `{}` lie outside its observed range [{}, {}]",
+                    report.filled_outside_observed_range,
+                    f.name,
+                    crate::outputs::tables::number(lo),
+                    crate::outputs::tables::number(hi)
+                ));
+            }
+        }
+        filled_cells.sort_by(|a, b| a.row.cmp(&b.row));
+    }
     if data.n_rows() < 2 {
         return Err(InputError::TooFewRows {
             path: data.source.clone(),
@@ -97,19 +241,26 @@ pub fn handle_missing(
             } else {
                 String::new()
             },
-        });
+        }
+        .into());
     }
     let cells_filled = reports.iter().map(|r| r.filled).sum();
     Ok((
         data,
         MissingReport {
-            method,
+            method: settings.method,
             max_feature_missing: max_share,
             rows_in: n,
             rows_dropped,
             cells_filled,
             features: reports,
+            iterative_pca: iterative_report,
+            knn_neighbours: (settings.method == MissingMethod::Knn)
+                .then_some(settings.knn.neighbours.0.get()),
+            warnings,
         },
+        filled_cells,
+        fill_model,
     ))
 }
 
@@ -132,7 +283,14 @@ fn retain_where<T>(items: &mut Vec<T>, keep: &[bool]) {
     items.retain(|_| *flags.next().expect("one flag per item"));
 }
 
-fn fill(data: &mut FeatureData, method: MissingMethod, reports: &mut [FeatureMissing]) {
+/// Fills each feature's missing cells with one value, its mean or median, and
+/// returns those values.
+fn fill_constant(
+    data: &mut FeatureData,
+    method: MissingMethod,
+    reports: &mut [FeatureMissing],
+) -> Vec<f64> {
+    let mut values = Vec::new();
     for feature in &mut data.features {
         let observed: Vec<f64> = feature
             .values
@@ -140,7 +298,6 @@ fn fill(data: &mut FeatureData, method: MissingMethod, reports: &mut [FeatureMis
             .copied()
             .filter(|v| !v.is_nan())
             .collect();
-        let missing = feature.values.len() - observed.len();
         let value = match method {
             MissingMethod::Median => median(observed),
             _ => mean(&observed),
@@ -152,9 +309,10 @@ fn fill(data: &mut FeatureData, method: MissingMethod, reports: &mut [FeatureMis
             .iter_mut()
             .find(|r| r.feature == feature.name)
             .expect("every kept feature has a report");
-        report.filled = missing;
         report.fill_value = Some(value);
+        values.push(value);
     }
+    values
 }
 
 /// The mean, summed in row order.
@@ -198,10 +356,30 @@ mod tests {
 
     const NA: f64 = f64::NAN;
 
+    fn settings(method: MissingMethod, max_share: f64) -> MissingSettings {
+        MissingSettings {
+            method,
+            max_share,
+            iterative: RawIterative::default(),
+            knn: RawKnn::default(),
+            components: 2,
+            scaling: ScalingMethod::UnitVariance,
+        }
+    }
+
     #[test]
     fn median_fill_and_counts() {
         let d = data(vec![vec![1.0, NA, 3.0, 10.0], vec![1.0, 2.0, 3.0, 4.0]]);
-        let (out, report) = handle_missing(d, MissingMethod::Median, 0.5).unwrap();
+        let (out, report, filled, _) =
+            handle_missing(d, &settings(MissingMethod::Median, 0.5)).unwrap();
+        assert_eq!(
+            filled,
+            vec![FilledCell {
+                row: 1,
+                feature: "f0".into(),
+                value: 3.0
+            }]
+        );
         assert_eq!(out.features[0].values, vec![1.0, 3.0, 3.0, 10.0]);
         assert_eq!(report.features[0].filled, 1);
         assert_eq!(report.cells_filled, 1);
@@ -210,7 +388,8 @@ mod tests {
     #[test]
     fn too_sparse_feature_is_dropped_then_rows() {
         let d = data(vec![vec![NA, NA, 3.0, 1.0], vec![1.0, NA, 3.0, 4.0]]);
-        let (out, report) = handle_missing(d, MissingMethod::DropRows, 0.3).unwrap();
+        let (out, report, _, _) =
+            handle_missing(d, &settings(MissingMethod::DropRows, 0.3)).unwrap();
         assert_eq!(out.features.len(), 1);
         assert!(report.features[0].dropped.is_some());
         assert_eq!(out.rows, vec![0, 2, 3]);

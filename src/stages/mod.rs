@@ -7,6 +7,7 @@
 pub mod crossval;
 pub mod decompose;
 pub mod diagnose;
+pub mod impute;
 pub mod missing;
 pub mod parallel;
 pub mod scale;

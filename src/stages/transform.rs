@@ -1,5 +1,5 @@
-//! Per-feature transforms (log10, ln, sqrt), applied after missing cells are
-//! handled and before scaling. Logarithms come from the pure-Rust `libm` crate so
+//! Per-feature transforms (log10, ln, sqrt), applied first, before missing cells
+//! are filled and before scaling. Logarithms come from the pure-Rust `libm` crate so
 //! no platform math library can change a digit.
 
 use super::FeatureData;
@@ -14,13 +14,17 @@ pub struct Applied {
     pub transform: Transform,
 }
 
-/// Applies each feature's transform; a value outside the transform's domain is an
-/// error naming the cell (a filled cell reports the first row it was filled into).
+/// Applies each feature's transform to its observed cells (missing cells stay
+/// missing and are filled afterwards, on the transformed scale); a value outside
+/// the transform's domain is an error naming the cell.
 pub fn apply_transforms(mut data: FeatureData) -> Result<(FeatureData, Vec<Applied>), InputError> {
     let mut applied = Vec::new();
     for feature in &mut data.features {
         let Some(t) = feature.transform else { continue };
         for (i, v) in feature.values.iter_mut().enumerate() {
+            if v.is_nan() {
+                continue; // a missing cell, filled later on the transformed scale
+            }
             let ok = match t {
                 Transform::Log10 | Transform::Ln => *v > 0.0,
                 Transform::Sqrt => *v >= 0.0,

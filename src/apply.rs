@@ -1,0 +1,496 @@
+//! `sextant apply`: score new rows with a saved model.
+//!
+//! New rows are preprocessed exactly as the analysed rows were: the same
+//! transforms, missing cells filled from the training model (never re-estimated
+//! on the new rows), the training centre and scale. They are projected on the
+//! saved loadings and get T² and SPE with flags against the saved limits for new
+//! rows (T² by the F form). Columns are matched by name, so their order does not
+//! matter; extra columns are ignored and reported; a missing feature is an
+//! error. Results are written all at once to their own folder, with a manifest
+//! that names the model's SHA-256 and the digest of the run that made it.
+
+use crate::error::{Error, InputError, OutputError};
+use crate::linalg::Matrix;
+use crate::outputs::folder::{check_replaceable, write_folder};
+use crate::outputs::hashing::sha256_hex;
+use crate::outputs::manifest::{self, FileRecord, InputRecord, RunInfo};
+use crate::outputs::model::{Fill, Model};
+use crate::outputs::tables::{self, RowLabels};
+use crate::recipe::plan::Transform;
+use crate::stages::decompose::scores;
+use crate::stages::diagnose::{Diagnostics, Limits, contributions, row_statistics};
+use crate::stages::impute::{fill_row_from_model, fill_row_from_reference};
+use crate::stages::missing::FilledCell;
+use crate::stages::transform::apply_transforms;
+use crate::stages::{Feature, FeatureData};
+use crate::table::{ColumnData, ReadOptions, read_header, read_table};
+use crate::verify::read_manifest;
+use serde_json::{Value, json};
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+/// Options of `sextant apply`.
+#[derive(Debug, Clone, Default)]
+pub struct ApplyOptions {
+    /// The folder to write; default `<results>-apply-<table name>` beside the results.
+    pub out: Option<PathBuf>,
+    pub replace: bool,
+}
+
+/// What `apply` reports.
+#[derive(Debug, Clone)]
+pub struct ApplySummary {
+    pub folder: PathBuf,
+    pub table: String,
+    pub rows_in: usize,
+    pub rows_scored: usize,
+    pub notes: Vec<String>,
+    /// (confidence, rows above the T² limit, rows above the SPE limit).
+    pub flagged: Vec<(f64, usize, usize)>,
+    pub filled: usize,
+    pub digest: String,
+}
+
+fn not_results(folder: &Path, reason: String) -> Error {
+    InputError::NotResults {
+        path: folder.display().to_string(),
+        reason,
+    }
+    .into()
+}
+
+/// Reads the model of a results folder, refusing one whose bytes differ from
+/// what the manifest recorded.
+fn load_model(results: &Path) -> Result<(Model, String, Value), Error> {
+    let manifest = read_manifest(results)?;
+    let bytes = std::fs::read(results.join("model.json"))
+        .map_err(|e| not_results(results, format!("cannot read model.json ({e})")))?;
+    let sha = sha256_hex(&bytes);
+    let recorded = manifest["outputs"]
+        .as_array()
+        .and_then(|o| o.iter().find(|f| f["path"] == "model.json"))
+        .and_then(|f| f["sha256"].as_str())
+        .map(str::to_string);
+    if recorded.as_deref() != Some(sha.as_str()) {
+        return Err(not_results(
+            results,
+            "model.json does not match the SHA-256 in manifest.json (it changed after the run); rerun the analysis or restore the file".into(),
+        ));
+    }
+    let model: Model = serde_json::from_slice(&bytes)
+        .map_err(|e| not_results(results, format!("model.json cannot be read ({e})")))?;
+    Ok((model, sha, manifest))
+}
+
+/// Scores the rows of `table_path` with the model in `results`.
+pub fn apply(
+    results: &Path,
+    table_path: &Path,
+    options: &ApplyOptions,
+) -> Result<ApplySummary, Error> {
+    let start = Instant::now();
+    let started_utc = manifest::utc_now();
+    let (model, model_sha, source) = load_model(results)?;
+    let shown = table_path.display().to_string();
+    let bytes = std::fs::read(table_path).map_err(|source| InputError::Io {
+        path: shown.clone(),
+        source,
+    })?;
+    let table_sha = sha256_hex(&bytes);
+    let resolved_input = source
+        .pointer("/recipe/resolved/input")
+        .cloned()
+        .unwrap_or(Value::Null);
+    let delimiter = match table_path
+        .extension()
+        .and_then(|e| e.to_str())
+        .map(str::to_ascii_lowercase)
+        .as_deref()
+    {
+        Some("tsv") | Some("tab") => b'\t',
+        _ => resolved_input["delimiter"]
+            .as_str()
+            .and_then(|d| d.bytes().next())
+            .unwrap_or(b','),
+    };
+    let missing_tokens: Vec<String> = resolved_input["missing"]
+        .as_array()
+        .map(|a| {
+            a.iter()
+                .filter_map(|t| t.as_str().map(str::to_string))
+                .collect()
+        })
+        .unwrap_or_else(|| {
+            crate::recipe::raw::DEFAULT_MISSING_TOKENS
+                .iter()
+                .map(|s| s.to_string())
+                .collect()
+        });
+
+    let header = read_header(&bytes, &shown, delimiter)?;
+    let absent: Vec<String> = model
+        .features
+        .iter()
+        .map(|f| f.name.clone())
+        .filter(|n| !header.names.contains(n))
+        .collect();
+    if !absent.is_empty() {
+        return Err(InputError::MissingFeatures {
+            path: shown,
+            names: absent.join(", "),
+        }
+        .into());
+    }
+    let mut notes = Vec::new();
+    let id = model.id.clone().filter(|id| header.names.contains(id));
+    if let (Some(want), None) = (&model.id, &id) {
+        notes.push(format!(
+            "the id column `{want}` is not in the table; rows are labelled by number"
+        ));
+    }
+    let groups: Vec<String> = model
+        .groups
+        .iter()
+        .filter(|g| header.names.contains(g))
+        .cloned()
+        .collect();
+    let known = |n: &String| {
+        model.features.iter().any(|f| &f.name == n) || id.as_ref() == Some(n) || groups.contains(n)
+    };
+    let ignored: Vec<String> = header.names.iter().filter(|n| !known(n)).cloned().collect();
+    if !ignored.is_empty() {
+        notes.push(format!(
+            "ignored columns that are not in the model: {}",
+            ignored.join(", ")
+        ));
+    }
+    let text_columns: Vec<String> = id.iter().cloned().chain(groups.iter().cloned()).collect();
+    let table = read_table(
+        &bytes,
+        &shown,
+        &ReadOptions {
+            delimiter,
+            missing_tokens,
+            text_columns,
+        },
+    )?;
+    let rows_in = table.n_rows();
+
+    // The features in the model's order, as numbers, transformed like the training rows.
+    let mut features = Vec::new();
+    for f in &model.features {
+        let Some(ColumnData::Numeric(column)) = table.column(&f.name).map(|c| &c.data) else {
+            unreachable!()
+        };
+        if let Some((line, text)) = column.first_bad.clone() {
+            let path = shown.clone();
+            let column = f.name.clone();
+            return Err(if text.parse::<f64>().is_ok() {
+                InputError::NonFinite {
+                    path,
+                    line,
+                    column,
+                    text,
+                }
+            } else {
+                InputError::NotNumeric {
+                    path,
+                    line,
+                    column,
+                    text,
+                }
+            }
+            .into());
+        }
+        let transform = match f.transform.as_deref() {
+            Some("log10") => Some(Transform::Log10),
+            Some("ln") => Some(Transform::Ln),
+            Some("sqrt") => Some(Transform::Sqrt),
+            _ => None,
+        };
+        features.push(Feature {
+            name: f.name.clone(),
+            values: column.values.clone(),
+            transform,
+        });
+    }
+    let data = FeatureData {
+        features,
+        rows: (0..rows_in).collect(),
+        lines: table.lines.clone(),
+        source: shown.clone(),
+    };
+    let (data, _) = apply_transforms(data)?;
+    notes.extend(range_notes(&model, &data));
+
+    // Fill missing cells row by row from the training model.
+    let p = model.features.len();
+    let mut scored_rows = Vec::new();
+    let mut filled = Vec::new();
+    let mut skipped = 0;
+    let mut x: Vec<Vec<f64>> = Vec::new();
+    for i in 0..rows_in {
+        let mut row: Vec<f64> = data.features.iter().map(|f| f.values[i]).collect();
+        let gaps: Vec<usize> = (0..p).filter(|&j| row[j].is_nan()).collect();
+        if !gaps.is_empty() {
+            let ok = match &model.fill {
+                Fill::DropRows => None,
+                Fill::Constant { values } => {
+                    gaps.iter().for_each(|&j| row[j] = values[j]);
+                    Some(())
+                }
+                Fill::IterativePca { model: m } => fill_row_from_model(&mut row, m),
+                Fill::Knn {
+                    neighbours,
+                    reference,
+                } => {
+                    let reference: Vec<Vec<f64>> = reference
+                        .iter()
+                        .map(|c| c.iter().map(|v| v.unwrap_or(f64::NAN)).collect())
+                        .collect();
+                    fill_row_from_reference(&mut row, &reference, *neighbours)
+                }
+            };
+            if ok.is_none() {
+                skipped += 1;
+                continue;
+            }
+            filled.extend(gaps.iter().map(|&j| FilledCell {
+                row: i,
+                feature: model.features[j].name.clone(),
+                value: row[j],
+            }));
+        }
+        scored_rows.push(i);
+        x.push(row);
+    }
+    if skipped > 0 {
+        notes.push(match model.fill {
+            Fill::DropRows => format!(
+                "{skipped} row(s) with missing cells were not scored (the model drops such rows)"
+            ),
+            _ => format!("{skipped} row(s) with no observed feature were not scored"),
+        });
+    }
+    if scored_rows.is_empty() {
+        return Err(InputError::TooFewRows {
+            path: shown,
+            rows: 0,
+            why: " that can be scored".into(),
+        }
+        .into());
+    }
+
+    // Centre, scale, project: the same arithmetic as the analysis.
+    let n = scored_rows.len();
+    let mut z = Matrix::zeros(n, p);
+    for (r, row) in x.iter().enumerate() {
+        for (j, f) in model.features.iter().enumerate() {
+            z.set(r, j, (row[j] - f.centre) / f.scale);
+        }
+    }
+    let k = model.kept;
+    let mut loadings = Matrix::zeros(p, k);
+    for j in 0..p {
+        for a in 0..k {
+            loadings.set(j, a, model.loadings[j][a]);
+        }
+    }
+    let t = scores(&z, &loadings, k);
+    let (t2, spe, residuals) = row_statistics(&z, &loadings, &t, &model.eigenvalues);
+    let limits: Vec<Limits> = model
+        .limits
+        .iter()
+        .map(|l| Limits {
+            confidence: l.confidence,
+            t2: l.t2_new_rows,
+            t2_new_rows: l.t2_new_rows,
+            spe: l.spe,
+            t2_flagged: l
+                .t2_new_rows
+                .map_or(0, |u| t2.iter().filter(|&&v| v > u).count()),
+            spe_flagged: l.spe.map_or(0, |u| spe.iter().filter(|&&v| v > u).count()),
+        })
+        .collect();
+    let spe_method = if model.spe_limit == "box" {
+        crate::recipe::raw::SpeLimit::Box
+    } else {
+        crate::recipe::raw::SpeLimit::JacksonMudholkar
+    };
+    let diagnostics = Diagnostics {
+        t2,
+        spe,
+        limits,
+        spe_method,
+        moments: None,
+        notes: Vec::new(),
+        residuals,
+    };
+
+    // Result files.
+    let text_of = |name: &str| match table.column(name).map(|c| &c.data) {
+        Some(ColumnData::Text(v)) => v.as_slice(),
+        _ => unreachable!("id and group columns are read as text"),
+    };
+    let labels = RowLabels {
+        rows: &scored_rows,
+        id: id.as_deref().map(|n| (n, text_of(n))),
+        groups: groups.iter().map(|g| (g.as_str(), text_of(g))).collect(),
+    };
+    let flagged: Vec<(usize, Vec<(f64, f64)>)> = diagnostics
+        .flagged_rows()
+        .into_iter()
+        .map(|i| {
+            (
+                i,
+                contributions(&diagnostics, &z, &loadings, &t, &model.eigenvalues, i),
+            )
+        })
+        .collect();
+    let names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
+    let files: Vec<(String, Vec<u8>)> = vec![
+        (
+            "scores.csv".into(),
+            tables::scores_csv(&labels, &t, &diagnostics),
+        ),
+        (
+            "contributions.csv".into(),
+            tables::contributions_csv(&labels, &names, &flagged),
+        ),
+        ("imputed.csv".into(), tables::imputed_csv(&labels, &filled)),
+    ];
+
+    let folder = options
+        .out
+        .clone()
+        .unwrap_or_else(|| default_folder(results, table_path));
+    guard_folder(&folder, results, table_path)?;
+    let lock = crate::outputs::lock::lock(&folder)?;
+    let fingerprint = (model_sha.clone(), vec![table_sha.clone()]);
+    check_replaceable(&folder, &fingerprint, options.replace)?;
+    let outputs: Vec<FileRecord> = files
+        .iter()
+        .map(|(path, b)| FileRecord {
+            path: path.clone(),
+            bytes: b.len() as u64,
+            sha256: sha256_hex(b),
+        })
+        .collect();
+    let flagged_counts: Vec<(f64, usize, usize)> = diagnostics
+        .limits
+        .iter()
+        .map(|l| (l.confidence, l.t2_flagged, l.spe_flagged))
+        .collect();
+    let body = json!({
+        "tool": { "name": "sextant", "version": env!("CARGO_PKG_VERSION") },
+        "manifest_format": manifest::MANIFEST_FORMAT,
+        "model": {
+            "results": crate::paths::relative(&folder, results),
+            "sha256": model_sha,
+            "made_by_digest": source.get("digest").cloned().unwrap_or(Value::Null),
+        },
+        "inputs": [InputRecord {
+            path: crate::paths::relative(&folder, table_path),
+            bytes: bytes.len() as u64,
+            sha256: table_sha,
+            rows: rows_in,
+            columns: table.columns.len(),
+        }],
+        "steps": {
+            "rows_in": rows_in,
+            "rows_scored": n,
+            "cells_filled": filled.len(),
+            "fill": match &model.fill {
+                Fill::DropRows => "drop-rows",
+                Fill::Constant { .. } => "training fill values",
+                Fill::IterativePca { .. } => "projection on the training imputation model",
+                Fill::Knn { .. } => "nearest training rows",
+            },
+            "t2_limit": "new-observation F form (NIST/SEMATECH e-Handbook 6.5.4.3.4), saved with the model",
+            "limits": diagnostics.limits,
+            "notes": notes,
+        },
+        "outputs": outputs,
+    });
+    let seconds = start.elapsed().as_secs_f64();
+    let run = RunInfo {
+        started_utc,
+        seconds: (seconds * 1000.0).round() / 1000.0,
+        host: manifest::host_name(),
+        threads: rayon::current_num_threads(),
+        platform: crate::run::platform(),
+    };
+    let (text, digest) = manifest::render_value(body, &run);
+    let mut all = files;
+    all.push(("manifest.json".into(), text.into_bytes()));
+    write_folder(&folder, &all)?;
+    drop(lock);
+    Ok(ApplySummary {
+        folder,
+        table: shown,
+        rows_in,
+        rows_scored: n,
+        notes,
+        flagged: flagged_counts,
+        filled: filled.len(),
+        digest,
+    })
+}
+
+/// Notes for new values far outside a feature's analysed range: more than the
+/// width of that range beyond it, as a value in another unit would be.
+fn range_notes(model: &Model, data: &FeatureData) -> Vec<String> {
+    let mut notes = Vec::new();
+    for (f, column) in model.features.iter().zip(&data.features) {
+        let width = f.max - f.min;
+        let far: Vec<usize> = (0..column.values.len())
+            .filter(|&i| {
+                let v = column.values[i];
+                !v.is_nan() && (v < f.min - width || v > f.max + width)
+            })
+            .collect();
+        if let Some(&first) = far.first() {
+            notes.push(format!(
+                "`{}`: {} value(s) far outside the analysed range [{}, {}]{}, first at line {} ({}); is it in another unit?",
+                f.name,
+                far.len(),
+                tables::number(f.min),
+                tables::number(f.max),
+                f.transform.as_deref().map_or(String::new(), |t| format!(" (after {t})")),
+                data.lines[first],
+                tables::number(column.values[first])
+            ));
+        }
+    }
+    notes
+}
+
+/// `<results>-apply-<table stem>` beside the results folder.
+fn default_folder(results: &Path, table: &Path) -> PathBuf {
+    let tidy = crate::paths::tidy(results);
+    let name = tidy
+        .file_name()
+        .map_or("results".into(), |n| n.to_string_lossy().into_owned());
+    let stem = table
+        .file_stem()
+        .map_or("new".into(), |n| n.to_string_lossy().into_owned());
+    tidy.with_file_name(format!("{name}-apply-{stem}"))
+}
+
+/// The scores folder may not hold the results it reads or the table it scores.
+fn guard_folder(folder: &Path, results: &Path, table: &Path) -> Result<(), OutputError> {
+    let f = crate::paths::normalize(folder);
+    for (what, path) in [("the results folder", results), ("the table", table)] {
+        let p = crate::paths::normalize(path);
+        if p.starts_with(&f) || f.starts_with(&p) && what == "the results folder" {
+            return Err(OutputError::Refused {
+                path: folder.display().to_string(),
+                reason: format!(
+                    "the output folder would overlap {what} {}; choose another --out",
+                    path.display()
+                ),
+            });
+        }
+    }
+    Ok(())
+}

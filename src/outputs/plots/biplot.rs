@@ -1,0 +1,188 @@
+//! Biplot (Gabriel 1971): the rows as points and the features as arrows in the
+//! plane of two components, in the covariance form (α = 0): points are the
+//! scores divided by √λ, arrows are the loadings times √λ. Then a point's
+//! projection onto an arrow approximates that feature's scaled value, arrow
+//! lengths approximate the features' standard deviations (for unit-variance
+//! scaling, the arrows' coordinates are the correlations of the features with
+//! the components), and angles between arrows approximate correlations.
+
+use super::circle::draw_arrows;
+use super::frame::{self, Frame, Step, padded_range};
+use super::scatter::{self, Groups, Legend, Selection};
+use super::svg::{self, NEUTRAL};
+use super::{LEGEND_X, equal_axes, scatter_layout, title, words_number};
+use crate::outputs::view::PlotView;
+use crate::recipe::plots::PlotPlan;
+use std::fmt::Write;
+
+/// Arrow colour.
+pub const ARROW: &str = "#3D3D3D";
+
+struct Prepared {
+    xs: Vec<f64>,
+    ys: Vec<f64>,
+    /// Divisors of the scores (√λ), or 1 where λ is not positive.
+    root: (f64, f64),
+    /// Arrow tips before stretching.
+    tips: Vec<(f64, f64)>,
+    /// The common stretch of the arrows.
+    stretch: f64,
+    groups: Groups,
+    sel: Selection,
+}
+
+fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let root = |l: f64| {
+        if l > 0.0 && l.is_finite() {
+            l.sqrt()
+        } else {
+            1.0
+        }
+    };
+    let (ra, rb) = (root(view.eigenvalues[a]), root(view.eigenvalues[b]));
+    let xs: Vec<f64> = view.scores.iter().map(|r| r[a] / ra).collect();
+    let ys: Vec<f64> = view.scores.iter().map(|r| r[b] / rb).collect();
+    let tips: Vec<(f64, f64)> = view
+        .loadings
+        .iter()
+        .take(view.features.len())
+        .map(|l| (l[a] * ra, l[b] * rb))
+        .collect();
+    let reach = xs
+        .iter()
+        .chain(&ys)
+        .filter(|v| v.is_finite())
+        .fold(0.0f64, |m, v| m.max(v.abs()));
+    let longest = tips
+        .iter()
+        .filter(|t| t.0.is_finite() && t.1.is_finite())
+        .fold(0.0f64, |m, t| m.max((t.0 * t.0 + t.1 * t.1).sqrt()));
+    let stretch = if reach > 0.0 && longest > 0.0 {
+        Step::at_most(0.9 * reach / longest).value()
+    } else {
+        1.0
+    };
+    let groups = Groups::new(view, plan.color.as_deref());
+    let sel = scatter::select(view, &xs, &ys, &groups, plan.labels, plan.density_above);
+    Prepared {
+        xs,
+        ys,
+        root: (ra, rb),
+        tips,
+        stretch,
+        groups,
+        sel,
+    }
+}
+
+pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+    let p = prepare(plan, view);
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let layout = scatter_layout();
+    let tips: Vec<(f64, f64)> = p
+        .tips
+        .iter()
+        .map(|t| (t.0 * p.stretch, t.1 * p.stretch))
+        .collect();
+    let tx: Vec<f64> = tips.iter().map(|t| t.0).collect();
+    let ty: Vec<f64> = tips.iter().map(|t| t.1).collect();
+    let mut include_x = tx.clone();
+    include_x.push(0.0);
+    let mut include_y = ty.clone();
+    include_y.push(0.0);
+    let xr = padded_range(p.xs.iter().copied(), &include_x, 0.08);
+    let yr = padded_range(p.ys.iter().copied(), &include_y, 0.08);
+    let (xa, ya) = equal_axes(&layout, xr, yr);
+    let panel = layout.panel(xa, ya);
+    let t = title(plan, view);
+    let x_title = format!("{}, score / √λ", view.axis_title(a));
+    let y_title = format!("{}, score / √λ", view.axis_title(b));
+    let back = frame::backdrop(&t, &[Frame::new(layout, &panel, x_title, y_title)]);
+
+    let mut body = String::new();
+    let mut density = None;
+    if p.sel.density {
+        density = Some(scatter::draw_density(
+            &mut body, &panel, &p.xs, &p.ys, &p.sel,
+        ));
+    }
+    scatter::draw_points(&mut body, &panel, &p.xs, &p.ys, &p.sel, &p.groups, view);
+    draw_arrows(&mut body, &panel, &tips, &view.features, ARROW);
+    let items: Vec<(f64, f64, String)> = p
+        .sel
+        .labelled
+        .iter()
+        .map(|&i| {
+            (
+                panel.px(p.xs[i]),
+                panel.py(p.ys[i]),
+                view.row_labels.get(i).cloned().unwrap_or_default(),
+            )
+        })
+        .collect();
+    if !items.is_empty() {
+        scatter::draw_labels(
+            &mut body,
+            "labels",
+            &items,
+            (panel.left, panel.top, panel.right, panel.bottom),
+        );
+    }
+
+    let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
+    legend.groups(&p.groups, 5 + if p.sel.density { 9 } else { 0 });
+    if p.groups.column.is_none() && !p.sel.density {
+        legend.marker(NEUTRAL, svg::Shape::Circle, false, "row");
+    }
+    if p.sel.flagged_drawn > 0 {
+        legend.marker("#FFFFFF", svg::Shape::Circle, true, "above a limit");
+    }
+    legend.rule(ARROW, None, 1.2, "feature: loading × √λ");
+    legend.note(&format!("arrows drawn × {}", words_number(p.stretch, 3)));
+    legend.gap();
+    if let Some((classes, colours)) = &density {
+        legend.density(classes, colours);
+    }
+    body.push_str(&legend.finish());
+    frame::finish(back, &t, &caption(plan, view), &body)
+}
+
+pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
+    let p = prepare(plan, view);
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let mut s = format!(
+        "{}. A biplot (Gabriel 1971) of PC{} ({}) and PC{} ({}) in the covariance form: each point is a row's scores divided by √λ of the component (so both axes have unit variance), and each arrow is a feature's loadings multiplied by √λ",
+        title(plan, view),
+        plan.x,
+        super::percent(view.share(a)),
+        plan.y,
+        super::percent(view.share(b)),
+    );
+    if view.scaling == "unit-variance" {
+        s.push_str(
+            " (with unit-variance scaling, these are the correlations of the feature with the two components)",
+        );
+    }
+    let _ = write!(
+        s,
+        ", all arrows stretched by the common factor {} so they can be read against the points. One data unit has the same length on both axes. Angles between arrows approximate the correlations between features, and a point's projection onto an arrow approximates that feature's scaled value (times {}).",
+        words_number(p.stretch, 3),
+        words_number(p.stretch, 3),
+    );
+    if p.root.0 == 1.0 && view.eigenvalues[a] != 1.0 || p.root.1 == 1.0 && view.eigenvalues[b] != 1.0
+    {
+        s.push_str(" A component with a zero eigenvalue is drawn unscaled.");
+    }
+    if let Some(column) = &p.groups.column {
+        let _ = write!(
+            s,
+            " Colour and marker shape show the {} group ({} values).",
+            column,
+            p.groups.names.len()
+        );
+    }
+    s.push(' ');
+    s.push_str(&p.sel.describe("rows", plan.density_above, plan.labels));
+    s
+}

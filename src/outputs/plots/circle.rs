@@ -1,0 +1,178 @@
+//! The correlation circle: each feature's correlation with two components, as
+//! an arrow inside the unit circle.
+
+use super::frame::{self, Axis, Frame, LABEL_SIZE, Layout, Panel, Step, TOP};
+use super::svg::{self, Anchor, MUTED, N};
+use super::{title, words_number};
+use crate::outputs::view::PlotView;
+use crate::recipe::plots::PlotPlan;
+use std::fmt::Write;
+
+/// Arrow colour.
+const ARROW: &str = "#0072B2";
+
+/// Draws arrows from the origin to each tip, with the feature names beyond the
+/// tips (`arrows` and `arrow-labels` groups, one path and one text per feature).
+pub fn draw_arrows(
+    out: &mut String,
+    panel: &Panel,
+    tips: &[(f64, f64)],
+    names: &[String],
+    colour: &str,
+) {
+    let (ox, oy) = (panel.px(0.0), panel.py(0.0));
+    let _ = writeln!(
+        out,
+        "<g class=\"arrows\" fill=\"none\" stroke=\"{colour}\" stroke-width=\"1.2\" stroke-linecap=\"round\">"
+    );
+    let mut labels = Vec::new();
+    for (j, &(x, y)) in tips.iter().enumerate() {
+        let (x, y) = if x.is_finite() && y.is_finite() {
+            (x, y)
+        } else {
+            (0.0, 0.0)
+        };
+        let (tx, ty) = (panel.px(x), panel.py(y));
+        svg::arrow(out, ox, oy, tx, ty, 7.0, "");
+        let (dx, dy) = (tx - ox, ty - oy);
+        let len = (dx * dx + dy * dy).sqrt();
+        let (ux, uy) = if len > 1e-9 {
+            (dx / len, dy / len)
+        } else {
+            (1.0, 0.0)
+        };
+        let anchor = if ux > 0.35 {
+            Anchor::Start
+        } else if ux < -0.35 {
+            Anchor::End
+        } else {
+            Anchor::Middle
+        };
+        let lx = tx + ux * 5.0;
+        let ly = ty + uy * 5.0 + 0.35 * LABEL_SIZE + uy * 0.45 * LABEL_SIZE;
+        labels.push((lx, ly, anchor, names.get(j).cloned().unwrap_or_default()));
+    }
+    out.push_str("</g>\n");
+    let _ = writeln!(
+        out,
+        "<g class=\"arrow-labels\" font-size=\"{}\" fill=\"{colour}\">",
+        N(LABEL_SIZE)
+    );
+    for (x, y, anchor, name) in labels {
+        // Keep names inside the canvas.
+        let w = svg::text_width(&name, LABEL_SIZE);
+        let x = match anchor {
+            Anchor::Start => x.min(f64::from(svg::WIDTH) - 4.0 - w),
+            Anchor::End => x.max(4.0 + w),
+            Anchor::Middle => x.clamp(4.0 + w / 2.0, f64::from(svg::WIDTH) - 4.0 - w / 2.0),
+        };
+        svg::text(out, x, y, anchor, &svg::clip_text(&name, 24), "");
+    }
+    out.push_str("</g>\n");
+}
+
+pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    // A square plotting area, centred.
+    let side = 440;
+    let left = 62;
+    let x0 = (svg::WIDTH as i32 - side) / 2 - left;
+    let layout = Layout {
+        x0,
+        y0: TOP,
+        x1: x0 + left + side + 1,
+        y1: TOP + side + 1 + 48,
+        left,
+        bottom: 48,
+        right: 0,
+    };
+    let step = Step {
+        mantissa: 5,
+        exponent: -1,
+    };
+    let xa = Axis::with_step(-1.1, 1.1, step);
+    let ya = Axis::with_step(-1.1, 1.1, step);
+    let panel = layout.panel(xa, ya);
+    let t = title(plan, view);
+    let mut fr = Frame::new(
+        layout,
+        &panel,
+        format!("correlation with {}", view.axis_title(a)),
+        format!("correlation with {}", view.axis_title(b)),
+    );
+    fr.x_grid = false;
+    fr.y_grid = false;
+    let back = frame::backdrop(&t, &[fr]);
+
+    let mut body = String::new();
+    let (ox, oy) = (panel.px(0.0), panel.py(0.0));
+    let r1 = panel.x_scale();
+    body.push_str("<g class=\"circles\" fill=\"none\">\n");
+    svg::line(
+        &mut body,
+        panel.px(-1.0),
+        oy,
+        panel.px(1.0),
+        oy,
+        &format!("stroke=\"{MUTED}\" stroke-width=\"0.8\""),
+    );
+    svg::line(
+        &mut body,
+        ox,
+        panel.py(-1.0),
+        ox,
+        panel.py(1.0),
+        &format!("stroke=\"{MUTED}\" stroke-width=\"0.8\""),
+    );
+    let _ = writeln!(
+        body,
+        "<circle class=\"unit-circle\" cx=\"{}\" cy=\"{}\" r=\"{}\" stroke=\"{MUTED}\" stroke-width=\"1.2\"/>",
+        N(ox),
+        N(oy),
+        N(r1)
+    );
+    let _ = writeln!(
+        body,
+        "<circle class=\"half-circle\" cx=\"{}\" cy=\"{}\" r=\"{}\" stroke=\"{MUTED}\" stroke-width=\"0.8\" stroke-dasharray=\"4 4\"/>",
+        N(ox),
+        N(oy),
+        N(r1 * std::f64::consts::FRAC_1_SQRT_2)
+    );
+    body.push_str("</g>\n");
+    let tips: Vec<(f64, f64)> = view
+        .correlations
+        .iter()
+        .take(view.features.len())
+        .map(|r| (r[a], r[b]))
+        .collect();
+    draw_arrows(&mut body, &panel, &tips, &view.features, ARROW);
+    frame::finish(back, &t, &caption(plan, view), &body)
+}
+
+pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let longest = view
+        .correlations
+        .iter()
+        .zip(&view.features)
+        .map(|(r, f)| ((r[a] * r[a] + r[b] * r[b]).sqrt(), f))
+        .filter(|(v, _)| v.is_finite())
+        .max_by(|x, y| x.0.total_cmp(&y.0));
+    let mut s = format!(
+        "{}. Each arrow ends at the Pearson correlation of a scaled feature with the scores of PC{} ({}, horizontal) and PC{} ({}, vertical); both axes run from −1 to 1 at the same scale. The solid circle has radius 1: an arrow reaching it is explained entirely by the two components. The dashed circle has radius √½: beyond it, the two components explain more than half of the feature's variance. Arrows pointing the same way belong to correlated features.",
+        title(plan, view),
+        plan.x,
+        super::percent(view.share(a)),
+        plan.y,
+        super::percent(view.share(b)),
+    );
+    if let Some((len, name)) = longest {
+        let _ = write!(
+            s,
+            " The longest arrow is {} (length {}).",
+            name,
+            words_number(len, 2)
+        );
+    }
+    s
+}

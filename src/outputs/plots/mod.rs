@@ -1,0 +1,205 @@
+//! Deterministic SVG figures: one function per plot kind, each returning a
+//! complete SVG document, and a caption in plain words for the report.
+//!
+//! The frame (background, title, grid, ticks, axis titles) is drawn by
+//! `plotters` with its SVG backend and our own axis type (see `frame.rs` for
+//! why); the marks are written by our own code so they are grouped under
+//! classes a reader or a test can find and count:
+//!
+//! | class | what |
+//! |---|---|
+//! | `points` | one marker per individually drawn row (`flagged` on rows above a limit), in `group` subgroups |
+//! | `density` | binned rows in density mode, in `density-class` subgroups |
+//! | `labels` | point labels (row ids) |
+//! | `bars` | one `rect` per bar (`kept` on kept components in the scree) |
+//! | `arrows`, `arrow-labels` | biplot and correlation-circle arrows and their feature names |
+//! | `legend` | the legend column |
+//!
+//! Same view, same bytes: numbers are written from integers or rounded to
+//! tenths of a pixel, no ids or timestamps are written, and groups are sorted
+//! by name. Text uses the generic `sans-serif` family; no font is embedded.
+
+mod biplot;
+mod circle;
+mod frame;
+mod loadings;
+mod outliers;
+mod scatter;
+mod scores;
+mod scree;
+mod svg;
+
+use super::view::PlotView;
+use crate::recipe::plots::PlotPlan;
+use crate::recipe::raw::PlotKind;
+use frame::{Axis, Layout, Step, TOP};
+use svg::{HEIGHT, WIDTH};
+
+pub use scatter::{MAX_FLAGGED_LABELS, MAX_INDIVIDUAL};
+
+/// Draws one plot as an SVG document.
+pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+    if let Some(problem) = missing_data(plan, view) {
+        return placeholder(plan, &problem);
+    }
+    match plan.kind {
+        PlotKind::Scree => scree::render(plan, view),
+        PlotKind::Scores => scores::render(plan, view),
+        PlotKind::Loadings => loadings::render(plan, view),
+        PlotKind::Biplot => biplot::render(plan, view),
+        PlotKind::CorrelationCircle => circle::render(plan, view),
+        PlotKind::OutlierMap => outliers::render(plan, view),
+    }
+}
+
+/// A caption in plain words for the report: what is drawn and how to read it.
+pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
+    if let Some(problem) = missing_data(plan, view) {
+        return format!("{} Not drawn: {problem}", title(plan, view));
+    }
+    match plan.kind {
+        PlotKind::Scree => scree::caption(plan, view),
+        PlotKind::Scores => scores::caption(plan, view),
+        PlotKind::Loadings => loadings::caption(plan, view),
+        PlotKind::Biplot => biplot::caption(plan, view),
+        PlotKind::CorrelationCircle => circle::caption(plan, view),
+        PlotKind::OutlierMap => outliers::caption(plan, view),
+    }
+}
+
+/// The plot's title: the recipe's, or one made from the kind and components.
+pub fn title(plan: &PlotPlan, _view: &PlotView) -> String {
+    if let Some(t) = &plan.title {
+        return t.clone();
+    }
+    let (x, y) = (plan.x, plan.y);
+    match plan.kind {
+        PlotKind::Scree => "Scree: eigenvalues and cumulative share".into(),
+        PlotKind::Scores => format!("Scores: PC{x} against PC{y}"),
+        PlotKind::Loadings if y == 0 => format!("Loadings of PC{x}"),
+        PlotKind::Loadings => format!("Loadings: PC{x} against PC{y}"),
+        PlotKind::Biplot => format!("Biplot: PC{x} against PC{y}"),
+        PlotKind::CorrelationCircle => format!("Correlation circle: PC{x} against PC{y}"),
+        PlotKind::OutlierMap => "Outlier map: T² against SPE".into(),
+    }
+}
+
+/// Rows in the view (the scores' count; `n_rows` when scores are absent).
+pub(crate) fn view_rows(view: &PlotView) -> usize {
+    if view.scores.is_empty() {
+        view.t2.len().max(view.spe.len())
+    } else {
+        view.scores.len()
+    }
+}
+
+/// Why a plot cannot be drawn from this view, if it cannot.
+fn missing_data(plan: &PlotPlan, view: &PlotView) -> Option<String> {
+    let needed = plan.x.max(plan.y);
+    let has = view.eigenvalues.len();
+    if view.eigenvalues.is_empty() {
+        return Some("the view has no components.".into());
+    }
+    if needed > has {
+        return Some(format!(
+            "component {needed} is not among the {has} computed."
+        ));
+    }
+    let needs_scores = matches!(plan.kind, PlotKind::Scores | PlotKind::Biplot);
+    if needs_scores && view.scores.iter().any(|r| r.len() < needed) {
+        return Some("some rows lack the scores of the components asked for.".into());
+    }
+    let needs_features = matches!(
+        plan.kind,
+        PlotKind::Loadings | PlotKind::Biplot | PlotKind::CorrelationCircle
+    );
+    if needs_features {
+        let table = if plan.kind == PlotKind::CorrelationCircle {
+            &view.correlations
+        } else {
+            &view.loadings
+        };
+        if table.len() < view.features.len() || table.iter().any(|r| r.len() < needed) {
+            return Some("the view lacks loadings or correlations for some features.".into());
+        }
+    }
+    None
+}
+
+/// An SVG that says why the plot is empty.
+fn placeholder(plan: &PlotPlan, problem: &str) -> String {
+    let t = title(plan, &PlotView::default());
+    let back = frame::backdrop(&t, &[]);
+    let mut body = String::new();
+    svg::text(
+        &mut body,
+        f64::from(WIDTH) / 2.0,
+        f64::from(HEIGHT) / 2.0,
+        svg::Anchor::Middle,
+        &format!("Not drawn: {problem}"),
+        "font-size=\"13\"",
+    );
+    frame::finish(back, &t, problem, &body)
+}
+
+/// The layout of a scatter plot with a legend column on the right.
+fn scatter_layout() -> Layout {
+    Layout {
+        x0: 8,
+        y0: TOP,
+        x1: 560,
+        y1: HEIGHT as i32 - 8,
+        left: 62,
+        bottom: 48,
+        right: 0,
+    }
+}
+
+/// Left edge of the legend column of [`scatter_layout`].
+const LEGEND_X: f64 = 574.0;
+
+/// Axes over the two ranges with one data unit the same length on both, and
+/// the same tick step, so distances and angles read true.
+fn equal_axes(layout: &Layout, xr: (f64, f64), yr: (f64, f64)) -> (Axis, Axis) {
+    let (w, h) = (layout.plot_width(), layout.plot_height());
+    let (xr, yr) = (frame::sane_range(xr.0, xr.1), frame::sane_range(yr.0, yr.1));
+    let unit = ((xr.1 - xr.0) / w).max((yr.1 - yr.0) / h);
+    let (cx, cy) = ((xr.0 + xr.1) / 2.0, (yr.0 + yr.1) / 2.0);
+    let (hw, hh) = (unit * w / 2.0, unit * h / 2.0);
+    let step = Step::at_least(unit * 75.0);
+    (
+        Axis::with_step(cx - hw, cx + hw, step),
+        Axis::with_step(cy - hh, cy + hh, step),
+    )
+}
+
+/// Formats a number for a caption with `digits` significant digits (fixed
+/// decimals, no exponent for ordinary sizes).
+fn words_number(v: f64, digits: i32) -> String {
+    if !v.is_finite() {
+        return "not a number".into();
+    }
+    if v == 0.0 {
+        return "0".into();
+    }
+    let mut e = 0;
+    let a = v.abs();
+    while frame::pow10(e) > a && e > -300 {
+        e -= 1;
+    }
+    while frame::pow10(e + 1) <= a && e < 300 {
+        e += 1;
+    }
+    let decimals = (digits - 1 - e).clamp(0, 12) as usize;
+    let s = format!("{v:.decimals$}");
+    if s.starts_with('-') && s.trim_start_matches(['-', '0', '.']).is_empty() {
+        s[1..].to_string()
+    } else {
+        s
+    }
+}
+
+/// A percentage with one decimal, e.g. "41.2 %".
+fn percent(share: f64) -> String {
+    format!("{:.1} %", 100.0 * share)
+}

@@ -1,0 +1,262 @@
+//! The outlier map: Hotelling's T² against the squared prediction error (SPE)
+//! of each row, with both limits.
+
+use super::frame::{self, Axis, Frame, LABEL_SIZE, padded_range};
+use super::scatter::{self, Groups, Legend, Selection};
+use super::svg::{self, Anchor, MUTED, N, NEUTRAL, Shape};
+use super::{LEGEND_X, scatter_layout, title, words_number};
+use crate::outputs::view::PlotView;
+use crate::recipe::plots::PlotPlan;
+use crate::recipe::raw::PointLabels;
+use std::fmt::Write;
+
+/// Colours and shapes of the four kinds of rows (Okabe & Ito colours).
+const WITHIN: (&str, Shape) = (NEUTRAL, Shape::Circle);
+const T2_ONLY: (&str, Shape) = ("#0072B2", Shape::Square);
+const SPE_ONLY: (&str, Shape) = ("#D55E00", Shape::TriangleUp);
+const BOTH: (&str, Shape) = ("#CC79A7", Shape::Diamond);
+
+struct Prepared {
+    xs: Vec<f64>,
+    ys: Vec<f64>,
+    /// Rows by kind: 0 within, 1 above T² only, 2 above SPE only, 3 above both.
+    groups: Groups,
+    sel: Selection,
+}
+
+const KIND_NAMES: [&str; 4] = [
+    "within both limits",
+    "above the T² limit",
+    "above the SPE limit",
+    "above both limits",
+];
+
+fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+    let n = view.t2.len().min(view.spe.len());
+    let xs = view.t2[..n].to_vec();
+    let ys = view.spe[..n].to_vec();
+    let above = |v: f64, l: Option<f64>| l.is_some_and(|l| v > l);
+    let of_row: Vec<u32> = (0..n)
+        .map(|i| {
+            let a = above(xs[i], view.t2_limit);
+            let b = above(ys[i], view.spe_limit);
+            match (a, b) {
+                (false, false) => 0,
+                (true, false) => 1,
+                (false, true) => 2,
+                (true, true) => 3,
+            }
+        })
+        .collect();
+    let mut counts = vec![0; 4];
+    for &k in &of_row {
+        counts[k as usize] += 1;
+    }
+    let groups = Groups {
+        column: Some("rows".into()),
+        names: KIND_NAMES.iter().map(|s| s.to_string()).collect(),
+        counts,
+        of_row,
+        missing: None,
+    };
+    let sel = scatter::select(view, &xs, &ys, &groups, plan.labels, plan.density_above);
+    Prepared {
+        xs,
+        ys,
+        groups,
+        sel,
+    }
+}
+
+fn style(kind: usize) -> (&'static str, Shape) {
+    [WITHIN, T2_ONLY, SPE_ONLY, BOTH][kind.min(3)]
+}
+
+pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+    let p = prepare(plan, view);
+    let layout = scatter_layout();
+    let limits_x: Vec<f64> = view.t2_limit.into_iter().collect();
+    let limits_y: Vec<f64> = view.spe_limit.into_iter().collect();
+    let (_, xhi) = padded_range(p.xs.iter().copied(), &[&limits_x[..], &[0.0]].concat(), 0.05);
+    let (_, yhi) = padded_range(p.ys.iter().copied(), &[&limits_y[..], &[0.0]].concat(), 0.05);
+    let xa = Axis::nice(0.0, xhi, layout.plot_width() / 80.0);
+    let ya = Axis::nice(0.0, yhi, layout.plot_height() / 55.0);
+    let panel = layout.panel(xa, ya);
+    let t = title(plan, view);
+    let back = frame::backdrop(
+        &t,
+        &[Frame::new(
+            layout,
+            &panel,
+            format!("Hotelling's T² ({} kept components)", view.kept),
+            "SPE (squared prediction error)".into(),
+        )],
+    );
+
+    let mut body = String::new();
+    let mut density = None;
+    if p.sel.density {
+        density = Some(scatter::draw_density(
+            &mut body, &panel, &p.xs, &p.ys, &p.sel,
+        ));
+    }
+    // The limits.
+    let rule = format!("stroke=\"{MUTED}\" stroke-width=\"1.2\" stroke-dasharray=\"6 4\"");
+    let small = format!("font-size=\"{}\" fill=\"{MUTED}\"", N(LABEL_SIZE));
+    let level = super::percent(view.confidence);
+    body.push_str("<g class=\"limits\">\n");
+    if let Some(l) = view.t2_limit.filter(|l| l.is_finite()) {
+        let x = panel.px(l);
+        svg::line(&mut body, x, panel.top, x, panel.bottom, &format!("class=\"t2-limit\" {rule}"));
+        svg::text(
+            &mut body,
+            x + 4.0,
+            panel.top + 12.0,
+            Anchor::Start,
+            &format!("T² limit ({level})"),
+            &small,
+        );
+    }
+    if let Some(l) = view.spe_limit.filter(|l| l.is_finite()) {
+        let y = panel.py(l);
+        svg::line(&mut body, panel.left, y, panel.right, y, &format!("class=\"spe-limit\" {rule}"));
+        svg::text(
+            &mut body,
+            panel.right - 4.0,
+            y - 4.0,
+            Anchor::End,
+            &format!("SPE limit ({level})"),
+            &small,
+        );
+    }
+    body.push_str("</g>\n");
+
+    // Points: coloured by which limits they exceed (not by a group column).
+    draw_kinds(&mut body, &panel, &p, view);
+    let items: Vec<(f64, f64, String)> = p
+        .sel
+        .labelled
+        .iter()
+        .map(|&i| {
+            (
+                panel.px(p.xs[i]),
+                panel.py(p.ys[i]),
+                view.row_labels.get(i).cloned().unwrap_or_default(),
+            )
+        })
+        .collect();
+    if !items.is_empty() {
+        scatter::draw_labels(
+            &mut body,
+            "labels",
+            &items,
+            (panel.left, panel.top, panel.right, panel.bottom),
+        );
+    }
+
+    let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
+    legend.heading("rows");
+    for k in 0..4 {
+        if k == 0 && p.sel.density {
+            continue;
+        }
+        let (colour, shape) = style(k);
+        legend.marker(colour, shape, false, &format!("{} ({})", short(k), p.groups.counts[k]));
+    }
+    legend.gap();
+    if view.t2_limit.is_none() {
+        legend.note("no T² limit defined");
+    }
+    if view.spe_limit.is_none() {
+        legend.note("no SPE limit defined");
+    }
+    if let Some((classes, colours)) = &density {
+        legend.gap();
+        legend.density(classes, colours);
+    }
+    body.push_str(&legend.finish());
+    frame::finish(back, &t, &caption(plan, view), &body)
+}
+
+fn short(kind: usize) -> &'static str {
+    ["within limits", "above T² only", "above SPE only", "above both"][kind.min(3)]
+}
+
+fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared, view: &PlotView) {
+    out.push_str("<g class=\"points\">\n");
+    let mut current: Option<usize> = None;
+    for &i in &p.sel.drawn {
+        let k = p.groups.of_row[i] as usize;
+        if current != Some(k) {
+            if current.is_some() {
+                out.push_str("</g>\n");
+            }
+            let (colour, _) = style(k);
+            let _ = writeln!(
+                out,
+                "<g class=\"group\" data-group=\"{}\" fill=\"{colour}\" stroke=\"#FFFFFF\" stroke-width=\"0.6\">",
+                KIND_NAMES[k]
+            );
+            current = Some(k);
+        }
+        let (_, shape) = style(k);
+        let flagged = view.flagged.get(i).copied().unwrap_or(false);
+        let extra = if flagged { "class=\"flagged\"" } else { "" };
+        svg::marker(out, shape, panel.px(p.xs[i]), panel.py(p.ys[i]), scatter::MARK, extra);
+    }
+    if current.is_some() {
+        out.push_str("</g>\n");
+    }
+    out.push_str("</g>\n");
+}
+
+pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
+    let p = prepare(plan, view);
+    let level = super::percent(view.confidence);
+    let mut s = format!(
+        "{}. Each row's Hotelling T² (distance within the model of {} kept components, horizontal) against its squared prediction error SPE (distance from the model, vertical).",
+        title(plan, view),
+        view.kept
+    );
+    match view.t2_limit {
+        Some(l) => {
+            let _ = write!(
+                s,
+                " The dashed vertical line is the T² limit at {level} ({}).",
+                words_number(l, 4)
+            );
+        }
+        None => {
+            let _ = write!(s, " No T² limit is defined at {level}, so no vertical line is drawn.");
+        }
+    }
+    match view.spe_limit {
+        Some(l) => {
+            let _ = write!(
+                s,
+                " The dashed horizontal line is the SPE limit at {level} ({}).",
+                words_number(l, 4)
+            );
+        }
+        None => {
+            let _ = write!(
+                s,
+                " No SPE limit is defined at {level} (for example when every component is kept), so no horizontal line is drawn."
+            );
+        }
+    }
+    let _ = write!(
+        s,
+        " Colour and shape tell the rows within both limits ({}), above the T² limit only ({}), above the SPE limit only ({}) and above both ({}).",
+        p.groups.counts[0], p.groups.counts[1], p.groups.counts[2], p.groups.counts[3]
+    );
+    s.push(' ');
+    let mut words = p.sel.describe("rows", plan.density_above, plan.labels);
+    // Flagged rows here are told apart by colour, not by an outline.
+    words = words.replace(" Rows above the T² or SPE limit have a dark outline.", "");
+    s.push_str(&words);
+    if plan.labels == PointLabels::None {
+        s.push_str(" No rows are labelled.");
+    }
+    s
+}

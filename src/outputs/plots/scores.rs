@@ -1,0 +1,199 @@
+//! Scores of two components, coloured by a group column, with an optional
+//! Hotelling T² ellipse.
+
+use super::frame::{self, Frame, padded_range};
+use super::scatter::{self, Groups, Legend, Selection};
+use super::svg::{self, MUTED, N, NEUTRAL};
+use super::{LEGEND_X, equal_axes, scatter_layout, title, words_number};
+use crate::outputs::view::PlotView;
+use crate::recipe::plots::PlotPlan;
+use crate::stats::limits::t2_limit_phase1;
+use std::fmt::Write;
+
+/// The ellipse: the limit L and the semi-axes along x and y, or why it is not drawn.
+type Ellipse = Result<(f64, f64, f64), String>;
+
+struct Prepared {
+    xs: Vec<f64>,
+    ys: Vec<f64>,
+    groups: Groups,
+    sel: Selection,
+    ellipse: Option<Ellipse>,
+}
+
+fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let xs: Vec<f64> = view.scores.iter().map(|r| r[a]).collect();
+    let ys: Vec<f64> = view.scores.iter().map(|r| r[b]).collect();
+    let groups = Groups::new(view, plan.color.as_deref());
+    let sel = scatter::select(view, &xs, &ys, &groups, plan.labels, plan.density_above);
+    let ellipse = plan.ellipse.map(|conf| {
+        let n = xs.len();
+        let (la, lb) = (view.eigenvalues[a], view.eigenvalues[b]);
+        if !(la > 0.0 && lb > 0.0 && la.is_finite() && lb.is_finite()) {
+            return Err("an eigenvalue of the plotted components is not positive".to_string());
+        }
+        let l = t2_limit_phase1(n, 2, conf).map_err(|e| e.to_string())?;
+        Ok((l, (l * la).sqrt(), (l * lb).sqrt()))
+    });
+    Prepared {
+        xs,
+        ys,
+        groups,
+        sel,
+        ellipse,
+    }
+}
+
+pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+    let p = prepare(plan, view);
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let layout = scatter_layout();
+    let (ex, ey) = match &p.ellipse {
+        Some(Ok((_, ex, ey))) => (*ex, *ey),
+        _ => (0.0, 0.0),
+    };
+    let xr = padded_range(p.xs.iter().copied(), &[-ex, ex, 0.0], 0.05);
+    let yr = padded_range(p.ys.iter().copied(), &[-ey, ey, 0.0], 0.05);
+    let (xa, ya) = equal_axes(&layout, xr, yr);
+    let panel = layout.panel(xa, ya);
+    let t = title(plan, view);
+    let back = frame::backdrop(
+        &t,
+        &[Frame::new(
+            layout,
+            &panel,
+            view.axis_title(a),
+            view.axis_title(b),
+        )],
+    );
+
+    let mut body = String::new();
+    // Zero lines through the origin (the scores' mean).
+    let zero = format!("stroke=\"{MUTED}\" stroke-width=\"0.8\" stroke-dasharray=\"3 3\"");
+    body.push_str("<g class=\"origin\">\n");
+    svg::line(
+        &mut body,
+        panel.px(0.0),
+        panel.top,
+        panel.px(0.0),
+        panel.bottom,
+        &zero,
+    );
+    svg::line(
+        &mut body,
+        panel.left,
+        panel.py(0.0),
+        panel.right,
+        panel.py(0.0),
+        &zero,
+    );
+    body.push_str("</g>\n");
+
+    let mut density = None;
+    if p.sel.density {
+        density = Some(scatter::draw_density(
+            &mut body, &panel, &p.xs, &p.ys, &p.sel,
+        ));
+    }
+    if let Some(Ok((_, ex, ey))) = &p.ellipse {
+        let _ = writeln!(
+            body,
+            "<ellipse class=\"ellipse\" cx=\"{}\" cy=\"{}\" rx=\"{}\" ry=\"{}\" fill=\"none\" stroke=\"{MUTED}\" stroke-width=\"1.2\" stroke-dasharray=\"6 4\"/>",
+            N(panel.px(0.0)),
+            N(panel.py(0.0)),
+            N(ex * panel.x_scale()),
+            N(ey * panel.y_scale())
+        );
+    }
+    scatter::draw_points(&mut body, &panel, &p.xs, &p.ys, &p.sel, &p.groups, view);
+    let items: Vec<(f64, f64, String)> = p
+        .sel
+        .labelled
+        .iter()
+        .map(|&i| {
+            (
+                panel.px(p.xs[i]),
+                panel.py(p.ys[i]),
+                view.row_labels.get(i).cloned().unwrap_or_default(),
+            )
+        })
+        .collect();
+    if !items.is_empty() {
+        scatter::draw_labels(
+            &mut body,
+            "labels",
+            &items,
+            (panel.left, panel.top, panel.right, panel.bottom),
+        );
+    }
+
+    let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
+    let reserve = 3 + if p.sel.density { 9 } else { 0 } + usize::from(p.ellipse.is_some()) * 2;
+    legend.groups(&p.groups, reserve);
+    if p.groups.column.is_none() && !p.sel.density {
+        legend.marker(NEUTRAL, svg::Shape::Circle, false, "row");
+    }
+    if p.sel.flagged_drawn > 0 {
+        legend.marker("#FFFFFF", svg::Shape::Circle, true, "above a limit");
+        legend.gap();
+    }
+    if let Some(Ok(_)) = &p.ellipse {
+        legend.rule(
+            MUTED,
+            Some("6 4"),
+            1.2,
+            &format!("T² ellipse {}", super::percent(plan.ellipse.unwrap_or(0.0))),
+        );
+        legend.gap();
+    }
+    if let Some((classes, colours)) = &density {
+        legend.density(classes, colours);
+    }
+    body.push_str(&legend.finish());
+    frame::finish(back, &t, &caption(plan, view), &body)
+}
+
+pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
+    let p = prepare(plan, view);
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let mut s = format!(
+        "{}. Scores of the rows on PC{} ({} of the variance, horizontal) and PC{} ({}, vertical), with one score unit the same length on both axes.",
+        title(plan, view),
+        plan.x,
+        super::percent(view.share(a)),
+        plan.y,
+        super::percent(view.share(b)),
+    );
+    if let Some(column) = &p.groups.column {
+        let _ = write!(
+            s,
+            " Colour and marker shape show the {} group ({} values).",
+            column,
+            p.groups.names.len()
+        );
+    }
+    s.push(' ');
+    s.push_str(&p.sel.describe("rows", plan.density_above, plan.labels));
+    match &p.ellipse {
+        None => {}
+        Some(Ok((l, _, _))) => {
+            let _ = write!(
+                s,
+                " The dashed ellipse is the Hotelling T² limit at {} for these two components alone: t{}²/λ{} + t{}²/λ{} = L with L = {} (the Phase I limit of Tracy, Young and Mason for n = {} rows and 2 components). It is not the limit that flags rows, which uses all {} kept components, so a flagged row may lie inside it.",
+                super::percent(plan.ellipse.unwrap_or(0.0)),
+                plan.x,
+                plan.x,
+                plan.y,
+                plan.y,
+                words_number(*l, 4),
+                p.xs.len(),
+                view.kept
+            );
+        }
+        Some(Err(why)) => {
+            let _ = write!(s, " No T² ellipse is drawn: {why}.");
+        }
+    }
+    s
+}
