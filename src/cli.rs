@@ -267,15 +267,32 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
             "missing    {missing_cells} cells in used features; {} rows with a missing cell dropped, {} rows left",
             m.rows_dropped, pre.scaled.matrix.rows
         ),
-        method => writeln!(
-            out,
-            "missing    {missing_cells} cells in used features filled with the feature {}",
-            if method == crate::recipe::raw::MissingMethod::Median {
-                "median"
-            } else {
-                "mean"
-            }
-        ),
+        method => {
+            let how = match method {
+                crate::recipe::raw::MissingMethod::Median => "with the feature median".to_string(),
+                crate::recipe::raw::MissingMethod::IterativePca => match &m.iterative_pca {
+                    Some(r) => format!(
+                        "by iterative PCA ({} components, {} iterations, {})",
+                        r.components,
+                        r.iterations,
+                        if r.converged {
+                            "converged"
+                        } else {
+                            "NOT converged"
+                        }
+                    ),
+                    None => "by iterative PCA".to_string(),
+                },
+                crate::recipe::raw::MissingMethod::Knn => {
+                    format!("from the {} nearest rows", m.knn_neighbours.unwrap_or(0))
+                }
+                _ => "with the feature mean".to_string(),
+            };
+            writeln!(
+                out,
+                "missing    {missing_cells} cells in used features filled {how}"
+            )
+        }
     };
     for f in m
         .features
@@ -334,6 +351,26 @@ pub fn describe_run(s: &RunSummary) -> String {
         sel.rule,
         sel.reason
     );
+    for l in &s.analysis.diagnostics.limits {
+        let _ = writeln!(
+            out,
+            "flagged    at {} %: {} above the T² limit, {} above the SPE limit",
+            crate::outputs::tables::level_label(l.confidence),
+            l.t2_flagged,
+            l.spe_flagged
+        );
+    }
+    let _ = writeln!(
+        out,
+        "           {} rows above a limit at some level; contributions.csv says which features made them so",
+        s.analysis.diagnostics.flagged_rows().len()
+    );
+    for note in &s.analysis.diagnostics.notes {
+        let _ = writeln!(out, "  note     {note}");
+    }
+    for w in &s.pre.missing.warnings {
+        let _ = writeln!(out, "  warning  {w}");
+    }
     for a in &sel.adjustments {
         let _ = writeln!(out, "  note     {a}");
     }

@@ -87,11 +87,11 @@ fn page_title(view: &ReportView) -> String {
 // ---------------------------------------------------------------- sections
 
 fn header(out: &mut String, view: &ReportView) {
-    out.push_str("<main>\n<header class=\"top\">\n<p class=\"kicker\">Principal component analysis report</p>\n");
+    out.push_str("<main>\n<header class=\"sx-top\">\n<p class=\"sx-kicker\">Principal component analysis report</p>\n");
     out.push_str(&format!("<h1>{}</h1>\n", escape(&page_title(view))));
     if let Some(notes) = view.notes.as_deref().filter(|n| !n.trim().is_empty()) {
         out.push_str(&format!(
-            "<p class=\"notes\">{}</p>\n",
+            "<p class=\"sx-notes\">{}</p>\n",
             escape(notes.trim())
         ));
     }
@@ -99,18 +99,18 @@ fn header(out: &mut String, view: &ReportView) {
     let kept: Vec<&VarianceLine> = view.variance.iter().filter(|v| v.kept).collect();
     if !view.variance.is_empty() {
         let share: f64 = kept.iter().map(|v| v.share).sum();
-        out.push_str("<ul class=\"facts\">\n");
+        out.push_str("<ul class=\"sx-facts\">\n");
         out.push_str(&format!(
-            "<li><span class=\"big\">{}</span> of {} components kept</li>\n",
+            "<li><span class=\"sx-big\">{}</span> of {} components kept</li>\n",
             kept.len(),
             view.variance.len()
         ));
         out.push_str(&format!(
-            "<li><span class=\"big\">{}</span> of the variance explained by them</li>\n",
+            "<li><span class=\"sx-big\">{}</span> of the variance explained by them</li>\n",
             percent(share)
         ));
         out.push_str(&format!(
-            "<li><span class=\"big\">{}</span> {} above a T² or SPE limit</li>\n",
+            "<li><span class=\"sx-big\">{}</span> {} above a T² or SPE limit</li>\n",
             view.flagged.len(),
             if view.flagged.len() == 1 {
                 "row"
@@ -120,7 +120,7 @@ fn header(out: &mut String, view: &ReportView) {
         ));
         if !view.figures.is_empty() {
             out.push_str(&format!(
-                "<li><span class=\"big\">{}</span> {}</li>\n",
+                "<li><span class=\"sx-big\">{}</span> {}</li>\n",
                 view.figures.len(),
                 if view.figures.len() == 1 {
                     "figure"
@@ -149,7 +149,7 @@ fn contents(out: &mut String, view: &ReportView, three_d: bool) {
     }
     items.push(("cautions", "Cautions"));
     items.push(("provenance", "Provenance"));
-    out.push_str("<nav class=\"toc\" aria-label=\"Sections\"><ul>");
+    out.push_str("<nav class=\"sx-toc\" aria-label=\"Sections\"><ul>");
     for (id, name) in items {
         out.push_str(&format!("<li><a href=\"#{id}\">{name}</a></li>"));
     }
@@ -161,7 +161,7 @@ fn summary(out: &mut String, view: &ReportView) {
     if view.summary.is_empty() {
         out.push_str("<p>No summary was recorded.</p>\n");
     } else {
-        out.push_str("<ul class=\"sentences\">\n");
+        out.push_str("<ul class=\"sx-sentences\">\n");
         for sentence in &view.summary {
             out.push_str(&format!("<li>{}</li>\n", with_code(sentence)));
         }
@@ -172,18 +172,18 @@ fn summary(out: &mut String, view: &ReportView) {
 
 fn variance(out: &mut String, lines: &[VarianceLine]) {
     out.push_str("<section id=\"variance\">\n<h2>Variance of the components</h2>\n");
-    out.push_str("<p class=\"lede\">Each computed component's eigenvalue (the variance of its scores), its share of the total variance and the running total. Kept components are marked.</p>\n");
-    out.push_str("<div class=\"scroll\"><table class=\"variance\">\n<thead><tr><th scope=\"col\">Component</th><th scope=\"col\" class=\"num\">Eigenvalue</th><th scope=\"col\" class=\"num\">Share</th><th scope=\"col\" class=\"num\">Cumulative</th><th scope=\"col\">Kept</th><th scope=\"col\" class=\"barcol\"><span class=\"sr\">Share as a bar</span></th></tr></thead>\n<tbody>\n");
+    out.push_str("<p class=\"sx-lede\">Each computed component's eigenvalue (the variance of its scores), its share of the total variance and the running total. Kept components are marked.</p>\n");
+    out.push_str("<div class=\"sx-scroll\"><table class=\"sx-variance\">\n<thead><tr><th scope=\"col\">Component</th><th scope=\"col\" class=\"sx-num\">Eigenvalue</th><th scope=\"col\" class=\"sx-num\">Share</th><th scope=\"col\" class=\"sx-num\">Cumulative</th><th scope=\"col\">Kept</th><th scope=\"col\" class=\"sx-barcol\"><span class=\"sx-sr\">Share as a bar</span></th></tr></thead>\n<tbody>\n");
     let widest = lines.iter().map(|l| l.share).fold(0.0_f64, f64::max);
     for l in lines {
         out.push_str(&format!(
-            "<tr{}><th scope=\"row\">PC{}</th><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td><td class=\"barcol\">{}</td></tr>\n",
-            if l.kept { " class=\"kept\"" } else { "" },
+            "<tr{}><th scope=\"row\">PC{}</th><td class=\"sx-num\">{}</td><td class=\"sx-num\">{}</td><td class=\"sx-num\">{}</td><td>{}</td><td class=\"sx-barcol\">{}</td></tr>\n",
+            if l.kept { " class=\"sx-kept\"" } else { "" },
             l.component,
             significant(l.eigenvalue, 4),
             percent(l.share),
             percent(l.cumulative),
-            if l.kept { "<span class=\"tag\">kept</span>" } else { "" },
+            if l.kept { "<span class=\"sx-tag\">kept</span>" } else { "" },
             bar(l.share, widest, false),
         ));
     }
@@ -196,21 +196,21 @@ fn loadings(out: &mut String, view: &ReportView) {
         out.push_str("<p>No component was kept.</p>\n</section>\n");
         return;
     }
-    out.push_str("<p class=\"lede\">The features with the largest loadings in magnitude; a component mixes every feature, so these name a direction to examine, not a cause.</p>\n<div class=\"cards\">\n");
+    out.push_str("<p class=\"sx-lede\">The features with the largest loadings in magnitude; a component mixes every feature, so these name a direction to examine, not a cause.</p>\n<div class=\"sx-cards\">\n");
     for (a, list) in view.top_loadings.iter().enumerate() {
         let share = view
             .variance
             .get(a)
-            .map(|v| format!(" <span class=\"muted\">({})</span>", percent(v.share)))
+            .map(|v| format!(" <span class=\"sx-muted\">({})</span>", percent(v.share)))
             .unwrap_or_default();
         out.push_str(&format!(
-            "<div class=\"card\"><h3>PC{}{share}</h3>\n<table class=\"loadings\"><thead><tr><th scope=\"col\">Feature</th><th scope=\"col\" class=\"num\">Loading</th><th scope=\"col\" class=\"barcol\"><span class=\"sr\">Loading as a bar</span></th></tr></thead><tbody>\n",
+            "<div class=\"sx-card\"><h3>PC{}{share}</h3>\n<table class=\"sx-loadings\"><thead><tr><th scope=\"col\">Feature</th><th scope=\"col\" class=\"sx-num\">Loading</th><th scope=\"col\" class=\"sx-barcol\"><span class=\"sx-sr\">Loading as a bar</span></th></tr></thead><tbody>\n",
             a + 1
         ));
         let widest = list.iter().map(|(_, l)| l.abs()).fold(0.0_f64, f64::max);
         for (feature, loading) in list {
             out.push_str(&format!(
-                "<tr><td class=\"name\">{}</td><td class=\"num\">{}</td><td class=\"barcol\">{}</td></tr>\n",
+                "<tr><td class=\"sx-name\">{}</td><td class=\"sx-num\">{}</td><td class=\"sx-barcol\">{}</td></tr>\n",
                 escape(feature),
                 fixed(*loading, 3),
                 bar(loading.abs(), widest, *loading < 0.0)
@@ -233,16 +233,16 @@ fn flagged(out: &mut String, view: &ReportView) {
         return;
     }
     out.push_str(&format!(
-        "<p class=\"lede\">Rows above Hotelling's T² limit (unusual within the kept components) or the SPE limit (poorly described by them) at {level} % confidence, with the features that contribute most. Contributions are in scaled units and sum over all features to the row's T² and SPE; contributions.csv lists every feature.</p>\n"
+        "<p class=\"sx-lede\">Rows above Hotelling's T² limit (unusual within the kept components) or the SPE limit (poorly described by them) at {level} % confidence, with the features that contribute most. Contributions are in scaled units and sum over all features to the row's T² and SPE; contributions.csv lists every feature.</p>\n"
     ));
-    out.push_str("<div class=\"scroll\"><table class=\"flagged\">\n<thead><tr><th scope=\"col\">Row</th><th scope=\"col\" class=\"num\">T²</th><th scope=\"col\" class=\"num\">SPE</th><th scope=\"col\">Above</th><th scope=\"col\">Largest contributions</th></tr></thead>\n<tbody>\n");
+    out.push_str("<div class=\"sx-scroll\"><table class=\"sx-flagged\">\n<thead><tr><th scope=\"col\">Row</th><th scope=\"col\" class=\"sx-num\">T²</th><th scope=\"col\" class=\"sx-num\">SPE</th><th scope=\"col\">Above</th><th scope=\"col\">Largest contributions</th></tr></thead>\n<tbody>\n");
     for line in view.flagged.iter().take(MAX_FLAGGED_ROWS) {
         flagged_row(out, line);
     }
     out.push_str("</tbody>\n</table></div>\n");
     if view.flagged.len() > MAX_FLAGGED_ROWS {
         out.push_str(&format!(
-            "<p class=\"lede\">The first {MAX_FLAGGED_ROWS} of {} flagged rows are listed; contributions.csv has them all.</p>\n",
+            "<p class=\"sx-lede\">The first {MAX_FLAGGED_ROWS} of {} flagged rows are listed; contributions.csv has them all.</p>\n",
             view.flagged.len()
         ));
     }
@@ -264,14 +264,14 @@ fn flagged_row(out: &mut String, line: &FlaggedLine) {
         }
     };
     out.push_str(&format!(
-        "<tr><th scope=\"row\" class=\"name\">{}</th><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{above}</td><td><ul class=\"contrib\">",
+        "<tr><th scope=\"row\" class=\"sx-name\">{}</th><td class=\"sx-num\">{}</td><td class=\"sx-num\">{}</td><td>{above}</td><td><ul class=\"sx-contrib\">",
         escape(&line.label),
         mark(line.t2_above, line.t2),
         mark(line.spe_above, line.spe),
     ));
     for (feature, t2, spe) in &line.top {
         out.push_str(&format!(
-            "<li><span class=\"name\">{}</span> <span class=\"muted\">T² {} · SPE {}</span></li>",
+            "<li><span class=\"sx-name\">{}</span> <span class=\"sx-muted\">T² {} · SPE {}</span></li>",
             escape(feature),
             significant(*t2, 3),
             significant(*spe, 3)
@@ -293,43 +293,43 @@ fn scores_3d(out: &mut String, s: &Scores3d, flagged: &[FlaggedLine]) {
 
     out.push_str("<section id=\"scores-3d\">\n<h2>Scores on the first three components</h2>\n");
     out.push_str(&format!(
-        "<p class=\"lede\">{} rows on {}, {} and {}.</p>\n",
+        "<p class=\"sx-lede\">{} rows on {}, {} and {}.</p>\n",
         s.points.len(),
         escape(&s.axis_titles[0]),
         escape(&s.axis_titles[1]),
         escape(&s.axis_titles[2])
     ));
-    out.push_str("<noscript><p class=\"note\">The rotating 3-D view needs JavaScript, which is switched off; everything else in this report is shown without it.</p></noscript>\n");
-    out.push_str("<div id=\"sx3d-box\" hidden>\n<p class=\"hint\">Drag to rotate (mouse or touch), or use the arrow keys after selecting the view; double-click or press 0 to reset. Point at a dot to see its row.</p>\n");
+    out.push_str("<noscript><p class=\"sx-note\">The rotating 3-D view needs JavaScript, which is switched off; everything else in this report is shown without it.</p></noscript>\n");
+    out.push_str("<div id=\"sx3d-box\" hidden>\n<p class=\"sx-hint\">Drag to rotate (mouse or touch), or use the arrow keys after selecting the view; double-click or press 0 to reset. Point at a dot to see its row.</p>\n");
     out.push_str(&format!(
         "<canvas id=\"sx3d-canvas\" width=\"640\" height=\"480\" tabindex=\"0\" role=\"img\" aria-label=\"Rotatable scatter of the scores on {}, {} and {}\"></canvas>\n",
         escape(&s.axis_titles[0]),
         escape(&s.axis_titles[1]),
         escape(&s.axis_titles[2])
     ));
-    out.push_str("<p id=\"sx3d-info\" class=\"info\" aria-live=\"polite\"></p>\n");
+    out.push_str("<p id=\"sx3d-info\" class=\"sx-info\" aria-live=\"polite\"></p>\n");
     // The legend.
-    out.push_str("<ul class=\"legend\">");
+    out.push_str("<ul class=\"sx-legend\">");
     if let Some(name) = &colouring.group {
         out.push_str(&format!(
-            "<li class=\"legend-title\">{}:</li>",
+            "<li class=\"sx-legend-title\">{}:</li>",
             escape(name)
         ));
         for (label, colour) in &colouring.legend {
             out.push_str(&format!(
-                "<li><span class=\"sw {}\"></span>{}</li>",
+                "<li><span class=\"sx-sw {}\"></span>{}</li>",
                 swatch_class(colour),
                 escape(label)
             ));
         }
     } else {
         out.push_str(&format!(
-            "<li><span class=\"sw {}\"></span>each row</li>",
+            "<li><span class=\"sx-sw {}\"></span>each row</li>",
             swatch_class(SINGLE_COLOUR)
         ));
     }
     if !flagged_points.is_empty() {
-        out.push_str("<li><span class=\"sw ring\"></span>dark ring: a flagged row</li>");
+        out.push_str("<li><span class=\"sx-sw sx-ring\"></span>dark ring: a flagged row</li>");
     }
     out.push_str("</ul>\n</div>\n");
 
@@ -413,17 +413,17 @@ fn figures(out: &mut String, figures: &[Figure]) {
         out.push_str(&format!("<figure id=\"figure-{number}\">\n"));
         match inline_svg(&f.svg, &format!("sx-f{number}-")) {
             Some(svg) => {
-                out.push_str("<div class=\"svgbox\">\n");
+                out.push_str("<div class=\"sx-svgbox\">\n");
                 out.push_str(&svg);
                 out.push_str("\n</div>\n");
             }
             None => out.push_str(&format!(
-                "<p class=\"note\">This figure could not be shown inline; it is in plots/{}.</p>\n",
+                "<p class=\"sx-note\">This figure could not be shown inline; it is in plots/{}.</p>\n",
                 escape(&f.file)
             )),
         }
         out.push_str(&format!(
-            "<figcaption><span class=\"fignum\">Figure {number}.</span> {} <span class=\"file\">plots/{}</span></figcaption>\n</figure>\n",
+            "<figcaption><span class=\"sx-fignum\">Figure {number}.</span> {} <span class=\"sx-file\">plots/{}</span></figcaption>\n</figure>\n",
             escape(&f.caption),
             escape(&f.file)
         ));
@@ -432,7 +432,7 @@ fn figures(out: &mut String, figures: &[Figure]) {
 }
 
 fn cautions(out: &mut String, cautions: &[String]) {
-    out.push_str("<section id=\"cautions\">\n<h2>Reading these results with care</h2>\n<ul class=\"cautions\">\n");
+    out.push_str("<section id=\"cautions\">\n<h2>Reading these results with care</h2>\n<ul class=\"sx-cautions\">\n");
     for c in cautions {
         out.push_str(&format!("<li>{}</li>\n", with_code(c)));
     }
@@ -440,8 +440,8 @@ fn cautions(out: &mut String, cautions: &[String]) {
 }
 
 fn provenance(out: &mut String, pairs: &[(String, String)]) {
-    out.push_str("<section id=\"provenance\">\n<h2>Provenance</h2>\n<p class=\"lede\">What produced this report. manifest.json beside it records every setting, including defaults, and every file's size and SHA-256.</p>\n");
-    out.push_str("<div class=\"scroll\"><table class=\"provenance\"><tbody>\n");
+    out.push_str("<section id=\"provenance\">\n<h2>Provenance</h2>\n<p class=\"sx-lede\">What produced this report. manifest.json beside it records every setting, including defaults, and every file's size and SHA-256.</p>\n");
+    out.push_str("<div class=\"sx-scroll\"><table class=\"sx-provenance\"><tbody>\n");
     for (what, value) in pairs {
         out.push_str(&format!(
             "<tr><th scope=\"row\">{}</th><td><code>{}</code></td></tr>\n",
@@ -535,8 +535,8 @@ impl Colouring {
 /// The CSS class of a legend swatch of a palette colour.
 fn swatch_class(colour: &str) -> String {
     match PALETTE.iter().position(|c| *c == colour) {
-        Some(i) => format!("c{i}"),
-        None => "c4".to_string(),
+        Some(i) => format!("sx-c{i}"),
+        None => "sx-c4".to_string(),
     }
 }
 
@@ -658,8 +658,8 @@ fn bar(value: f64, widest: f64, negative: bool) -> String {
         0.0
     };
     format!(
-        "<span class=\"bar{}\" style=\"width:{:.1}%\"></span>",
-        if negative { " neg" } else { "" },
+        "<span class=\"sx-bar{}\" style=\"width:{:.1}%\"></span>",
+        if negative { " sx-neg" } else { "" },
         width
     )
 }
@@ -889,65 +889,65 @@ const STYLE: &str = r##":root{--ink:#1f2328;--muted:#57606a;--rule:#d0d7de;--sof
 html{-webkit-text-size-adjust:100%;text-size-adjust:100%}
 body{margin:0;background:#fff;color:var(--ink);font:16px/1.5 system-ui,-apple-system,"Segoe UI",Roboto,"Helvetica Neue",Arial,sans-serif}
 main{max-width:62rem;margin:0 auto;padding:1.5rem 1.25rem 3rem}
-header.top{border-bottom:3px solid var(--accent);padding-bottom:1rem}
-.kicker{margin:0;color:var(--muted);font-size:.8rem;letter-spacing:.06em;text-transform:uppercase}
+header.sx-top{border-bottom:3px solid var(--accent);padding-bottom:1rem}
+.sx-kicker{margin:0;color:var(--muted);font-size:.8rem;letter-spacing:.06em;text-transform:uppercase}
 h1{font-size:1.7rem;line-height:1.25;margin:.25rem 0 .35rem;overflow-wrap:anywhere}
-.notes{white-space:pre-line;color:var(--muted);margin:0 0 .5rem;overflow-wrap:anywhere}
-.facts{list-style:none;margin:.8rem 0 0;padding:0;display:flex;flex-wrap:wrap;gap:.5rem}
-.facts li{background:var(--soft);border-radius:6px;padding:.45rem .75rem;font-size:.9rem;color:var(--muted)}
-.facts .big{display:block;font-size:1.25rem;font-weight:600;color:var(--ink);font-variant-numeric:tabular-nums}
-nav.toc{margin:.8rem 0 0}
-nav.toc ul{list-style:none;margin:0;padding:0;display:flex;flex-wrap:wrap;gap:.2rem 1rem;font-size:.9rem}
-nav.toc a{color:var(--accent);text-decoration:none}
-nav.toc a:hover,nav.toc a:focus{text-decoration:underline}
+.sx-notes{white-space:pre-line;color:var(--muted);margin:0 0 .5rem;overflow-wrap:anywhere}
+.sx-facts{list-style:none;margin:.8rem 0 0;padding:0;display:flex;flex-wrap:wrap;gap:.5rem}
+.sx-facts li{background:var(--soft);border-radius:6px;padding:.45rem .75rem;font-size:.9rem;color:var(--muted)}
+.sx-facts .sx-big{display:block;font-size:1.25rem;font-weight:600;color:var(--ink);font-variant-numeric:tabular-nums}
+nav.sx-toc{margin:.8rem 0 0}
+nav.sx-toc ul{list-style:none;margin:0;padding:0;display:flex;flex-wrap:wrap;gap:.2rem 1rem;font-size:.9rem}
+nav.sx-toc a{color:var(--accent);text-decoration:none}
+nav.sx-toc a:hover,nav.sx-toc a:focus{text-decoration:underline}
 section{margin-top:2.2rem}
 h2{font-size:1.25rem;line-height:1.3;margin:0 0 .6rem;padding-bottom:.25rem;border-bottom:1px solid var(--rule)}
 h3{font-size:1rem;margin:0 0 .4rem}
-.lede{color:var(--muted);font-size:.92rem;margin:.2rem 0 .8rem;max-width:48rem}
-.muted{color:var(--muted);font-weight:400}
-.note{background:var(--soft);border-left:3px solid var(--muted);padding:.5rem .75rem}
-ul.sentences,ul.cautions{padding-left:1.2rem;max-width:52rem}
-ul.sentences li,ul.cautions li{margin:.3rem 0;overflow-wrap:anywhere}
+.sx-lede{color:var(--muted);font-size:.92rem;margin:.2rem 0 .8rem;max-width:48rem}
+.sx-muted{color:var(--muted);font-weight:400}
+.sx-note{background:var(--soft);border-left:3px solid var(--muted);padding:.5rem .75rem}
+ul.sx-sentences,ul.sx-cautions{padding-left:1.2rem;max-width:52rem}
+ul.sx-sentences li,ul.sx-cautions li{margin:.3rem 0;overflow-wrap:anywhere}
 code{font-family:ui-monospace,SFMono-Regular,Menlo,Consolas,"Liberation Mono",monospace;font-size:.88em;background:var(--soft);padding:0 .2em;border-radius:3px}
-.scroll{overflow-x:auto;-webkit-overflow-scrolling:touch}
+.sx-scroll{overflow-x:auto;-webkit-overflow-scrolling:touch}
 table{border-collapse:collapse;font-size:.92rem}
 th,td{padding:.3rem .65rem;text-align:left;vertical-align:top;border-bottom:1px solid var(--rule)}
 thead th{border-bottom:2px solid var(--ink);font-weight:600;white-space:nowrap}
 tbody th{font-weight:600}
-.num{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
-.name{overflow-wrap:break-word}
-tr.kept td,tr.kept th{background:var(--accent-soft)}
-.tag{display:inline-block;font-size:.78rem;padding:0 .45rem;border-radius:999px;background:var(--accent);color:#fff}
-.barcol{width:8rem;min-width:5rem;vertical-align:middle}
-.bar{display:inline-block;height:.6rem;background:var(--accent);border-radius:1px;vertical-align:middle}
-.bar.neg{background:var(--neg)}
-.sr{position:absolute;width:1px;height:1px;overflow:hidden;clip:rect(0 0 0 0);white-space:nowrap}
-.cards{display:grid;grid-template-columns:repeat(auto-fill,minmax(17rem,1fr));gap:1rem}
-.card{border:1px solid var(--rule);border-radius:6px;padding:.75rem .85rem;overflow-x:auto}
-.card table{width:100%}
-.card .barcol{width:5rem}
-table.flagged td{font-size:.9rem}
-ul.contrib{list-style:none;margin:0;padding:0}
-ul.contrib li{margin:0 0 .1rem}
-.hint{color:var(--muted);font-size:.88rem;margin:.2rem 0 .5rem}
+.sx-num{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
+.sx-name{overflow-wrap:break-word}
+tr.sx-kept td,tr.sx-kept th{background:var(--accent-soft)}
+.sx-tag{display:inline-block;font-size:.78rem;padding:0 .45rem;border-radius:999px;background:var(--accent);color:#fff}
+.sx-barcol{width:8rem;min-width:5rem;vertical-align:middle}
+.sx-bar{display:inline-block;height:.6rem;background:var(--accent);border-radius:1px;vertical-align:middle}
+.sx-bar.sx-neg{background:var(--neg)}
+.sx-sr{position:absolute;width:1px;height:1px;overflow:hidden;clip:rect(0 0 0 0);white-space:nowrap}
+.sx-cards{display:grid;grid-template-columns:repeat(auto-fill,minmax(17rem,1fr));gap:1rem}
+.sx-card{border:1px solid var(--rule);border-radius:6px;padding:.75rem .85rem;overflow-x:auto}
+.sx-card table{width:100%}
+.sx-card .sx-barcol{width:5rem}
+table.sx-flagged td{font-size:.9rem}
+ul.sx-contrib{list-style:none;margin:0;padding:0}
+ul.sx-contrib li{margin:0 0 .1rem}
+.sx-hint{color:var(--muted);font-size:.88rem;margin:.2rem 0 .5rem}
 #sx3d-canvas{display:block;width:100%;max-width:46rem;height:auto;border:1px solid var(--rule);border-radius:6px;background:#fff;touch-action:none;cursor:grab}
 #sx3d-canvas:focus{outline:2px solid var(--accent);outline-offset:2px}
-.info{min-height:1.5em;font-size:.9rem;margin:.4rem 0;font-variant-numeric:tabular-nums;overflow-wrap:anywhere}
-.legend{list-style:none;margin:.3rem 0 0;padding:0;display:flex;flex-wrap:wrap;gap:.25rem 1rem;font-size:.88rem}
-.legend-title{font-weight:600}
-.sw{display:inline-block;width:.8rem;height:.8rem;border-radius:50%;margin-right:.35rem;vertical-align:-.08rem;border:1px solid rgba(0,0,0,.4)}
-.sw.ring{background:#fff;border:2px solid #000}
-.c0{background:#E69F00}.c1{background:#56B4E9}.c2{background:#009E73}.c3{background:#F0E442}.c4{background:#0072B2}.c5{background:#D55E00}.c6{background:#CC79A7}.c7{background:#000000}
+.sx-info{min-height:1.5em;font-size:.9rem;margin:.4rem 0;font-variant-numeric:tabular-nums;overflow-wrap:anywhere}
+.sx-legend{list-style:none;margin:.3rem 0 0;padding:0;display:flex;flex-wrap:wrap;gap:.25rem 1rem;font-size:.88rem}
+.sx-legend-title{font-weight:600}
+.sx-sw{display:inline-block;width:.8rem;height:.8rem;border-radius:50%;margin-right:.35rem;vertical-align:-.08rem;border:1px solid rgba(0,0,0,.4)}
+.sx-sw.sx-ring{background:#fff;border:2px solid #000}
+.sx-c0{background:#E69F00}.sx-c1{background:#56B4E9}.sx-c2{background:#009E73}.sx-c3{background:#F0E442}.sx-c4{background:#0072B2}.sx-c5{background:#D55E00}.sx-c6{background:#CC79A7}.sx-c7{background:#000000}
 figure{margin:1.2rem 0;border:1px solid var(--rule);border-radius:6px;padding:.75rem}
-.svgbox{overflow-x:auto}
-.svgbox svg{display:block;max-width:100%;height:auto;margin:0 auto}
+.sx-svgbox{overflow-x:auto}
+.sx-svgbox svg{display:block;max-width:100%;height:auto;margin:0 auto}
 figcaption{font-size:.9rem;color:var(--muted);margin-top:.5rem}
-.fignum{font-weight:600;color:var(--ink)}
-.file{font-family:ui-monospace,SFMono-Regular,Menlo,Consolas,"Liberation Mono",monospace;font-size:.82em;margin-left:.3rem}
-table.provenance th{white-space:nowrap;font-weight:600}
-table.provenance code{word-break:break-all;background:none;padding:0}
-@media (max-width:40rem){body{font-size:15px}main{padding:1rem .75rem 2rem}h1{font-size:1.35rem}th,td{padding:.25rem .4rem}.barcol{width:4rem;min-width:3rem}.facts li{flex:1 1 45%}}
-@media print{body{font-size:10pt}main{max-width:none;padding:0}nav.toc,.hint,.info{display:none}section{margin-top:1.2rem}h2{break-after:avoid}figure,.card,tr{break-inside:avoid}.scroll,.card,.svgbox{overflow:visible}a{color:inherit;text-decoration:none}.facts li,tr.kept td,tr.kept th,.bar,.sw,.tag{-webkit-print-color-adjust:exact;print-color-adjust:exact}#sx3d-canvas{max-width:30rem;break-inside:avoid}}
+.sx-fignum{font-weight:600;color:var(--ink)}
+.sx-file{font-family:ui-monospace,SFMono-Regular,Menlo,Consolas,"Liberation Mono",monospace;font-size:.82em;margin-left:.3rem}
+table.sx-provenance th{white-space:nowrap;font-weight:600}
+table.sx-provenance code{word-break:break-all;background:none;padding:0}
+@media (max-width:40rem){body{font-size:15px}main{padding:1rem .75rem 2rem}h1{font-size:1.35rem}th,td{padding:.25rem .4rem}.sx-barcol{width:4rem;min-width:3rem}.sx-facts li{flex:1 1 45%}}
+@media print{body{font-size:10pt}main{max-width:none;padding:0}nav.sx-toc,.sx-hint,.sx-info{display:none}section{margin-top:1.2rem}h2{break-after:avoid}figure,.sx-card,tr{break-inside:avoid}.sx-scroll,.sx-card,.sx-svgbox{overflow:visible}a{color:inherit;text-decoration:none}.sx-facts li,tr.sx-kept td,tr.sx-kept th,.sx-bar,.sx-sw,.sx-tag{-webkit-print-color-adjust:exact;print-color-adjust:exact}#sx3d-canvas{max-width:30rem;break-inside:avoid}}
 "##;
 
 /// The rotatable 3-D view. It reads its data from the JSON element, shows the
@@ -1338,6 +1338,42 @@ mod tests {
             !html.contains("http:") && !html.contains("https:"),
             "no URL in this view"
         );
+    }
+
+    #[test]
+    fn page_classes_cannot_style_figures() {
+        // Inline SVG shares the page's style sheet: every class the sheet
+        // names carries the sx- prefix, so a figure's own classes ("bar",
+        // "legend", …) are never restyled by it.
+        let bytes = STYLE.as_bytes();
+        for (i, _) in STYLE.match_indices('.') {
+            if bytes.get(i + 1).is_some_and(u8::is_ascii_alphabetic) {
+                assert!(
+                    STYLE[i..].starts_with(".sx-"),
+                    "unprefixed class at {}",
+                    &STYLE[i..i + 20]
+                );
+            }
+        }
+        let html = render(&small_view());
+        let outside_svg: String = html
+            .split("<svg")
+            .enumerate()
+            .map(|(k, part)| {
+                if k == 0 {
+                    part
+                } else {
+                    part.split_once("</svg>").map_or("", |p| p.1)
+                }
+            })
+            .collect();
+        for (i, _) in outside_svg.match_indices(" class=\"") {
+            assert!(
+                outside_svg[i + 8..].starts_with("sx-"),
+                "unprefixed class: {}",
+                &outside_svg[i..i + 30]
+            );
+        }
     }
 
     #[test]

@@ -209,7 +209,8 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
     ));
     s.push(format!("Report {compute} components in the variance and loadings tables (fewer if the data's rank is lower, more if more are kept)."));
     s.push(format!(
-        "Write scores, loadings, variance, preprocessing and a manifest with SHA-256 hashes to `{}`, replacing an earlier folder only if it came from the same recipe and inputs.",
+        "Write scores, loadings, variance, preprocessing, the filled cells, the contributions of flagged rows, the model for scoring new rows, {} plot(s), a report page and a manifest with SHA-256 hashes to `{}`, replacing an earlier folder only if it came from the same recipe and inputs.",
+        raw.plots.len(),
         raw.output.folder.get_ref()
     ));
     s

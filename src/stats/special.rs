@@ -547,3 +547,31 @@ mod tests {
         }
     }
 }
+#[cfg(test)]
+mod debug_tmp {
+    fn cf(a: f64, b: f64, x: f64, n: usize) -> (f64, usize) {
+        let qab = a + b; let qap = a + 1.0; let qam = a - 1.0;
+        let guard = |v: f64| if v.abs() < 1e-300 { 1e-300 } else { v };
+        let mut c = 1.0; let mut d = 1.0 / guard(1.0 - qab * x / qap); let mut h = d;
+        let mut stop = 0;
+        for m in 1..=n {
+            let m = m as f64; let m2 = 2.0 * m;
+            let even = m * (b - m) * x / ((qam + m2) * (a + m2));
+            d = 1.0 / guard(1.0 + even * d); c = guard(1.0 + even / c); h *= d * c;
+            let odd = -(a + m) * (qab + m) * x / ((a + m2) * (qap + m2));
+            d = 1.0 / guard(1.0 + odd * d); c = guard(1.0 + odd / c);
+            let delta = d * c; h *= delta;
+            if stop == 0 && (delta - 1.0).abs() <= f64::EPSILON { stop = m as usize; }
+        }
+        (h, stop)
+    }
+    #[test]
+    fn dbg_case() {
+        let (a, b, x) = (0.5f64, 500000.0f64, 1.08275e-05f64);
+        let y = 1.0 - x;
+        for n in [10, 100, 1000, 3000, 10000, 30000, 100000] {
+            let (h, stop) = cf(b, a, y, n);
+            println!("n {n} cf {h:e} first-stop {stop}");
+        }
+    }
+}

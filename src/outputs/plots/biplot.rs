@@ -108,27 +108,15 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         ));
     }
     scatter::draw_points(&mut body, &panel, &p.xs, &p.ys, &p.sel, &p.groups, view);
-    draw_arrows(&mut body, &panel, &tips, &view.features, ARROW);
-    let items: Vec<(f64, f64, String)> = p
-        .sel
-        .labelled
-        .iter()
-        .map(|&i| {
-            (
-                panel.px(p.xs[i]),
-                panel.py(p.ys[i]),
-                view.row_labels.get(i).cloned().unwrap_or_default(),
-            )
-        })
-        .collect();
-    if !items.is_empty() {
-        scatter::draw_labels(
-            &mut body,
-            "labels",
-            &items,
-            (panel.left, panel.top, panel.right, panel.bottom),
-        );
-    }
+    draw_arrows(
+        &mut body,
+        &panel,
+        &tips,
+        &view.features,
+        ARROW,
+        (panel.left, panel.top, panel.right, panel.bottom),
+    );
+    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
     legend.groups(&p.groups, 5 + if p.sel.density { 9 } else { 0 });

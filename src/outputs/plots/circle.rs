@@ -2,6 +2,7 @@
 //! an arrow inside the unit circle.
 
 use super::frame::{self, Axis, Frame, LABEL_SIZE, Layout, Panel, Step, TOP};
+use super::scatter::{Box2, Placement, Spot, place_labels};
 use super::svg::{self, Anchor, MUTED, N};
 use super::{title, words_number};
 use crate::outputs::view::PlotView;
@@ -13,19 +14,23 @@ const ARROW: &str = "#0072B2";
 
 /// Draws arrows from the origin to each tip, with the feature names beyond the
 /// tips (`arrows` and `arrow-labels` groups, one path and one text per feature).
+/// Names are placed longest arrow first, each where it overlaps the fewest
+/// names already placed, inside `bounds`.
 pub fn draw_arrows(
     out: &mut String,
     panel: &Panel,
     tips: &[(f64, f64)],
     names: &[String],
     colour: &str,
+    bounds: (f64, f64, f64, f64),
 ) {
     let (ox, oy) = (panel.px(0.0), panel.py(0.0));
     let _ = writeln!(
         out,
         "<g class=\"arrows\" fill=\"none\" stroke=\"{colour}\" stroke-width=\"1.2\" stroke-linecap=\"round\">"
     );
-    let mut labels = Vec::new();
+    let mut items: Vec<(f64, Placement)> = Vec::new();
+    let mut obstacles = Vec::new();
     for (j, &(x, y)) in tips.iter().enumerate() {
         let (x, y) = if x.is_finite() && y.is_finite() {
             (x, y)
@@ -34,6 +39,7 @@ pub fn draw_arrows(
         };
         let (tx, ty) = (panel.px(x), panel.py(y));
         svg::arrow(out, ox, oy, tx, ty, 7.0, "");
+        obstacles.push(Box2::around(tx, ty, 2.0));
         let (dx, dy) = (tx - ox, ty - oy);
         let len = (dx * dx + dy * dy).sqrt();
         let (ux, uy) = if len > 1e-9 {
@@ -48,27 +54,31 @@ pub fn draw_arrows(
         } else {
             Anchor::Middle
         };
-        let lx = tx + ux * 5.0;
-        let ly = ty + uy * 5.0 + 0.35 * LABEL_SIZE + uy * 0.45 * LABEL_SIZE;
-        labels.push((lx, ly, anchor, names.get(j).cloned().unwrap_or_default()));
+        let mut spots = Vec::new();
+        for along in [5.0, 14.0] {
+            let lx = tx + ux * along;
+            let ly = ty + uy * along + 0.35 * LABEL_SIZE + uy * 0.45 * LABEL_SIZE;
+            for shift in [0.0, -1.0, 1.0, -2.0, 2.0, -3.0, 3.0] {
+                spots.push(Spot {
+                    x: lx,
+                    y: ly + shift * LABEL_SIZE,
+                    anchor,
+                });
+            }
+        }
+        items.push((
+            len,
+            Placement {
+                text: names.get(j).cloned().unwrap_or_default(),
+                spots,
+            },
+        ));
     }
     out.push_str("</g>\n");
-    let _ = writeln!(
-        out,
-        "<g class=\"arrow-labels\" font-size=\"{}\" fill=\"{colour}\">",
-        N(LABEL_SIZE)
-    );
-    for (x, y, anchor, name) in labels {
-        // Keep names inside the canvas.
-        let w = svg::text_width(&name, LABEL_SIZE);
-        let x = match anchor {
-            Anchor::Start => x.min(f64::from(svg::WIDTH) - 4.0 - w),
-            Anchor::End => x.max(4.0 + w),
-            Anchor::Middle => x.clamp(4.0 + w / 2.0, f64::from(svg::WIDTH) - 4.0 - w / 2.0),
-        };
-        svg::text(out, x, y, anchor, &svg::clip_text(&name, 24), "");
-    }
-    out.push_str("</g>\n");
+    // Longest first (ties by feature order: the sort is stable).
+    items.sort_by(|a, b| b.0.total_cmp(&a.0));
+    let items: Vec<Placement> = items.into_iter().map(|(_, p)| p).collect();
+    place_labels(out, "arrow-labels", colour, &items, &obstacles, bounds);
 }
 
 pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
@@ -145,7 +155,8 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         .take(view.features.len())
         .map(|r| (r[a], r[b]))
         .collect();
-    draw_arrows(&mut body, &panel, &tips, &view.features, ARROW);
+    let canvas = (4.0, f64::from(TOP), f64::from(svg::WIDTH) - 4.0, f64::from(svg::HEIGHT) - 4.0);
+    draw_arrows(&mut body, &panel, &tips, &view.features, ARROW, canvas);
     frame::finish(back, &t, &caption(plan, view), &body)
 }
 

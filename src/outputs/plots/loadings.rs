@@ -110,10 +110,19 @@ fn bars(plan: &PlotPlan, view: &PlotView) -> String {
             &dash,
         );
     }
+    // Its key sits above the plotting area, right-aligned, clear of the bars.
+    svg::line(
+        &mut body,
+        panel.right - 178.0,
+        panel.top - 7.0,
+        panel.right - 160.0,
+        panel.top - 7.0,
+        &dash,
+    );
     svg::text(
         &mut body,
-        panel.right - 4.0,
-        panel.py(reference) - 4.0,
+        panel.right,
+        panel.top - 3.5,
         Anchor::End,
         "±1/√p: all features equal",
         &format!("font-size=\"{}\" fill=\"{MUTED}\"", N(LABEL_SIZE)),
@@ -254,10 +263,11 @@ fn scatter_plot(plan: &PlotPlan, view: &PlotView) -> String {
         items.push((px, py, view.features[j].clone()));
     }
     body.push_str("</g>\n");
+    let marks: Vec<(f64, f64)> = items.iter().map(|i| (i.0, i.1)).collect();
     scatter::draw_labels(
         &mut body,
-        "labels",
         &items,
+        &marks,
         (panel.left, panel.top, panel.right, panel.bottom),
     );
     frame::finish(back, &t, &caption(plan, view), &body)

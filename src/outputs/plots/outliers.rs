@@ -1,9 +1,9 @@
 //! The outlier map: Hotelling's T² against the squared prediction error (SPE)
 //! of each row, with both limits.
 
-use super::frame::{self, Axis, Frame, LABEL_SIZE, padded_range};
+use super::frame::{self, Axis, Frame, padded_range};
 use super::scatter::{self, Groups, Legend, Selection};
-use super::svg::{self, Anchor, MUTED, N, NEUTRAL, Shape};
+use super::svg::{self, MUTED, NEUTRAL, Shape};
 use super::{LEGEND_X, scatter_layout, title, words_number};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
@@ -102,57 +102,21 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     }
     // The limits.
     let rule = format!("stroke=\"{MUTED}\" stroke-width=\"1.2\" stroke-dasharray=\"6 4\"");
-    let small = format!("font-size=\"{}\" fill=\"{MUTED}\"", N(LABEL_SIZE));
     let level = super::percent(view.confidence);
     body.push_str("<g class=\"limits\">\n");
     if let Some(l) = view.t2_limit.filter(|l| l.is_finite()) {
         let x = panel.px(l);
         svg::line(&mut body, x, panel.top, x, panel.bottom, &format!("class=\"t2-limit\" {rule}"));
-        svg::text(
-            &mut body,
-            x + 4.0,
-            panel.top + 12.0,
-            Anchor::Start,
-            &format!("T² limit ({level})"),
-            &small,
-        );
     }
     if let Some(l) = view.spe_limit.filter(|l| l.is_finite()) {
         let y = panel.py(l);
         svg::line(&mut body, panel.left, y, panel.right, y, &format!("class=\"spe-limit\" {rule}"));
-        svg::text(
-            &mut body,
-            panel.right - 4.0,
-            y - 4.0,
-            Anchor::End,
-            &format!("SPE limit ({level})"),
-            &small,
-        );
     }
     body.push_str("</g>\n");
 
     // Points: coloured by which limits they exceed (not by a group column).
     draw_kinds(&mut body, &panel, &p, view);
-    let items: Vec<(f64, f64, String)> = p
-        .sel
-        .labelled
-        .iter()
-        .map(|&i| {
-            (
-                panel.px(p.xs[i]),
-                panel.py(p.ys[i]),
-                view.row_labels.get(i).cloned().unwrap_or_default(),
-            )
-        })
-        .collect();
-    if !items.is_empty() {
-        scatter::draw_labels(
-            &mut body,
-            "labels",
-            &items,
-            (panel.left, panel.top, panel.right, panel.bottom),
-        );
-    }
+    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
     legend.heading("rows");
@@ -164,11 +128,15 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         legend.marker(colour, shape, false, &format!("{} ({})", short(k), p.groups.counts[k]));
     }
     legend.gap();
-    if view.t2_limit.is_none() {
-        legend.note("no T² limit defined");
+    legend.heading(&format!("limits at {level}"));
+    legend.rule(MUTED, Some("6 4"), 1.2, "limit");
+    match view.t2_limit {
+        Some(l) => legend.note(&format!("T²: {}", words_number(l, 4))),
+        None => legend.note("T²: not defined"),
     }
-    if view.spe_limit.is_none() {
-        legend.note("no SPE limit defined");
+    match view.spe_limit {
+        Some(l) => legend.note(&format!("SPE: {}", words_number(l, 4))),
+        None => legend.note("SPE: not defined"),
     }
     if let Some((classes, colours)) = &density {
         legend.gap();

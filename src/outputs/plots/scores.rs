@@ -107,26 +107,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         );
     }
     scatter::draw_points(&mut body, &panel, &p.xs, &p.ys, &p.sel, &p.groups, view);
-    let items: Vec<(f64, f64, String)> = p
-        .sel
-        .labelled
-        .iter()
-        .map(|&i| {
-            (
-                panel.px(p.xs[i]),
-                panel.py(p.ys[i]),
-                view.row_labels.get(i).cloned().unwrap_or_default(),
-            )
-        })
-        .collect();
-    if !items.is_empty() {
-        scatter::draw_labels(
-            &mut body,
-            "labels",
-            &items,
-            (panel.left, panel.top, panel.right, panel.bottom),
-        );
-    }
+    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
     let reserve = 3 + if p.sel.density { 9 } else { 0 } + usize::from(p.ellipse.is_some()) * 2;

@@ -1,0 +1,855 @@
+//! The figures: every plot kind drawn from small hand-made views with known
+//! numbers and from a real run on the demo data. Each SVG must parse as XML,
+//! carry the expected number of marks (found by their class), show the right
+//! axis titles, come out byte-identical twice, switch to a density above the
+//! threshold, and stay small for a million rows.
+
+use sextant::error::Position;
+use sextant::outputs::plots::{self, MAX_INDIVIDUAL};
+use sextant::outputs::view::{Evidence, PlotView};
+use sextant::recipe::plots::PlotPlan;
+use sextant::recipe::raw::{PlotKind, PointLabels};
+use std::fs;
+use std::path::Path;
+use std::process::Command;
+use std::time::Instant;
+
+const BIN: &str = env!("CARGO_BIN_EXE_sextant");
+
+// ---------------------------------------------------------------- views ----
+
+/// A deterministic sequence in [-0.5, 0.5) (a linear congruential generator).
+struct Lcg(u64);
+
+impl Lcg {
+    fn next(&mut self) -> f64 {
+        self.0 = self
+            .0
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        (self.0 >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+    }
+}
+
+const FEATURES: [&str; 5] = ["alpha", "beta", "gamma", "delta", "epsilon"];
+
+/// A view of `n` rows, 5 features, 3 computed and 2 kept components, a
+/// group column "site" with values given in scrambled order, and every
+/// `flag_every`-th row above a limit.
+fn view(n: usize, flag_every: usize) -> PlotView {
+    let eigenvalues = vec![2.0, 1.25, 0.75];
+    let total = 5.0;
+    let mut rng = Lcg(7);
+    let scores: Vec<Vec<f64>> = (0..n)
+        .map(|_| {
+            eigenvalues
+                .iter()
+                .map(|l: &f64| rng.next() * 3.4 * l.sqrt())
+                .collect()
+        })
+        .collect();
+    let loadings = vec![
+        vec![0.6, 0.1, 0.2],
+        vec![0.5, -0.4, 0.1],
+        vec![-0.4, 0.6, 0.3],
+        vec![0.3, 0.5, -0.7],
+        vec![0.37, 0.46, 0.6],
+    ];
+    let correlations: Vec<Vec<f64>> = loadings
+        .iter()
+        .map(|r| {
+            r.iter()
+                .zip(&eigenvalues)
+                .map(|(v, l)| v * l.sqrt())
+                .collect()
+        })
+        .collect();
+    let sites = ["south", "north", "east", "west"];
+    let flagged: Vec<bool> = (0..n).map(|i| i % flag_every == 3).collect();
+    let t2: Vec<f64> = scores
+        .iter()
+        .zip(&flagged)
+        .map(|(s, f)| s[0] * s[0] / 2.0 + s[1] * s[1] / 1.25 + if *f { 12.0 } else { 0.0 })
+        .collect();
+    let spe: Vec<f64> = (0..n).map(|i| 0.2 + (i % 7) as f64 * 0.1).collect();
+    PlotView {
+        features: FEATURES.iter().map(|s| s.to_string()).collect(),
+        n_rows: n,
+        eigenvalues: eigenvalues.clone(),
+        total_variance: total,
+        p: 5,
+        kept: 2,
+        computed: 3,
+        rule: "broken-stick".into(),
+        rule_reason: "components 1 to 2 each explain more than the broken-stick expectation".into(),
+        evidence: Evidence {
+            broken_stick: vec![0.4567, 0.2567, 0.1567],
+            mean_eigenvalue: 1.0,
+            variance_target: None,
+            parallel_thresholds: None,
+            press: None,
+        },
+        loadings,
+        correlations,
+        scores,
+        row_labels: (0..n).map(|i| format!("row-{i:04}")).collect(),
+        groups: vec![(
+            "site".into(),
+            (0..n).map(|i| sites[(i * 7 + i / 3) % 4].to_string()).collect(),
+        )],
+        t2,
+        spe,
+        confidence: 0.95,
+        t2_limit: Some(9.0),
+        spe_limit: Some(0.75),
+        flagged,
+        scaling: "unit-variance".into(),
+    }
+}
+
+fn plan(kind: PlotKind, x: usize, y: usize) -> PlotPlan {
+    PlotPlan {
+        kind,
+        file: format!("{}.svg", kind.name()),
+        title: None,
+        x,
+        y,
+        color: None,
+        labels: PointLabels::Flagged,
+        ellipse: None,
+        density_above: 20_000,
+        at: Position {
+            line: 1,
+            column: 1,
+            line_text: String::new(),
+        },
+    }
+}
+
+fn all_plans() -> Vec<PlotPlan> {
+    let mut scores = plan(PlotKind::Scores, 1, 2);
+    scores.color = Some("site".into());
+    scores.ellipse = Some(0.95);
+    let mut biplot = plan(PlotKind::Biplot, 1, 2);
+    biplot.color = Some("site".into());
+    vec![
+        plan(PlotKind::Scree, 0, 0),
+        scores,
+        plan(PlotKind::Loadings, 1, 0),
+        plan(PlotKind::Loadings, 2, 3),
+        biplot,
+        plan(PlotKind::CorrelationCircle, 1, 3),
+        plan(PlotKind::OutlierMap, 0, 0),
+    ]
+}
+
+// -------------------------------------------------------------- reading ----
+
+fn parse(svg: &str) -> roxmltree::Document<'_> {
+    roxmltree::Document::parse(svg).unwrap_or_else(|e| panic!("not XML: {e}\n{svg}"))
+}
+
+fn has_class(node: &roxmltree::Node, class: &str) -> bool {
+    node.attribute("class")
+        .is_some_and(|c| c.split_whitespace().any(|w| w == class))
+}
+
+/// The elements with a class.
+fn with_class<'a>(doc: &'a roxmltree::Document, class: &str) -> Vec<roxmltree::Node<'a, 'a>> {
+    doc.descendants()
+        .filter(|n| n.is_element() && has_class(n, class))
+        .collect()
+}
+
+/// Shape elements (circle, rect, path, polygon) inside the elements of a class.
+fn marks(doc: &roxmltree::Document, class: &str) -> usize {
+    with_class(doc, class)
+        .iter()
+        .flat_map(|g| g.descendants())
+        .filter(|n| matches!(n.tag_name().name(), "circle" | "rect" | "path" | "polygon"))
+        .count()
+}
+
+/// The texts inside the elements of a class, in order.
+fn texts(doc: &roxmltree::Document, class: &str) -> Vec<String> {
+    with_class(doc, class)
+        .iter()
+        .flat_map(|g| g.descendants())
+        .filter(|n| n.tag_name().name() == "text")
+        .map(|n| n.text().unwrap_or("").trim().to_string())
+        .collect()
+}
+
+/// Every text of the document.
+fn all_texts(doc: &roxmltree::Document) -> Vec<String> {
+    doc.descendants()
+        .filter(|n| n.tag_name().name() == "text")
+        .map(|n| n.text().unwrap_or("").trim().to_string())
+        .collect()
+}
+
+/// Writes an SVG into the folder named by SEXTANT_PLOTS_DUMP, if set, for a
+/// person to look at.
+fn dump(name: &str, svg: &str) {
+    if let Some(dir) = std::env::var_os("SEXTANT_PLOTS_DUMP") {
+        fs::create_dir_all(&dir).unwrap();
+        fs::write(Path::new(&dir).join(name), svg).unwrap();
+    }
+}
+
+fn check_clean(svg: &str, what: &str) {
+    for bad in ["NaN", "inf"] {
+        assert!(!svg.contains(bad), "{what} contains {bad}");
+    }
+}
+
+// ---------------------------------------------------------------- tests ----
+
+#[test]
+fn every_kind_is_an_svg_document_of_the_stated_size() {
+    let v = view(60, 10);
+    for (k, p) in all_plans().iter().enumerate() {
+        let svg = plots::render(p, &v);
+        dump(&format!("small-{k}-{}", p.file), &svg);
+        let doc = parse(&svg);
+        let root = doc.root_element();
+        assert_eq!(root.tag_name().name(), "svg", "{}", p.file);
+        assert_eq!(root.attribute("width"), Some("720"));
+        assert_eq!(root.attribute("height"), Some("540"));
+        assert_eq!(root.attribute("font-family"), Some("sans-serif"));
+        check_clean(&svg, &p.file);
+        // The title is drawn, and the caption is the document's description.
+        let desc = doc
+            .descendants()
+            .find(|n| n.tag_name().name() == "desc")
+            .and_then(|n| n.text())
+            .unwrap_or("");
+        assert_eq!(desc, plots::caption(p, &v), "{}", p.file);
+        assert!(!svg.contains("font-family=\"serif\""));
+        assert!(!svg.contains("@font-face") && !svg.contains("<image"));
+    }
+}
+
+#[test]
+fn two_renders_are_byte_identical() {
+    let v = view(80, 9);
+    for p in all_plans() {
+        assert_eq!(plots::render(&p, &v), plots::render(&p, &v), "{}", p.file);
+        assert_eq!(plots::caption(&p, &v), plots::caption(&p, &v));
+    }
+}
+
+#[test]
+fn scree_marks_bars_kept_components_and_evidence() {
+    let mut v = view(30, 10);
+    let p = plan(PlotKind::Scree, 0, 0);
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    assert_eq!(marks(&doc, "bars"), 3, "one bar per computed component");
+    assert_eq!(with_class(&doc, "kept").len(), 2, "kept bars");
+    assert_eq!(marks(&doc, "cumulative"), 3);
+    assert_eq!(marks(&doc, "broken-stick"), 3);
+    assert!(with_class(&doc, "parallel").is_empty());
+    assert!(with_class(&doc, "press").is_empty());
+    assert!(with_class(&doc, "kaiser").is_empty());
+    assert!(with_class(&doc, "variance-target").is_empty());
+    assert_eq!(with_class(&doc, "kept-rule").len(), 1);
+    assert!(all_texts(&doc).iter().any(|t| t == "k = 2 kept"));
+    assert!(all_texts(&doc).iter().any(|t| t == "cumulative share (%)"));
+    // The cumulative share ends at 80 % of the total (4 of 5): its last marker
+    // sits at 80 on the share axis, which runs 0–105 over the plotting area.
+    let cumulative = with_class(&doc, "cumulative");
+    let last = cumulative[0]
+        .descendants()
+        .filter(|n| n.tag_name().name() == "circle")
+        .last()
+        .unwrap();
+    let y: f64 = last.attribute("cy").unwrap().parse().unwrap();
+    let bars = with_class(&doc, "bar");
+    // The first bar goes from the axis (y = 0) up to eigenvalue 2.
+    let bottom: f64 = {
+        let r = bars[0];
+        r.attribute("y").unwrap().parse::<f64>().unwrap()
+            + r.attribute("height").unwrap().parse::<f64>().unwrap()
+    };
+    assert!(y < bottom, "cumulative marker above the axis");
+
+    // Parallel analysis, PRESS and Kaiser's rule when they are the evidence.
+    v.rule = "kaiser".into();
+    v.evidence.parallel_thresholds = Some(vec![1.4, 1.1, 0.9]);
+    v.evidence.press = Some(vec![10.0, 6.0, 4.5, 4.4]);
+    let doc_svg = plots::render(&p, &v);
+    let doc = parse(&doc_svg);
+    assert_eq!(marks(&doc, "parallel"), 3);
+    assert_eq!(marks(&doc, "press"), 4, "PRESS for k = 0..3");
+    assert_eq!(with_class(&doc, "press-choice").len(), 1);
+    assert_eq!(with_class(&doc, "kaiser").len(), 1);
+    let caption = plots::caption(&p, &v);
+    assert!(caption.contains("parallel-analysis"));
+    assert!(caption.contains("PRESS"));
+    assert!(caption.contains("Kaiser"));
+
+    v.rule = "variance".into();
+    v.evidence.variance_target = Some(0.7);
+    let doc_svg = plots::render(&p, &v);
+    let doc = parse(&doc_svg);
+    assert_eq!(with_class(&doc, "variance-target").len(), 1);
+    assert!(with_class(&doc, "kaiser").is_empty());
+    assert!(all_texts(&doc).iter().any(|t| t == "target 70.0 %"));
+}
+
+#[test]
+fn scores_show_every_row_with_groups_labels_and_ellipse() {
+    let v = view(60, 10);
+    let mut p = plan(PlotKind::Scores, 1, 2);
+    p.color = Some("site".into());
+    p.ellipse = Some(0.95);
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    assert_eq!(marks(&doc, "points"), 60);
+    let flagged = v.flagged.iter().filter(|&&f| f).count();
+    assert_eq!(flagged, 6);
+    assert_eq!(with_class(&doc, "flagged").len(), flagged);
+    let labels = texts(&doc, "labels");
+    assert_eq!(labels.len(), flagged);
+    for (i, _) in v.flagged.iter().enumerate().filter(|(_, f)| **f) {
+        assert!(labels.contains(&v.row_labels[i]));
+    }
+    // Axis titles with the shares: 2/5 and 1.25/5.
+    assert_eq!(v.axis_title(0), "PC1 (40.0 %)");
+    let all = all_texts(&doc);
+    assert!(all.contains(&v.axis_title(0)), "{all:?}");
+    assert!(all.contains(&v.axis_title(1)));
+    // Legend: groups sorted by name, each with its count.
+    let legend = texts(&doc, "legend");
+    let groups: Vec<&String> = legend.iter().filter(|t| t.contains('(')).collect();
+    assert_eq!(groups[0].split(' ').next(), Some("east"));
+    assert_eq!(groups[1].split(' ').next(), Some("north"));
+    assert_eq!(groups[2].split(' ').next(), Some("south"));
+    assert_eq!(groups[3].split(' ').next(), Some("west"));
+    // Okabe & Ito colours in order.
+    let fills: Vec<&str> = with_class(&doc, "group")
+        .iter()
+        .map(|g| g.attribute("fill").unwrap())
+        .collect();
+    for f in &fills {
+        assert!(["#E69F00", "#56B4E9", "#009E73", "#F0E442"].contains(f));
+    }
+    // The ellipse: L from the Phase I limit for 2 components.
+    let l = sextant::stats::limits::t2_limit_phase1(60, 2, 0.95).unwrap();
+    let e = with_class(&doc, "ellipse");
+    assert_eq!(e.len(), 1);
+    let rx: f64 = e[0].attribute("rx").unwrap().parse().unwrap();
+    let ry: f64 = e[0].attribute("ry").unwrap().parse().unwrap();
+    // Equal scaling: the pixel radii keep the ratio √(L·2) : √(L·1.25).
+    let expected = (2.0f64 / 1.25).sqrt();
+    assert!((rx / ry - expected).abs() < 0.01, "{rx} {ry}");
+    let caption = plots::caption(&p, &v);
+    assert!(caption.contains("Hotelling T²"));
+    assert!(
+        caption.contains(&format!("{l:.3}")),
+        "caption should state L = {l}: {caption}"
+    );
+
+    // labels = "all" and "none".
+    p.labels = PointLabels::All;
+    let doc_svg = plots::render(&p, &v);
+    assert_eq!(texts(&parse(&doc_svg), "labels").len(), 60);
+    p.labels = PointLabels::None;
+    let doc_svg = plots::render(&p, &v);
+    assert!(with_class(&parse(&doc_svg), "labels").is_empty());
+}
+
+#[test]
+fn scores_use_equal_scaling() {
+    let v = view(50, 10);
+    let p = plan(PlotKind::Scores, 1, 2);
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    // Two points: pixel distances along x and y per score unit agree.
+    let pts: Vec<(f64, f64)> = with_class(&doc, "points")[0]
+        .descendants()
+        .filter(|n| n.tag_name().name() == "circle")
+        .map(|n| {
+            (
+                n.attribute("cx").unwrap().parse().unwrap(),
+                n.attribute("cy").unwrap().parse().unwrap(),
+            )
+        })
+        .collect();
+    // Without a colour all rows are grey circles drawn in row order.
+    assert_eq!(pts.len(), 50);
+    let unflagged: Vec<usize> = (0..50).filter(|&i| !v.flagged[i]).collect();
+    let (i, j) = (unflagged[0], unflagged[1]);
+    let (a, b) = (pts[0], pts[1]);
+    let sx = (a.0 - b.0) / (v.scores[i][0] - v.scores[j][0]);
+    let sy = -(a.1 - b.1) / (v.scores[i][1] - v.scores[j][1]);
+    assert!((sx - sy).abs() / sx < 0.02, "x {sx} px/unit, y {sy} px/unit");
+    let neutral = with_class(&doc, "group")[0].attribute("fill").unwrap();
+    assert_eq!(neutral, "#8C8C8C");
+}
+
+#[test]
+fn legend_does_not_depend_on_row_order() {
+    let v = view(40, 10);
+    let mut reversed = v.clone();
+    reversed.scores.reverse();
+    reversed.row_labels.reverse();
+    reversed.groups[0].1.reverse();
+    reversed.t2.reverse();
+    reversed.spe.reverse();
+    reversed.flagged.reverse();
+    let mut p = plan(PlotKind::Scores, 1, 2);
+    p.color = Some("site".into());
+    let a = plots::render(&p, &v);
+    let b = plots::render(&p, &reversed);
+    assert_eq!(texts(&parse(&a), "legend"), texts(&parse(&b), "legend"));
+}
+
+#[test]
+fn many_groups_cycle_colours_and_shapes() {
+    let mut v = view(120, 1000);
+    v.groups[0].1 = (0..120).map(|i| format!("g{}", i % 12)).collect();
+    let mut p = plan(PlotKind::Scores, 1, 2);
+    p.color = Some("site".into());
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    // Row 3 is flagged: its group gets a second run on top, so take the
+    // first run of each group.
+    let mut groups = with_class(&doc, "group");
+    groups.dedup_by(|b, a| a.attribute("data-group") == b.attribute("data-group"));
+    let mut seen = std::collections::BTreeSet::new();
+    groups.retain(|g| seen.insert(g.attribute("data-group").unwrap().to_string()));
+    assert_eq!(groups.len(), 12);
+    // Natural order: g0, g1, …, g9, g10, g11.
+    assert_eq!(groups[2].attribute("data-group"), Some("g2"));
+    assert_eq!(groups[10].attribute("data-group"), Some("g10"));
+    // Group 8 repeats group 0's colour with another shape.
+    assert_eq!(groups[8].attribute("fill"), groups[0].attribute("fill"));
+    let first_tag = |g: &roxmltree::Node| {
+        g.children()
+            .find(|n| n.is_element())
+            .unwrap()
+            .tag_name()
+            .name()
+            .to_string()
+    };
+    assert_eq!(first_tag(&groups[0]), "circle");
+    assert_ne!(first_tag(&groups[8]), "circle");
+}
+
+#[test]
+fn loadings_bars_and_scatter() {
+    let v = view(20, 10);
+    let p = plan(PlotKind::Loadings, 1, 0);
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    assert_eq!(marks(&doc, "bars"), 5);
+    assert_eq!(texts(&doc, "tick-labels"), FEATURES);
+    let negative = with_class(&doc, "bars")[0]
+        .children()
+        .filter(|n| n.attribute("fill") == Some("#D55E00"))
+        .count();
+    assert_eq!(negative, 1, "gamma loads negatively on PC1");
+    assert!(all_texts(&doc).contains(&format!("loading on {}", v.axis_title(0))));
+
+    let p = plan(PlotKind::Loadings, 2, 3);
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    assert_eq!(marks(&doc, "points"), 5);
+    let mut labels = texts(&doc, "labels");
+    labels.sort();
+    let mut expected: Vec<String> = FEATURES.iter().map(|s| s.to_string()).collect();
+    expected.sort();
+    assert_eq!(labels, expected);
+    let all = all_texts(&doc);
+    assert!(all.contains(&format!("loading on {}", v.axis_title(1))));
+    assert!(all.contains(&format!("loading on {}", v.axis_title(2))));
+    let caption = plots::caption(&p, &v);
+    assert!(caption.contains("PC3 (15.0 %"), "{caption}");
+}
+
+#[test]
+fn biplot_states_its_scaling_and_draws_it() {
+    let v = view(60, 10);
+    let mut p = plan(PlotKind::Biplot, 1, 2);
+    p.color = Some("site".into());
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    assert_eq!(marks(&doc, "points"), 60);
+    assert_eq!(marks(&doc, "arrows"), 5);
+    let mut names = texts(&doc, "arrow-labels");
+    names.sort();
+    let mut expected: Vec<String> = FEATURES.iter().map(|s| s.to_string()).collect();
+    expected.sort();
+    assert_eq!(names, expected);
+
+    // The stretch, worked out independently: the largest of 1, 2, 2.5, 5 × 10ᵉ
+    // that is at most 0.9 × (largest |unit-variance score|) / (longest arrow).
+    let (l1, l2) = (v.eigenvalues[0].sqrt(), v.eigenvalues[1].sqrt());
+    let reach = v
+        .scores
+        .iter()
+        .flat_map(|s| [(s[0] / l1).abs(), (s[1] / l2).abs()])
+        .fold(0.0, f64::max);
+    let longest = v
+        .loadings
+        .iter()
+        .map(|r| ((r[0] * l1).powi(2) + (r[1] * l2).powi(2)).sqrt())
+        .fold(0.0, f64::max);
+    let raw = 0.9 * reach / longest;
+    let mut best = 0.0;
+    for e in -3..4 {
+        for m in [1.0, 2.0, 2.5, 5.0] {
+            let c = m * 10f64.powi(e);
+            if c <= raw && c > best {
+                best = c;
+            }
+        }
+    }
+    let caption = plots::caption(&p, &v);
+    assert!(caption.contains("Gabriel 1971"), "{caption}");
+    assert!(caption.contains("covariance form"));
+    assert!(caption.contains("divided by √λ"));
+    assert!(caption.contains("multiplied by √λ"));
+    let factor = format!("common factor {}", format_factor(best));
+    assert!(caption.contains(&factor), "{factor} in {caption}");
+
+    // The arrow of the first feature ends at loading × √λ × factor, in the
+    // same pixels per unit as the points.
+    let arrow = with_class(&doc, "arrows")[0]
+        .children()
+        .find(|n| n.tag_name().name() == "path")
+        .unwrap();
+    let d = arrow.attribute("d").unwrap();
+    let nums: Vec<f64> = d
+        .split(|c: char| c == 'M' || c == 'L' || c == ' ')
+        .filter(|s| !s.is_empty())
+        .map(|s| s.parse().unwrap())
+        .collect();
+    let (ox, oy, tx, ty) = (nums[0], nums[1], nums[2], nums[3]);
+    let ux = v.loadings[0][0] * l1 * best;
+    let uy = v.loadings[0][1] * l2 * best;
+    let sx = (tx - ox) / ux;
+    let sy = -(ty - oy) / uy;
+    assert!((sx - sy).abs() / sx < 0.03, "{sx} {sy}");
+    let all = all_texts(&doc);
+    assert!(all.iter().any(|t| t.starts_with(&v.axis_title(0))));
+}
+
+fn format_factor(f: f64) -> String {
+    let s = format!("{f:.2}");
+    s.trim_end_matches('0').trim_end_matches('.').to_string()
+}
+
+#[test]
+fn correlation_circle_has_unit_circle_and_arrows() {
+    let v = view(20, 10);
+    let p = plan(PlotKind::CorrelationCircle, 1, 3);
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    assert_eq!(with_class(&doc, "unit-circle").len(), 1);
+    assert_eq!(marks(&doc, "arrows"), 5);
+    assert_eq!(texts(&doc, "arrow-labels").len(), 5);
+    let all = all_texts(&doc);
+    assert!(all.contains(&format!("correlation with {}", v.axis_title(0))));
+    assert!(all.contains(&format!("correlation with {}", v.axis_title(2))));
+    // Equal axes from −1 to 1: the circle's radius is the same in both.
+    let circle = &with_class(&doc, "unit-circle")[0];
+    let r: f64 = circle.attribute("r").unwrap().parse().unwrap();
+    assert!(r > 150.0);
+    for tick in ["-1", "-0.5", "0", "0.5", "1"] {
+        assert!(all.iter().filter(|t| *t == tick).count() >= 2, "{tick}");
+    }
+}
+
+#[test]
+fn outlier_map_has_limits_or_says_why_not() {
+    let mut v = view(50, 10);
+    let p = plan(PlotKind::OutlierMap, 0, 0);
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    assert_eq!(marks(&doc, "points"), 50);
+    assert_eq!(with_class(&doc, "t2-limit").len(), 1);
+    assert_eq!(with_class(&doc, "spe-limit").len(), 1);
+    assert_eq!(texts(&doc, "labels").len(), 5, "flagged rows labelled");
+    assert!(all_texts(&doc).iter().any(|t| t.starts_with("Hotelling's T²")));
+
+    v.spe_limit = None;
+    let svg = plots::render(&p, &v);
+    let doc = parse(&svg);
+    assert_eq!(with_class(&doc, "t2-limit").len(), 1);
+    assert!(with_class(&doc, "spe-limit").is_empty());
+    let caption = plots::caption(&p, &v);
+    assert!(caption.contains("No SPE limit is defined"), "{caption}");
+    v.t2_limit = None;
+    let svg = plots::render(&p, &v);
+    assert!(with_class(&parse(&svg), "t2-limit").is_empty());
+    assert!(plots::caption(&p, &v).contains("No T² limit is defined"));
+}
+
+#[test]
+fn density_replaces_points_above_the_threshold() {
+    let v = view(5_000, 50);
+    let flagged = v.flagged.iter().filter(|&&f| f).count();
+    for kind in [PlotKind::Scores, PlotKind::Biplot, PlotKind::OutlierMap] {
+        let (x, y) = if kind == PlotKind::OutlierMap {
+            (0, 0)
+        } else {
+            (1, 2)
+        };
+        let mut p = plan(kind, x, y);
+        p.density_above = 1_000;
+        let svg = plots::render(&p, &v);
+        let doc = parse(&svg);
+        assert_eq!(marks(&doc, "points"), flagged, "{}", kind.name());
+        assert_eq!(with_class(&doc, "flagged").len(), flagged);
+        assert!(marks(&doc, "density") > 10, "{}", kind.name());
+        assert!(texts(&doc, "legend").iter().any(|t| t == "rows per square"));
+        assert!(plots::caption(&p, &v).contains("instead of every point"));
+        // At the threshold itself every point is drawn.
+        p.density_above = 5_000;
+        let svg = plots::render(&p, &v);
+        let doc = parse(&svg);
+        assert_eq!(marks(&doc, "points"), 5_000);
+        assert!(with_class(&doc, "density").is_empty());
+    }
+}
+
+#[test]
+fn a_million_rows_render_small_and_fast() {
+    let v = view(1_000_000, 37);
+    let flagged = v.flagged.iter().filter(|&&f| f).count();
+    assert!(flagged > MAX_INDIVIDUAL);
+    for kind in [PlotKind::Scores, PlotKind::Biplot, PlotKind::OutlierMap] {
+        let (x, y) = if kind == PlotKind::OutlierMap {
+            (0, 0)
+        } else {
+            (1, 2)
+        };
+        let mut p = plan(kind, x, y);
+        if kind != PlotKind::OutlierMap {
+            p.color = Some("site".into());
+        }
+        let start = Instant::now();
+        let svg = plots::render(&p, &v);
+        let caption = plots::caption(&p, &v);
+        let took = start.elapsed();
+        eprintln!(
+            "{}: 1,000,000 rows -> {} bytes in {:.2} s",
+            kind.name(),
+            svg.len(),
+            took.as_secs_f64()
+        );
+        dump(&format!("million-{}.svg", kind.name()), &svg);
+        assert!(svg.len() < 1_000_000, "{} bytes", svg.len());
+        assert!(took.as_secs() < 30, "{took:?}");
+        check_clean(&svg, kind.name());
+        let doc = parse(&svg);
+        assert_eq!(marks(&doc, "points"), MAX_INDIVIDUAL);
+        assert!(texts(&doc, "labels").len() <= plots::MAX_FLAGGED_LABELS);
+        assert!(caption.contains(&format!("most extreme of the {flagged} flagged rows")));
+    }
+}
+
+#[test]
+fn degenerate_views_give_no_nan_or_inf() {
+    // All scores zero, one eigenvalue zero, non-finite values in places.
+    let mut v = view(6, 2);
+    for r in &mut v.scores {
+        r.iter_mut().for_each(|s| *s = 0.0);
+    }
+    v.eigenvalues[2] = 0.0;
+    v.t2 = vec![0.0; 6];
+    v.spe = vec![0.0; 6];
+    for p in all_plans() {
+        let svg = plots::render(&p, &v);
+        parse(&svg);
+        check_clean(&svg, &p.file);
+    }
+    let mut w = view(10, 3);
+    w.scores[1][0] = f64::NAN;
+    w.scores[2][1] = f64::INFINITY;
+    w.t2[4] = f64::INFINITY;
+    w.loadings[1][0] = f64::NAN;
+    w.correlations[2][1] = f64::NAN;
+    for p in all_plans() {
+        let svg = plots::render(&p, &w);
+        parse(&svg);
+        check_clean(&svg, &p.file);
+        check_clean(&plots::caption(&p, &w), &p.file);
+    }
+    // An empty view draws a placeholder instead of panicking.
+    let empty = PlotView::default();
+    for p in all_plans() {
+        let svg = plots::render(&p, &empty);
+        parse(&svg);
+        check_clean(&svg, &p.file);
+    }
+}
+
+// ------------------------------------------------------------ real runs ----
+
+fn copy_dir(from: &Path, to: &Path) {
+    fs::create_dir_all(to).unwrap();
+    for entry in fs::read_dir(from).unwrap() {
+        let entry = entry.unwrap();
+        let target = to.join(entry.file_name());
+        if entry.file_type().unwrap().is_dir() {
+            copy_dir(&entry.path(), &target);
+        } else {
+            fs::copy(entry.path(), target).unwrap();
+        }
+    }
+}
+
+const PLOTS: &str = r#"
+[[plot]]
+kind = "scree"
+[[plot]]
+kind = "scores"
+color = "farm"
+ellipse = 0.95
+[[plot]]
+kind = "loadings"
+[[plot]]
+kind = "loadings"
+x = 1
+y = 2
+[[plot]]
+kind = "biplot"
+color = "season"
+[[plot]]
+kind = "correlation-circle"
+[[plot]]
+kind = "outlier-map"
+labels = "all"
+"#;
+
+/// Runs the dairy demo recipe with every plot kind in a fresh copy; returns
+/// the plots/ folder's files (name, text).
+fn run_demo(dir: &Path) -> Vec<(String, String)> {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    copy_dir(&root.join("recipes"), &dir.join("recipes"));
+    copy_dir(&root.join("demo-data"), &dir.join("demo-data"));
+    let base = fs::read_to_string(dir.join("recipes/dairy-march.toml")).unwrap();
+    // The demo recipe's own plots are replaced by one of every kind.
+    let mut doc: toml_edit::DocumentMut = base.parse().unwrap();
+    doc.remove("plot");
+    let recipe = format!("{}\n{PLOTS}", doc.to_string().trim_end());
+    fs::write(dir.join("recipes/every-plot.toml"), recipe).unwrap();
+    let out = Command::new(BIN)
+        .args(["run", "every-plot.toml"])
+        .current_dir(dir.join("recipes"))
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "run failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let toml: toml::Table = base.parse().unwrap();
+    let folder = toml["output"]["folder"].as_str().unwrap().to_string();
+    let plots = dir.join("recipes").join(folder).join("plots");
+    let mut files: Vec<(String, String)> = fs::read_dir(&plots)
+        .unwrap()
+        .map(|e| {
+            let e = e.unwrap();
+            (
+                e.file_name().to_string_lossy().into_owned(),
+                fs::read_to_string(e.path()).unwrap(),
+            )
+        })
+        .collect();
+    files.sort();
+    files
+}
+
+/// "PC1 (40.5 %)" from variance.csv, as the view's axis_title writes it.
+fn shares_from_variance(dir: &Path) -> Vec<String> {
+    let root = dir.join("recipes");
+    let base = fs::read_to_string(root.join("dairy-march.toml")).unwrap();
+    let toml: toml::Table = base.parse().unwrap();
+    let folder = toml["output"]["folder"].as_str().unwrap();
+    let text = fs::read_to_string(root.join(folder).join("variance.csv")).unwrap();
+    let mut lines = text.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let share = header.iter().position(|h| *h == "share").unwrap();
+    lines
+        .enumerate()
+        .map(|(i, l)| {
+            let v: f64 = l.split(',').nth(share).unwrap().parse().unwrap();
+            format!("PC{} ({:.1} %)", i + 1, 100.0 * v)
+        })
+        .collect()
+}
+
+#[test]
+fn the_demo_run_draws_every_kind() {
+    let dir = tempfile::tempdir().unwrap();
+    let files = run_demo(dir.path());
+    let names: Vec<&str> = files.iter().map(|f| f.0.as_str()).collect();
+    assert_eq!(
+        names,
+        [
+            "biplot-pc1-pc2.svg",
+            "correlation-circle-pc1-pc2.svg",
+            "loadings-pc1-pc2.svg",
+            "loadings-pc1.svg",
+            "outlier-map.svg",
+            "scores-pc1-pc2.svg",
+            "scree.svg"
+        ]
+    );
+    let titles = shares_from_variance(dir.path());
+    let rows = 400;
+    let features = 17;
+    for (name, svg) in &files {
+        let doc = parse(svg);
+        check_clean(svg, name);
+        assert!(svg.len() < 200_000, "{name}: {} bytes", svg.len());
+        let all = all_texts(&doc);
+        let has_title = |t: &str| all.iter().any(|x| x.contains(t));
+        match name.as_str() {
+            "scree.svg" => {
+                assert_eq!(marks(&doc, "bars"), 10);
+                assert_eq!(marks(&doc, "broken-stick"), 10);
+            }
+            "scores-pc1-pc2.svg" => {
+                assert_eq!(marks(&doc, "points"), rows);
+                let farms: std::collections::BTreeSet<&str> = with_class(&doc, "group")
+                    .iter()
+                    .map(|g| g.attribute("data-group").unwrap())
+                    .collect();
+                assert_eq!(farms.len(), 6, "six farms");
+                assert_eq!(with_class(&doc, "ellipse").len(), 1);
+                assert!(has_title(&titles[0]) && has_title(&titles[1]), "{all:?}");
+            }
+            "loadings-pc1.svg" => {
+                assert_eq!(marks(&doc, "bars"), features);
+                assert!(has_title(&titles[0]));
+            }
+            "loadings-pc1-pc2.svg" => {
+                assert_eq!(marks(&doc, "points"), features);
+                assert!(has_title(&titles[0]) && has_title(&titles[1]));
+            }
+            "biplot-pc1-pc2.svg" => {
+                assert_eq!(marks(&doc, "points"), rows);
+                assert_eq!(marks(&doc, "arrows"), features);
+                assert!(has_title(&titles[0]) && has_title(&titles[1]));
+            }
+            "correlation-circle-pc1-pc2.svg" => {
+                assert_eq!(marks(&doc, "arrows"), features);
+                assert!(has_title(&titles[0]) && has_title(&titles[1]));
+            }
+            "outlier-map.svg" => {
+                assert_eq!(marks(&doc, "points"), rows);
+                assert_eq!(texts(&doc, "labels").len(), rows, "labels = \"all\"");
+            }
+            _ => unreachable!(),
+        }
+    }
+    // A second run in another folder gives the same bytes.
+    let again = tempfile::tempdir().unwrap();
+    assert_eq!(files, run_demo(again.path()));
+}
