@@ -337,8 +337,13 @@ pub fn apply(
         id: id.as_deref().map(|n| (n, text_of(n))),
         groups: groups.iter().map(|g| (g.as_str(), text_of(g))).collect(),
     };
-    let flagged: Vec<(usize, Vec<(f64, f64)>)> = diagnostics
-        .flagged_rows()
+    let max_rows = source
+        .pointer("/recipe/resolved/diagnostics/contributions_max_rows")
+        .and_then(Value::as_u64)
+        .unwrap_or(1000) as usize;
+    let mut chosen = diagnostics.most_unusual(max_rows);
+    chosen.sort_unstable();
+    let flagged: Vec<(usize, Vec<(f64, f64)>)> = chosen
         .into_iter()
         .map(|i| {
             (

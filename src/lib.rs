@@ -20,4 +20,5 @@ pub mod stages;
 pub mod starter;
 pub mod stats;
 pub mod table;
+pub mod timing;
 pub mod verify;

@@ -56,11 +56,14 @@ pub fn prepare(recipe_path: &Path) -> Result<Prepared, Error> {
 pub fn prepare_recipe(recipe: LoadedRecipe) -> Result<Prepared, Error> {
     let input = input_plan(&recipe);
     let shown = input.file.display().to_string();
+    let t = std::time::Instant::now();
     let bytes = std::fs::read(&input.file).map_err(|source| InputError::Io {
         path: shown.clone(),
         source,
     })?;
+    let t = crate::timing::lap("read the file", t);
     let sha256 = sha256_hex(&bytes);
+    let t = crate::timing::lap("hash the input", t);
     if let Some((expected, at)) = &input.pin {
         if *expected != sha256 {
             return Err(RecipeError {
@@ -78,6 +81,7 @@ pub fn prepare_recipe(recipe: LoadedRecipe) -> Result<Prepared, Error> {
     let header = read_header(&bytes, &shown, input.options.delimiter)?;
     check_names(&recipe, &header)?;
     let table = read_table(&bytes, &shown, &input.options)?;
+    let t = crate::timing::lap("parse the table", t);
     check_ids(&table, input.id.as_deref())?;
     let record = InputRecord {
         path: input.display.clone(),
@@ -87,6 +91,7 @@ pub fn prepare_recipe(recipe: LoadedRecipe) -> Result<Prepared, Error> {
         columns: table.columns.len(),
     };
     let plan = make_plan(&recipe, input, &table)?;
+    crate::timing::lap("check the plan", t);
     Ok(Prepared {
         recipe,
         plan,
@@ -290,14 +295,18 @@ pub struct Computed {
 
 /// Runs every stage and renders the results in memory.
 pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed), Error> {
+    let t = std::time::Instant::now();
     let pre = preprocess(prepared)?;
+    let t = crate::timing::lap("preprocess", t);
     let analysis = analyse(prepared, &pre)?;
+    let t = crate::timing::lap("decompose, choose k, diagnose", t);
     let resolved = resolved_recipe(&prepared.recipe, &prepared.plan.input);
     let resolved_sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
     let fingerprint = (resolved_sha.clone(), vec![prepared.input.sha256.clone()]);
     let mut files = result_files(prepared, &pre, &analysis);
     let model = crate::outputs::model::build(prepared, &pre, &analysis, &resolved_sha);
     files.push(("model.json".into(), crate::outputs::model::to_json(&model)));
+    let t = crate::timing::lap("result tables", t);
     files.extend(figures_and_report(
         prepared,
         &pre,
@@ -305,6 +314,7 @@ pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed)
         &files,
         &resolved_sha,
     )?);
+    crate::timing::lap("plots and report", t);
     let outputs = files
         .iter()
         .map(|(path, bytes)| FileRecord {
@@ -358,7 +368,9 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
     let (manifest_text, digest) = manifest::render(&computed.body, &computed.outputs, &run_info);
     let mut all = computed.files;
     all.push(("manifest.json".to_string(), manifest_text.into_bytes()));
+    let t = std::time::Instant::now();
     write_folder(&prepared.plan.output, &all)?;
+    crate::timing::lap("write the folder", t);
     let notes = lock.stale_note.clone().into_iter().collect();
     drop(lock);
     Ok(RunSummary {
@@ -411,9 +423,12 @@ fn result_files(
     let d = &analysis.decomposition;
     let s = &analysis.selection;
     let z = &pre.scaled.matrix;
-    let flagged: Vec<(usize, Vec<(f64, f64)>)> = analysis
+    // The most unusual flagged rows, written in row order.
+    let mut chosen = analysis
         .diagnostics
-        .flagged_rows()
+        .most_unusual(plan.diagnostics.contributions_max_rows.0.get());
+    chosen.sort_unstable();
+    let flagged: Vec<(usize, Vec<(f64, f64)>)> = chosen
         .into_iter()
         .map(|i| {
             (
@@ -557,7 +572,7 @@ fn steps_json(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> V
             "total_variance": d.total_variance,
             "sign_rule": "the largest-magnitude loading of each component is positive; magnitudes within 1e-9 relative are ties, won by the first feature",
         },
-        "diagnostics": diagnostics_json(&analysis.diagnostics, d.rank, s.kept),
+        "diagnostics": diagnostics_json(&analysis.diagnostics, d.rank, s.kept, plan.diagnostics.contributions_max_rows.0.get()),
         "components": {
             "rule": s.rule,
             "kept": s.kept,
@@ -570,7 +585,7 @@ fn steps_json(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> V
 }
 
 /// The diagnostics' limits and counts, for the manifest.
-fn diagnostics_json(diag: &Diagnostics, rank: usize, kept: usize) -> Value {
+fn diagnostics_json(diag: &Diagnostics, rank: usize, kept: usize, max_rows: usize) -> Value {
     json!({
         "t2": "sum over kept components of score² / eigenvalue",
         "t2_limit": "Tracy, Young & Mason (1992) Beta form for the analysed rows; F form (NIST/SEMATECH e-Handbook 6.5.4.3.4) recorded for new rows",
@@ -580,6 +595,7 @@ fn diagnostics_json(diag: &Diagnostics, rank: usize, kept: usize) -> Value {
         "residual_moments": diag.moments,
         "limits": diag.limits,
         "flagged_rows": diag.flagged_rows().len(),
+        "contributions_written_for": diag.flagged_rows().len().min(max_rows),
         "notes": diag.notes,
     })
 }

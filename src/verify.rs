@@ -229,6 +229,9 @@ fn rerun_and_compare(
         .map_err(|e| crate::error::OutputError::io(&std::env::temp_dir(), e))?;
     for (name, bytes) in &computed.files {
         let path = scratch.path().join(name);
+        if let Some(dir) = path.parent() {
+            fs::create_dir_all(dir).map_err(|e| crate::error::OutputError::io(dir, e))?;
+        }
         fs::write(&path, bytes).map_err(|e| crate::error::OutputError::io(&path, e))?;
         let old = fs::read(folder.join(name)).unwrap_or_default();
         if old != *bytes {

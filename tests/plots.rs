@@ -44,7 +44,11 @@ fn view(n: usize, flag_every: usize) -> PlotView {
         .map(|_| {
             eigenvalues
                 .iter()
-                .map(|l: &f64| rng.next() * 3.4 * l.sqrt())
+                // A sum of four uniforms: bell-shaped, with variance λ.
+                .map(|l: &f64| {
+                    let u = rng.next() + rng.next() + rng.next() + rng.next();
+                    u * 1.732 * l.sqrt()
+                })
                 .collect()
         })
         .collect();
@@ -95,7 +99,9 @@ fn view(n: usize, flag_every: usize) -> PlotView {
         row_labels: (0..n).map(|i| format!("row-{i:04}")).collect(),
         groups: vec![(
             "site".into(),
-            (0..n).map(|i| sites[(i * 7 + i / 3) % 4].to_string()).collect(),
+            (0..n)
+                .map(|i| sites[(i * 7 + i / 3) % 4].to_string())
+                .collect(),
         )],
         t2,
         spe,
@@ -258,21 +264,24 @@ fn scree_marks_bars_kept_components_and_evidence() {
     assert!(all_texts(&doc).iter().any(|t| t == "cumulative share (%)"));
     // The cumulative share ends at 80 % of the total (4 of 5): its last marker
     // sits at 80 on the share axis, which runs 0–105 over the plotting area.
-    let cumulative = with_class(&doc, "cumulative");
-    let last = cumulative[0]
-        .descendants()
-        .filter(|n| n.tag_name().name() == "circle")
-        .last()
+    // The cumulative share ends at 80 % (4 of 5): its last marker sits at 80 on
+    // the share axis, which runs from 0 to 105 over the plotting area (whose
+    // top and bottom the kept rule spans).
+    let rule = with_class(&doc, "kept-rule")[0]
+        .children()
+        .find(|n| n.tag_name().name() == "line")
         .unwrap();
-    let y: f64 = last.attribute("cy").unwrap().parse().unwrap();
-    let bars = with_class(&doc, "bar");
-    // The first bar goes from the axis (y = 0) up to eigenvalue 2.
-    let bottom: f64 = {
-        let r = bars[0];
-        r.attribute("y").unwrap().parse::<f64>().unwrap()
-            + r.attribute("height").unwrap().parse::<f64>().unwrap()
-    };
-    assert!(y < bottom, "cumulative marker above the axis");
+    let num = |n: &roxmltree::Node, a: &str| n.attribute(a).unwrap().parse::<f64>().unwrap();
+    let (top, bottom) = (num(&rule, "y1"), num(&rule, "y2"));
+    let last = with_class(&doc, "cumulative")[0]
+        .descendants()
+        .rfind(|n| n.tag_name().name() == "circle")
+        .unwrap();
+    let expected = bottom - 80.0 / 105.0 * (bottom - top);
+    assert!((num(&last, "cy") - expected).abs() < 0.6, "{expected}");
+    // The first bar reaches eigenvalue 2 from the axis at the bottom.
+    let bar = with_class(&doc, "bar")[0];
+    assert!((num(&bar, "y") + num(&bar, "height") - bottom).abs() < 0.6);
 
     // Parallel analysis, PRESS and Kaiser's rule when they are the evidence.
     v.rule = "kaiser".into();
@@ -384,7 +393,10 @@ fn scores_use_equal_scaling() {
     let (a, b) = (pts[0], pts[1]);
     let sx = (a.0 - b.0) / (v.scores[i][0] - v.scores[j][0]);
     let sy = -(a.1 - b.1) / (v.scores[i][1] - v.scores[j][1]);
-    assert!((sx - sy).abs() / sx < 0.02, "x {sx} px/unit, y {sy} px/unit");
+    assert!(
+        (sx - sy).abs() / sx < 0.02,
+        "x {sx} px/unit, y {sy} px/unit"
+    );
     let neutral = with_class(&doc, "group")[0].attribute("fill").unwrap();
     assert_eq!(neutral, "#8C8C8C");
 }
@@ -523,7 +535,7 @@ fn biplot_states_its_scaling_and_draws_it() {
         .unwrap();
     let d = arrow.attribute("d").unwrap();
     let nums: Vec<f64> = d
-        .split(|c: char| c == 'M' || c == 'L' || c == ' ')
+        .split(['M', 'L', ' '])
         .filter(|s| !s.is_empty())
         .map(|s| s.parse().unwrap())
         .collect();
@@ -573,7 +585,11 @@ fn outlier_map_has_limits_or_says_why_not() {
     assert_eq!(with_class(&doc, "t2-limit").len(), 1);
     assert_eq!(with_class(&doc, "spe-limit").len(), 1);
     assert_eq!(texts(&doc, "labels").len(), 5, "flagged rows labelled");
-    assert!(all_texts(&doc).iter().any(|t| t.starts_with("Hotelling's T²")));
+    assert!(
+        all_texts(&doc)
+            .iter()
+            .any(|t| t.starts_with("Hotelling's T²"))
+    );
 
     v.spe_limit = None;
     let svg = plots::render(&p, &v);
@@ -678,6 +694,15 @@ fn degenerate_views_give_no_nan_or_inf() {
         parse(&svg);
         check_clean(&svg, &p.file);
         check_clean(&plots::caption(&p, &w), &p.file);
+    }
+    // A zero total variance leaves shares undefined, still without NaN.
+    let mut z = view(8, 3);
+    z.total_variance = 0.0;
+    for p in all_plans() {
+        let svg = plots::render(&p, &z);
+        parse(&svg);
+        check_clean(&svg, &p.file);
+        check_clean(&plots::caption(&p, &z), &p.file);
     }
     // An empty view draws a placeholder instead of panicking.
     let empty = PlotView::default();

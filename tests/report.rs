@@ -249,7 +249,7 @@ fn demo_report_is_listed_and_shows_every_part() {
         .unwrap()
         .parse()
         .unwrap();
-    let shown = format!("{:.3}", first_eigenvalue);
+    let shown = format!("{first_eigenvalue:.3}");
     assert!(body.contains(&format!(">{shown}<")), "{shown} in {body}");
 
     // The largest loadings of the two kept components.

@@ -17,15 +17,28 @@ impl Matrix {
         }
     }
 
-    /// Builds a row-major matrix from columns of equal length.
+    /// Builds a row-major matrix from columns of equal length. Rows are filled in
+    /// blocks, with one parallel task per block, so that writes stay within a
+    /// cache-sized stretch of memory (a plain column-by-column copy strides
+    /// through the whole matrix for every value).
     pub fn from_columns(columns: &[Vec<f64>]) -> Matrix {
+        use rayon::prelude::*;
+        const BLOCK: usize = 256;
         let cols = columns.len();
         let rows = columns.first().map_or(0, Vec::len);
         let mut data = vec![0.0; rows * cols];
-        for (j, column) in columns.iter().enumerate() {
-            for (i, &v) in column.iter().enumerate() {
-                data[i * cols + j] = v;
-            }
+        if cols > 0 {
+            data.par_chunks_mut(BLOCK * cols)
+                .enumerate()
+                .for_each(|(b, block)| {
+                    let first = b * BLOCK;
+                    for (j, column) in columns.iter().enumerate() {
+                        for (r, &v) in column[first..first + block.len() / cols].iter().enumerate()
+                        {
+                            block[r * cols + j] = v;
+                        }
+                    }
+                });
         }
         Matrix { rows, cols, data }
     }

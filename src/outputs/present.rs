@@ -221,6 +221,26 @@ pub fn cautions() -> Vec<String> {
     .to_vec()
 }
 
+/// Flagged rows listed in the report, the most unusual first.
+pub const REPORT_FLAGGED_ROWS: usize = 50;
+/// Regularly spaced rows in the rotating view of a large table.
+pub const POINTS_3D: usize = 5_000;
+
+/// The rows the rotating view shows: all of a small table; of a large one, every
+/// k-th row and up to 500 of the most unusual flagged rows, in row order.
+fn rows_for_3d(view: &PlotView, diag: &crate::stages::diagnose::Diagnostics) -> Vec<usize> {
+    let n = view.scores.len();
+    if n <= POINTS_3D {
+        return (0..n).collect();
+    }
+    let stride = n.div_ceil(POINTS_3D);
+    let mut rows: Vec<usize> = (0..n).step_by(stride).collect();
+    rows.extend(diag.most_unusual(500));
+    rows.sort_unstable();
+    rows.dedup();
+    rows
+}
+
 /// The report view; `figures` and `provenance` are filled by the caller.
 pub fn report_view(
     prepared: &Prepared,
@@ -260,7 +280,7 @@ pub fn report_view(
     let diag = &analysis.diagnostics;
     let z = &pre.scaled.matrix;
     let flagged = diag
-        .flagged_rows()
+        .most_unusual(REPORT_FLAGGED_ROWS)
         .into_iter()
         .map(|i| {
             let (t2_above, spe_above) = if diag.limits.is_empty() {
@@ -293,12 +313,36 @@ pub fn report_view(
             }
         })
         .collect();
+    let shown = rows_for_3d(view, diag);
     let scores3d = (s.computed >= 3).then(|| Scores3d {
         axis_titles: [view.axis_title(0), view.axis_title(1), view.axis_title(2)],
-        points: view.scores.iter().map(|r| [r[0], r[1], r[2]]).collect(),
-        labels: view.row_labels.clone(),
-        group: view.groups.first().cloned(),
+        points: shown
+            .iter()
+            .map(|&i| [view.scores[i][0], view.scores[i][1], view.scores[i][2]])
+            .collect(),
+        labels: shown.iter().map(|&i| view.row_labels[i].clone()).collect(),
+        group: view.groups.first().map(|(name, values)| {
+            (
+                name.clone(),
+                shown.iter().map(|&i| values[i].clone()).collect(),
+            )
+        }),
     });
+    let mut summary = summary(prepared, pre, analysis);
+    let all_flagged = diag.flagged_rows().len();
+    if all_flagged > REPORT_FLAGGED_ROWS {
+        summary.push(format!(
+            "The flagged-rows table lists the {REPORT_FLAGGED_ROWS} most unusual of the {all_flagged} flagged rows; scores.csv flags them all."
+        ));
+    }
+    if shown.len() < view.scores.len() {
+        summary.push(format!(
+            "The rotating view shows {} of the {} rows: every {}th row and the most unusual flagged rows.",
+            shown.len(),
+            view.scores.len(),
+            view.scores.len().div_ceil(POINTS_3D)
+        ));
+    }
     ReportView {
         title: prepared
             .plan
@@ -306,7 +350,7 @@ pub fn report_view(
             .clone()
             .unwrap_or_else(|| format!("PCA of {}", prepared.input.path)),
         notes: prepared.plan.notes.clone(),
-        summary: summary(prepared, pre, analysis),
+        summary,
         variance,
         top_loadings,
         confidence: view.confidence,

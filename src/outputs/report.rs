@@ -110,13 +110,14 @@ fn header(out: &mut String, view: &ReportView) {
             percent(share)
         ));
         out.push_str(&format!(
-            "<li><span class=\"sx-big\">{}</span> {} above a T² or SPE limit</li>\n",
+            "<li><span class=\"sx-big\">{}</span> {} above a T² or SPE limit at {} %</li>\n",
             view.flagged.len(),
             if view.flagged.len() == 1 {
                 "row"
             } else {
                 "rows"
-            }
+            },
+            level_label(view.confidence)
         ));
         if !view.figures.is_empty() {
             out.push_str(&format!(
@@ -629,10 +630,9 @@ pub fn percent(share: f64) -> String {
 /// `v` with a fixed number of decimals; never `-0.0`.
 pub fn fixed(v: f64, decimals: usize) -> String {
     let s = format!("{v:.decimals$}");
-    if s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.') {
-        s[1..].to_string()
-    } else {
-        s
+    match s.strip_prefix('-') {
+        Some(magnitude) if magnitude.chars().all(|c| c == '0' || c == '.') => magnitude.to_string(),
+        _ => s,
     }
 }
 
@@ -861,7 +861,10 @@ fn rewrite_tag(text: &str, prefix: &str) -> (String, String, usize) {
 fn rewrite_value(attribute: &str, value: &str, prefix: &str) -> String {
     match attribute.to_ascii_lowercase().as_str() {
         "id" => format!("{prefix}{value}"),
-        "href" | "xlink:href" if value.starts_with('#') => format!("#{prefix}{}", &value[1..]),
+        "href" | "xlink:href" => match value.strip_prefix('#') {
+            Some(id) => format!("#{prefix}{id}"),
+            None => rewrite_urls(value, prefix),
+        },
         "aria-labelledby" | "aria-describedby" => value
             .split_ascii_whitespace()
             .map(|id| format!("{prefix}{id}"))
@@ -922,7 +925,7 @@ tr.sx-kept td,tr.sx-kept th{background:var(--accent-soft)}
 .sx-bar{display:inline-block;height:.6rem;background:var(--accent);border-radius:1px;vertical-align:middle}
 .sx-bar.sx-neg{background:var(--neg)}
 .sx-sr{position:absolute;width:1px;height:1px;overflow:hidden;clip:rect(0 0 0 0);white-space:nowrap}
-.sx-cards{display:grid;grid-template-columns:repeat(auto-fill,minmax(17rem,1fr));gap:1rem}
+.sx-cards{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,21rem),1fr));gap:1rem}
 .sx-card{border:1px solid var(--rule);border-radius:6px;padding:.75rem .85rem;overflow-x:auto}
 .sx-card table{width:100%}
 .sx-card .sx-barcol{width:5rem}
@@ -946,7 +949,7 @@ figcaption{font-size:.9rem;color:var(--muted);margin-top:.5rem}
 .sx-file{font-family:ui-monospace,SFMono-Regular,Menlo,Consolas,"Liberation Mono",monospace;font-size:.82em;margin-left:.3rem}
 table.sx-provenance th{white-space:nowrap;font-weight:600}
 table.sx-provenance code{word-break:break-all;background:none;padding:0}
-@media (max-width:40rem){body{font-size:15px}main{padding:1rem .75rem 2rem}h1{font-size:1.35rem}th,td{padding:.25rem .4rem}.sx-barcol{width:4rem;min-width:3rem}.sx-facts li{flex:1 1 45%}}
+@media (max-width:40rem){body{font-size:15px}main{padding:1rem .75rem 2rem}h1{font-size:1.35rem}th,td{padding:.25rem .4rem}.sx-barcol{width:4rem;min-width:3rem}.sx-facts li{flex:1 1 45%}table.sx-variance .sx-barcol{display:none}}
 @media print{body{font-size:10pt}main{max-width:none;padding:0}nav.sx-toc,.sx-hint,.sx-info{display:none}section{margin-top:1.2rem}h2{break-after:avoid}figure,.sx-card,tr{break-inside:avoid}.sx-scroll,.sx-card,.sx-svgbox{overflow:visible}a{color:inherit;text-decoration:none}.sx-facts li,tr.sx-kept td,tr.sx-kept th,.sx-bar,.sx-sw,.sx-tag{-webkit-print-color-adjust:exact;print-color-adjust:exact}#sx3d-canvas{max-width:30rem;break-inside:avoid}}
 "##;
 

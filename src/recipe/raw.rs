@@ -478,13 +478,31 @@ pub enum CvChoice {
 }
 
 /// `[diagnostics]`: control limits for T² and SPE.
-#[derive(Debug, Clone, Default, Deserialize)]
+#[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct RawDiagnostics {
     #[serde(default)]
     pub confidence: Confidences,
     #[serde(default)]
     pub spe_limit: SpeLimit,
+    /// At most this many flagged rows get their contributions written, the most
+    /// unusual first, so a large table cannot produce a huge file.
+    #[serde(default = "default_contribution_rows")]
+    pub contributions_max_rows: Count,
+}
+
+fn default_contribution_rows() -> Count {
+    Count(NonZeroUsize::new(1000).expect("non-zero"))
+}
+
+impl Default for RawDiagnostics {
+    fn default() -> Self {
+        RawDiagnostics {
+            confidence: Confidences::default(),
+            spe_limit: SpeLimit::default(),
+            contributions_max_rows: default_contribution_rows(),
+        }
+    }
 }
 
 /// The formula for the SPE limit.

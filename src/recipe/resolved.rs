@@ -76,6 +76,7 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
         "diagnostics": {
             "confidence": raw.diagnostics.confidence,
             "spe_limit": raw.diagnostics.spe_limit,
+            "contributions_max_rows": raw.diagnostics.contributions_max_rows,
         },
         "plot": plots_value(recipe, input),
         "output": { "folder": raw.output.folder.get_ref() },

@@ -58,6 +58,29 @@ impl Diagnostics {
         )
     }
 
+    /// How far row `i` lies beyond the first level's limits: the larger of T²/limit
+    /// and SPE/limit (0 where neither limit is defined).
+    pub fn severity(&self, i: usize) -> f64 {
+        let Some(l) = self.limits.first() else {
+            return 0.0;
+        };
+        let t2 = l.t2.map_or(0.0, |u| self.t2[i] / u);
+        let spe = l.spe.map_or(0.0, |u| self.spe[i] / u);
+        t2.max(spe)
+    }
+
+    /// The flagged rows, most unusual first (ties to the lower row), at most `max`.
+    pub fn most_unusual(&self, max: usize) -> Vec<usize> {
+        let mut rows = self.flagged_rows();
+        rows.sort_by(|&a, &b| {
+            self.severity(b)
+                .total_cmp(&self.severity(a))
+                .then(a.cmp(&b))
+        });
+        rows.truncate(max);
+        rows
+    }
+
     /// Rows flagged at any level (the lowest confidence flags the most).
     pub fn flagged_rows(&self) -> Vec<usize> {
         (0..self.t2.len())

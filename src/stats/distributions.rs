@@ -11,7 +11,7 @@
 //! Degrees of freedom and beta shapes may be any real number in (0, 1e10].
 
 use super::solve::increasing_root;
-use super::special::{beta_pq, gamma_pq, ln_gamma_unchecked};
+use super::special::{beta_lambda, beta_pq, gamma_pq, ln_gamma_unchecked};
 use super::{StatsError, check_number, check_parameter, check_probability};
 use std::f64::consts::{FRAC_1_SQRT_2, FRAC_2_SQRT_PI};
 
@@ -236,7 +236,8 @@ fn beta_at(x: f64, a: f64, b: f64) -> (f64, f64) {
     } else if x >= 1.0 {
         (1.0, 0.0)
     } else {
-        let (w, w1, _) = beta_pq(a, b, x, 1.0 - x);
+        let y = 1.0 - x;
+        let (w, w1, _) = beta_pq(a, b, x, y, beta_lambda(a, b, x, y));
         (w, w1)
     }
 }
@@ -264,7 +265,7 @@ fn beta_quantile_pair(p: f64, a: f64, b: f64) -> (f64, f64) {
         return (1.0, 0.0);
     }
     let q = 1.0 - p;
-    let (w, w1, _) = beta_pq(a, b, 0.5, 0.5);
+    let (w, w1, _) = beta_pq(a, b, 0.5, 0.5, 0.5 * (a - b));
     let at_or_below_half = if p <= q { p <= w } else { q >= w1 };
     if at_or_below_half {
         let t = beta_root_below_half(a, b, p, q);
@@ -279,7 +280,8 @@ fn beta_quantile_pair(p: f64, a: f64, b: f64) -> (f64, f64) {
 fn beta_root_below_half(a: f64, b: f64, p: f64, q: f64) -> f64 {
     let lower = p <= q;
     let eval = |t: f64| {
-        let (w, w1, prefactor) = beta_pq(a, b, t, 1.0 - t);
+        let y = 1.0 - t;
+        let (w, w1, prefactor) = beta_pq(a, b, t, y, beta_lambda(a, b, t, y));
         let g = if lower { w - p } else { q - w1 };
         (g, prefactor / (t * (1.0 - t)))
     };
@@ -326,15 +328,18 @@ fn f_at(x: f64, d1: f64, d2: f64) -> (f64, f64) {
     if x.is_infinite() {
         return (1.0, 0.0);
     }
-    // u = d1x/(d1x + d2) and 1 − u = d2/(d1x + d2), each formed without subtraction.
-    let (u, v) = if d1 * x <= d2 {
+    // u = d1x/(d1x + d2) and 1 − u = d2/(d1x + d2), each formed without
+    // subtraction, and λ = d1/2 − (d1 + d2)u/2 = d1(1 − x)/(2(1 + t)) with
+    // t = d1x/d2 (or d2(1 − x)/x/(2(1 + r)) with r = 1/t), which is exact to a few ulps even where u is within rounding of
+    // the mean (F(10⁶, 10⁶) near x = 1).
+    let (u, v, lambda) = if d1 * x <= d2 {
         let t = d1 * x / d2;
-        (t / (1.0 + t), 1.0 / (1.0 + t))
+        (t / (1.0 + t), 1.0 / (1.0 + t), d1 * (1.0 - x) / (2.0 * (1.0 + t)))
     } else {
         let r = d2 / d1 / x;
-        (1.0 / (1.0 + r), r / (1.0 + r))
+        (1.0 / (1.0 + r), r / (1.0 + r), d2 * ((1.0 - x) / x) / (2.0 * (1.0 + r)))
     };
-    let (w, w1, _) = beta_pq(0.5 * d1, 0.5 * d2, u, v);
+    let (w, w1, _) = beta_pq(0.5 * d1, 0.5 * d2, u, v, lambda);
     (w, w1)
 }
 

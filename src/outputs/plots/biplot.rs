@@ -96,8 +96,8 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let (xa, ya) = equal_axes(&layout, xr, yr);
     let panel = layout.panel(xa, ya);
     let t = title(plan, view);
-    let x_title = format!("{}, score / √λ", view.axis_title(a));
-    let y_title = format!("{}, score / √λ", view.axis_title(b));
+    let x_title = format!("{}, score / √λ", super::axis_title(view, a));
+    let y_title = format!("{}, score / √λ", super::axis_title(view, b));
     let back = frame::backdrop(&t, &[Frame::new(layout, &panel, x_title, y_title)]);
 
     let mut body = String::new();
@@ -108,15 +108,16 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         ));
     }
     scatter::draw_points(&mut body, &panel, &p.xs, &p.ys, &p.sel, &p.groups, view);
-    draw_arrows(
+    let names = draw_arrows(
         &mut body,
         &panel,
         &tips,
         &view.features,
         ARROW,
         (panel.left, panel.top, panel.right, panel.bottom),
+        true,
     );
-    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view);
+    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view, &names);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
     legend.groups(&p.groups, 5 + if p.sel.density { 9 } else { 0 });
@@ -158,7 +159,8 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
         words_number(p.stretch, 3),
         words_number(p.stretch, 3),
     );
-    if p.root.0 == 1.0 && view.eigenvalues[a] != 1.0 || p.root.1 == 1.0 && view.eigenvalues[b] != 1.0
+    if p.root.0 == 1.0 && view.eigenvalues[a] != 1.0
+        || p.root.1 == 1.0 && view.eigenvalues[b] != 1.0
     {
         s.push_str(" A component with a zero eigenvalue is drawn unscaled.");
     }

@@ -15,7 +15,7 @@ const ARROW: &str = "#0072B2";
 /// Draws arrows from the origin to each tip, with the feature names beyond the
 /// tips (`arrows` and `arrow-labels` groups, one path and one text per feature).
 /// Names are placed longest arrow first, each where it overlaps the fewest
-/// names already placed, inside `bounds`.
+/// names already placed, inside `bounds`. Returns the boxes the names take.
 pub fn draw_arrows(
     out: &mut String,
     panel: &Panel,
@@ -23,12 +23,10 @@ pub fn draw_arrows(
     names: &[String],
     colour: &str,
     bounds: (f64, f64, f64, f64),
-) {
+    casing: bool,
+) -> Vec<Box2> {
     let (ox, oy) = (panel.px(0.0), panel.py(0.0));
-    let _ = writeln!(
-        out,
-        "<g class=\"arrows\" fill=\"none\" stroke=\"{colour}\" stroke-width=\"1.2\" stroke-linecap=\"round\">"
-    );
+    let mut paths = String::new();
     let mut items: Vec<(f64, Placement)> = Vec::new();
     let mut obstacles = Vec::new();
     for (j, &(x, y)) in tips.iter().enumerate() {
@@ -38,7 +36,7 @@ pub fn draw_arrows(
             (0.0, 0.0)
         };
         let (tx, ty) = (panel.px(x), panel.py(y));
-        svg::arrow(out, ox, oy, tx, ty, 7.0, "");
+        svg::arrow(&mut paths, ox, oy, tx, ty, 7.0, "");
         obstacles.push(Box2::around(tx, ty, 2.0));
         let (dx, dy) = (tx - ox, ty - oy);
         let len = (dx * dx + dy * dy).sqrt();
@@ -74,11 +72,26 @@ pub fn draw_arrows(
             },
         ));
     }
+    if casing {
+        // A white casing under the arrows keeps them visible over points and
+        // density cells.
+        let _ = writeln!(
+            out,
+            "<g class=\"arrow-casing\" fill=\"none\" stroke=\"#FFFFFF\" stroke-width=\"3.4\" stroke-linecap=\"round\" stroke-linejoin=\"round\">"
+        );
+        out.push_str(&paths);
+        out.push_str("</g>\n");
+    }
+    let _ = writeln!(
+        out,
+        "<g class=\"arrows\" fill=\"none\" stroke=\"{colour}\" stroke-width=\"1.2\" stroke-linecap=\"round\">"
+    );
+    out.push_str(&paths);
     out.push_str("</g>\n");
     // Longest first (ties by feature order: the sort is stable).
     items.sort_by(|a, b| b.0.total_cmp(&a.0));
     let items: Vec<Placement> = items.into_iter().map(|(_, p)| p).collect();
-    place_labels(out, "arrow-labels", colour, &items, &obstacles, bounds);
+    place_labels(out, "arrow-labels", colour, &items, &obstacles, &[], bounds)
 }
 
 pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
@@ -107,8 +120,8 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let mut fr = Frame::new(
         layout,
         &panel,
-        format!("correlation with {}", view.axis_title(a)),
-        format!("correlation with {}", view.axis_title(b)),
+        format!("correlation with {}", super::axis_title(view, a)),
+        format!("correlation with {}", super::axis_title(view, b)),
     );
     fr.x_grid = false;
     fr.y_grid = false;
@@ -155,8 +168,21 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         .take(view.features.len())
         .map(|r| (r[a], r[b]))
         .collect();
-    let canvas = (4.0, f64::from(TOP), f64::from(svg::WIDTH) - 4.0, f64::from(svg::HEIGHT) - 4.0);
-    draw_arrows(&mut body, &panel, &tips, &view.features, ARROW, canvas);
+    let canvas = (
+        4.0,
+        f64::from(TOP),
+        f64::from(svg::WIDTH) - 4.0,
+        f64::from(svg::HEIGHT) - 4.0,
+    );
+    draw_arrows(
+        &mut body,
+        &panel,
+        &tips,
+        &view.features,
+        ARROW,
+        canvas,
+        false,
+    );
     frame::finish(back, &t, &caption(plan, view), &body)
 }
 

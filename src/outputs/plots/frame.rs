@@ -190,7 +190,9 @@ impl Axis {
         let first = (lo / s).ceil() as i64;
         let last = (hi / s).floor() as i64;
         let ticks = if last >= first && last - first <= 200 {
-            (first..=last).map(|i| (i as f64 * s, step.label(i))).collect()
+            (first..=last)
+                .map(|i| (i as f64 * s, step.label(i)))
+                .collect()
         } else {
             Vec::new()
         };
@@ -255,7 +257,11 @@ impl Ranged for Axis {
 
     fn map(&self, v: &f64, limit: (i32, i32)) -> i32 {
         let t = self.frac(*v);
-        let t = if t.is_finite() { t.clamp(-10.0, 10.0) } else { 0.0 };
+        let t = if t.is_finite() {
+            t.clamp(-10.0, 10.0)
+        } else {
+            0.0
+        };
         limit.0 + (f64::from(limit.1 - limit.0) * t).round() as i32
     }
 

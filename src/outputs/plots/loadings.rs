@@ -91,7 +91,7 @@ fn bars(plan: &PlotPlan, view: &PlotView) -> String {
         layout,
         &panel,
         String::new(),
-        format!("loading on {}", view.axis_title(a)),
+        format!("loading on {}", super::axis_title(view, a)),
     );
     fr.x_grid = false;
     let back = frame::backdrop(&t, &[fr]);
@@ -111,20 +111,22 @@ fn bars(plan: &PlotPlan, view: &PlotView) -> String {
         );
     }
     // Its key sits above the plotting area, right-aligned, clear of the bars.
+    let key = "±1/√p: all features equal";
+    let key_x = panel.right - svg::text_width(key, LABEL_SIZE) - 6.0;
     svg::line(
         &mut body,
-        panel.right - 178.0,
+        key_x - 20.0,
         panel.top - 7.0,
-        panel.right - 160.0,
+        key_x - 2.0,
         panel.top - 7.0,
         &dash,
     );
     svg::text(
         &mut body,
-        panel.right,
+        key_x,
         panel.top - 3.5,
-        Anchor::End,
-        "±1/√p: all features equal",
+        Anchor::Start,
+        key,
         &format!("font-size=\"{}\" fill=\"{MUTED}\"", N(LABEL_SIZE)),
     );
     body.push_str("</g>\n");
@@ -223,8 +225,8 @@ fn scatter_plot(plan: &PlotPlan, view: &PlotView) -> String {
         &[Frame::new(
             layout,
             &panel,
-            format!("loading on {}", view.axis_title(a)),
-            format!("loading on {}", view.axis_title(b)),
+            format!("loading on {}", super::axis_title(view, a)),
+            format!("loading on {}", super::axis_title(view, b)),
         )],
     );
     let mut body = String::new();
@@ -268,6 +270,7 @@ fn scatter_plot(plan: &PlotPlan, view: &PlotView) -> String {
         &mut body,
         &items,
         &marks,
+        &[],
         (panel.left, panel.top, panel.right, panel.bottom),
     );
     frame::finish(back, &t, &caption(plan, view), &body)

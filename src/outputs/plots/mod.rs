@@ -147,7 +147,7 @@ fn scatter_layout() -> Layout {
     Layout {
         x0: 8,
         y0: TOP,
-        x1: 560,
+        x1: 540,
         y1: HEIGHT as i32 - 8,
         left: 62,
         bottom: 48,
@@ -156,7 +156,7 @@ fn scatter_layout() -> Layout {
 }
 
 /// Left edge of the legend column of [`scatter_layout`].
-const LEGEND_X: f64 = 574.0;
+const LEGEND_X: f64 = 552.0;
 
 /// Axes over the two ranges with one data unit the same length on both, and
 /// the same tick step, so distances and angles read true.
@@ -199,7 +199,22 @@ fn words_number(v: f64, digits: i32) -> String {
     }
 }
 
-/// A percentage with one decimal, e.g. "41.2 %".
+/// The view's axis title ("PC1 (41.2 %)"), or just "PC1" when the share is
+/// not a finite number.
+fn axis_title(view: &PlotView, a: usize) -> String {
+    if view.share(a).is_finite() {
+        view.axis_title(a)
+    } else {
+        format!("PC{}", a + 1)
+    }
+}
+
+/// A percentage with one decimal, e.g. "41.2 %" ("an undefined share" when the
+/// share is not a finite number, e.g. for a zero total variance).
 fn percent(share: f64) -> String {
-    format!("{:.1} %", 100.0 * share)
+    if share.is_finite() {
+        format!("{:.1} %", 100.0 * share)
+    } else {
+        "an undefined share".into()
+    }
 }

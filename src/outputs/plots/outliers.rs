@@ -77,8 +77,16 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let layout = scatter_layout();
     let limits_x: Vec<f64> = view.t2_limit.into_iter().collect();
     let limits_y: Vec<f64> = view.spe_limit.into_iter().collect();
-    let (_, xhi) = padded_range(p.xs.iter().copied(), &[&limits_x[..], &[0.0]].concat(), 0.05);
-    let (_, yhi) = padded_range(p.ys.iter().copied(), &[&limits_y[..], &[0.0]].concat(), 0.05);
+    let (_, xhi) = padded_range(
+        p.xs.iter().copied(),
+        &[&limits_x[..], &[0.0]].concat(),
+        0.05,
+    );
+    let (_, yhi) = padded_range(
+        p.ys.iter().copied(),
+        &[&limits_y[..], &[0.0]].concat(),
+        0.05,
+    );
     let xa = Axis::nice(0.0, xhi, layout.plot_width() / 80.0);
     let ya = Axis::nice(0.0, yhi, layout.plot_height() / 55.0);
     let panel = layout.panel(xa, ya);
@@ -106,17 +114,31 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     body.push_str("<g class=\"limits\">\n");
     if let Some(l) = view.t2_limit.filter(|l| l.is_finite()) {
         let x = panel.px(l);
-        svg::line(&mut body, x, panel.top, x, panel.bottom, &format!("class=\"t2-limit\" {rule}"));
+        svg::line(
+            &mut body,
+            x,
+            panel.top,
+            x,
+            panel.bottom,
+            &format!("class=\"t2-limit\" {rule}"),
+        );
     }
     if let Some(l) = view.spe_limit.filter(|l| l.is_finite()) {
         let y = panel.py(l);
-        svg::line(&mut body, panel.left, y, panel.right, y, &format!("class=\"spe-limit\" {rule}"));
+        svg::line(
+            &mut body,
+            panel.left,
+            y,
+            panel.right,
+            y,
+            &format!("class=\"spe-limit\" {rule}"),
+        );
     }
     body.push_str("</g>\n");
 
     // Points: coloured by which limits they exceed (not by a group column).
     draw_kinds(&mut body, &panel, &p, view);
-    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view);
+    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view, &[]);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
     legend.heading("rows");
@@ -125,7 +147,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
             continue;
         }
         let (colour, shape) = style(k);
-        legend.marker(colour, shape, false, &format!("{} ({})", short(k), p.groups.counts[k]));
+        legend.counted(colour, shape, short(k), p.groups.counts[k]);
     }
     legend.gap();
     legend.heading(&format!("limits at {level}"));
@@ -147,7 +169,12 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
 }
 
 fn short(kind: usize) -> &'static str {
-    ["within limits", "above T² only", "above SPE only", "above both"][kind.min(3)]
+    [
+        "within limits",
+        "over T² only",
+        "over SPE only",
+        "over both",
+    ][kind.min(3)]
 }
 
 fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared, view: &PlotView) {
@@ -170,7 +197,14 @@ fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared, view: &PlotV
         let (_, shape) = style(k);
         let flagged = view.flagged.get(i).copied().unwrap_or(false);
         let extra = if flagged { "class=\"flagged\"" } else { "" };
-        svg::marker(out, shape, panel.px(p.xs[i]), panel.py(p.ys[i]), scatter::MARK, extra);
+        svg::marker(
+            out,
+            shape,
+            panel.px(p.xs[i]),
+            panel.py(p.ys[i]),
+            scatter::MARK,
+            extra,
+        );
     }
     if current.is_some() {
         out.push_str("</g>\n");
@@ -195,7 +229,10 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
             );
         }
         None => {
-            let _ = write!(s, " No T² limit is defined at {level}, so no vertical line is drawn.");
+            let _ = write!(
+                s,
+                " No T² limit is defined at {level}, so no vertical line is drawn."
+            );
         }
     }
     match view.spe_limit {

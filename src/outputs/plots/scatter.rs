@@ -210,9 +210,7 @@ pub fn select(
             is_drawn[i] = true;
         }
     } else {
-        for i in 0..n {
-            is_drawn[i] = finite[i];
-        }
+        is_drawn.copy_from_slice(&finite);
     }
     // Drawing order: unflagged, then flagged on top; by group, then row.
     let mut drawn: Vec<usize> = (0..n).filter(|&i| is_drawn[i]).collect();
@@ -280,7 +278,11 @@ impl Selection {
         match labels {
             PointLabels::None => {}
             PointLabels::All => {
-                let _ = write!(s, " {} points are labelled with their id.", self.labelled.len());
+                let _ = write!(
+                    s,
+                    " {} points are labelled with their id.",
+                    self.labelled.len()
+                );
             }
             PointLabels::Flagged if self.labelled.is_empty() => {}
             PointLabels::Flagged if self.labels_capped > 0 => {
@@ -314,25 +316,38 @@ impl Selection {
 const DENSITY_LIGHT: &str = "#E3E8EE";
 const DENSITY_DARK: &str = "#34495E";
 
-/// Count classes of the density: lower bounds 1, 2, 5, 10, 20, … (or decades
-/// when that gives more than seven classes).
+/// Count classes of the density: lower bounds 1, 2, 5, 10, 20, … up to the
+/// largest count; when that gives more than eight classes, 1, 3, 10, 30, …;
+/// and when that still does, decades.
 pub fn density_classes(max_count: usize) -> Vec<usize> {
-    let mut edges = vec![1usize];
-    let mut k = 0usize;
-    loop {
-        let next = [2usize, 5, 10][k % 3] * 10usize.pow((k / 3) as u32);
-        if next > max_count {
-            break;
+    let max = max_count.max(1);
+    let sequence = |steps: &[usize]| -> Vec<usize> {
+        let mut edges = vec![1usize];
+        let mut scale = 1usize;
+        'outer: loop {
+            for &s in steps {
+                let Some(next) = scale.checked_mul(s) else {
+                    break 'outer;
+                };
+                if next > max {
+                    break 'outer;
+                }
+                edges.push(next);
+            }
+            match scale.checked_mul(10) {
+                Some(s) => scale = s,
+                None => break,
+            }
         }
-        edges.push(next);
-        k += 1;
+        edges
+    };
+    for steps in [&[2usize, 5, 10][..], &[3, 10], &[10]] {
+        let edges = sequence(steps);
+        if edges.len() <= 8 {
+            return edges;
+        }
     }
-    if edges.len() > 7 {
-        edges = std::iter::successors(Some(1usize), |e| e.checked_mul(10))
-            .take_while(|e| *e <= max_count.max(1))
-            .collect();
-    }
-    edges
+    sequence(&[10])
 }
 
 /// The density of the rows not drawn individually, binned in CELL-pixel squares
@@ -508,16 +523,18 @@ pub const HALO: &str =
 
 /// Places labels one after another (in the given order, so the result is
 /// deterministic), each at the spot that overlaps the fewest labels already
-/// placed and `obstacles` (markers) and stays inside `bounds`; ties go to the
-/// earlier spot. Writes them in a group of class `class`.
+/// placed (and `taken`, labels placed before) and `obstacles` (markers) and
+/// stays inside `bounds`; ties go to the earlier spot. Writes them in a group
+/// of class `class` and returns the boxes they take.
 pub fn place_labels(
     out: &mut String,
     class: &str,
     colour: &str,
     items: &[Placement],
     obstacles: &[Box2],
+    taken: &[Box2],
     bounds: (f64, f64, f64, f64),
-) {
+) -> Vec<Box2> {
     let _ = writeln!(
         out,
         "<g class=\"{class}\" font-size=\"{}\" fill=\"{colour}\" {HALO}>",
@@ -526,7 +543,7 @@ pub fn place_labels(
     // Collision checks cost labels × (labels + obstacles); beyond this many
     // pairs labels simply take their first spot.
     let careful = items.len() * (items.len() + obstacles.len()) <= 4_000_000;
-    let mut placed: Vec<Box2> = Vec::new();
+    let mut placed: Vec<Box2> = taken.to_vec();
     let (bx0, by0, bx1, by1) = bounds;
     for item in items {
         let label = svg::clip_text(&item.text, 24);
@@ -556,6 +573,7 @@ pub fn place_labels(
         text(out, spot.x, spot.y, spot.anchor, &label, "");
     }
     out.push_str("</g>\n");
+    placed.split_off(taken.len())
 }
 
 /// The eight spots around a marker at (x, y): right, left, above, below, then
@@ -610,11 +628,13 @@ pub fn spots_around(x: f64, y: f64) -> Vec<Spot> {
 }
 
 /// Labels beside markers: `labelled` are (x, y, text) in pixels; every drawn
-/// marker position in `marks` is kept clear where possible.
+/// marker position in `marks` and every box in `taken` is kept clear where
+/// possible.
 pub fn draw_labels(
     out: &mut String,
     labelled: &[(f64, f64, String)],
     marks: &[(f64, f64)],
+    taken: &[Box2],
     bounds: (f64, f64, f64, f64),
 ) {
     let items: Vec<Placement> = labelled
@@ -628,7 +648,7 @@ pub fn draw_labels(
         .iter()
         .map(|&(x, y)| Box2::around(x, y, MARK))
         .collect();
-    place_labels(out, "labels", INK, &items, &obstacles, bounds);
+    place_labels(out, "labels", INK, &items, &obstacles, taken, bounds);
 }
 
 /// Writes the ids of the selected rows beside their markers.
@@ -639,6 +659,7 @@ pub fn label_rows(
     ys: &[f64],
     sel: &Selection,
     view: &PlotView,
+    taken: &[Box2],
 ) {
     if sel.labelled.is_empty() {
         return;
@@ -657,6 +678,7 @@ pub fn label_rows(
         out,
         &labelled,
         &marks,
+        taken,
         (panel.left, panel.top, panel.right, panel.bottom),
     );
 }
@@ -670,6 +692,14 @@ pub struct Legend {
 }
 
 pub const LEGEND_ROW: f64 = 17.0;
+/// Legend text size in pixels.
+pub const LEGEND_SIZE: f64 = 10.5;
+
+/// How many legend characters fit after a key in a column starting at `x`.
+fn legend_chars(x: f64) -> usize {
+    let room = f64::from(svg::WIDTH) - 6.0 - (x + 18.0);
+    (room / (0.58 * LEGEND_SIZE)).max(4.0) as usize
+}
 
 impl Legend {
     pub fn new(x: f64, y: f64, bottom: f64) -> Legend {
@@ -677,9 +707,14 @@ impl Legend {
         let _ = writeln!(
             body,
             "<g class=\"legend\" font-size=\"{}\" fill=\"{INK}\">",
-            N(11.0)
+            N(LEGEND_SIZE)
         );
         Legend { x, y, bottom, body }
+    }
+
+    /// How many characters fit after a key, up to the canvas edge.
+    pub fn chars(&self) -> usize {
+        legend_chars(self.x)
     }
 
     pub fn rows_left(&self) -> usize {
@@ -690,9 +725,9 @@ impl Legend {
         text(
             &mut self.body,
             self.x,
-            self.y + 11.0,
+            self.y + 10.8,
             Anchor::Start,
-            &svg::clip_text(title, 22),
+            &svg::clip_text(title, legend_chars(self.x) + 1),
             "font-weight=\"bold\"",
         );
         self.y += LEGEND_ROW + 1.0;
@@ -702,9 +737,9 @@ impl Legend {
         text(
             &mut self.body,
             self.x,
-            self.y + 11.0,
+            self.y + 10.8,
             Anchor::Start,
-            &svg::clip_text(note, 26),
+            &svg::clip_text(note, legend_chars(self.x) + 3),
             &format!("fill=\"{MUTED}\""),
         );
         self.y += LEGEND_ROW;
@@ -728,12 +763,20 @@ impl Legend {
         text(
             &mut self.body,
             self.x + 18.0,
-            self.y + 11.0,
+            self.y + 10.8,
             Anchor::Start,
-            &svg::clip_text(label, 22),
+            &svg::clip_text(label, legend_chars(self.x)),
             "",
         );
         self.y += LEGEND_ROW;
+    }
+
+    /// A marker entry "name (count)": the count is never cut, a long name is.
+    pub fn counted(&mut self, colour: &str, shape: Shape, name: &str, count: usize) {
+        let count = format!(" ({count})");
+        let room = self.chars().saturating_sub(count.chars().count()).max(3);
+        let label = format!("{}{count}", svg::clip_text(name, room));
+        self.marker(colour, shape, false, &label);
     }
 
     /// An entry with a short line sample (for rules and curves).
@@ -750,9 +793,9 @@ impl Legend {
         text(
             &mut self.body,
             self.x + 18.0,
-            self.y + 11.0,
+            self.y + 10.8,
             Anchor::Start,
-            &svg::clip_text(label, 22),
+            &svg::clip_text(label, legend_chars(self.x)),
             "",
         );
         self.y += LEGEND_ROW;
@@ -771,9 +814,9 @@ impl Legend {
         text(
             &mut self.body,
             self.x + 18.0,
-            self.y + 11.0,
+            self.y + 10.8,
             Anchor::Start,
-            &svg::clip_text(label, 22),
+            &svg::clip_text(label, legend_chars(self.x)),
             "",
         );
         self.y += LEGEND_ROW;
@@ -794,12 +837,7 @@ impl Legend {
         let shown = if total <= room { total } else { room - 1 };
         for g in 0..shown {
             let (colour, shape) = groups.style(g);
-            let label = format!(
-                "{} ({})",
-                svg::clip_text(&groups.names[g], 16),
-                groups.counts[g]
-            );
-            self.marker(colour, shape, false, &label);
+            self.counted(colour, shape, &groups.names[g], groups.counts[g]);
         }
         if shown < total {
             self.note(&format!("… and {} more groups", total - shown));
@@ -843,6 +881,9 @@ mod tests {
     fn classes() {
         assert_eq!(density_classes(1), [1]);
         assert_eq!(density_classes(37), [1, 2, 5, 10, 20]);
-        assert_eq!(density_classes(5000), [1, 10, 100, 1000]);
+        assert_eq!(density_classes(300), [1, 2, 5, 10, 20, 50, 100, 200]);
+        assert_eq!(density_classes(600), [1, 3, 10, 30, 100, 300]);
+        assert_eq!(density_classes(5000), [1, 3, 10, 30, 100, 300, 1000, 3000]);
+        assert_eq!(density_classes(50_000), [1, 10, 100, 1000, 10_000]);
     }
 }

@@ -63,8 +63,8 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         &[Frame::new(
             layout,
             &panel,
-            view.axis_title(a),
-            view.axis_title(b),
+            super::axis_title(view, a),
+            super::axis_title(view, b),
         )],
     );
 
@@ -107,7 +107,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         );
     }
     scatter::draw_points(&mut body, &panel, &p.xs, &p.ys, &p.sel, &p.groups, view);
-    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view);
+    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view, &[]);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
     let reserve = 3 + if p.sel.density { 9 } else { 0 } + usize::from(p.ellipse.is_some()) * 2;
@@ -161,7 +161,7 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
         Some(Ok((l, _, _))) => {
             let _ = write!(
                 s,
-                " The dashed ellipse is the Hotelling T² limit at {} for these two components alone: t{}²/λ{} + t{}²/λ{} = L with L = {} (the Phase I limit of Tracy, Young and Mason for n = {} rows and 2 components). It is not the limit that flags rows, which uses all {} kept components, so a flagged row may lie inside it.",
+                " The dashed ellipse is the Hotelling T² limit at {} for these two components alone: t{}²/λ{} + t{}²/λ{} = L with L = {} (the Phase I limit of Tracy, Young and Mason for n = {} rows and 2 components). Rows are flagged by T² over the {} kept components and by SPE, not by this ellipse, so a flagged row may lie inside it.",
                 super::percent(plan.ellipse.unwrap_or(0.0)),
                 plan.x,
                 plan.x,

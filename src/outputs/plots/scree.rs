@@ -4,7 +4,7 @@
 //! Kaiser's mean eigenvalue, the variance target, and PRESS in a lower panel).
 
 use super::frame::{self, Axis, Frame, LABEL_SIZE, Layout, Panel, Step, TOP};
-use super::scatter::{Legend, MARK};
+use super::scatter::{HALO, Legend, MARK};
 use super::svg::{self, Anchor, HEIGHT, INK, MUTED, N, Shape, blend};
 use super::{title, words_number};
 use crate::outputs::view::PlotView;
@@ -47,7 +47,11 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let total = view.total_variance;
     let ev = &view.evidence;
     let press = ev.press.as_ref().filter(|p| !p.is_empty());
-    let bottom_main = if press.is_some() { 352 } else { HEIGHT as i32 - 8 };
+    let bottom_main = if press.is_some() {
+        352
+    } else {
+        HEIGHT as i32 - 8
+    };
     let main = Layout {
         x0: 8,
         y0: TOP,
@@ -103,14 +107,16 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
 
     let mut press_panel = None;
     if let Some(press) = press {
+        // The same plotting box as the main panel's, without a right axis
+        // (plotters would repeat the left one there).
         let layout = Layout {
             x0: 8,
             y0: 372,
-            x1: LEGEND_X as i32 - 8,
+            x1: LEGEND_X as i32 - 8 - 58,
             y1: HEIGHT as i32 - 8,
             left: 62,
             bottom: 42,
-            right: 58,
+            right: 0,
         };
         let last = press.len() - 1;
         let px = component_axis(x_lo.min(-0.5), x_hi.max(last as f64 + 0.5), 0, last);
@@ -179,7 +185,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
 
     // Rules drawn as horizontal lines.
     body.push_str("<g class=\"rules\">\n");
-    let small = format!("font-size=\"{}\" fill=\"{MUTED}\"", N(LABEL_SIZE));
+    let small = format!("font-size=\"{}\" fill=\"{MUTED}\" {HALO}", N(LABEL_SIZE));
     if kaiser && ev.mean_eigenvalue.is_finite() {
         let y = panel.py(ev.mean_eigenvalue);
         svg::line(
@@ -188,7 +194,9 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
             y,
             panel.right,
             y,
-            &format!("class=\"kaiser\" stroke=\"{RULE}\" stroke-width=\"1.4\" stroke-dasharray=\"6 3\""),
+            &format!(
+                "class=\"kaiser\" stroke=\"{RULE}\" stroke-width=\"1.4\" stroke-dasharray=\"6 3\""
+            ),
         );
         svg::text(
             &mut body,
@@ -213,9 +221,9 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         );
         svg::text(
             &mut body,
-            panel.left + 4.0,
+            panel.right - 4.0,
             y - 4.0,
-            Anchor::Start,
+            Anchor::End,
             &format!("target {}", super::percent(target)),
             &small,
         );
@@ -268,16 +276,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
 
     // PRESS panel.
     if let (Some(pp), Some(press)) = (&press_panel, press) {
-        series(
-            &mut body,
-            "press",
-            pp,
-            press,
-            0,
-            INK,
-            Shape::Circle,
-            None,
-        );
+        series(&mut body, "press", pp, press, 0, INK, Shape::Circle, None);
         if let Some(v) = press.get(view.kept).filter(|v| v.is_finite()) {
             let _ = writeln!(
                 body,
@@ -294,7 +293,13 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     legend.heading("components");
     legend.swatch(BAR, "eigenvalue, kept");
     legend.swatch(&blend("#FFFFFF", BAR, 0.32), "eigenvalue, not kept");
-    legend_series(&mut legend, CUMULATIVE, None, Shape::Circle, "cumulative share");
+    legend_series(
+        &mut legend,
+        CUMULATIVE,
+        None,
+        Shape::Circle,
+        "cumulative share",
+    );
     legend.gap();
     legend.heading("evidence for k");
     legend_series(
@@ -379,7 +384,8 @@ fn legend_series(legend: &mut Legend, colour: &str, dash: Option<&str>, shape: S
 pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
     let ev = &view.evidence;
     let m = view.eigenvalues.len();
-    let cumulative: f64 = view.eigenvalues.iter().take(view.kept).sum::<f64>() / view.total_variance;
+    let cumulative: f64 =
+        view.eigenvalues.iter().take(view.kept).sum::<f64>() / view.total_variance;
     let mut s = format!(
         "{}. Bars are the eigenvalues of the {m} computed components (left axis); the vermilion line is the cumulative share of the total variance (right axis). The first {} components are kept (dark bars, dotted rule after bar {}), together explaining {} of the variance; the {} rule chose them: {}.",
         title(plan, view),

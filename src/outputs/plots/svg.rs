@@ -201,7 +201,13 @@ pub fn marker(out: &mut String, shape: Shape, x: f64, y: f64, r: f64, extra: &st
     };
     match shape {
         Shape::Circle => {
-            let _ = write!(out, "<circle cx=\"{}\" cy=\"{}\" r=\"{}\"", N(x), N(y), N(r));
+            let _ = write!(
+                out,
+                "<circle cx=\"{}\" cy=\"{}\" r=\"{}\"",
+                N(x),
+                N(y),
+                N(r)
+            );
             tail(out);
         }
         Shape::Square => {

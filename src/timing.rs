@@ -1,0 +1,13 @@
+//! Optional stage timings on standard error, for profiling: set the environment
+//! variable `SEXTANT_TIMING=1`. Nothing here touches any result.
+
+use std::time::Instant;
+
+/// Prints how long `what` took since `since`, when timings are asked for, and
+/// returns a new starting point.
+pub fn lap(what: &str, since: Instant) -> Instant {
+    if std::env::var_os("SEXTANT_TIMING").is_some() {
+        eprintln!("timing {:>8.3} s  {what}", since.elapsed().as_secs_f64());
+    }
+    Instant::now()
+}
