@@ -90,8 +90,8 @@ pub enum Command {
         results: PathBuf,
         /// The new table (CSV or TSV with a header row).
         table: PathBuf,
-        /// Where to write the scores [default: <results>-apply-<table name> beside
-        /// the results folder].
+        /// Where to write the scores [default: a folder beside the results folder,
+        /// named RESULTS-apply-TABLE after both].
         #[arg(long, value_name = "FOLDER")]
         out: Option<PathBuf>,
         /// Replace an existing folder made from another model or table.
@@ -115,9 +115,10 @@ pub enum Command {
     New {
         /// The table to inspect (CSV or TSV with a header row).
         data: PathBuf,
-        /// Where to write the recipe: a file, or an existing folder to put
-        /// <data name>.toml in [default: <data name>.toml in the current folder,
-        /// so a read-only data folder is never written to].
+        /// Where to write the recipe: a file, or an existing folder to put NAME.toml
+        /// in, NAME being the table's file name without extension [default:
+        /// NAME.toml in the current folder, so a read-only data folder is never
+        /// written to].
         #[arg(short, long, value_name = "RECIPE")]
         output: Option<PathBuf>,
         /// Replace an existing recipe file.

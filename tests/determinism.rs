@@ -179,7 +179,7 @@ fn a_stale_lock_is_detected_and_explained() {
     );
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(
-        text.contains(&format!("removed a stale lock")) && text.contains(&pid.to_string()),
+        text.contains("removed a stale lock") && text.contains(&pid.to_string()),
         "{text}"
     );
     assert!(

@@ -45,7 +45,7 @@ impl Check {
             self.worst = r;
             self.worst_at = what.clone();
         }
-        if !(r <= tolerance) {
+        if r.is_nan() || r > tolerance {
             self.failures
                 .push(format!("{what}: got {got:e}, expected {expected:e}, relative error {r:.2e} > {tolerance:.0e}"));
         }

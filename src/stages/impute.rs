@@ -12,10 +12,11 @@
 //! the tolerance. The fit uses the decomposition Z = Σₛ dₛ uₛ vₛᵀ:
 //! - the plain EM variant keeps the first S terms as they are;
 //! - the regularized variant (the paper's default) shrinks each kept singular
-//!   value, dₛ → dₛ (1 − n σ̂² / dₛ²), where σ̂² = Σ_{s>S} dₛ² / (np − p − nS − pS
-//!   + S² + S) estimates the noise variance per cell with the degrees of freedom
-//!   of the paper. Shrinking keeps noise out of the filled values, which the EM
-//!   fit overfits when S is large or many cells are missing.
+//!   value, dₛ → dₛ (1 − n σ̂² / dₛ²), where
+//!   σ̂² = Σ_{s>S} dₛ² / (np − p − nS − pS + S² + S) estimates the noise variance
+//!   per cell with the degrees of freedom of the paper. Shrinking keeps noise
+//!   out of the filled values, which the EM fit overfits when S is large or many
+//!   cells are missing.
 //!
 //! **Nearest neighbours.** Each feature is standardised by its observed mean and
 //! standard deviation. For a row with a missing cell, the distance to another
@@ -275,29 +276,6 @@ pub fn knn(columns: &mut [Vec<f64>], k: usize) {
     }
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn knn_takes_the_nearest_rows_and_breaks_ties_by_row() {
-        let nan = f64::NAN;
-        // Row 0 misses b; on a (mean 0) rows 1 and 2 are exactly equally near;
-        // k = 1 takes row 1, the lower row number.
-        let table = || {
-            vec![
-                vec![0.0, 2.0, -2.0, 4.0, -4.0],
-                vec![nan, 5.0, 7.0, 100.0, 100.0],
-            ]
-        };
-        let mut cols = table();
-        knn(&mut cols, 1);
-        assert_eq!(cols[1][0], 5.0);
-        let mut cols = table();
-        knn(&mut cols, 2);
-        assert_eq!(cols[1][0], 6.0);
-    }
-}
 
 /// Fills the missing cells (`NaN`) of one new row from an imputation model: the
 /// row's scores are fitted by least squares to its observed cells, and the
@@ -407,4 +385,28 @@ pub fn fill_row_from_reference(row: &mut [f64], reference: &[Vec<f64>], k: usize
         };
     }
     Some(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn knn_takes_the_nearest_rows_and_breaks_ties_by_row() {
+        let nan = f64::NAN;
+        // Row 0 misses b; on a (mean 0) rows 1 and 2 are exactly equally near;
+        // k = 1 takes row 1, the lower row number.
+        let table = || {
+            vec![
+                vec![0.0, 2.0, -2.0, 4.0, -4.0],
+                vec![nan, 5.0, 7.0, 100.0, 100.0],
+            ]
+        };
+        let mut cols = table();
+        knn(&mut cols, 1);
+        assert_eq!(cols[1][0], 5.0);
+        let mut cols = table();
+        knn(&mut cols, 2);
+        assert_eq!(cols[1][0], 6.0);
+    }
 }

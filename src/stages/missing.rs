@@ -230,7 +230,7 @@ pub fn handle_missing(
                 ));
             }
         }
-        filled_cells.sort_by(|a, b| a.row.cmp(&b.row));
+        filled_cells.sort_by_key(|c| c.row);
     }
     if data.n_rows() < 2 {
         return Err(InputError::TooFewRows {

@@ -168,8 +168,8 @@ pub fn chi2_sf(x: f64, df: f64) -> Result<f64, StatsError> {
 
 /// χ² quantile: the x with P(X ≤ x) = p, for p in [0, 1] and df in (0, 1e10].
 ///
-/// Starting points: Wilson & Hilferty (1931), *PNAS* 17:684–688, x ≈ ν(1 − 2/(9ν)
-/// + z√(2/(9ν)))³, and, for the lower tail, the leading term of the series,
+/// Starting points: Wilson & Hilferty (1931), *PNAS* 17:684–688,
+/// x ≈ ν(1 − 2/(9ν) + z√(2/(9ν)))³, and, for the lower tail, the leading term of the series,
 /// P(a, t) ≈ tᵃ/Γ(a + 1). They are refined by safeguarded Newton steps on
 /// P(x) − p (or on the upper tail when p > ½) to full precision; see the `solve`
 /// module.
