@@ -185,10 +185,10 @@ pub fn chi2_quantile(p: f64, df: f64) -> Result<f64, StatsError> {
     let a = 0.5 * df;
     let q = 1.0 - p;
     let lower = p <= q;
+    let (ln_p, ln_q) = (libm::log(p), libm::log(q));
     let eval = |x: f64| {
         let (pp, qq, prefactor) = gamma_pq(a, 0.5 * x);
-        let g = if lower { pp - p } else { q - qq };
-        (g, prefactor / x)
+        log_tail_gap(lower, pp, qq, ln_p, ln_q, prefactor / x)
     };
     let z = as241(p);
     let c = 2.0 / (9.0 * df);
@@ -202,11 +202,24 @@ pub fn chi2_quantile(p: f64, df: f64) -> Result<f64, StatsError> {
     Ok(increasing_root(
         eval,
         0.0,
-        -p,
+        f64::NEG_INFINITY,
         f64::INFINITY,
-        q,
+        f64::INFINITY,
         &[wilson_hilferty, series],
     ))
+}
+
+/// The function whose root is a quantile, in log space: ln F(x) − ln p when the
+/// lower tail is matched (p ≤ ½), ln(1 − p) − ln S(x) otherwise, with its
+/// derivative density/tail. Both are increasing in x. Newton steps on the
+/// logarithm converge in a few steps even 300 decades into a tail, where Newton
+/// on F(x) − p itself would crawl by one e-fold per step.
+fn log_tail_gap(lower: bool, cdf: f64, sf: f64, ln_p: f64, ln_q: f64, density: f64) -> (f64, f64) {
+    if lower {
+        (libm::log(cdf) - ln_p, density / cdf)
+    } else {
+        (ln_q - libm::log(sf), density / sf)
+    }
 }
 
 /// Beta CDF Iₓ(a, b) (regularized incomplete beta, [`super::beta_inc`]); x ≤ 0
@@ -279,11 +292,11 @@ fn beta_quantile_pair(p: f64, a: f64, b: f64) -> (f64, f64) {
 /// The t in (0, ½] with Iₜ(a, b) = p (q = 1 − p), given that one exists.
 fn beta_root_below_half(a: f64, b: f64, p: f64, q: f64) -> f64 {
     let lower = p <= q;
+    let (ln_p, ln_q) = (libm::log(p), libm::log(q));
     let eval = |t: f64| {
         let y = 1.0 - t;
         let (w, w1, prefactor) = beta_pq(a, b, t, y, beta_lambda(a, b, t, y));
-        let g = if lower { w - p } else { q - w1 };
-        (g, prefactor / (t * (1.0 - t)))
+        log_tail_gap(lower, w, w1, ln_p, ln_q, prefactor / (t * y))
     };
     let (g_half, _) = eval(0.5);
     if g_half <= 0.0 {
@@ -296,8 +309,10 @@ fn beta_root_below_half(a: f64, b: f64, p: f64, q: f64) -> f64 {
         f64::NAN
     };
     let s = a + b;
-    let normal = a / s + as241(p) * libm::sqrt(a * b / (s * s * (s + 1.0)));
-    increasing_root(eval, 0.0, -p, 0.5, g_half, &[leading_term, normal])
+    // p or q may be 1 after rounding; take z from the smaller, exact one.
+    let z = if lower { as241(p) } else { -as241(q) };
+    let normal = a / s + z * libm::sqrt(a * b / (s * s * (s + 1.0)));
+    increasing_root(eval, 0.0, f64::NEG_INFINITY, 0.5, g_half, &[leading_term, normal])
 }
 
 /// F CDF P(X ≤ x) with d1 and d2 degrees of freedom: I_u(d1/2, d2/2) with

@@ -43,7 +43,6 @@ pub(crate) fn increasing_root(
             continue;
         }
         let (g, dg) = eval(t);
-        eprintln!("start {t:e} g {g:e} dg {dg:e}");
         evaluations += 1;
         if g == 0.0 {
             return t;
@@ -95,7 +94,6 @@ pub(crate) fn increasing_root(
         };
         t = next;
         (g, dg) = eval(t);
-        eprintln!("t {t:e} g {g:e} dg {dg:e} lo {lo:e} hi {hi:e}");
         evaluations += 1;
         if g == 0.0 {
             return t;

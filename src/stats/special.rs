@@ -153,14 +153,18 @@ pub(crate) fn log1pmx_neg(w: f64) -> f64 {
 pub(crate) fn gamma_prefactor(a: f64, x: f64) -> f64 {
     if a >= STIRLING_MIN {
         let w = (x - a) / a;
-        let exponent = if w >= -0.5 {
-            -a * log1pmx_neg(w)
+        let scale = libm::sqrt(a / TAU) * libm::exp(-stirling_correction(a));
+        if w >= -0.5 {
+            return scale * libm::exp(-a * log1pmx_neg(w));
+        }
+        // Far below the mode (x < a/2): 1 + w = x/a would lose digits through w,
+        // so use (x/a)ᵃ e^(a − x) directly, as a power where it cannot overflow.
+        let ln_power = a * (libm::log(x) - libm::log(a));
+        if ln_power > -700.0 && a - x < 700.0 {
+            scale * libm::pow(x / a, a) * libm::exp(a - x)
         } else {
-            // Far below the mode: 1 + w = x/a would lose digits through w, so use
-            // the logarithms directly; the result is at most e^(−0.19 a) here.
-            a * (libm::log(x) - libm::log(a)) + (a - x)
-        };
-        libm::sqrt(a / TAU) * libm::exp(exponent - stirling_correction(a))
+            scale * libm::exp(ln_power + (a - x))
+        }
     } else {
         let ln_power = a * libm::log(x);
         if ln_power.abs() < 700.0 && x < 700.0 {

@@ -1,5 +1,11 @@
 //! The outlier map: Hotelling's T² against the squared prediction error (SPE)
 //! of each row, with both limits.
+//!
+//! Both statistics are sums of squares with long right tails: a few rows far
+//! beyond a limit would crowd every other row into a corner. When an axis's
+//! largest value is more than [`ROOT_ABOVE`] times its limit, that axis gets a
+//! square-root scale (ticks still in the statistic's own units), and the
+//! caption says so.
 
 use super::frame::{self, Axis, Frame, padded_range};
 use super::scatter::{self, Groups, Legend, Selection};
@@ -16,9 +22,16 @@ const T2_ONLY: (&str, Shape) = ("#0072B2", Shape::Square);
 const SPE_ONLY: (&str, Shape) = ("#D55E00", Shape::TriangleUp);
 const BOTH: (&str, Shape) = ("#CC79A7", Shape::Diamond);
 
+/// An axis switches to a square-root scale when its largest value exceeds its
+/// limit this many times.
+pub const ROOT_ABOVE: f64 = 6.0;
+
 struct Prepared {
+    /// Plotted coordinates (square roots where the axis has a root scale).
     xs: Vec<f64>,
     ys: Vec<f64>,
+    root_x: bool,
+    root_y: bool,
     /// Rows by kind: 0 within, 1 above T² only, 2 above SPE only, 3 above both.
     groups: Groups,
     sel: Selection,
@@ -59,13 +72,83 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
         of_row,
         missing: None,
     };
+    let root_x = wants_root(&xs, view.t2_limit);
+    let root_y = wants_root(&ys, view.spe_limit);
+    let xs = if root_x {
+        xs.iter().map(|&v| root(v)).collect()
+    } else {
+        xs
+    };
+    let ys = if root_y {
+        ys.iter().map(|&v| root(v)).collect()
+    } else {
+        ys
+    };
     let sel = scatter::select(view, &xs, &ys, &groups, plan.labels, plan.density_above);
     Prepared {
         xs,
         ys,
+        root_x,
+        root_y,
         groups,
         sel,
     }
+}
+
+/// √v, with negative values (rounding noise) at 0 and non-finite values kept
+/// non-finite so they are left out.
+fn root(v: f64) -> f64 {
+    if v.is_finite() { v.max(0.0).sqrt() } else { v }
+}
+
+fn wants_root(values: &[f64], limit: Option<f64>) -> bool {
+    let Some(limit) = limit.filter(|l| l.is_finite() && *l > 0.0) else {
+        return false;
+    };
+    let top = values
+        .iter()
+        .filter(|v| v.is_finite())
+        .fold(0.0f64, |a, v| a.max(*v));
+    top > ROOT_ABOVE * limit
+}
+
+/// An axis from 0 to `hi` (in plotted units). On a root scale, ticks sit at
+/// 1, 2 or 5 × 10ᵉ in the statistic's own units, at least `gap` pixels apart
+/// over `pixels`.
+fn stat_axis(hi: f64, rooted: bool, pixels: f64, gap: f64) -> Axis {
+    if !rooted {
+        return Axis::nice(0.0, hi, pixels / gap);
+    }
+    let top = hi * hi;
+    let mut candidates = vec![(0.0, "0".to_string())];
+    let mut e = -12;
+    while frame::pow10(e + 1) < top / 2e4 {
+        e += 1;
+    }
+    'outer: for exp in e..e + 40 {
+        for m in [1i64, 2, 5] {
+            let v = m as f64 * frame::pow10(exp);
+            if v > top {
+                break 'outer;
+            }
+            candidates.push((v, frame::decimal(m, exp)));
+        }
+    }
+    let per_unit = pixels / hi;
+    let mut ticks: Vec<(f64, String)> = Vec::new();
+    // From the top down, so the large round values are kept.
+    for (v, label) in candidates.into_iter().rev() {
+        let at = v.sqrt();
+        if ticks.last().is_none_or(|t| (t.0 - at) * per_unit >= gap) {
+            ticks.push((at, label));
+        }
+    }
+    ticks.reverse();
+    if ticks.first().is_some_and(|t| t.0 > 0.0) && ticks[0].0 * per_unit < gap {
+        ticks.remove(0);
+        ticks.insert(0, (0.0, "0".into()));
+    }
+    Axis::fixed(0.0, hi, ticks)
 }
 
 fn style(kind: usize) -> (&'static str, Shape) {
@@ -75,20 +158,16 @@ fn style(kind: usize) -> (&'static str, Shape) {
 pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let p = prepare(plan, view);
     let layout = scatter_layout();
-    let limits_x: Vec<f64> = view.t2_limit.into_iter().collect();
-    let limits_y: Vec<f64> = view.spe_limit.into_iter().collect();
-    let (_, xhi) = padded_range(
-        p.xs.iter().copied(),
-        &[&limits_x[..], &[0.0]].concat(),
-        0.05,
-    );
-    let (_, yhi) = padded_range(
-        p.ys.iter().copied(),
-        &[&limits_y[..], &[0.0]].concat(),
-        0.05,
-    );
-    let xa = Axis::nice(0.0, xhi, layout.plot_width() / 80.0);
-    let ya = Axis::nice(0.0, yhi, layout.plot_height() / 55.0);
+    let lx = view.t2_limit.filter(|l| l.is_finite());
+    let ly = view.spe_limit.filter(|l| l.is_finite());
+    let lx = lx.map(|l| if p.root_x { root(l) } else { l });
+    let ly = ly.map(|l| if p.root_y { root(l) } else { l });
+    let include_x: Vec<f64> = lx.into_iter().chain([0.0]).collect();
+    let include_y: Vec<f64> = ly.into_iter().chain([0.0]).collect();
+    let (_, xhi) = padded_range(p.xs.iter().copied(), &include_x, 0.05);
+    let (_, yhi) = padded_range(p.ys.iter().copied(), &include_y, 0.05);
+    let xa = stat_axis(xhi, p.root_x, layout.plot_width(), 80.0);
+    let ya = stat_axis(yhi, p.root_y, layout.plot_height(), 55.0);
     let panel = layout.panel(xa, ya);
     let t = title(plan, view);
     let back = frame::backdrop(
@@ -96,8 +175,15 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         &[Frame::new(
             layout,
             &panel,
-            format!("Hotelling's T² ({} kept components)", view.kept),
-            "SPE (squared prediction error)".into(),
+            format!(
+                "Hotelling's T² ({} kept components){}",
+                view.kept,
+                if p.root_x { ", square-root scale" } else { "" }
+            ),
+            format!(
+                "SPE (squared prediction error){}",
+                if p.root_y { ", square-root scale" } else { "" }
+            ),
         )],
     );
 
@@ -112,7 +198,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let rule = format!("stroke=\"{MUTED}\" stroke-width=\"1.2\" stroke-dasharray=\"6 4\"");
     let level = super::percent(view.confidence);
     body.push_str("<g class=\"limits\">\n");
-    if let Some(l) = view.t2_limit.filter(|l| l.is_finite()) {
+    if let Some(l) = lx {
         let x = panel.px(l);
         svg::line(
             &mut body,
@@ -123,7 +209,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
             &format!("class=\"t2-limit\" {rule}"),
         );
     }
-    if let Some(l) = view.spe_limit.filter(|l| l.is_finite()) {
+    if let Some(l) = ly {
         let y = panel.py(l);
         svg::line(
             &mut body,
@@ -249,6 +335,18 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
                 " No SPE limit is defined at {level} (for example when every component is kept), so no horizontal line is drawn."
             );
         }
+    }
+    match (p.root_x, p.root_y) {
+        (true, true) => s.push_str(
+            " Both axes have a square-root scale (ticks in the statistics' own units), because some rows lie far beyond the limits.",
+        ),
+        (true, false) => s.push_str(
+            " The T² axis has a square-root scale (ticks in T² units), because some rows lie far beyond the limit.",
+        ),
+        (false, true) => s.push_str(
+            " The SPE axis has a square-root scale (ticks in SPE units), because some rows lie far beyond the limit.",
+        ),
+        (false, false) => {}
     }
     let _ = write!(
         s,
