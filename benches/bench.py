@@ -140,8 +140,9 @@ def write_recipe(data, name):
 # ---------------------------------------------------------------- measuring
 
 class Run:
-    def __init__(self, wall, peak_kib, code, timed_out, stderr):
+    def __init__(self, wall, cpu, peak_kib, code, timed_out, stderr):
         self.wall = wall
+        self.cpu = cpu
         self.peak_mib = peak_kib / 1024.0
         self.code = code
         self.timed_out = timed_out
@@ -172,7 +173,7 @@ def measure(argv, log_path, env=None, cwd=None, timeout=None):
         child.returncode = os.waitstatus_to_exitcode(status)  # already reaped
     with open(log_path + ".err") as f:
         stderr = f.read()
-    return Run(wall, usage.ru_maxrss, child.returncode, killed.is_set(), stderr)
+    return Run(wall, usage.ru_utime + usage.ru_stime, usage.ru_maxrss, child.returncode, killed.is_set(), stderr)
 
 
 TIMING_LINE = re.compile(r"^timing\s+([0-9.]+) s\s+(.+)$")
@@ -294,7 +295,9 @@ def ingest(name, a, sextant, data, logs):
         return {"table": name, "bytes": size, "failed": True}
     wall = statistics.median(r.wall for r in ok)
     steps = median_steps([sextant_steps(r.stderr) for r in ok])
-    read_parse = sum(v for k, v in steps.items() if k in ("read the file", "parse the table"))
+    # The steps before the plan check: reading, hashing and parsing the bytes
+    # (sextant has named and grouped them differently across versions).
+    read_parse = sum(v for k, v in steps.items() if any(w in k for w in ("read", "hash", "parse")))
     return {"table": name, "bytes": size, "runs": len(ok), "wall": wall,
             "peak_mib": statistics.median(r.peak_mib for r in ok),
             "mb_per_s": size / 1e6 / wall, "steps": steps,
@@ -362,6 +365,22 @@ def md_table(head, rows):
     for row in rows:
         lines.append("| " + " | ".join(str(x) for x in row) + " |")
     return "\n".join(lines)
+
+
+def cpu_rows(results):
+    out = []
+    for r in results:
+        sx = [x for x in r["sextant"] if x.code == 0]
+        rf = [x for x in r["reference"] if x.code == 0]
+        sc = statistics.median(x.cpu for x in sx) if sx else None
+        rc = statistics.median(x.cpu for x in rf) if rf else None
+        sw = statistics.median(x.wall for x in sx) if sx else None
+        out.append([r["table"], fmt_s(sc), fmt_s(rc), fmt_ratio(rc / sc if sc and rc else None),
+                    f"{sc / sw:.2f}" if sc and sw else "-"])
+    return out
+
+
+CPU_HEAD = ["table", "sextant cpu s", "reference cpu s", "cpu ratio", "sextant cpu/wall"]
 
 
 def step_rows(results):
@@ -469,19 +488,24 @@ def main(argv=None):
     yard = yardstick_rows(results)
     versions = next((r["reference_versions"] for r in results if r.get("reference_versions")), None)
     loads = [x for r in results for x in r["load"]]
-    context = [f"sextant: {version} ({rel(built)}, sha256 {file_digest(sextant)[:12]})"]
+    digest = file_digest(sextant)[:12] if os.path.exists(sextant) else "-"
+    context = [f"sextant: {version} ({rel(built)}, sha256 {digest})"]
     if versions:
         context.append("reference: " + ", ".join(f"{k} {v}" for k, v in versions.items())
                        + f"; svd_solver={a.ref_solver}; figures {a.ref_formats}")
     context.append(f"cores: {os.cpu_count()}; 1-minute load average before runs: "
                    + (f"{min(loads):.1f} to {max(loads):.1f}" if loads else "-"))
-    context.append("times: median whole-process wall clock; peak: median of the child's ru_maxrss (os.wait4)")
+    context.append("times: median whole-process wall clock; cpu: the child's user + system time; "
+                   "peak: the child's ru_maxrss (os.wait4); medians over runs")
 
     print()
     print("\n".join(context))
     print()
     print(plain_table(SUMMARY_HEAD, summary))
     print("ratio = reference / sextant (above 1: sextant is faster or smaller)")
+    print()
+    print("CPU time (user + system, median), less sensitive than wall time to other load on the machine")
+    print(plain_table(CPU_HEAD, cpu_rows(results)))
     same = [f"{r['table']} {r['share_max_abs_diff']:.1e}" for r in results if "share_max_abs_diff" in r]
     if same:
         print("largest difference in variance share, sextant vs reference: " + ", ".join(same))
@@ -493,7 +517,8 @@ def main(argv=None):
             line = (f"ingest: sextant check {ing['table']} ({ing['bytes'] / 1e6:.0f} MB): {fmt_s(ing['wall'])} s, "
                     f"{ing['mb_per_s']:.0f} MB/s whole process, peak {fmt_mib(ing['peak_mib'])}")
             if ing.get("parse_mb_per_s"):
-                line += f"; read + parse {fmt_s(ing['read_parse_s'])} s = {ing['parse_mb_per_s']:.0f} MB/s"
+                line += (f"; read + hash + parse steps {fmt_s(ing['read_parse_s'])} s = "
+                         f"{ing['parse_mb_per_s']:.0f} MB/s")
             print(line)
     if steps:
         print()
@@ -505,11 +530,12 @@ def main(argv=None):
         print(plain_table(["table", "yardstick (reference)", "measured here", "difference"], yard))
 
     md = ["\n".join("- " + c for c in context), "", md_table(SUMMARY_HEAD, summary), "",
-          "Ratios are reference / sextant."]
+          "Ratios are reference / sextant.", "", md_table(CPU_HEAD, cpu_rows(results))]
     if ing and not ing.get("failed"):
         md += ["", f"Ingest (`sextant check` on {ing['table']}, {ing['bytes'] / 1e6:.0f} MB): "
                f"{fmt_s(ing['wall'])} s, {ing['mb_per_s']:.0f} MB/s, peak {fmt_mib(ing['peak_mib'])}"
-               + (f"; read + parse alone {ing['parse_mb_per_s']:.0f} MB/s." if ing.get("parse_mb_per_s") else ".")]
+               + (f"; its read + hash + parse steps alone {ing['parse_mb_per_s']:.0f} MB/s."
+                  if ing.get("parse_mb_per_s") else ".")]
     if steps:
         md += ["", md_table(["table", "tool", "median seconds per step"], steps)]
     if yard:
@@ -526,7 +552,7 @@ def main(argv=None):
         def plain(r):
             d = dict(r)
             for who in ("sextant", "reference"):
-                d[who] = [{"wall_s": x.wall, "peak_mib": x.peak_mib, "exit": x.code, "timed_out": x.timed_out}
+                d[who] = [{"wall_s": x.wall, "cpu_s": x.cpu, "peak_mib": x.peak_mib, "exit": x.code, "timed_out": x.timed_out}
                           for x in r[who]]
             return d
         with open(a.json, "w") as f:

@@ -104,8 +104,13 @@ pub enum RecipeProblem {
     #[error("recipe format {found} is not supported; this version of sextant reads format = 1")]
     Format { found: i64 },
     #[error("`{key}` does not apply to a `{kind}` plot")]
-    PlotKeyNotApplicable { key: &'static str, kind: &'static str },
-    #[error("component {index} is beyond compute = {compute}; raise components.compute or choose a lower component")]
+    PlotKeyNotApplicable {
+        key: &'static str,
+        kind: &'static str,
+    },
+    #[error(
+        "component {index} is beyond compute = {compute}; raise components.compute or choose a lower component"
+    )]
     PlotComponentBeyondCompute { index: usize, compute: usize },
     #[error("component {index} is beyond the {available} components this data gives (its rank)")]
     PlotComponentBeyondRank { index: usize, available: usize },
@@ -113,9 +118,13 @@ pub enum RecipeProblem {
     PlotAxesAndComponent,
     #[error("x and y are both component {index}; choose two different components")]
     PlotSameAxes { index: usize },
-    #[error("color = `{column}` is not a group column; the groups are: {groups} (add it to input.groups)")]
+    #[error(
+        "color = `{column}` is not a group column; the groups are: {groups} (add it to input.groups)"
+    )]
     PlotColorNotGroup { column: String, groups: String },
-    #[error("plot file `{file}` must be a plain file name ending in .svg (letters, digits, '-', '_', '.'); plots are written inside the results folder's plots/")]
+    #[error(
+        "plot file `{file}` must be a plain file name ending in .svg (letters, digits, '-', '_', '.'); plots are written inside the results folder's plots/"
+    )]
     PlotFileName { file: String },
     #[error("two plots would write plots/{file}; give one of them its own `file`")]
     PlotFileTwice { file: String },
@@ -203,7 +212,9 @@ pub enum InputError {
         path: String,
         source: std::io::Error,
     },
-    #[error("{path}: the model's feature(s) {names} are not in the table's header; every feature the model was made with is needed")]
+    #[error(
+        "{path}: the model's feature(s) {names} are not in the table's header; every feature the model was made with is needed"
+    )]
     MissingFeatures { path: String, names: String },
     #[error("{path}: not a sextant results folder: {reason}")]
     NotResults { path: String, reason: String },

@@ -21,7 +21,7 @@ use crate::stages::parallel::parallel_analysis;
 use crate::stages::scale::{ScaleReport, Scaled, scale};
 use crate::stages::select::{Evidence, Selection, select};
 use crate::stages::transform::{Applied, apply_transforms};
-use crate::table::{ColumnData, Table, read_header, read_table};
+use crate::table::{ColumnData, Table, read_header, read_table_parallel};
 use serde_json::{Value, json};
 use std::path::Path;
 use std::time::Instant;
@@ -62,8 +62,17 @@ pub fn prepare_recipe(recipe: LoadedRecipe) -> Result<Prepared, Error> {
         source,
     })?;
     let t = crate::timing::lap("read the file", t);
-    let sha256 = sha256_hex(&bytes);
-    let t = crate::timing::lap("hash the input", t);
+    // Hash and parse at the same time: the file is read once, both passes run
+    // over the same bytes in memory.
+    let (sha256, parsed) = rayon::join(
+        || sha256_hex(&bytes),
+        || -> Result<Table, Error> {
+            let header = read_header(&bytes, &shown, input.options.delimiter)?;
+            check_names(&recipe, &header)?;
+            Ok(read_table_parallel(&bytes, &shown, &input.options)?)
+        },
+    );
+    // A changed pinned file is reported first, whatever else is wrong with it.
     if let Some((expected, at)) = &input.pin {
         if *expected != sha256 {
             return Err(RecipeError {
@@ -78,10 +87,8 @@ pub fn prepare_recipe(recipe: LoadedRecipe) -> Result<Prepared, Error> {
             .into());
         }
     }
-    let header = read_header(&bytes, &shown, input.options.delimiter)?;
-    check_names(&recipe, &header)?;
-    let table = read_table(&bytes, &shown, &input.options)?;
-    let t = crate::timing::lap("parse the table", t);
+    let table = parsed?;
+    let t = crate::timing::lap("hash and parse the table", t);
     check_ids(&table, input.id.as_deref())?;
     let record = InputRecord {
         path: input.display.clone(),

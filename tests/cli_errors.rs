@@ -398,19 +398,46 @@ fn run_table(cases: &[Case]) {
 fn recipe_cases() -> Vec<Case> {
     vec![
         // [[plot]] tables: each mistake points at its own line.
-        case("unknown plot kind", with_section("[[plot]]\nkind = \"pie\""))
-            .err(&["recipe.toml:12:8:", "unknown choice `pie`", "`scree`", "`outlier-map`"]),
+        case(
+            "unknown plot kind",
+            with_section("[[plot]]\nkind = \"pie\""),
+        )
+        .err(&[
+            "recipe.toml:12:8:",
+            "unknown choice `pie`",
+            "`scree`",
+            "`outlier-map`",
+        ]),
         case(
             "plot component beyond compute",
             with_section("[components]\ncompute = 3\n\n[[plot]]\nkind = \"scores\"\ny = 4"),
         )
         .err(&["recipe.toml:16:5:", "component 4 is beyond compute = 3"]),
-        case("plot colour is not a group", with_section("[[plot]]\nkind = \"scores\"\ncolor = \"a\""))
-            .err(&["recipe.toml:13:9:", "color = `a` is not a group column", "group"]),
-        case("plot key that does not apply", with_section("[[plot]]\nkind = \"scree\"\nellipse = 0.95"))
-            .err(&["recipe.toml:13:11:", "`ellipse` does not apply to a `scree` plot"]),
-        case("plot file outside plots/", with_section("[[plot]]\nkind = \"scree\"\nfile = \"../x.svg\""))
-            .err(&["recipe.toml:13:8:", "must be a plain file name ending in .svg"]),
+        case(
+            "plot colour is not a group",
+            with_section("[[plot]]\nkind = \"scores\"\ncolor = \"a\""),
+        )
+        .err(&[
+            "recipe.toml:13:9:",
+            "color = `a` is not a group column",
+            "group",
+        ]),
+        case(
+            "plot key that does not apply",
+            with_section("[[plot]]\nkind = \"scree\"\nellipse = 0.95"),
+        )
+        .err(&[
+            "recipe.toml:13:11:",
+            "`ellipse` does not apply to a `scree` plot",
+        ]),
+        case(
+            "plot file outside plots/",
+            with_section("[[plot]]\nkind = \"scree\"\nfile = \"../x.svg\""),
+        )
+        .err(&[
+            "recipe.toml:13:8:",
+            "must be a plain file name ending in .svg",
+        ]),
         case(
             "two plots on one file",
             with_section("[[plot]]\nkind = \"scree\"\n\n[[plot]]\nkind = \"scree\""),

@@ -591,6 +591,34 @@ fn outlier_map_has_limits_or_says_why_not() {
             .any(|t| t.starts_with("Hotelling's T²"))
     );
 
+    // A row far beyond the T² limit puts that axis on a square-root scale.
+    let mut far = v.clone();
+    far.t2[0] = 100.0 * 9.0;
+    let svg = plots::render(&p, &far);
+    let doc = parse(&svg);
+    assert!(
+        all_texts(&doc)
+            .iter()
+            .any(|t| t.starts_with("Hotelling's T²") && t.ends_with("square-root scale"))
+    );
+    assert!(plots::caption(&p, &far).contains("The T² axis has a square-root scale"));
+    assert!(!plots::caption(&p, &v).contains("square-root"));
+    // The limit line sits at √9 = 3 of √900 = 30 (plus 5 % padding): the
+    // farthest point's x is 10 times the limit line's x from the axis.
+    let line = &with_class(&doc, "t2-limit")[0];
+    let lx: f64 = line.attribute("x1").unwrap().parse().unwrap();
+    let xs: Vec<f64> = with_class(&doc, "points")[0]
+        .descendants()
+        .filter_map(|n| n.attribute("x").or(n.attribute("cx")))
+        .map(|x| x.parse().unwrap())
+        .collect();
+    let max_x = xs.iter().cloned().fold(f64::MIN, f64::max);
+    let origin = 70.0; // the plotting area's left edge
+    assert!(
+        ((max_x + 3.6 * 0.89 - origin) / (lx - origin) - 10.0).abs() < 0.2,
+        "{max_x} {lx}"
+    );
+
     v.spe_limit = None;
     let svg = plots::render(&p, &v);
     let doc = parse(&svg);

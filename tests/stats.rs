@@ -6,9 +6,9 @@
 //! computed directly (the CDF below the median, the survival function above it).
 
 use sextant::stats::{
-    LimitError, ResidualMoments, StatsError, beta_cdf, beta_inc, beta_quantile, beta_sf,
-    chi2_cdf, chi2_quantile, chi2_sf, f_cdf, f_quantile, f_sf, gamma_p, gamma_q, ln_gamma,
-    normal_cdf, normal_quantile, normal_sf, spe_limit_box, spe_limit_jackson_mudholkar,
+    LimitError, ResidualMoments, StatsError, beta_cdf, beta_inc, beta_quantile, beta_sf, chi2_cdf,
+    chi2_quantile, chi2_sf, f_cdf, f_quantile, f_sf, gamma_p, gamma_q, ln_gamma, normal_cdf,
+    normal_quantile, normal_sf, spe_limit_box, spe_limit_jackson_mudholkar,
     t2_limit_new_observation, t2_limit_phase1,
 };
 
@@ -56,14 +56,23 @@ impl Check {
         let decimals = printed.split('.').nth(1).map_or(0, str::len);
         let shown = format!("{got:.decimals$}");
         if shown != printed {
-            self.failures
-                .push(format!("{what}: got {got} which prints as {shown}, table says {printed}"));
+            self.failures.push(format!(
+                "{what}: got {got} which prints as {shown}, table says {printed}"
+            ));
         }
     }
 
     fn finish(self) {
-        println!("{}: worst relative error {:.2e} at {}", self.name, self.worst, self.worst_at);
-        assert!(self.failures.is_empty(), "{}:\n{}", self.name, self.failures.join("\n"));
+        println!(
+            "{}: worst relative error {:.2e} at {}",
+            self.name, self.worst, self.worst_at
+        );
+        assert!(
+            self.failures.is_empty(),
+            "{}:\n{}",
+            self.name,
+            self.failures.join("\n")
+        );
     }
 }
 
@@ -104,7 +113,11 @@ fn printed_chi2_tables() {
         (10.0, "18.3070"),
         (100.0, "124.3421"),
     ] {
-        check.printed(format!("chi2_0.95({df})"), chi2_quantile(0.95, df).unwrap(), printed);
+        check.printed(
+            format!("chi2_0.95({df})"),
+            chi2_quantile(0.95, df).unwrap(),
+            printed,
+        );
     }
     // NIST/SEMATECH e-Handbook of Statistical Methods, §1.3.6.7.4 (critical values of
     // the χ² distribution), lower-tail table, df = 10: P(X > x) = 0.90, 0.95, 0.99.
@@ -120,8 +133,16 @@ fn normal_percentage_points() {
     let mut check = Check::new("normal percentage points");
     // z_0.95 and z_0.99 to ten decimals (library values: scipy 1.17 and numpy 2.4
     // agreeing, from the shared reference notes).
-    check.printed("z_0.95".into(), normal_quantile(0.95).unwrap(), "1.6448536270");
-    check.printed("z_0.99".into(), normal_quantile(0.99).unwrap(), "2.3263478740");
+    check.printed(
+        "z_0.95".into(),
+        normal_quantile(0.95).unwrap(),
+        "1.6448536270",
+    );
+    check.printed(
+        "z_0.99".into(),
+        normal_quantile(0.99).unwrap(),
+        "2.3263478740",
+    );
     check.finish();
 }
 
@@ -173,7 +194,12 @@ fn reference_quantiles_scipy() {
     ];
     for (alpha, d1, d2, expected) in F {
         let got = f_quantile(1.0 - alpha, d1, d2).unwrap();
-        check.close(format!("F upper {alpha} ({d1}, {d2})"), got, expected, 1e-12);
+        check.close(
+            format!("F upper {alpha} ({d1}, {d2})"),
+            got,
+            expected,
+            1e-12,
+        );
     }
     for (alpha, df, expected) in CHI2 {
         let got = chi2_quantile(1.0 - alpha, df).unwrap();
@@ -189,13 +215,62 @@ fn t2_limits_match_reference() {
     // new observations = NIST/SEMATECH e-Handbook §6.5.4.3.4, and χ²₁₋α(k).
     let mut check = Check::new("T² limits");
     const ROWS: [(usize, usize, f64, f64, f64, f64); 7] = [
-        (50, 2, 0.05, 5.747378877478209, 6.644689677071098, 5.991464547107979),
-        (50, 2, 0.01, 8.545578624811311, 10.572152378256849, 9.21034037197618),
-        (150, 2, 0.05, 5.9112108857322205, 6.196745129675801, 5.991464547107979),
-        (178, 3, 0.05, 7.7083970276036515, 8.105052332763098, 7.814727903251179),
-        (178, 3, 0.01, 11.078956715618846, 11.886422887845868, 11.344866730144373),
-        (20, 3, 0.05, 6.819905952745695, 11.254534937085834, 7.814727903251179),
-        (569, 6, 0.05, 12.518477413153697, 12.823187931736523, 12.591587243743977),
+        (
+            50,
+            2,
+            0.05,
+            5.747378877478209,
+            6.644689677071098,
+            5.991464547107979,
+        ),
+        (
+            50,
+            2,
+            0.01,
+            8.545578624811311,
+            10.572152378256849,
+            9.21034037197618,
+        ),
+        (
+            150,
+            2,
+            0.05,
+            5.9112108857322205,
+            6.196745129675801,
+            5.991464547107979,
+        ),
+        (
+            178,
+            3,
+            0.05,
+            7.7083970276036515,
+            8.105052332763098,
+            7.814727903251179,
+        ),
+        (
+            178,
+            3,
+            0.01,
+            11.078956715618846,
+            11.886422887845868,
+            11.344866730144373,
+        ),
+        (
+            20,
+            3,
+            0.05,
+            6.819905952745695,
+            11.254534937085834,
+            7.814727903251179,
+        ),
+        (
+            569,
+            6,
+            0.05,
+            12.518477413153697,
+            12.823187931736523,
+            12.591587243743977,
+        ),
     ];
     for (n, k, alpha, phase1, new_observation, chi2) in ROWS {
         let confidence = 1.0 - alpha;
@@ -203,7 +278,12 @@ fn t2_limits_match_reference() {
         let got = t2_limit_phase1(n, k, confidence).unwrap();
         check.close(format!("Phase I, {what}"), got, phase1, 1e-9);
         let got = t2_limit_new_observation(n, k, confidence).unwrap();
-        check.close(format!("new observation, {what}"), got, new_observation, 1e-9);
+        check.close(
+            format!("new observation, {what}"),
+            got,
+            new_observation,
+            1e-9,
+        );
         let got = chi2_quantile(confidence, k as f64).unwrap();
         check.close(format!("chi2, {what}"), got, chi2, 1e-9);
     }
@@ -219,7 +299,10 @@ fn t2_limits_approach_chi2_for_large_n() {
         let phase1 = t2_limit_phase1(10_000_000, k, 0.99).unwrap();
         let new_observation = t2_limit_new_observation(10_000_000, k, 0.99).unwrap();
         assert!(rel(phase1, chi2) < 1e-5, "k {k}: {phase1} vs {chi2}");
-        assert!(rel(new_observation, chi2) < 1e-5, "k {k}: {new_observation} vs {chi2}");
+        assert!(
+            rel(new_observation, chi2) < 1e-5,
+            "k {k}: {new_observation} vs {chi2}"
+        );
         assert!(phase1 < chi2 && chi2 < new_observation, "k {k}");
     }
 }
@@ -256,10 +339,20 @@ fn wine_k3_spe_limits() {
         let c = 1.0 - alpha;
         let got = spe_limit_jackson_mudholkar(&RESIDUAL, c).unwrap();
         check.close(format!("JM alpha {alpha}"), got, jm, 1e-9);
-        check.close(format!("JM (moments) alpha {alpha}"), m.jackson_mudholkar(c).unwrap(), jm, 1e-9);
+        check.close(
+            format!("JM (moments) alpha {alpha}"),
+            m.jackson_mudholkar(c).unwrap(),
+            jm,
+            1e-9,
+        );
         let got = spe_limit_box(&RESIDUAL, c).unwrap();
         check.close(format!("Box alpha {alpha}"), got, bx, 1e-9);
-        check.close(format!("Box (moments) alpha {alpha}"), m.box_limit(c).unwrap(), bx, 1e-9);
+        check.close(
+            format!("Box (moments) alpha {alpha}"),
+            m.box_limit(c).unwrap(),
+            bx,
+            1e-9,
+        );
     }
     // Order does not matter beyond rounding (θ's are plain sums).
     let mut reversed = RESIDUAL;
@@ -329,15 +422,25 @@ fn wine_k3_spe_limits() {
 //
 // The same points were also checked against mpmath 1.4.1 (40 digits; incomplete
 // beta by quadrature for parameters above 2000): sextant's values agree with it to
-// 1.4e-14 or better everywhere here. scipy itself is less precise for χ² with
-// 10⁶ degrees of freedom (its cdf is off by up to 2.9e-11 and its ppf by up to
-// 4.8e-12 relative to mpmath there), so those rows are compared to 1e-10; every
-// other row to 1e-12. (Avoided on purpose: `beta.ppf(1e-100, 3, 282.5)`, where
-// scipy's root finder gives up and returns a value 700 times too large.)
+// 1.4e-14 or better everywhere here. scipy itself is less precise when a shape
+// parameter is 10⁵ or more: relative to mpmath its χ² cdf is off by up to 2.9e-11
+// and its χ² ppf by 4.8e-12 at 10⁶ degrees of freedom, its F sf by 8e-13 at
+// F(10⁶, 10⁶) and its beta ppf by 1.4e-13 at Beta(10⁴, 3·10⁵). Rows with such a
+// parameter are compared to 1e-10, every other row to 1e-12. (Avoided on purpose:
+// `beta.ppf(1e-100, 3, 282.5)`, where scipy's root finder gives up and returns a
+// value 700 times too large.)
 
 const TOLERANCE: f64 = 1e-12;
-/// For χ² with df ≥ 1e5, where scipy's own error reaches 2.9e-11 (see above).
-const TOLERANCE_SCIPY_LARGE_DF: f64 = 1e-10;
+/// For rows with a shape parameter ≥ 1e5, where scipy's own error reaches 2.9e-11.
+const TOLERANCE_LARGE_PARAMETER: f64 = 1e-10;
+
+fn tolerance(parameters: &[f64]) -> f64 {
+    if parameters.iter().any(|&v| v >= 1e5) {
+        TOLERANCE_LARGE_PARAMETER
+    } else {
+        TOLERANCE
+    }
+}
 
 const NORMAL_CDF: &[(f64, f64)] = &[
     (-37.5, 4.605353009581954e-308),
@@ -464,9 +567,19 @@ const CHI2_TAILS: &[(f64, f64, f64, f64)] = &[
     (1.87385, 2.5, 0.500000474690753, 0.49999952530924696),
     (10.3112, 2.5, f64::NAN, 0.010000212798072696),
     (57.1519, 2.5, f64::NAN, 9.99979987725749e-13),
-    (0.00181143, 7.155336321730074, 1.00000549047698e-12, f64::NAN),
+    (
+        0.00181143,
+        7.155336321730074,
+        1.00000549047698e-12,
+        f64::NAN,
+    ),
     (1.29986, 7.155336321730074, 0.009999894177169205, f64::NAN),
-    (6.50085, 7.155336321730074, 0.4999998393105564, 0.5000001606894435),
+    (
+        6.50085,
+        7.155336321730074,
+        0.4999998393105564,
+        0.5000001606894435,
+    ),
     (18.7291, 7.155336321730074, f64::NAN, 0.009999885094606873),
     (71.2531, 7.155336321730074, f64::NAN, 9.99958502600355e-13),
     (0.0207787, 10.0, 1.0000024730107461e-12, f64::NAN),
@@ -578,12 +691,24 @@ const BETA_TAILS: &[(f64, f64, f64, f64, f64)] = &[
     (0.999753, 0.5, 0.5, f64::NAN, 0.01000567701507524),
     (1.01792e-49, 0.25, 7.0, 1.0000001342964097e-12, f64::NAN),
     (1.01792e-09, 0.25, 7.0, 0.010000001330749055, f64::NAN),
-    (0.00656458, 0.25, 7.0, 0.4999999173054962, 0.5000000826945038),
+    (
+        0.00656458,
+        0.25,
+        7.0,
+        0.4999999173054962,
+        0.5000000826945038,
+    ),
     (0.306791, 0.25, 7.0, f64::NAN, 0.010000005554805772),
     (0.971435, 0.25, 7.0, f64::NAN, 1.000001920450709e-12),
     (1.38568e-10, 1.5, 87.0, 1.0000044132151064e-12, f64::NAN),
     (0.00065785, 1.5, 87.0, 0.0099999993437967, f64::NAN),
-    (0.0134672, 1.5, 87.0, 0.49999930966227624, 0.5000006903377238),
+    (
+        0.0134672,
+        1.5,
+        87.0,
+        0.49999930966227624,
+        0.5000006903377238,
+    ),
     (0.0629466, 1.5, 87.0, f64::NAN, 0.010000007251749534),
     (0.286576, 1.5, 87.0, f64::NAN, 9.999289633614854e-13),
     (2.28343e-05, 3.0, 7.0, 9.999948603667477e-13, f64::NAN),
@@ -601,14 +726,38 @@ const BETA_TAILS: &[(f64, f64, f64, f64, f64)] = &[
     (0.95066, 15.0, 15.0, f64::NAN, 1.000078021997223e-12),
     (1.5708e-30, 0.5, 500000.0, 1.0000009192165536e-12, f64::NAN),
     (1.57088e-10, 0.5, 500000.0, 0.010000002022922788, f64::NAN),
-    (4.54937e-07, 0.5, 500000.0, 0.5000002133755564, 0.4999997866244433),
+    (
+        4.54937e-07,
+        0.5,
+        500000.0,
+        0.5000002133755564,
+        0.4999997866244433,
+    ),
     (6.63488e-06, 0.5, 500000.0, f64::NAN, 0.00999998825380786),
     (5.08429e-05, 0.5, 500000.0, f64::NAN, 9.999800233411478e-13),
-    (0.0300744, 10000.0, 300000.0, 1.0002329463118363e-12, f64::NAN),
+    (
+        0.0300744,
+        10000.0,
+        300000.0,
+        1.0002329463118363e-12,
+        f64::NAN,
+    ),
     (0.0315243, 10000.0, 300000.0, 0.010002032363234018, f64::NAN),
-    (0.0322571, 10000.0, 300000.0, 0.5000520177939668, 0.499947982206033),
+    (
+        0.0322571,
+        10000.0,
+        300000.0,
+        0.5000520177939668,
+        0.499947982206033,
+    ),
     (0.0330007, 10000.0, 300000.0, f64::NAN, 0.0100023676456132),
-    (0.0345393, 10000.0, 300000.0, f64::NAN, 9.993311694523981e-13),
+    (
+        0.0345393,
+        10000.0,
+        300000.0,
+        f64::NAN,
+        9.993311694523981e-13,
+    ),
 ];
 const F_QUANTILE: &[(f64, f64, f64, f64)] = &[
     (1e-12, 0.5, 0.5, 1.1817045008077112e-47),
@@ -730,24 +879,72 @@ const F_TAILS: &[(f64, f64, f64, f64, f64)] = &[
     (12.0211, 6.0, 563.0, f64::NAN, 9.998524348004488e-13),
     (8.03705e-09, 3.0, 175.0, 9.999997529583307e-13, f64::NAN),
     (0.038181, 3.0, 175.0, 0.01000001181311115, f64::NAN),
-    (0.791744, 3.0, 175.0, 0.5000000826972653, 0.49999991730273474),
+    (
+        0.791744,
+        3.0,
+        175.0,
+        0.5000000826972653,
+        0.49999991730273474,
+    ),
     (3.89549, 3.0, 175.0, f64::NAN, 0.009999951175329848),
     (23.2747, 3.0, 175.0, f64::NAN, 1.0000077704373507e-12),
     (1.5708e-24, 1.0, 1000000.0, 1.0000009192165536e-12, f64::NAN),
     (0.000157088, 1.0, 1000000.0, 0.010000002022137385, f64::NAN),
-    (0.454937, 1.0, 1000000.0, 0.5000001158656859, 0.49999988413431407),
+    (
+        0.454937,
+        1.0,
+        1000000.0,
+        0.5000001158656859,
+        0.49999988413431407,
+    ),
     (6.63492, 1.0, 1000000.0, f64::NAN, 0.010000010831227809),
     (50.8455, 1.0, 1000000.0, f64::NAN, 9.999724489112694e-13),
     (0.0196674, 1000000.0, 1.0, 9.999410215646812e-13, f64::NAN),
     (0.150718, 1000000.0, 1.0, 0.010000080576223336, f64::NAN),
-    (2.19811, 1000000.0, 1.0, 0.5000002204437725, 0.4999997795562274),
+    (
+        2.19811,
+        1000000.0,
+        1.0,
+        0.5000002204437725,
+        0.4999997795562274,
+    ),
     (6365.86, 1000000.0, 1.0, f64::NAN, 0.01000000094379381),
     (6.36648e+23, 1000000.0, 1.0, f64::NAN, 9.999775808121464e-13),
-    (0.986029, 1000000.0, 1000000.0, 9.982665068095244e-13, f64::NAN),
-    (0.995358, 1000000.0, 1000000.0, 0.009998553800129923, f64::NAN),
-    (1.0, 1000000.0, 1000000.0, 0.49999999999999967, 0.5000000000000003),
-    (1.00466, 1000000.0, 1000000.0, f64::NAN, 0.010047046588386135),
-    (1.01417, 1000000.0, 1000000.0, f64::NAN, 9.945829168688413e-13),
+    (
+        0.986029,
+        1000000.0,
+        1000000.0,
+        9.982665068095244e-13,
+        f64::NAN,
+    ),
+    (
+        0.995358,
+        1000000.0,
+        1000000.0,
+        0.009998553800129923,
+        f64::NAN,
+    ),
+    (
+        1.0,
+        1000000.0,
+        1000000.0,
+        0.49999999999999967,
+        0.5000000000000003,
+    ),
+    (
+        1.00466,
+        1000000.0,
+        1000000.0,
+        f64::NAN,
+        0.010047046588386135,
+    ),
+    (
+        1.01417,
+        1000000.0,
+        1000000.0,
+        f64::NAN,
+        9.945829168688413e-13,
+    ),
     (0.0734604, 100.0, 7.5, 9.999985625776552e-13, f64::NAN),
     (0.362956, 100.0, 7.5, 0.010000000064462947, f64::NAN),
     (1.08835, 100.0, 7.5, 0.4999971848594178, 0.5000028151405822),
@@ -759,12 +956,22 @@ const F_TAILS: &[(f64, f64, f64, f64, f64)] = &[
 fn scipy_normal() {
     let mut check = Check::new("normal vs scipy");
     for &(x, expected) in NORMAL_CDF {
-        check.close(format!("Phi({x})"), normal_cdf(x).unwrap(), expected, TOLERANCE);
+        check.close(
+            format!("Phi({x})"),
+            normal_cdf(x).unwrap(),
+            expected,
+            TOLERANCE,
+        );
         let sf = normal_sf(-x).unwrap();
         check.close(format!("sf({})", -x), sf, expected, TOLERANCE);
     }
     for &(p, expected) in NORMAL_QUANTILE {
-        check.close(format!("z({p})"), normal_quantile(p).unwrap(), expected, TOLERANCE);
+        check.close(
+            format!("z({p})"),
+            normal_quantile(p).unwrap(),
+            expected,
+            TOLERANCE,
+        );
     }
     check.finish();
 }
@@ -772,19 +979,19 @@ fn scipy_normal() {
 #[test]
 fn scipy_chi2() {
     let mut check = Check::new("chi2 vs scipy");
-    let tolerance = |df: f64| if df >= 1e5 { TOLERANCE_SCIPY_LARGE_DF } else { TOLERANCE };
     for &(p, df, expected) in CHI2_QUANTILE {
         let got = chi2_quantile(p, df).unwrap();
-        check.close(format!("chi2_quantile({p}, {df})"), got, expected, tolerance(df));
+        let what = format!("chi2_quantile({p}, {df})");
+        check.close(what, got, expected, tolerance(&[df]));
     }
     for &(x, df, cdf, sf) in CHI2_TAILS {
         if !cdf.is_nan() {
             let got = chi2_cdf(x, df).unwrap();
-            check.close(format!("chi2_cdf({x}, {df})"), got, cdf, tolerance(df));
+            check.close(format!("chi2_cdf({x}, {df})"), got, cdf, tolerance(&[df]));
         }
         if !sf.is_nan() {
             let got = chi2_sf(x, df).unwrap();
-            check.close(format!("chi2_sf({x}, {df})"), got, sf, tolerance(df));
+            check.close(format!("chi2_sf({x}, {df})"), got, sf, tolerance(&[df]));
         }
     }
     check.finish();
@@ -795,18 +1002,20 @@ fn scipy_beta() {
     let mut check = Check::new("beta vs scipy");
     for &(p, a, b, expected) in BETA_QUANTILE {
         let got = beta_quantile(p, a, b).unwrap();
-        check.close(format!("beta_quantile({p}, {a}, {b})"), got, expected, TOLERANCE);
+        let what = format!("beta_quantile({p}, {a}, {b})");
+        check.close(what, got, expected, tolerance(&[a, b]));
     }
     for &(x, a, b, cdf, sf) in BETA_TAILS {
+        let tol = tolerance(&[a, b]);
         if !cdf.is_nan() {
             let got = beta_cdf(x, a, b).unwrap();
-            check.close(format!("beta_cdf({x}, {a}, {b})"), got, cdf, TOLERANCE);
+            check.close(format!("beta_cdf({x}, {a}, {b})"), got, cdf, tol);
             let got = beta_inc(x, a, b).unwrap();
-            check.close(format!("beta_inc({x}, {a}, {b})"), got, cdf, TOLERANCE);
+            check.close(format!("beta_inc({x}, {a}, {b})"), got, cdf, tol);
         }
         if !sf.is_nan() {
             let got = beta_sf(x, a, b).unwrap();
-            check.close(format!("beta_sf({x}, {a}, {b})"), got, sf, TOLERANCE);
+            check.close(format!("beta_sf({x}, {a}, {b})"), got, sf, tol);
         }
     }
     check.finish();
@@ -817,16 +1026,18 @@ fn scipy_f() {
     let mut check = Check::new("F vs scipy");
     for &(p, d1, d2, expected) in F_QUANTILE {
         let got = f_quantile(p, d1, d2).unwrap();
-        check.close(format!("f_quantile({p}, {d1}, {d2})"), got, expected, TOLERANCE);
+        let what = format!("f_quantile({p}, {d1}, {d2})");
+        check.close(what, got, expected, tolerance(&[d1, d2]));
     }
     for &(x, d1, d2, cdf, sf) in F_TAILS {
+        let tol = tolerance(&[d1, d2]);
         if !cdf.is_nan() {
             let got = f_cdf(x, d1, d2).unwrap();
-            check.close(format!("f_cdf({x}, {d1}, {d2})"), got, cdf, TOLERANCE);
+            check.close(format!("f_cdf({x}, {d1}, {d2})"), got, cdf, tol);
         }
         if !sf.is_nan() {
             let got = f_sf(x, d1, d2).unwrap();
-            check.close(format!("f_sf({x}, {d1}, {d2})"), got, sf, TOLERANCE);
+            check.close(format!("f_sf({x}, {d1}, {d2})"), got, sf, tol);
         }
     }
     check.finish();
@@ -838,10 +1049,16 @@ fn incomplete_gamma_is_the_chi2_distribution() {
     // gamma functions are wired to the same scipy-checked code, at the χ² rows.
     for &(x, df, cdf, sf) in CHI2_TAILS {
         if !cdf.is_nan() {
-            assert!(rel(gamma_p(df / 2.0, x / 2.0).unwrap(), cdf) < 1e-10, "P({df}, {x})");
+            assert!(
+                rel(gamma_p(df / 2.0, x / 2.0).unwrap(), cdf) < 1e-10,
+                "P({df}, {x})"
+            );
         }
         if !sf.is_nan() {
-            assert!(rel(gamma_q(df / 2.0, x / 2.0).unwrap(), sf) < 1e-10, "Q({df}, {x})");
+            assert!(
+                rel(gamma_q(df / 2.0, x / 2.0).unwrap(), sf) < 1e-10,
+                "Q({df}, {x})"
+            );
         }
     }
     // ln Γ(10.5) = ln(654729075 √π / 1024) (closed form; value by mpmath, 50 digits).
@@ -853,12 +1070,32 @@ fn incomplete_gamma_is_the_chi2_distribution() {
 // allows: the tail at the returned x may differ from p by a few ε plus twice the
 // change of the tail over one ulp of x (so the quantile is within about two ulps).
 // Near x = 1 (beta mass piled against 1) one ulp of x can change the tail by 100 %,
-// which is then all that can be asked.
+// which is then all that can be asked; F quantiles, built from both u and 1 − u,
+// keep full accuracy there.
 
-const ROUND_TRIP_P: [f64; 17] = [
-    1e-300, 1e-15, 1e-12, 1e-9, 1e-6, 1e-3, 0.01, 0.1, 0.25, 0.5, 0.75, 0.9, 0.99, 0.999,
-    1.0 - 1e-6, 1.0 - 1e-9, 1.0 - 1e-12,
+const ROUND_TRIP_P: [f64; 18] = [
+    1e-300,
+    1e-100,
+    1e-15,
+    1e-12,
+    1e-9,
+    1e-6,
+    1e-3,
+    0.01,
+    0.1,
+    0.25,
+    0.5,
+    0.75,
+    0.9,
+    0.99,
+    0.999,
+    1.0 - 1e-6,
+    1.0 - 1e-9,
+    1.0 - 1e-12,
 ];
+/// Below p = 1e-15 a tail is e^E with |E| up to 700, and the rounding of E (and of
+/// a·ln x inside it) limits any double-precision evaluation to about 700·ε ≈ 1.6e-13.
+const FAR_TAIL_ALLOWANCE: f64 = 2e-13;
 
 /// The doubles just below and just above x (x ≠ 0, finite).
 fn neighbours(x: f64) -> (f64, f64) {
@@ -879,9 +1116,11 @@ fn round_trip(
 ) {
     for p in ROUND_TRIP_P {
         let x = quantile(p);
-        if x == 0.0 || !x.is_finite() {
-            // Below the smallest double (e.g. χ²(0.5) at p = 1e-300): the quantile
-            // underflows and there is nothing to compare.
+        if x < 1e-290 || !x.is_finite() || x == 1.0 {
+            // At the underflow threshold (e.g. χ²(0.5) or F(1, 10⁶) at p = 1e-300,
+            // whose true quantiles are below 1e-600) the quantile and the internal
+            // variables (x/2, d1·x/d2) are subnormal and carry too few digits; and a
+            // beta quantile within half an ulp of 1 is returned as 1 itself.
             continue;
         }
         let tail: &dyn Fn(f64) -> f64 = if p <= 0.5 { &cdf } else { &sf };
@@ -889,8 +1128,18 @@ fn round_trip(
         let here = tail(x);
         let (down, up) = neighbours(x);
         let ulp_change = (tail(down) - here).abs().max((tail(up) - here).abs());
-        let tolerance = 8.0 * f64::EPSILON + 2.0 * ulp_change / target;
-        check.close(format!("{what} at p = {p:e}: x = {x:e}"), here, target, tolerance);
+        let far = if target < 1e-15 {
+            FAR_TAIL_ALLOWANCE
+        } else {
+            0.0
+        };
+        let tolerance = 8.0 * f64::EPSILON + 2.0 * ulp_change / target + far;
+        check.close(
+            format!("{what} at p = {p:e}: x = {x:e}"),
+            here,
+            target,
+            tolerance,
+        );
     }
 }
 
@@ -961,31 +1210,82 @@ fn bad_input_gives_documented_errors() {
     let nan = f64::NAN;
     let inf = f64::INFINITY;
     for p in [-0.1, 1.1, nan, inf] {
-        assert!(matches!(normal_quantile(p), Err(Probability { name: "p", .. })), "{p}");
-        assert!(matches!(chi2_quantile(p, 3.0), Err(Probability { .. })), "{p}");
-        assert!(matches!(beta_quantile(p, 2.0, 3.0), Err(Probability { .. })), "{p}");
-        assert!(matches!(f_quantile(p, 2.0, 3.0), Err(Probability { .. })), "{p}");
+        assert!(
+            matches!(normal_quantile(p), Err(Probability { name: "p", .. })),
+            "{p}"
+        );
+        assert!(
+            matches!(chi2_quantile(p, 3.0), Err(Probability { .. })),
+            "{p}"
+        );
+        assert!(
+            matches!(beta_quantile(p, 2.0, 3.0), Err(Probability { .. })),
+            "{p}"
+        );
+        assert!(
+            matches!(f_quantile(p, 2.0, 3.0), Err(Probability { .. })),
+            "{p}"
+        );
     }
     for df in [0.0, -1.0, nan, inf, 1e11] {
-        assert!(matches!(chi2_cdf(1.0, df), Err(Parameter { name: "df", .. })), "{df}");
-        assert!(matches!(chi2_sf(1.0, df), Err(Parameter { name: "df", .. })), "{df}");
-        assert!(matches!(chi2_quantile(0.5, df), Err(Parameter { name: "df", .. })), "{df}");
-        assert!(matches!(beta_cdf(0.5, df, 1.0), Err(Parameter { name: "a", .. })), "{df}");
-        assert!(matches!(beta_quantile(0.5, 1.0, df), Err(Parameter { name: "b", .. })), "{df}");
-        assert!(matches!(f_cdf(1.0, df, 1.0), Err(Parameter { name: "d1", .. })), "{df}");
-        assert!(matches!(f_quantile(0.5, 1.0, df), Err(Parameter { name: "d2", .. })), "{df}");
-        assert!(matches!(gamma_p(df, 1.0), Err(Parameter { name: "a", .. })), "{df}");
+        assert!(
+            matches!(chi2_cdf(1.0, df), Err(Parameter { name: "df", .. })),
+            "{df}"
+        );
+        assert!(
+            matches!(chi2_sf(1.0, df), Err(Parameter { name: "df", .. })),
+            "{df}"
+        );
+        assert!(
+            matches!(chi2_quantile(0.5, df), Err(Parameter { name: "df", .. })),
+            "{df}"
+        );
+        assert!(
+            matches!(beta_cdf(0.5, df, 1.0), Err(Parameter { name: "a", .. })),
+            "{df}"
+        );
+        assert!(
+            matches!(
+                beta_quantile(0.5, 1.0, df),
+                Err(Parameter { name: "b", .. })
+            ),
+            "{df}"
+        );
+        assert!(
+            matches!(f_cdf(1.0, df, 1.0), Err(Parameter { name: "d1", .. })),
+            "{df}"
+        );
+        assert!(
+            matches!(f_quantile(0.5, 1.0, df), Err(Parameter { name: "d2", .. })),
+            "{df}"
+        );
+        assert!(
+            matches!(gamma_p(df, 1.0), Err(Parameter { name: "a", .. })),
+            "{df}"
+        );
     }
     assert!(matches!(normal_cdf(nan), Err(NotANumber { name: "x" })));
     assert!(matches!(chi2_cdf(nan, 2.0), Err(NotANumber { name: "x" })));
-    assert!(matches!(beta_sf(nan, 2.0, 2.0), Err(NotANumber { name: "x" })));
+    assert!(matches!(
+        beta_sf(nan, 2.0, 2.0),
+        Err(NotANumber { name: "x" })
+    ));
     assert!(matches!(f_sf(nan, 2.0, 2.0), Err(NotANumber { name: "x" })));
-    assert!(matches!(gamma_q(2.0, -1.0), Err(Parameter { name: "x", .. })));
-    assert!(matches!(beta_inc(1.5, 2.0, 2.0), Err(Probability { name: "x", .. })));
+    assert!(matches!(
+        gamma_q(2.0, -1.0),
+        Err(Parameter { name: "x", .. })
+    ));
+    assert!(matches!(
+        beta_inc(1.5, 2.0, 2.0),
+        Err(Probability { name: "x", .. })
+    ));
     assert!(matches!(ln_gamma(0.0), Err(Parameter { name: "x", .. })));
     // The messages name the argument and the rule.
     let message = chi2_quantile(0.5, -2.0).unwrap_err().to_string();
-    assert_eq!(message, "parameter `df` must be positive and at most 1e10, got -2");
+    assert_eq!(
+        message,
+        "parameter `df` must be positive and at most 1e10, got -2"
+    );
 }
 
 #[test]
@@ -1042,43 +1342,82 @@ fn extreme_valid_input_never_gives_nan() {
 fn limits_reject_bad_input() {
     let residual = [1.0, 0.5, 0.25];
     for c in [0.0, 1.0, -0.1, 1.1, f64::NAN, f64::INFINITY] {
-        assert!(matches!(t2_limit_phase1(30, 2, c), Err(LimitError::Confidence { .. })), "{c}");
+        assert!(
+            matches!(
+                t2_limit_phase1(30, 2, c),
+                Err(LimitError::Confidence { .. })
+            ),
+            "{c}"
+        );
         let r = t2_limit_new_observation(30, 2, c);
         assert!(matches!(r, Err(LimitError::Confidence { .. })), "{c}");
         let r = spe_limit_jackson_mudholkar(&residual, c);
         assert!(matches!(r, Err(LimitError::Confidence { .. })), "{c}");
-        assert!(matches!(spe_limit_box(&residual, c), Err(LimitError::Confidence { .. })), "{c}");
+        assert!(
+            matches!(
+                spe_limit_box(&residual, c),
+                Err(LimitError::Confidence { .. })
+            ),
+            "{c}"
+        );
     }
     assert_eq!(t2_limit_phase1(30, 0, 0.95), Err(LimitError::NoComponents));
-    assert_eq!(t2_limit_new_observation(30, 0, 0.95), Err(LimitError::NoComponents));
+    assert_eq!(
+        t2_limit_new_observation(30, 0, 0.95),
+        Err(LimitError::NoComponents)
+    );
     // Phase I needs n ≥ k + 2 (Beta shape (n − k − 1)/2 > 0); new observations n ≥ k + 1.
     for (n, k) in [(0, 1), (2, 1), (5, 4), (5, 5), (3, 7)] {
         let r = t2_limit_phase1(n, k, 0.95);
-        assert!(matches!(r, Err(LimitError::TooFewRows { needed, .. }) if needed == k + 2), "{n} {k}");
+        assert!(
+            matches!(r, Err(LimitError::TooFewRows { needed, .. }) if needed == k + 2),
+            "{n} {k}"
+        );
     }
     for (n, k) in [(0, 1), (1, 1), (4, 4), (3, 7)] {
         let r = t2_limit_new_observation(n, k, 0.95);
-        assert!(matches!(r, Err(LimitError::TooFewRows { needed, .. }) if needed == k + 1), "{n} {k}");
+        assert!(
+            matches!(r, Err(LimitError::TooFewRows { needed, .. }) if needed == k + 1),
+            "{n} {k}"
+        );
     }
     assert!(t2_limit_phase1(3, 1, 0.95).unwrap().is_finite());
     assert!(t2_limit_new_observation(2, 1, 0.95).unwrap().is_finite());
-    assert_eq!(spe_limit_box(&[], 0.95), Err(LimitError::NoResidualEigenvalues));
-    assert_eq!(spe_limit_jackson_mudholkar(&[], 0.95), Err(LimitError::NoResidualEigenvalues));
+    assert_eq!(
+        spe_limit_box(&[], 0.95),
+        Err(LimitError::NoResidualEigenvalues)
+    );
+    assert_eq!(
+        spe_limit_jackson_mudholkar(&[], 0.95),
+        Err(LimitError::NoResidualEigenvalues)
+    );
     for bad in [0.0, -1e-17, f64::NAN, f64::INFINITY] {
         let r = spe_limit_box(&[2.0, 1.0, bad], 0.95);
-        assert!(matches!(r, Err(LimitError::Eigenvalue { position: 3, .. })), "{bad}");
+        assert!(
+            matches!(r, Err(LimitError::Eigenvalue { position: 3, .. })),
+            "{bad}"
+        );
         let r = spe_limit_jackson_mudholkar(&[bad, 1.0], 0.95);
-        assert!(matches!(r, Err(LimitError::Eigenvalue { position: 1, .. })), "{bad}");
+        assert!(
+            matches!(r, Err(LimitError::Eigenvalue { position: 1, .. })),
+            "{bad}"
+        );
     }
     // h₀ ≤ 0: one eigenvalue 1 and a tail of 200 × 0.005 (θ₁ = 2, θ₂ = 1.005).
     let mut uneven = vec![1.0];
     uneven.extend(std::iter::repeat_n(0.005, 200));
     let r = spe_limit_jackson_mudholkar(&uneven, 0.95);
-    assert!(matches!(r, Err(LimitError::NonPositiveH0 { h0 }) if h0 <= 0.0), "{r:?}");
+    assert!(
+        matches!(r, Err(LimitError::NonPositiveH0 { h0 }) if h0 <= 0.0),
+        "{r:?}"
+    );
     // A single residual eigenvalue has h₀ = 1/3, and the bracket
     // z·√(2/9) + 1 − 2/9 is negative for z < −1.65 (confidence 0.01).
     let r = spe_limit_jackson_mudholkar(&[1.0], 0.01);
-    assert!(matches!(r, Err(LimitError::NonPositiveBase { base, .. }) if base <= 0.0), "{r:?}");
+    assert!(
+        matches!(r, Err(LimitError::NonPositiveBase { base, .. }) if base <= 0.0),
+        "{r:?}"
+    );
     assert!(spe_limit_box(&[1.0], 0.01).unwrap() > 0.0);
     let message = t2_limit_phase1(4, 3, 0.95).unwrap_err().to_string();
     assert_eq!(
@@ -1099,21 +1438,53 @@ fn results_are_bit_identical_to_the_recorded_ones() {
     let values = [
         ("normal_cdf(-7.5)", normal_cdf(-7.5).unwrap()),
         ("normal_quantile(1e-9)", normal_quantile(1e-9).unwrap()),
-        ("chi2_quantile(0.99, 7.155336321730074)", chi2_quantile(0.99, 7.155336321730074).unwrap()),
+        (
+            "chi2_quantile(0.99, 7.155336321730074)",
+            chi2_quantile(0.99, 7.155336321730074).unwrap(),
+        ),
         ("chi2_sf(150, 100.5)", chi2_sf(150.0, 100.5).unwrap()),
-        ("beta_quantile(0.95, 1.5, 87)", beta_quantile(0.95, 1.5, 87.0).unwrap()),
-        ("beta_cdf(0.3, 1e4, 3e4)", beta_cdf(0.3, 1e4, 3e4).unwrap()),
-        ("f_quantile(0.999, 3, 175)", f_quantile(0.999, 3.0, 175.0).unwrap()),
-        ("t2_limit_phase1(178, 3, 0.99)", t2_limit_phase1(178, 3, 0.99).unwrap()),
-        ("spe_limit_jackson_mudholkar", spe_limit_jackson_mudholkar(&residual, 0.95).unwrap()),
+        (
+            "beta_quantile(0.95, 1.5, 87)",
+            beta_quantile(0.95, 1.5, 87.0).unwrap(),
+        ),
+        (
+            "beta_sf(0.253, 1e4, 3e4)",
+            beta_sf(0.253, 1e4, 3e4).unwrap(),
+        ),
+        (
+            "f_quantile(0.999, 3, 175)",
+            f_quantile(0.999, 3.0, 175.0).unwrap(),
+        ),
+        (
+            "t2_limit_phase1(178, 3, 0.99)",
+            t2_limit_phase1(178, 3, 0.99).unwrap(),
+        ),
+        (
+            "spe_limit_jackson_mudholkar",
+            spe_limit_jackson_mudholkar(&residual, 0.95).unwrap(),
+        ),
         ("spe_limit_box", spe_limit_box(&residual, 0.95).unwrap()),
     ];
-    let recorded: [u64; 10] = [0; 10];
+    let recorded: [u64; 10] = [
+        0x3d21f68f3dbb818a,
+        0xc017fdc11f44b5a7,
+        0x4032baa44d8e9627,
+        0x3f508f25baca05f9,
+        0x3fa66c7862d056ca,
+        0x3fb54c4ca9fd6405,
+        0x4016a93fdc04d3d5,
+        0x4026286d03bec3d9,
+        0x40145e7c50b6007e,
+        0x4013fa71c03c0ba8,
+    ];
     let mut failures = Vec::new();
     for ((what, v), bits) in values.iter().zip(recorded) {
         println!("{what}: {v:e} = {:#018x}", v.to_bits());
         if v.to_bits() != bits {
-            failures.push(format!("{what}: {v:e} has bits {:#018x}, recorded {bits:#018x}", v.to_bits()));
+            failures.push(format!(
+                "{what}: {v:e} has bits {:#018x}, recorded {bits:#018x}",
+                v.to_bits()
+            ));
         }
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));

@@ -276,7 +276,6 @@ pub fn knn(columns: &mut [Vec<f64>], k: usize) {
     }
 }
 
-
 /// Fills the missing cells (`NaN`) of one new row from an imputation model: the
 /// row's scores are fitted by least squares to its observed cells, and the
 /// missing cells are read off the model (projection to the model plane; Nelson,

@@ -185,10 +185,9 @@ pub fn chi2_quantile(p: f64, df: f64) -> Result<f64, StatsError> {
     let a = 0.5 * df;
     let q = 1.0 - p;
     let lower = p <= q;
-    let (ln_p, ln_q) = (libm::log(p), libm::log(q));
     let eval = |x: f64| {
         let (pp, qq, prefactor) = gamma_pq(a, 0.5 * x);
-        log_tail_gap(lower, pp, qq, ln_p, ln_q, prefactor / x)
+        log_tail_gap(lower, pp, qq, p, q, prefactor / x)
     };
     let z = as241(p);
     let c = 2.0 / (9.0 * df);
@@ -209,16 +208,17 @@ pub fn chi2_quantile(p: f64, df: f64) -> Result<f64, StatsError> {
     ))
 }
 
-/// The function whose root is a quantile, in log space: ln F(x) − ln p when the
-/// lower tail is matched (p ≤ ½), ln(1 − p) − ln S(x) otherwise, with its
-/// derivative density/tail. Both are increasing in x. Newton steps on the
-/// logarithm converge in a few steps even 300 decades into a tail, where Newton
-/// on F(x) − p itself would crawl by one e-fold per step.
-fn log_tail_gap(lower: bool, cdf: f64, sf: f64, ln_p: f64, ln_q: f64, density: f64) -> (f64, f64) {
+/// The function whose root is a quantile, in log space: ln(F(x)/p) when the lower
+/// tail is matched (p ≤ ½), ln((1 − p)/S(x)) otherwise, with its derivative
+/// density/tail. Both are increasing in x. Newton steps on the logarithm converge
+/// in a few steps even 300 decades into a tail, where Newton on F(x) − p itself
+/// would crawl by one e-fold per step. The ratio is formed before the logarithm:
+/// ln F − ln p would resolve F/p only to ulp(690) ≈ 1e-13 at p = 1e-300.
+fn log_tail_gap(lower: bool, cdf: f64, sf: f64, p: f64, q: f64, density: f64) -> (f64, f64) {
     if lower {
-        (libm::log(cdf) - ln_p, density / cdf)
+        (libm::log(cdf / p), density / cdf)
     } else {
-        (ln_q - libm::log(sf), density / sf)
+        (libm::log(q / sf), density / sf)
     }
 }
 
@@ -292,11 +292,10 @@ fn beta_quantile_pair(p: f64, a: f64, b: f64) -> (f64, f64) {
 /// The t in (0, ½] with Iₜ(a, b) = p (q = 1 − p), given that one exists.
 fn beta_root_below_half(a: f64, b: f64, p: f64, q: f64) -> f64 {
     let lower = p <= q;
-    let (ln_p, ln_q) = (libm::log(p), libm::log(q));
     let eval = |t: f64| {
         let y = 1.0 - t;
         let (w, w1, prefactor) = beta_pq(a, b, t, y, beta_lambda(a, b, t, y));
-        log_tail_gap(lower, w, w1, ln_p, ln_q, prefactor / (t * y))
+        log_tail_gap(lower, w, w1, p, q, prefactor / (t * y))
     };
     let (g_half, _) = eval(0.5);
     if g_half <= 0.0 {
@@ -312,7 +311,14 @@ fn beta_root_below_half(a: f64, b: f64, p: f64, q: f64) -> f64 {
     // p or q may be 1 after rounding; take z from the smaller, exact one.
     let z = if lower { as241(p) } else { -as241(q) };
     let normal = a / s + z * libm::sqrt(a * b / (s * s * (s + 1.0)));
-    increasing_root(eval, 0.0, f64::NEG_INFINITY, 0.5, g_half, &[leading_term, normal])
+    increasing_root(
+        eval,
+        0.0,
+        f64::NEG_INFINITY,
+        0.5,
+        g_half,
+        &[leading_term, normal],
+    )
 }
 
 /// F CDF P(X ≤ x) with d1 and d2 degrees of freedom: I_u(d1/2, d2/2) with
@@ -349,10 +355,18 @@ fn f_at(x: f64, d1: f64, d2: f64) -> (f64, f64) {
     // the mean (F(10⁶, 10⁶) near x = 1).
     let (u, v, lambda) = if d1 * x <= d2 {
         let t = d1 * x / d2;
-        (t / (1.0 + t), 1.0 / (1.0 + t), d1 * (1.0 - x) / (2.0 * (1.0 + t)))
+        (
+            t / (1.0 + t),
+            1.0 / (1.0 + t),
+            d1 * (1.0 - x) / (2.0 * (1.0 + t)),
+        )
     } else {
         let r = d2 / d1 / x;
-        (1.0 / (1.0 + r), r / (1.0 + r), d2 * ((1.0 - x) / x) / (2.0 * (1.0 + r)))
+        (
+            1.0 / (1.0 + r),
+            r / (1.0 + r),
+            d2 * ((1.0 - x) / x) / (2.0 * (1.0 + r)),
+        )
     };
     let (w, w1, _) = beta_pq(0.5 * d1, 0.5 * d2, u, v, lambda);
     (w, w1)
@@ -369,10 +383,15 @@ pub fn f_quantile(p: f64, d1: f64, d2: f64) -> Result<f64, StatsError> {
     let d1 = check_parameter("d1", d1)?;
     let d2 = check_parameter("d2", d2)?;
     let (u, v) = beta_quantile_pair(p, 0.5 * d1, 0.5 * d2);
-    Ok(if v == 0.0 {
-        f64::INFINITY
+    let ratio = u / v;
+    let scale = d2 / d1;
+    Ok(if ratio == 0.0 || ratio.is_infinite() {
+        ratio
+    } else if scale.is_finite() && scale > 0.0 {
+        ratio * scale
     } else {
-        u / v * (d2 / d1)
+        // Extreme d2/d1 (beyond the double range): combine in logarithms.
+        libm::exp(libm::log(ratio) + libm::log(d2) - libm::log(d1))
     })
 }
 

@@ -367,11 +367,12 @@ fn beta_continued_fraction(a: f64, b: f64, x: f64, lambda: f64) -> f64 {
     let x2 = x * x;
     for m in 1..=iteration_cap(a.max(b)) {
         let m = m as f64;
-        let am = a + 2.0 * m;
-        let alpha = m * (b - m) * (a + m - 1.0) * (s + m - 1.0) * x2
-            / ((am - 2.0) * (am - 1.0) * (am - 1.0) * am);
+        // a + (integer) keeps a tiny a from being absorbed before a subtraction.
+        let a_2m_minus_1 = a + (2.0 * m - 1.0);
+        let alpha = m * (b - m) * (a + (m - 1.0)) * (s + (m - 1.0)) * x2
+            / ((a + (2.0 * m - 2.0)) * a_2m_minus_1 * a_2m_minus_1 * (a + 2.0 * m));
         let beta = (first + 2.0 * m * (a + m) * (lambda + a + 2.0 * b))
-            / (s * (am - 1.0) * (am + 1.0));
+            / (s * a_2m_minus_1 * (a + (2.0 * m + 1.0)));
         d = 1.0 / guard(beta + alpha * d);
         c = guard(beta + alpha / c);
         let delta = c * d;

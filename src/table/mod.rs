@@ -3,8 +3,10 @@
 //! Missing cells are `NaN` inside numeric columns; a real `NaN` or infinity in the
 //! file is never accepted as data, so `NaN` always means "missing" here.
 
+pub mod fast;
 pub mod read;
 
+pub use fast::read_table_parallel;
 pub use read::{ReadOptions, read_header, read_table};
 
 /// The header row of a table, in file order.

@@ -143,7 +143,7 @@ pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<
     })
 }
 
-fn push_number(column: &mut NumericColumn, cell: &str, line: u64, missing: &[String]) {
+pub(crate) fn push_number(column: &mut NumericColumn, cell: &str, line: u64, missing: &[String]) {
     if missing.iter().any(|m| m == cell) {
         column.missing += 1;
         column.values.push(f64::NAN);

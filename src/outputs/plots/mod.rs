@@ -8,16 +8,22 @@
 //!
 //! | class | what |
 //! |---|---|
-//! | `points` | one marker per individually drawn row (`flagged` on rows above a limit), in `group` subgroups |
-//! | `density` | binned rows in density mode, in `density-class` subgroups |
-//! | `labels` | point labels (row ids) |
-//! | `bars` | one `rect` per bar (`kept` on kept components in the scree) |
-//! | `arrows`, `arrow-labels` | biplot and correlation-circle arrows and their feature names |
-//! | `legend` | the legend column |
+//! | `points` | one marker per individually drawn row or feature, in `group` subgroups (`data-group`); `flagged` on rows above a limit |
+//! | `density` | rows binned in density mode: one `rect` per occupied cell, in `density-class` subgroups (`data-from`) |
+//! | `labels`, `arrow-labels` | row ids beside points; feature names beside arrows |
+//! | `arrows` | one `path` per feature (shaft and head), biplot and correlation circle |
+//! | `bars` | one `rect` per bar; in the scree `bar`, plus `kept` for kept components |
+//! | `cumulative`, `broken-stick`, `parallel`, `press` | scree series: a polyline and one marker per value |
+//! | `kept-rule`, `kaiser`, `variance-target`, `press-choice` | the scree's marks of k and of the rules |
+//! | `ellipse`, `t2-limit`, `spe-limit`, `unit-circle` | the T² ellipse, the outlier-map limits, the correlation circle |
+//! | `legend`, `tick-labels` | the legend column; feature names under loading bars |
 //!
 //! Same view, same bytes: numbers are written from integers or rounded to
 //! tenths of a pixel, no ids or timestamps are written, and groups are sorted
-//! by name. Text uses the generic `sans-serif` family; no font is embedded.
+//! by name (digit runs by value). Having no ids, several figures can be
+//! inlined into one HTML page without clashes. Text uses the generic
+//! `sans-serif` family; no font is embedded. Each document carries its title
+//! and caption as `<title>` and `<desc>`.
 
 mod biplot;
 mod circle;

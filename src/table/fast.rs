@@ -1,0 +1,379 @@
+//! The parallel table reader used by runs: the file's body is cut into pieces at
+//! record boundaries, the pieces are parsed at the same time, and their columns
+//! are joined in order.
+//!
+//! Cutting is quote-aware: a newline inside a quoted field does not end a record.
+//! When the body holds no quote at all (the common case), a piece simply ends at
+//! the first newline after its nominal end; otherwise one sequential pass tracks
+//! the quote state. Every cell is parsed on its own by the same code whatever the
+//! piece it falls in, so the table does not depend on how the file was cut or on
+//! the number of threads; [`super::read::read_table`] (on the `csv` crate) is the
+//! reference it is tested against.
+
+use super::read::{ReadOptions, read_header};
+use super::{Column, ColumnData, NumericColumn, Table};
+use crate::error::InputError;
+use rayon::prelude::*;
+
+/// Bytes per piece when the piece count is chosen automatically.
+const PIECE_BYTES: usize = 4 << 20;
+
+/// Reads the whole table with the pieces chosen from the file size.
+pub fn read_table_parallel(
+    bytes: &[u8],
+    display: &str,
+    options: &ReadOptions,
+) -> Result<Table, InputError> {
+    let pieces = (bytes.len() / PIECE_BYTES).clamp(1, 4 * rayon::current_num_threads().max(1));
+    read_table_in_pieces(bytes, display, options, pieces)
+}
+
+/// Reads the whole table, cutting its body into (at most) `pieces` pieces.
+pub fn read_table_in_pieces(
+    bytes: &[u8],
+    display: &str,
+    options: &ReadOptions,
+    pieces: usize,
+) -> Result<Table, InputError> {
+    let header = read_header(bytes, display, options.delimiter)?;
+    let width = header.names.len();
+    let is_text: Vec<bool> = header
+        .names
+        .iter()
+        .map(|n| options.text_columns.iter().any(|t| t == n))
+        .collect();
+    let start = if bytes.starts_with(b"\xef\xbb\xbf") {
+        3
+    } else {
+        0
+    };
+    let (header_end, header_lines) = record_end(bytes, start, options.delimiter);
+    let body = &bytes[header_end..];
+    let cuts = cut(body, pieces, options.delimiter);
+    // The file line each piece starts on: the header's lines, plus every newline
+    // (inside quotes too, as editors count them) in the pieces before it.
+    let newlines: Vec<u64> = cuts
+        .par_windows(2)
+        .map(|w| memchr::memchr_iter(b'\n', &body[w[0]..w[1]]).count() as u64)
+        .collect();
+    let mut first_lines = Vec::with_capacity(newlines.len());
+    let mut line = 1 + header_lines;
+    for n in &newlines {
+        first_lines.push(line);
+        line += n;
+    }
+    let spec = Spec {
+        display,
+        width,
+        is_text: &is_text,
+        delimiter: options.delimiter,
+        missing: &options.missing_tokens,
+    };
+    let parsed: Vec<Piece> = cuts
+        .par_windows(2)
+        .zip(first_lines)
+        .map(|(w, line)| parse_piece(&body[w[0]..w[1]], line, &spec))
+        .collect();
+    join(parsed, header.names, &is_text, display)
+}
+
+/// Record ends (just past a newline that is not inside a quoted field), found
+/// with the same rules as [`split_record`]: a quote opens a quoted field only at
+/// the start of a field, and `""` inside one is an escaped quote. Calls `at_end`
+/// with each end and the count of newlines up to it; stops when it returns false.
+fn scan_record_ends(bytes: &[u8], delimiter: u8, mut at_end: impl FnMut(usize, u64) -> bool) {
+    let mut quoted = false;
+    let mut field_start = 0;
+    let mut newlines = 0;
+    let mut skip_next = false;
+    for i in memchr::memchr3_iter(delimiter, b'"', b'\n', bytes) {
+        if skip_next {
+            skip_next = false;
+            continue;
+        }
+        match bytes[i] {
+            b'"' if quoted => {
+                if bytes.get(i + 1) == Some(&b'"') {
+                    skip_next = true;
+                } else {
+                    quoted = false;
+                }
+            }
+            b'"' => quoted = i == field_start,
+            b'\n' => {
+                newlines += 1;
+                if !quoted {
+                    field_start = i + 1;
+                    if !at_end(i + 1, newlines) {
+                        return;
+                    }
+                }
+            }
+            _ if !quoted => field_start = i + 1,
+            _ => {}
+        }
+    }
+}
+
+/// Where the record starting at `from` ends (just past its newline, or the end of
+/// the bytes), and how many newlines it spans.
+fn record_end(bytes: &[u8], from: usize, delimiter: u8) -> (usize, u64) {
+    let mut found = (bytes.len(), 0);
+    let mut lines_seen = 0;
+    scan_record_ends(&bytes[from..], delimiter, |end, lines| {
+        found = (from + end, lines);
+        lines_seen = lines;
+        false
+    });
+    if found.0 == bytes.len() {
+        found.1 = memchr::memchr_iter(b'\n', &bytes[from..]).count() as u64;
+    }
+    let _ = lines_seen;
+    found
+}
+
+/// Byte offsets that cut `body` into at most `pieces` runs of whole records:
+/// `[0, …, body.len()]`.
+fn cut(body: &[u8], pieces: usize, delimiter: u8) -> Vec<usize> {
+    let pieces = pieces.max(1);
+    let len = body.len();
+    let mut cuts = vec![0];
+    if memchr::memchr(b'"', body).is_none() {
+        // No quotes: every newline ends a record.
+        for k in 1..pieces {
+            let target = (len * k / pieces).max(*cuts.last().expect("non-empty"));
+            if let Some(nl) = memchr::memchr(b'\n', &body[target..]) {
+                let at = target + nl + 1;
+                if at < len && at > *cuts.last().expect("non-empty") {
+                    cuts.push(at);
+                }
+            }
+        }
+    } else if pieces > 1 {
+        let mut next = 1;
+        scan_record_ends(body, delimiter, |end, _| {
+            if end >= len * next / pieces && end < len {
+                cuts.push(end);
+                while next < pieces && len * next / pieces <= end {
+                    next += 1;
+                }
+            }
+            next < pieces
+        });
+    }
+    cuts.push(len);
+    cuts.dedup();
+    cuts
+}
+
+/// What every piece needs to know about the table.
+struct Spec<'a> {
+    display: &'a str,
+    width: usize,
+    is_text: &'a [bool],
+    delimiter: u8,
+    missing: &'a [String],
+}
+
+/// One piece's rows, column by column.
+struct Piece {
+    texts: Vec<Vec<String>>,
+    numbers: Vec<NumericColumn>,
+    lines: Vec<u64>,
+    error: Option<InputError>,
+}
+
+/// One field of a record: a stretch of the piece's bytes, or (for a quoted
+/// field with escaped quotes or text after its closing quote) bytes of its own.
+enum Field {
+    Slice(usize, usize),
+    Owned(Vec<u8>),
+}
+
+impl Field {
+    fn bytes<'a>(&'a self, buf: &'a [u8]) -> &'a [u8] {
+        match self {
+            Field::Slice(a, b) => &buf[*a..*b],
+            Field::Owned(v) => v,
+        }
+    }
+}
+
+/// Parses the records of one piece; stops at its first error.
+fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec) -> Piece {
+    let mut piece = Piece {
+        texts: vec![Vec::new(); spec.width],
+        numbers: vec![NumericColumn::default(); spec.width],
+        lines: Vec::new(),
+        error: None,
+    };
+    let mut pos = 0;
+    let mut line = first_line;
+    let mut fields: Vec<Field> = Vec::with_capacity(spec.width);
+    while pos < buf.len() {
+        let record_line = line;
+        fields.clear();
+        let (next, spanned) = split_record(buf, pos, spec.delimiter, &mut fields);
+        pos = next;
+        line += spanned;
+        if fields.len() == 1
+            && fields[0].bytes(buf).iter().all(u8::is_ascii_whitespace)
+            && spec.width > 1
+        {
+            continue; // a blank line
+        }
+        if fields.len() != spec.width {
+            piece.error = Some(InputError::Ragged {
+                path: spec.display.to_string(),
+                line: record_line,
+                expected: spec.width,
+                found: fields.len(),
+            });
+            return piece;
+        }
+        for (j, field) in fields.iter().enumerate() {
+            let Ok(text) = std::str::from_utf8(field.bytes(buf)) else {
+                piece.error = Some(InputError::Csv {
+                    path: spec.display.to_string(),
+                    line: record_line,
+                    message: format!("the text is not valid UTF-8 (field {})", j + 1),
+                });
+                return piece;
+            };
+            let cell = text.trim();
+            if spec.is_text[j] {
+                piece.texts[j].push(cell.to_string());
+            } else {
+                super::read::push_number(&mut piece.numbers[j], cell, record_line, spec.missing);
+            }
+        }
+        piece.lines.push(record_line);
+    }
+    piece
+}
+
+/// Splits the record starting at `pos` into `fields` (quotes removed, `""`
+/// unescaped, a trailing `\r` dropped); returns where the next record starts and
+/// how many newlines this one spans.
+fn split_record(
+    buf: &[u8],
+    mut pos: usize,
+    delimiter: u8,
+    fields: &mut Vec<Field>,
+) -> (usize, u64) {
+    let mut newlines = 0;
+    loop {
+        let mut owned: Option<Vec<u8>> = None;
+        let mut start = pos;
+        if buf.get(pos) == Some(&b'"') {
+            pos += 1;
+            start = pos;
+            loop {
+                let Some(q) = memchr::memchr(b'"', &buf[pos..]) else {
+                    newlines += memchr::memchr_iter(b'\n', &buf[pos..]).count() as u64;
+                    pos = buf.len();
+                    break;
+                };
+                newlines += memchr::memchr_iter(b'\n', &buf[pos..pos + q]).count() as u64;
+                if buf.get(pos + q + 1) == Some(&b'"') {
+                    // An escaped quote: keep one.
+                    owned
+                        .get_or_insert_with(Vec::new)
+                        .extend_from_slice(&buf[start..pos + q + 1]);
+                    pos += q + 2;
+                    start = pos;
+                } else {
+                    let inner = &buf[start..pos + q];
+                    pos += q + 1;
+                    match &mut owned {
+                        Some(v) => v.extend_from_slice(inner),
+                        None => owned = Some(inner.to_vec()),
+                    }
+                    break;
+                }
+            }
+        }
+        // Unquoted text, or what follows a closing quote, up to the field's end.
+        let end = memchr::memchr2(delimiter, b'\n', &buf[pos..]).map_or(buf.len(), |e| pos + e);
+        let at_line_end = buf.get(end).is_none_or(|&b| b == b'\n' && b != delimiter);
+        let mut field = match owned {
+            Some(mut v) => {
+                v.extend_from_slice(&buf[pos..end]);
+                Field::Owned(v)
+            }
+            None => Field::Slice(start, end),
+        };
+        if at_line_end {
+            match &mut field {
+                Field::Slice(a, b) if *b > *a && buf[*b - 1] == b'\r' => *b -= 1,
+                Field::Owned(v) if v.last() == Some(&b'\r') => {
+                    v.pop();
+                }
+                _ => {}
+            }
+            fields.push(field);
+            return if end < buf.len() {
+                (end + 1, newlines + 1)
+            } else {
+                (end, newlines)
+            };
+        }
+        fields.push(field);
+        pos = end + 1;
+    }
+}
+
+/// Joins the pieces in order; the first error in file order wins.
+fn join(
+    parsed: Vec<Piece>,
+    names: Vec<String>,
+    is_text: &[bool],
+    display: &str,
+) -> Result<Table, InputError> {
+    let rows: usize = parsed.iter().map(|p| p.lines.len()).sum();
+    let width = names.len();
+    let mut texts: Vec<Vec<String>> = (0..width)
+        .map(|j| Vec::with_capacity(if is_text[j] { rows } else { 0 }))
+        .collect();
+    let mut numbers: Vec<NumericColumn> = (0..width)
+        .map(|j| NumericColumn {
+            values: Vec::with_capacity(if is_text[j] { 0 } else { rows }),
+            ..NumericColumn::default()
+        })
+        .collect();
+    let mut lines = Vec::with_capacity(rows);
+    for piece in parsed {
+        if let Some(e) = piece.error {
+            return Err(e);
+        }
+        lines.extend(piece.lines);
+        for (j, (t, n)) in piece.texts.into_iter().zip(piece.numbers).enumerate() {
+            texts[j].extend(t);
+            let column = &mut numbers[j];
+            column.values.extend(n.values);
+            column.missing += n.missing;
+            column.bad += n.bad;
+            if column.first_bad.is_none() {
+                column.first_bad = n.first_bad;
+            }
+        }
+    }
+    let columns = names
+        .into_iter()
+        .zip(texts.into_iter().zip(numbers))
+        .zip(is_text)
+        .map(|((name, (text, number)), &text_kind)| Column {
+            name,
+            data: if text_kind {
+                ColumnData::Text(text)
+            } else {
+                ColumnData::Numeric(number)
+            },
+        })
+        .collect();
+    Ok(Table {
+        display: display.to_string(),
+        columns,
+        lines,
+    })
+}
