@@ -26,6 +26,8 @@ struct Check {
     name: &'static str,
     worst: f64,
     worst_at: String,
+    /// The largest error as a share of its tolerance (1 = at the limit).
+    worst_share: f64,
     failures: Vec<String>,
 }
 
@@ -35,6 +37,7 @@ impl Check {
             name,
             worst: 0.0,
             worst_at: String::new(),
+            worst_share: 0.0,
             failures: Vec::new(),
         }
     }
@@ -45,9 +48,11 @@ impl Check {
             self.worst = r;
             self.worst_at = what.clone();
         }
+        self.worst_share = self.worst_share.max(r / tolerance);
         if r.is_nan() || r > tolerance {
-            self.failures
-                .push(format!("{what}: got {got:e}, expected {expected:e}, relative error {r:.2e} > {tolerance:.0e}"));
+            self.failures.push(format!(
+                "{what}: got {got:e}, expected {expected:e}, relative error {r:.2e} > {tolerance:.0e}"
+            ));
         }
     }
 
@@ -63,10 +68,12 @@ impl Check {
     }
 
     fn finish(self) {
-        println!(
-            "{}: worst relative error {:.2e} at {}",
-            self.name, self.worst, self.worst_at
-        );
+        if !self.worst_at.is_empty() {
+            println!(
+                "{}: worst relative error {:.2e} at {}; largest error/tolerance {:.2}",
+                self.name, self.worst, self.worst_at, self.worst_share
+            );
+        }
         assert!(
             self.failures.is_empty(),
             "{}:\n{}",
@@ -1067,8 +1074,9 @@ fn incomplete_gamma_is_the_chi2_distribution() {
 
 // ---------------------------------------------------------------------------------
 // Round trips: cdf(quantile(p)) = p as closely as the double nearest the quantile
-// allows: the tail at the returned x may differ from p by a few ε plus twice the
-// change of the tail over one ulp of x (so the quantile is within about two ulps).
+// allows: the tail at the returned x may differ from p by 16ε (the tail's own
+// rounding) plus four times the change of the tail over one ulp of x (so the
+// quantile is within a few ulps of the exact one).
 // Near x = 1 (beta mass piled against 1) one ulp of x can change the tail by 100 %,
 // which is then all that can be asked; F quantiles, built from both u and 1 − u,
 // keep full accuracy there.
@@ -1133,7 +1141,7 @@ fn round_trip(
         } else {
             0.0
         };
-        let tolerance = 8.0 * f64::EPSILON + 2.0 * ulp_change / target + far;
+        let tolerance = 16.0 * f64::EPSILON + 4.0 * ulp_change / target + far;
         check.close(
             format!("{what} at p = {p:e}: x = {x:e}"),
             here,

@@ -169,10 +169,10 @@ pub fn chi2_sf(x: f64, df: f64) -> Result<f64, StatsError> {
 /// χ² quantile: the x with P(X ≤ x) = p, for p in [0, 1] and df in (0, 1e10].
 ///
 /// Starting points: Wilson & Hilferty (1931), *PNAS* 17:684–688,
-/// x ≈ ν(1 − 2/(9ν) + z√(2/(9ν)))³, and, for the lower tail, the leading term of the series,
-/// P(a, t) ≈ tᵃ/Γ(a + 1). They are refined by safeguarded Newton steps on
-/// P(x) − p (or on the upper tail when p > ½) to full precision; see the `solve`
-/// module.
+/// x ≈ ν(1 − 2/(9ν) + z√(2/(9ν)))³, and, for the lower tail, the leading term of
+/// the series, P(a, t) ≈ tᵃ/Γ(a + 1). They are refined by safeguarded Newton
+/// steps on ln(P(x)/p) (or on the upper tail when p > ½) to full precision; see
+/// the `solve` module.
 pub fn chi2_quantile(p: f64, df: f64) -> Result<f64, StatsError> {
     let p = check_probability("p", p)?;
     let df = check_parameter("df", df)?;
@@ -351,8 +351,9 @@ fn f_at(x: f64, d1: f64, d2: f64) -> (f64, f64) {
     }
     // u = d1x/(d1x + d2) and 1 − u = d2/(d1x + d2), each formed without
     // subtraction, and λ = d1/2 − (d1 + d2)u/2 = d1(1 − x)/(2(1 + t)) with
-    // t = d1x/d2 (or d2(1 − x)/x/(2(1 + r)) with r = 1/t), which is exact to a few ulps even where u is within rounding of
-    // the mean (F(10⁶, 10⁶) near x = 1).
+    // t = d1x/d2 (or d2((1 − x)/x)/(2(1 + r)) with r = 1/t). This λ is exact to a
+    // few ulps even where u lies within rounding of the mean (F(10⁶, 10⁶) near
+    // x = 1), where forming it from u would cost about 1e-12 relative accuracy.
     let (u, v, lambda) = if d1 * x <= d2 {
         let t = d1 * x / d2;
         (
