@@ -183,24 +183,7 @@ pub fn apply(
             unreachable!()
         };
         if let Some((line, text)) = column.first_bad.clone() {
-            let path = shown.clone();
-            let column = f.name.clone();
-            return Err(if text.parse::<f64>().is_ok() {
-                InputError::NonFinite {
-                    path,
-                    line,
-                    column,
-                    text,
-                }
-            } else {
-                InputError::NotNumeric {
-                    path,
-                    line,
-                    column,
-                    text,
-                }
-            }
-            .into());
+            return Err(InputError::bad_cell(&shown, line, &f.name, text).into());
         }
         let transform = match f.transform.as_deref() {
             Some("log10") => Some(Transform::Log10),

@@ -306,6 +306,29 @@ pub enum InputError {
     },
 }
 
+impl InputError {
+    /// The error for a cell of a numeric column that is not a finite number:
+    /// `NonFinite` for texts such as "inf", `NotNumeric` otherwise.
+    pub fn bad_cell(path: &str, line: u64, column: &str, text: String) -> InputError {
+        let (path, column) = (path.to_string(), column.to_string());
+        if text.parse::<f64>().is_ok() {
+            InputError::NonFinite {
+                path,
+                line,
+                column,
+                text,
+            }
+        } else {
+            InputError::NotNumeric {
+                path,
+                line,
+                column,
+                text,
+            }
+        }
+    }
+}
+
 fn describe_cell(text: &str) -> String {
     if text.is_empty() {
         "an empty cell; add \"\" to input.missing if empty cells mean missing".into()

@@ -4,41 +4,9 @@
 use std::collections::BTreeMap;
 use std::fs;
 use std::path::{Path, PathBuf};
-use std::process::Command;
 
-const BIN: &str = env!("CARGO_BIN_EXE_sextant");
-
-fn workspace() -> tempfile::TempDir {
-    let dir = tempfile::tempdir().unwrap();
-    let repo = PathBuf::from(env!("CARGO_MANIFEST_DIR"));
-    for sub in ["recipes", "demo-data"] {
-        fs::create_dir(dir.path().join(sub)).unwrap();
-        for entry in fs::read_dir(repo.join(sub)).unwrap() {
-            let path = entry.unwrap().path();
-            fs::copy(&path, dir.path().join(sub).join(path.file_name().unwrap())).unwrap();
-        }
-    }
-    dir
-}
-
-struct Out {
-    code: i32,
-    stdout: String,
-    stderr: String,
-}
-
-fn sextant(cwd: &Path, args: &[&str]) -> Out {
-    let out = Command::new(BIN)
-        .args(args)
-        .current_dir(cwd)
-        .output()
-        .unwrap();
-    Out {
-        code: out.status.code().unwrap_or(-1),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-    }
-}
+mod common;
+use common::{sextant, workspace};
 
 /// Runs a recipe (the demo unless another is given) and returns its results folder.
 fn analysed(ws: &Path, recipe: &str) -> PathBuf {

@@ -387,24 +387,7 @@ fn select_features(
             unused.push((name.to_string(), "text, not numbers".to_string()));
         } else {
             let (line, text) = values.first_bad.clone().unwrap_or_default();
-            let path = table.display.clone();
-            let column = name.to_string();
-            return Err(if text.parse::<f64>().is_ok() {
-                InputError::NonFinite {
-                    path,
-                    line,
-                    column,
-                    text,
-                }
-            } else {
-                InputError::NotNumeric {
-                    path,
-                    line,
-                    column,
-                    text,
-                }
-            }
-            .into());
+            return Err(InputError::bad_cell(&table.display, line, name, text).into());
         }
     }
     Ok((features, unused))

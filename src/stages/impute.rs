@@ -206,6 +206,21 @@ fn fit(
     Ok((fitted, model))
 }
 
+/// The mean and standard deviation (n − 1) of a column's observed cells; a
+/// spread of 0 is taken as 1 so that standardising never divides by zero.
+fn observed_mean_sd(column: &[f64]) -> (f64, f64) {
+    let observed: Vec<f64> = column.iter().copied().filter(|v| !v.is_nan()).collect();
+    let mean = super::missing::mean(&observed);
+    let m = observed.len() as f64;
+    let sd = (observed
+        .iter()
+        .map(|v| (v - mean) * (v - mean))
+        .sum::<f64>()
+        / (m - 1.0).max(1.0))
+    .sqrt();
+    (mean, if sd > 0.0 { sd } else { 1.0 })
+}
+
 /// Fills the missing cells of `columns` from the `k` nearest rows.
 pub fn knn(columns: &mut [Vec<f64>], k: usize) {
     let p = columns.len();
@@ -213,16 +228,7 @@ pub fn knn(columns: &mut [Vec<f64>], k: usize) {
     let standard: Vec<Vec<f64>> = columns
         .iter()
         .map(|c| {
-            let observed: Vec<f64> = c.iter().copied().filter(|v| !v.is_nan()).collect();
-            let mean = super::missing::mean(&observed);
-            let m = observed.len() as f64;
-            let sd = (observed
-                .iter()
-                .map(|v| (v - mean) * (v - mean))
-                .sum::<f64>()
-                / (m - 1.0).max(1.0))
-            .sqrt();
-            let sd = if sd > 0.0 { sd } else { 1.0 };
+            let (mean, sd) = observed_mean_sd(c);
             c.iter().map(|v| (v - mean) / sd).collect()
         })
         .collect();
@@ -330,21 +336,7 @@ pub fn fill_row_from_reference(row: &mut [f64], reference: &[Vec<f64>], k: usize
     if row.iter().all(|v| v.is_nan()) {
         return None;
     }
-    let stats: Vec<(f64, f64)> = reference
-        .iter()
-        .map(|c| {
-            let observed: Vec<f64> = c.iter().copied().filter(|v| !v.is_nan()).collect();
-            let mean = super::missing::mean(&observed);
-            let m = observed.len() as f64;
-            let sd = (observed
-                .iter()
-                .map(|v| (v - mean) * (v - mean))
-                .sum::<f64>()
-                / (m - 1.0).max(1.0))
-            .sqrt();
-            (mean, if sd > 0.0 { sd } else { 1.0 })
-        })
-        .collect();
+    let stats: Vec<(f64, f64)> = reference.iter().map(|c| observed_mean_sd(c)).collect();
     let n = reference.first().map_or(0, Vec::len);
     let distance: Vec<Option<f64>> = (0..n)
         .map(|r| {

@@ -1,0 +1,44 @@
+//! Helpers shared by the end-to-end tests: a temporary copy of the shipped
+//! recipes and demo data, and running the real binary in it.
+
+use std::fs;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+/// The binary under test.
+pub const BIN: &str = env!("CARGO_BIN_EXE_sextant");
+
+/// A temporary copy of recipes/ and demo-data/, so results land inside it.
+pub fn workspace() -> tempfile::TempDir {
+    let dir = tempfile::tempdir().unwrap();
+    let repo = PathBuf::from(env!("CARGO_MANIFEST_DIR"));
+    for sub in ["recipes", "demo-data"] {
+        fs::create_dir(dir.path().join(sub)).unwrap();
+        for entry in fs::read_dir(repo.join(sub)).unwrap() {
+            let path = entry.unwrap().path();
+            fs::copy(&path, dir.path().join(sub).join(path.file_name().unwrap())).unwrap();
+        }
+    }
+    dir
+}
+
+/// What a run of the binary printed and its exit code.
+pub struct Out {
+    pub code: i32,
+    pub stdout: String,
+    pub stderr: String,
+}
+
+/// Runs the binary with `args` in `cwd`.
+pub fn sextant(cwd: &Path, args: &[&str]) -> Out {
+    let out = Command::new(BIN)
+        .args(args)
+        .current_dir(cwd)
+        .output()
+        .unwrap();
+    Out {
+        code: out.status.code().unwrap_or(-1),
+        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
+        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
+    }
+}
