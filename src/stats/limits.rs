@@ -38,8 +38,10 @@ pub enum LimitError {
         "residual eigenvalue number {position} is {value}; every residual eigenvalue must be positive and finite (leave out the zero eigenvalues beyond the rank)"
     )]
     Eigenvalue { position: usize, value: f64 },
-    #[error("the residual eigenvalues are too large: θ₃ = Σλ³ overflows (rescale the data)")]
-    Overflow,
+    #[error(
+        "the residual eigenvalues are out of range for double precision: θ₃ = Σλ³ = {theta3} (rescale the data)"
+    )]
+    OutOfRange { theta3: f64 },
     #[error(
         "the Jackson–Mudholkar SPE limit needs h₀ > 0, got h₀ = {h0} (the residual eigenvalues are very unequal; use the Box approximation)"
     )]
@@ -119,15 +121,18 @@ pub struct ResidualMoments {
     pub theta2: f64,
     /// θ₃ = Σ λⱼ³
     pub theta3: f64,
-    /// h₀ = 1 − 2θ₁θ₃/(3θ₂²); at most 1/3, and not positive when a few residual
-    /// eigenvalues are much larger than the many small ones together.
+    /// h₀ = 1 − 2θ₁θ₃/(3θ₂²); at most 1/3 (since θ₁θ₃ ≥ θ₂²), and not positive
+    /// when one large residual eigenvalue sits on a long tail of small ones (for
+    /// one eigenvalue L and small ones summing to S, once S ≳ L/2).
     pub h0: f64,
 }
 
 impl ResidualMoments {
     /// θ₁, θ₂, θ₃ and h₀ from the residual eigenvalues (those of the dropped
     /// components, any order; summed in slice order). Every value must be positive
-    /// and finite; pass only eigenvalues above the rank cut-off.
+    /// and finite; pass only eigenvalues above the rank cut-off. The formulas are
+    /// evaluated through ratios such as θ₂/θ₁, so any eigenvalues whose cubes
+    /// are normal doubles (about 1e-102 to 1e102) work.
     pub fn from_eigenvalues(residual_eigenvalues: &[f64]) -> Result<Self, LimitError> {
         if residual_eigenvalues.is_empty() {
             return Err(LimitError::NoResidualEigenvalues);
@@ -144,10 +149,11 @@ impl ResidualMoments {
             theta2 += l * l;
             theta3 += l * l * l;
         }
-        if !theta3.is_finite() {
-            return Err(LimitError::Overflow);
+        if !(theta3.is_finite() && theta3 >= f64::MIN_POSITIVE) {
+            return Err(LimitError::OutOfRange { theta3 });
         }
-        let h0 = 1.0 - 2.0 * theta1 * theta3 / (3.0 * theta2 * theta2);
+        // 1 − 2θ₁θ₃/(3θ₂²), as ratios so that θ₂² cannot overflow or underflow.
+        let h0 = 1.0 - 2.0 / 3.0 * (theta1 / theta2) * (theta3 / theta2);
         Ok(ResidualMoments {
             theta1,
             theta2,
@@ -163,7 +169,7 @@ impl ResidualMoments {
 
     /// Box's degrees of freedom h = θ₁²/θ₂ (at least 1).
     pub fn box_h(&self) -> f64 {
-        self.theta1 * self.theta1 / self.theta2
+        self.theta1 * (self.theta1 / self.theta2)
     }
 
     /// The Jackson–Mudholkar SPE limit for these moments; see
@@ -177,9 +183,10 @@ impl ResidualMoments {
             return Err(LimitError::NonPositiveH0 { h0 });
         }
         let z = normal_quantile(confidence)?;
-        let base = z * libm::sqrt(2.0 * theta2 * h0 * h0) / theta1
+        // z√(2θ₂h₀²)/θ₁ + 1 + θ₂h₀(h₀ − 1)/θ₁², in an order that cannot overflow.
+        let base = z * h0 * libm::sqrt(2.0 * theta2) / theta1
             + 1.0
-            + theta2 * h0 * (h0 - 1.0) / (theta1 * theta1);
+            + (theta2 / theta1) * h0 * (h0 - 1.0) / theta1;
         if base <= 0.0 {
             return Err(LimitError::NonPositiveBase { confidence, base });
         }
@@ -286,10 +293,30 @@ mod tests {
             ResidualMoments::from_eigenvalues(&[1.0, 0.0]),
             Err(LimitError::Eigenvalue { position: 2, .. })
         ));
-        assert!(matches!(
-            ResidualMoments::from_eigenvalues(&[1e200]),
-            Err(LimitError::Overflow)
-        ));
+        for out_of_range in [1e200, 1e-110] {
+            assert!(matches!(
+                ResidualMoments::from_eigenvalues(&[out_of_range]),
+                Err(LimitError::OutOfRange { .. })
+            ));
+        }
+    }
+
+    #[test]
+    fn limits_scale_with_the_eigenvalues() {
+        // Q is in the units of the eigenvalues: scaling all λ by c scales both
+        // limits by c, also where θ₂² alone would overflow or underflow.
+        let residual = [0.9, 0.5, 0.31, 0.2, 0.05];
+        let jm = spe_limit_jackson_mudholkar(&residual, 0.99).unwrap();
+        let bx = spe_limit_box(&residual, 0.99).unwrap();
+        for c in [1e-90, 1e-30, 1e30, 1e90] {
+            let scaled: Vec<f64> = residual.iter().map(|l| l * c).collect();
+            let m = ResidualMoments::from_eigenvalues(&scaled).unwrap();
+            assert!(
+                rel(m.jackson_mudholkar(0.99).unwrap(), jm * c) < 1e-13,
+                "c = {c}"
+            );
+            assert!(rel(m.box_limit(0.99).unwrap(), bx * c) < 1e-13, "c = {c}");
+        }
     }
 
     #[test]

@@ -3,11 +3,14 @@
 //!
 //! Positive doubles are ordered like their bit patterns, so halving the distance
 //! between the bit patterns of the bracket ends pins any root in [0, +∞] to one
-//! ulp within 64 halvings, whatever its scale (1e-300 or 1e300). Newton steps
-//! (with the density as derivative) do the work near the root; a step is refused
-//! and replaced by a halving when it would leave the bracket or when the previous
-//! Newton step did not at least halve |g|. The number of evaluations is therefore
-//! bounded, and it depends only on the inputs.
+//! ulp within 64 halvings, whatever its scale (1e-300 or 1e300). Newton steps do
+//! the work near the root (the quantile functions solve g = ln(tail/p), whose
+//! derivative is density/tail); a step is refused and replaced by a halving when it
+//! would leave the bracket or when the previous Newton step did not at least halve
+//! |g|. This is the safeguarded Newton–bisection hybrid of Press et al. (1992),
+//! *Numerical Recipes in C*, 2nd ed., §9.4 (`rtsafe`), with the bisection done on
+//! bit patterns. The number of evaluations is bounded, and it depends only on the
+//! inputs.
 
 /// At most this many evaluations of the function (each step is either a halving,
 /// which happens at most 64 times, or a Newton step that halved |g|).

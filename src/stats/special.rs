@@ -244,7 +244,7 @@ pub(crate) fn gamma_pq(a: f64, x: f64) -> (f64, f64, f64) {
             d = 1.0 / d;
             let delta = d * c;
             h *= delta;
-            if (delta - 1.0).abs() <= EPS {
+            if (delta - 1.0).abs() <= EPS || delta.is_nan() {
                 break;
             }
         }
@@ -382,7 +382,8 @@ fn beta_continued_fraction(a: f64, b: f64, x: f64, lambda: f64) -> f64 {
         c = guard(beta + alpha / c);
         let delta = c * d;
         f *= delta;
-        if (delta - 1.0).abs() <= EPS {
+        // (A NaN cannot converge; stop at once rather than at the iteration cap.)
+        if (delta - 1.0).abs() <= EPS || delta.is_nan() {
             break;
         }
     }
