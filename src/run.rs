@@ -14,7 +14,7 @@ use crate::recipe::resolved::resolved_recipe;
 use crate::recipe::{self, LoadedRecipe};
 use crate::stages::FeatureData;
 use crate::stages::crossval::cross_validate;
-use crate::stages::decompose::{Decomposition, decompose, scores};
+use crate::stages::decompose::{Decomposition, decompose_keeping, scores};
 use crate::stages::diagnose::{Diagnostics, contributions, diagnose};
 use crate::stages::missing::{MissingReport, MissingSettings, handle_missing};
 use crate::stages::parallel::parallel_analysis;
@@ -213,7 +213,25 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
     let plan = &prepared.plan;
     let z = &pre.scaled.matrix;
     let centred = plan.scaling.centers();
-    let decomposition = decompose(z, centred, None)?;
+    // Loadings are kept for the components that are reported (more are
+    // computed below if the rule keeps more).
+    let components = &plan.components;
+    let highest_plot = plan
+        .plots
+        .iter()
+        .map(|p| p.highest_component())
+        .max()
+        .unwrap_or(0);
+    let fixed = match components.keep {
+        Keep::Count(k) => k.get(),
+        _ => 0,
+    };
+    let want = components
+        .compute
+        .unwrap_or(DEFAULT_COMPUTE)
+        .max(fixed)
+        .max(highest_plot);
+    let mut decomposition = decompose_keeping(z, centred, None, want)?;
     if decomposition.rank == 0 {
         return Err(InputError::NoFeatures {
             path: prepared.table.display.clone(),
@@ -221,7 +239,6 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         }
         .into());
     }
-    let components = &plan.components;
     let mut evidence = Evidence::default();
     match components.keep {
         Keep::ParallelAnalysis => {
@@ -253,6 +270,9 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         evidence,
     )
     .map_err(|e| keep_error(prepared, pre, e.keep, e.available))?;
+    if selection.computed > decomposition.loadings.cols {
+        decomposition = decompose_keeping(z, centred, None, selection.computed)?;
+    }
     let scores = scores(z, &decomposition.loadings, selection.kept);
     let diagnostics = diagnose(
         z,

@@ -29,14 +29,23 @@ pub fn gram_of_columns(x: &Matrix) -> Matrix {
 }
 
 /// Upper triangle of Σ rowᵀrow over the rows of one block, rows taken in order.
+///
+/// The triangle is updated in bands of `BAND` of its rows, each band over all the
+/// block's rows before the next, so that the part being updated stays in cache
+/// when p is large. Every entry still sums the same products in the same (row)
+/// order, so the band size changes the speed, never a bit.
 fn block_upper(block: &[f64], p: usize) -> Vec<f64> {
+    const BAND: usize = 32;
     let mut acc = vec![0.0; p * p];
-    for row in block.chunks_exact(p) {
-        for i in 0..p {
-            let xi = row[i];
-            let target = &mut acc[i * p + i..(i + 1) * p];
-            for (a, &xj) in target.iter_mut().zip(&row[i..]) {
-                *a += xi * xj;
+    for first in (0..p).step_by(BAND) {
+        let last = (first + BAND).min(p);
+        for row in block.chunks_exact(p) {
+            for i in first..last {
+                let xi = row[i];
+                let target = &mut acc[i * p + i..(i + 1) * p];
+                for (a, &xj) in target.iter_mut().zip(&row[i..]) {
+                    *a += xi * xj;
+                }
             }
         }
     }
@@ -56,18 +65,11 @@ fn symmetric_from_upper(mut m: Vec<f64>, p: usize) -> Matrix {
     }
 }
 
-/// XXᵀ (n × n) of a row-major n × p matrix: dot products of rows, each summed in
-/// feature order. Used for tables with more features than rows.
+/// XXᵀ (n × n) of a row-major n × p matrix: the cross-products of the columns
+/// of Xᵀ, summed over features in the same fixed blocks as [`gram_of_columns`].
+/// Used for tables with more features than rows.
 pub fn gram_of_rows(x: &Matrix) -> Matrix {
-    let n = x.rows;
-    let mut upper = vec![0.0; n * n];
-    upper.par_chunks_mut(n).enumerate().for_each(|(i, out)| {
-        let ri = x.row(i);
-        for j in i..n {
-            out[j] = dot(ri, x.row(j));
-        }
-    });
-    symmetric_from_upper(upper, n)
+    gram_of_columns(&x.transpose())
 }
 
 /// X·V for a row-major n × p matrix X and p × k matrix V; each entry is a dot

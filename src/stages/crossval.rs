@@ -20,7 +20,7 @@
 use crate::error::AnalysisError;
 use crate::linalg::Matrix;
 use crate::recipe::raw::{CvChoice, FoldsBy, RawCrossValidation};
-use crate::stages::decompose::decompose;
+use crate::stages::decompose::decompose_keeping;
 use serde::Serialize;
 
 /// PRESS for each count of components and the count chosen.
@@ -79,7 +79,7 @@ pub fn cross_validate(
                 x.set(r, j, z.get(i, j) - mean[j]);
             }
         }
-        let d = decompose(&x, centred, None)?;
+        let d = decompose_keeping(&x, centred, None, max_k)?;
         max_k = max_k.min(d.rank);
         per_fold.push(fold_press(z, &test, &mean, &d.loadings, max_k.min(d.rank)));
     }

@@ -35,7 +35,7 @@ pub struct Decomposition {
     pub total_variance: f64,
     /// How many eigenvalues are non-zero within rounding (see [`rank_tolerance`]).
     pub rank: usize,
-    /// p × rank: the loading vectors (unit length) as columns, sign-fixed.
+    /// p × (rank, or fewer when asked): the loading vectors (unit length) as columns, sign-fixed.
     pub loadings: Matrix,
     pub route: Route,
 }
@@ -47,6 +47,20 @@ pub fn decompose(
     z: &Matrix,
     centred: bool,
     route: Option<Route>,
+) -> Result<Decomposition, AnalysisError> {
+    decompose_keeping(z, centred, route, usize::MAX)
+}
+
+/// Like [`decompose`], but on the n × n route (wide tables) computes the loadings
+/// of at most `want` components (all eigenvalues are still returned). There each
+/// loading costs a pass over the data, so asking only for what is used saves most
+/// of the time; the loadings computed are the same bits either way. The p × p
+/// route keeps every loading, which costs nothing extra.
+pub fn decompose_keeping(
+    z: &Matrix,
+    centred: bool,
+    route: Option<Route>,
+    want: usize,
 ) -> Result<Decomposition, AnalysisError> {
     let (n, p) = (z.rows, z.cols);
     let route = route.unwrap_or(if n < p {
@@ -72,7 +86,7 @@ pub fn decompose(
             let mut g = gram_of_rows(z);
             g.data.iter_mut().for_each(|v| *v /= divisor);
             let eig = symmetric_eigen(&g)?;
-            let r = rank(&eig.values, n, p, bound);
+            let r = rank(&eig.values, n, p, bound).min(want);
             let mut u = Matrix::zeros(n, r);
             for a in 0..r {
                 let norm = (divisor * eig.values[a]).sqrt();
@@ -87,9 +101,11 @@ pub fn decompose(
     };
     let values: Vec<f64> = values.into_iter().map(|v| v.max(0.0)).collect();
     let r = rank(&values, n, p, bound);
-    let mut kept = Matrix::zeros(p, r);
+    // The p × p route has every eigenvector at no extra cost: keep them all.
+    let columns = r.min(loadings.cols);
+    let mut kept = Matrix::zeros(p, columns);
     for i in 0..p {
-        for a in 0..r {
+        for a in 0..columns {
             kept.set(i, a, loadings.get(i, a));
         }
     }

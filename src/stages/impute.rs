@@ -27,7 +27,7 @@
 use crate::error::AnalysisError;
 use crate::linalg::Matrix;
 use crate::recipe::raw::{IterativeVariant, RawIterative, ScalingMethod, StartValue};
-use crate::stages::decompose::decompose;
+use crate::stages::decompose::decompose_keeping;
 use serde::Serialize;
 
 /// What iterative PCA did.
@@ -165,7 +165,7 @@ fn fit(
         .map(|(c, &(m, sc))| c.iter().map(|v| (v - m) / sc).collect())
         .collect();
     let z = Matrix::from_columns(&scaled);
-    let d = decompose(&z, scaling.centers(), None)?;
+    let d = decompose_keeping(&z, scaling.centers(), None, s)?;
     let s = s.min(d.rank);
     // dₛ² = (n − 1) λₛ for the eigenvalues λ (divisor n − 1).
     let sq: Vec<f64> = d.eigenvalues.iter().map(|l| l * (n - 1) as f64).collect();

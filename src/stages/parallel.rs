@@ -14,7 +14,7 @@ use crate::error::AnalysisError;
 use crate::linalg::Matrix;
 use crate::linalg::random::Stream;
 use crate::recipe::raw::{RandomData, RawParallel};
-use crate::stages::decompose::decompose;
+use crate::stages::decompose::decompose_keeping;
 use rayon::prelude::*;
 use serde::Serialize;
 
@@ -44,7 +44,7 @@ pub fn parallel_analysis(
         .map(|r| {
             let mut stream = Stream::new(settings.seed, r as u64);
             let table = random_table(z, &sds, centred, settings.random_data, &mut stream);
-            decompose(&table, centred, None).map(|d| d.eigenvalues)
+            decompose_keeping(&table, centred, None, 0).map(|d| d.eigenvalues)
         })
         .collect::<Result<_, _>>()?;
     let p = z.cols;
