@@ -11,7 +11,7 @@
 //! reference it is tested against.
 
 use super::read::{ReadOptions, read_header};
-use super::{Column, ColumnData, NumericColumn, Table};
+use super::{NumericColumn, Table};
 use crate::error::InputError;
 use rayon::prelude::*;
 
@@ -358,22 +358,7 @@ fn join(
             }
         }
     }
-    let columns = names
-        .into_iter()
-        .zip(texts.into_iter().zip(numbers))
-        .zip(is_text)
-        .map(|((name, (text, number)), &text_kind)| Column {
-            name,
-            data: if text_kind {
-                ColumnData::Text(text)
-            } else {
-                ColumnData::Numeric(number)
-            },
-        })
-        .collect();
-    Ok(Table {
-        display: display.to_string(),
-        columns,
-        lines,
-    })
+    Ok(Table::from_parts(
+        display, names, texts, numbers, is_text, lines,
+    ))
 }

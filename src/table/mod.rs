@@ -25,6 +25,36 @@ pub struct Table {
 }
 
 impl Table {
+    /// Assembles a table from its header names and, per column, the texts (for
+    /// text columns) or the numbers (for the others).
+    pub fn from_parts(
+        display: &str,
+        names: Vec<String>,
+        texts: Vec<Vec<String>>,
+        numbers: Vec<NumericColumn>,
+        is_text: &[bool],
+        lines: Vec<u64>,
+    ) -> Table {
+        let columns = names
+            .into_iter()
+            .zip(texts.into_iter().zip(numbers))
+            .zip(is_text)
+            .map(|((name, (text, number)), &text_kind)| Column {
+                name,
+                data: if text_kind {
+                    ColumnData::Text(text)
+                } else {
+                    ColumnData::Numeric(number)
+                },
+            })
+            .collect();
+        Table {
+            display: display.to_string(),
+            columns,
+            lines,
+        }
+    }
+
     pub fn n_rows(&self) -> usize {
         self.lines.len()
     }

@@ -5,7 +5,7 @@
 //! the `csv` crate; a ragged row, a duplicate or empty column name and an empty file
 //! are reported here with their line.
 
-use super::{Column, ColumnData, Header, NumericColumn, Table};
+use super::{Header, NumericColumn, Table};
 use crate::error::InputError;
 use std::collections::BTreeMap;
 
@@ -122,25 +122,14 @@ pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<
         }
     }
 
-    let columns = header
-        .names
-        .into_iter()
-        .zip(texts.into_iter().zip(numbers))
-        .zip(is_text)
-        .map(|((name, (text, number)), text_kind)| Column {
-            name,
-            data: if text_kind {
-                ColumnData::Text(text)
-            } else {
-                ColumnData::Numeric(number)
-            },
-        })
-        .collect();
-    Ok(Table {
-        display: display.to_string(),
-        columns,
+    Ok(Table::from_parts(
+        display,
+        header.names,
+        texts,
+        numbers,
+        &is_text,
         lines,
-    })
+    ))
 }
 
 pub(crate) fn push_number(column: &mut NumericColumn, cell: &str, line: u64, missing: &[String]) {
@@ -164,6 +153,7 @@ pub(crate) fn push_number(column: &mut NumericColumn, cell: &str, line: u64, mis
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::table::ColumnData;
 
     fn options() -> ReadOptions {
         ReadOptions {
