@@ -507,7 +507,9 @@ fn figures_and_report(
     resolved_sha: &str,
 ) -> Result<Vec<(String, Vec<u8>)>, Error> {
     use crate::outputs::{plots, present, report, view::Figure};
+    let t = std::time::Instant::now();
     let view = present::plot_view(prepared, pre, analysis);
+    let mut t = crate::timing::lap("  the plots' view", t);
     let mut figures = Vec::new();
     for plan in &prepared.plan.plots {
         if plan.highest_component() > view.computed {
@@ -522,6 +524,7 @@ fn figures_and_report(
             .into());
         }
         let svg = plots::render(plan, &view);
+        t = crate::timing::lap(&format!("  plot {}", plan.file), t);
         figures.push(Figure {
             file: plan.file.clone(),
             caption: plots::caption(plan, &view),
@@ -538,6 +541,7 @@ fn figures_and_report(
         .map(|(path, bytes)| format!("{}  {path}\n", sha256_hex(bytes)))
         .collect();
     let mut report_view = present::report_view(prepared, pre, analysis, &view);
+    let report_start = crate::timing::lap("  the report's view", t);
     report_view.figures = figures;
     report_view.provenance = vec![
         (
@@ -563,6 +567,7 @@ fn figures_and_report(
         "report.html".into(),
         report::render(&report_view).into_bytes(),
     ));
+    crate::timing::lap("  the report", report_start);
     Ok(files)
 }
 

@@ -9,6 +9,7 @@ use crate::stages::decompose::scores;
 use crate::stages::diagnose::contributions;
 use crate::stages::select::pct;
 use crate::table::ColumnData;
+use rayon::prelude::*;
 
 /// The text of a table column (id and group columns are read as text).
 fn text_column<'a>(prepared: &'a Prepared, name: &str) -> &'a [String] {
@@ -51,6 +52,40 @@ fn correlation(a: &[f64], b: &[f64]) -> f64 {
     }
 }
 
+/// Correlations of centred features with the components' scores, in closed form:
+/// the covariance of feature j with scores a is λₐ vⱼₐ, so the correlation is
+/// vⱼₐ √λₐ / sⱼ, with sⱼ the feature's standard deviation after scaling (the
+/// usual correlation loadings). One sequential pass over the rows gives the sⱼ.
+fn correlations_of_centred(
+    z: &Matrix,
+    d: &crate::stages::decompose::Decomposition,
+    computed: usize,
+) -> Vec<Vec<f64>> {
+    let p = z.cols;
+    let mut squares = vec![0.0; p];
+    for i in 0..z.rows {
+        for (s, v) in squares.iter_mut().zip(z.row(i)) {
+            *s += v * v;
+        }
+    }
+    let divisor = (z.rows - 1) as f64;
+    (0..p)
+        .map(|j| {
+            let sd = (squares[j] / divisor).sqrt();
+            (0..computed)
+                .map(|a| {
+                    let l = d.eigenvalues[a];
+                    if sd > 0.0 && l > 0.0 {
+                        d.loadings.get(j, a) * l.sqrt() / sd
+                    } else {
+                        0.0
+                    }
+                })
+                .collect()
+        })
+        .collect()
+}
+
 /// The view every plot is drawn from.
 pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> PlotView {
     let d = &analysis.decomposition;
@@ -62,16 +97,22 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
     let loadings = (0..p)
         .map(|j| (0..computed).map(|a| d.loadings.get(j, a)).collect())
         .collect();
-    let score_columns: Vec<Vec<f64>> = (0..computed).map(|a| all_scores.column(a)).collect();
-    let correlations = (0..p)
-        .map(|j| {
-            let feature = z.column(j);
-            score_columns
-                .iter()
-                .map(|t| correlation(&feature, t))
-                .collect()
-        })
-        .collect();
+    let correlations = if prepared.plan.scaling.centers() {
+        correlations_of_centred(z, d, computed)
+    } else {
+        // Uncentred data: the closed form does not hold; correlate directly.
+        let score_columns: Vec<Vec<f64>> = (0..computed).map(|a| all_scores.column(a)).collect();
+        (0..p)
+            .into_par_iter()
+            .map(|j| {
+                let feature = z.column(j);
+                score_columns
+                    .iter()
+                    .map(|t| correlation(&feature, t))
+                    .collect()
+            })
+            .collect()
+    };
     let diag = &analysis.diagnostics;
     let first = diag.limits.first();
     let plan = &prepared.plan;
@@ -359,5 +400,45 @@ pub fn report_view(
         scores3d,
         cautions: cautions(),
         provenance: Vec::new(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::stages::decompose::decompose;
+
+    #[test]
+    fn closed_form_correlations_equal_pearson_correlations() {
+        // A centred 6 × 3 table with correlated columns.
+        let raw = [
+            [1.0, 2.0, 0.5],
+            [2.0, 3.5, 0.1],
+            [3.0, 3.9, -0.4],
+            [4.0, 6.1, 0.3],
+            [5.0, 7.2, -1.0],
+            [6.0, 9.0, 0.2],
+        ];
+        let columns: Vec<Vec<f64>> = (0..3)
+            .map(|j| {
+                let c: Vec<f64> = raw.iter().map(|r| r[j]).collect();
+                let m = c.iter().sum::<f64>() / 6.0;
+                c.iter().map(|v| v - m).collect()
+            })
+            .collect();
+        let z = Matrix::from_columns(&columns);
+        let d = decompose(&z, true, None).unwrap();
+        let closed = correlations_of_centred(&z, &d, 2);
+        let t = scores(&z, &d.loadings, 2);
+        for j in 0..3 {
+            for a in 0..2 {
+                let direct = correlation(&z.column(j), &t.column(a));
+                assert!(
+                    (closed[j][a] - direct).abs() < 1e-12,
+                    "{j} {a}: {} vs {direct}",
+                    closed[j][a]
+                );
+            }
+        }
     }
 }
