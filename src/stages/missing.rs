@@ -292,15 +292,12 @@ fn fill_constant(
 ) -> Vec<f64> {
     let mut values = Vec::new();
     for feature in &mut data.features {
-        let observed: Vec<f64> = feature
-            .values
-            .iter()
-            .copied()
-            .filter(|v| !v.is_nan())
-            .collect();
+        // The mean without copying the column (same sum, same order as `mean`);
+        // the median needs a copy to sort.
+        let observed = || feature.values.iter().copied().filter(|v| !v.is_nan());
         let value = match method {
-            MissingMethod::Median => median(observed),
-            _ => mean(&observed),
+            MissingMethod::Median => median(observed().collect()),
+            _ => observed().sum::<f64>() / observed().count() as f64,
         };
         for v in feature.values.iter_mut().filter(|v| v.is_nan()) {
             *v = value;

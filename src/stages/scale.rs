@@ -55,7 +55,7 @@ pub fn scale(
     };
     let mut columns = Vec::new();
     let mut names = Vec::new();
-    for feature in data.features {
+    for mut feature in data.features {
         let stats = FeatureScale::measure(&feature.name, &feature.values, method);
         if method.divides() && stats.min == stats.max {
             match constant {
@@ -74,13 +74,12 @@ pub fn scale(
                 }
             }
         }
-        let column: Vec<f64> = feature
-            .values
-            .iter()
-            .map(|v| (v - stats.centre) / stats.scale)
-            .collect();
-        check_finite(&data.source, &feature.name, &stats, &column)?;
-        columns.push(column);
+        // In place: the unscaled values are not needed again.
+        for v in feature.values.iter_mut() {
+            *v = (*v - stats.centre) / stats.scale;
+        }
+        check_finite(&data.source, &feature.name, &stats, &feature.values)?;
+        columns.push(feature.values);
         names.push(feature.name);
         report.features.push(stats);
     }
