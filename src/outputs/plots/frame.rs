@@ -63,6 +63,50 @@ pub fn pow10(e: i32) -> f64 {
     v
 }
 
+/// Dashed lines through the origin of a panel, in their own `origin` group.
+pub fn origin_lines(body: &mut String, panel: &Panel) {
+    let zero = format!(
+        "stroke=\"{}\" stroke-width=\"0.8\" stroke-dasharray=\"3 3\"",
+        svg::MUTED
+    );
+    body.push_str("<g class=\"origin\">\n");
+    svg::line(
+        body,
+        panel.px(0.0),
+        panel.top,
+        panel.px(0.0),
+        panel.bottom,
+        &zero,
+    );
+    svg::line(
+        body,
+        panel.left,
+        panel.py(0.0),
+        panel.right,
+        panel.py(0.0),
+        &zero,
+    );
+    body.push_str("</g>\n");
+}
+
+/// `raw` made usable (positive, finite, clamped) and the exponent e with
+/// 10ᵉ ≤ raw < 10ᵉ⁺¹.
+fn decade(raw: f64) -> (f64, i32) {
+    let raw = if raw.is_finite() && raw > 0.0 {
+        raw.clamp(1e-250, 1e250)
+    } else {
+        1.0
+    };
+    let mut e = 0;
+    while pow10(e) > raw {
+        e -= 1;
+    }
+    while pow10(e + 1) <= raw {
+        e += 1;
+    }
+    (raw, e)
+}
+
 impl Step {
     pub fn value(self) -> f64 {
         self.mantissa as f64 * pow10(self.exponent)
@@ -70,18 +114,7 @@ impl Step {
 
     /// The smallest step of 1, 2 or 5 × 10ᵉ that is at least `raw`.
     pub fn at_least(raw: f64) -> Step {
-        let raw = if raw.is_finite() && raw > 0.0 {
-            raw.clamp(1e-250, 1e250)
-        } else {
-            1.0
-        };
-        let mut e = 0;
-        while pow10(e) > raw {
-            e -= 1;
-        }
-        while pow10(e + 1) <= raw {
-            e += 1;
-        }
+        let (raw, e) = decade(raw);
         for m in [1, 2, 5] {
             let s = Step {
                 mantissa: m,
@@ -100,18 +133,7 @@ impl Step {
     /// The largest of 1, 2, 2.5 or 5 × 10ᵉ that is at most `raw` (for scale
     /// factors; 2.5 included so a factor is never far below what fits).
     pub fn at_most(raw: f64) -> Step {
-        let raw = if raw.is_finite() && raw > 0.0 {
-            raw.clamp(1e-250, 1e250)
-        } else {
-            1.0
-        };
-        let mut e = 0;
-        while pow10(e) > raw {
-            e -= 1;
-        }
-        while pow10(e + 1) <= raw {
-            e += 1;
-        }
+        let (raw, e) = decade(raw);
         let candidates = [
             Step {
                 mantissa: 5,

@@ -230,25 +230,7 @@ fn scatter_plot(plan: &PlotPlan, view: &PlotView) -> String {
         )],
     );
     let mut body = String::new();
-    let zero = format!("stroke=\"{MUTED}\" stroke-width=\"0.8\" stroke-dasharray=\"3 3\"");
-    body.push_str("<g class=\"origin\">\n");
-    svg::line(
-        &mut body,
-        panel.px(0.0),
-        panel.top,
-        panel.px(0.0),
-        panel.bottom,
-        &zero,
-    );
-    svg::line(
-        &mut body,
-        panel.left,
-        panel.py(0.0),
-        panel.right,
-        panel.py(0.0),
-        &zero,
-    );
-    body.push_str("</g>\n");
+    frame::origin_lines(&mut body, &panel);
     let _ = writeln!(
         body,
         "<g class=\"points\" fill=\"{POSITIVE}\" stroke=\"#FFFFFF\" stroke-width=\"0.6\">"

@@ -760,6 +760,11 @@ impl Legend {
             MARK * 1.1,
             &extra,
         );
+        self.entry_label(label);
+    }
+
+    /// The text of an entry beside its sample, then the next row.
+    fn entry_label(&mut self, label: &str) {
         text(
             &mut self.body,
             self.x + 18.0,
@@ -790,15 +795,7 @@ impl Legend {
             self.y + 7.0,
             &format!("stroke=\"{colour}\" stroke-width=\"{}\"{dash}", N(width)),
         );
-        text(
-            &mut self.body,
-            self.x + 18.0,
-            self.y + 10.8,
-            Anchor::Start,
-            &svg::clip_text(label, legend_chars(self.x)),
-            "",
-        );
-        self.y += LEGEND_ROW;
+        self.entry_label(label);
     }
 
     /// An entry with a filled square.
@@ -811,15 +808,7 @@ impl Legend {
             self.y + 12.0,
             &format!("fill=\"{colour}\""),
         );
-        text(
-            &mut self.body,
-            self.x + 18.0,
-            self.y + 10.8,
-            Anchor::Start,
-            &svg::clip_text(label, legend_chars(self.x)),
-            "",
-        );
-        self.y += LEGEND_ROW;
+        self.entry_label(label);
     }
 
     pub fn gap(&mut self) {
