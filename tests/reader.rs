@@ -6,7 +6,7 @@
 //! editor shows.
 
 use proptest::prelude::*;
-use sextant::table::fast::read_table_in_pieces;
+use sextant::table::fast::{read_table_in_pieces, read_table_parallel};
 use sextant::table::{ColumnData, ReadOptions, Table, read_table};
 
 fn options() -> ReadOptions {
@@ -154,4 +154,159 @@ proptest! {
         }
         check(text.as_bytes());
     }
+}
+
+/// Runs `f` inside a rayon pool of `threads` threads.
+fn on_threads<T: Send>(threads: usize, f: impl FnOnce() -> T + Send) -> T {
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .unwrap()
+        .install(f)
+}
+
+/// Reads `text` with the automatic and with several explicit piece counts, in
+/// pools of 1, 2 and 8 threads, and demands the reference's cells bit for bit
+/// and `lines` as each row's line.
+fn same_on_every_thread_count(text: &[u8], lines: &[u64], pieces: &[usize]) {
+    let reference = read_table(text, "t.csv", &options()).unwrap();
+    let expected = summary(&reference);
+    assert_eq!(reference.lines.len(), lines.len(), "rows of the reference");
+    for threads in [1, 2, 8] {
+        let auto = on_threads(threads, || read_table_parallel(text, "t.csv", &options()))
+            .unwrap_or_else(|e| panic!("{threads} threads: {e}"));
+        assert_eq!(
+            summary(&auto),
+            expected,
+            "automatic pieces on {threads} threads"
+        );
+        assert_eq!(auto.lines, lines, "automatic pieces on {threads} threads");
+        for &n in pieces {
+            let t = on_threads(threads, || {
+                read_table_in_pieces(text, "t.csv", &options(), n)
+            })
+            .unwrap_or_else(|e| panic!("{n} pieces on {threads} threads: {e}"));
+            assert_eq!(summary(&t), expected, "{n} pieces on {threads} threads");
+            assert_eq!(t.lines, lines, "{n} pieces on {threads} threads");
+        }
+    }
+}
+
+#[test]
+fn awkward_small_file_is_the_same_on_1_2_and_8_threads() {
+    // Quoted delimiters, doubled quotes, LF and CRLF inside quotes, CRLF and LF
+    // line ends, a blank line, missing marks (empty, NA, spaces), a bad cell and
+    // a last line without its newline. Lines counted by hand in an editor.
+    let text = b"id,a,note,b\r\n\
+\"x,1\",1.5,\"two\nlines\",NA\r\n\
+y,  2 ,\"say \"\"hi\"\", \"\"twice\"\"\",\r\n\
+\r\n\
+\"z\r\nz\",-3e2,\"crlf\r\ninside, and \"\"quotes\"\"\",  \r\n\
+w,NA,\",\",0.000001\n\
+\"\"\"q\"\"\",n/d,\"\",7\r\n\
+v, ,plain,\"8.5\"";
+    // Rows start on lines 2, 4, 6, 9, 10 and 11 (the blank line 5 is skipped;
+    // the row on line 6 holds two line breaks inside quotes).
+    let lines = [2, 4, 6, 9, 10, 11];
+    let reference = read_table(text, "t.csv", &options()).unwrap();
+    let ColumnData::Text(notes) = &reference.columns[2].data else {
+        panic!("note is text")
+    };
+    assert_eq!(
+        notes,
+        &[
+            "two\nlines",
+            "say \"hi\", \"twice\"",
+            "crlf\r\ninside, and \"quotes\"",
+            ",",
+            "",
+            "plain"
+        ]
+    );
+    let ColumnData::Numeric(a) = &reference.columns[1].data else {
+        panic!("a is numeric")
+    };
+    assert_eq!((a.missing, a.bad), (2, 1));
+    same_on_every_thread_count(text, &lines, &[1, 2, 3, 4, 7, 16, 64, text.len()]);
+}
+
+/// A table of about `target` bytes made by a fixed rule (no randomness): text
+/// cells that need quoting, numbers in several spellings, missing and bad cells,
+/// blank lines, newlines inside quotes. Returns the bytes and each row's line.
+fn generated(target: usize, end: &str) -> (Vec<u8>, Vec<u64>) {
+    let mut text = format!("id,a,note,b{end}");
+    let mut lines = Vec::new();
+    let mut line = 2u64;
+    let mut i = 0u64;
+    while text.len() < target {
+        // A fixed sequence with no pattern short enough to line up with pieces.
+        let h = i.wrapping_mul(0x9e37_79b9_7f4a_7c15).rotate_left(17);
+        let v = (h >> 11) as f64 / (1u64 << 53) as f64 * 2000.0 - 1000.0;
+        if h % 97 == 0 {
+            text.push_str(end);
+            line += 1;
+        }
+        let id = match h % 5 {
+            0 => format!("\"r{i},{}\"", h % 13),
+            1 => format!("\"r{i} \"\"q\"\"\""),
+            _ => format!("r{i}"),
+        };
+        let a = match (h >> 8) % 9 {
+            0 => String::new(),
+            1 => "NA".to_string(),
+            2 => format!(" {v:e} "),
+            3 => format!("\"{v}\""),
+            4 if i % 1001 == 0 => "n/d".to_string(),
+            _ => format!("{v}"),
+        };
+        let (note, breaks) = match (h >> 16) % 7 {
+            0 => (format!("\"line {i}\nnext, line\""), 1),
+            1 => (format!("\"crlf {i}\r\nnext\r\nlast\""), 2),
+            2 => ("\"\"".to_string(), 0),
+            3 => (format!("\"he said \"\"{}\"\"\"", h % 1000), 0),
+            _ => (format!("note {}", h % 100_000), 0),
+        };
+        let b = match (h >> 24) % 6 {
+            0 => "NA".to_string(),
+            1 => format!("{}", (h >> 40) as i64 - (1 << 23)),
+            _ => format!("{:.6}", v / 7.0),
+        };
+        lines.push(line);
+        text.push_str(&format!("{id},{a},{note},{b}{end}"));
+        line += 1 + breaks;
+        i += 1;
+    }
+    (text.into_bytes(), lines)
+}
+
+#[test]
+fn generated_crlf_file_of_10_mb_is_the_same_on_1_2_and_8_threads() {
+    // Over 8 MB so that the automatic choice cuts it into more than one piece.
+    let (text, lines) = generated(10 << 20, "\r\n");
+    same_on_every_thread_count(&text, &lines, &[2, 3, 8, 61]);
+}
+
+#[test]
+fn generated_lf_file_of_3_mb_is_the_same_on_1_2_and_8_threads() {
+    let (text, lines) = generated(3 << 20, "\n");
+    // The rule must have made every kind of cell, or the test proves little.
+    let t = read_table(&text, "t.csv", &options()).unwrap();
+    let ColumnData::Numeric(a) = &t.columns[1].data else {
+        panic!("a is numeric")
+    };
+    assert!(
+        a.missing > 1000 && a.bad > 1,
+        "missing {} bad {}",
+        a.missing,
+        a.bad
+    );
+    let ColumnData::Text(notes) = &t.columns[2].data else {
+        panic!("note is text")
+    };
+    assert!(notes.iter().any(|n| n.contains("\r\n")) && notes.iter().any(|n| n.contains('"')));
+    assert!(
+        lines.windows(2).any(|w| w[1] - w[0] == 2),
+        "no blank line or break inside quotes"
+    );
+    same_on_every_thread_count(&text, &lines, &[2, 3, 8, 61]);
 }
