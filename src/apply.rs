@@ -280,7 +280,7 @@ pub fn apply(
         }
     }
     let t = scores(&z, &loadings, k);
-    let (t2, spe, residuals) = row_statistics(&z, &loadings, &t, &model.eigenvalues);
+    let (t2, spe) = row_statistics(&z, &loadings, &t, &model.eigenvalues);
     let limits: Vec<Limits> = model
         .limits
         .iter()
@@ -307,7 +307,6 @@ pub fn apply(
         spe_method,
         moments: None,
         notes: Vec::new(),
-        residuals,
     };
 
     // Result files.
@@ -331,7 +330,7 @@ pub fn apply(
         .map(|i| {
             (
                 i,
-                contributions(&diagnostics, &z, &loadings, &t, &model.eigenvalues, i),
+                contributions(z.row(i), &loadings, &t, &model.eigenvalues, i),
             )
         })
         .collect();

@@ -19,6 +19,42 @@ pub struct Cli {
     pub command: Command,
 }
 
+/// How the table is held while it is analysed. Neither setting changes a
+/// result: both engines give the same bytes.
+#[derive(Debug, Clone, clap::Args)]
+pub struct EngineArgs {
+    /// Memory the table's values may use, e.g. 2GB or 512MiB; larger tables are
+    /// analysed in passes over a scratch file [default: a quarter of the
+    /// machine's memory].
+    #[arg(long, value_name = "SIZE", value_parser = crate::stream::parse_size)]
+    memory_budget: Option<u64>,
+    /// Which engine analyses the table: auto (by size, budget and recipe),
+    /// in-memory, or passes (the table read in chunks, each statistic a pass).
+    #[arg(long, value_enum, default_value = "auto")]
+    engine: EngineName,
+}
+
+#[derive(Debug, Clone, Copy, clap::ValueEnum)]
+enum EngineName {
+    Auto,
+    InMemory,
+    Passes,
+}
+
+impl EngineArgs {
+    fn options(&self) -> crate::stream::EngineOptions {
+        use crate::stream::Engine;
+        crate::stream::EngineOptions {
+            engine: match self.engine {
+                EngineName::Auto => Engine::Auto,
+                EngineName::InMemory => Engine::InMemory,
+                EngineName::Passes => Engine::Passes,
+            },
+            budget: self.memory_budget,
+        }
+    }
+}
+
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// Run a recipe and write its results folder (tables and manifest.json).
@@ -32,6 +68,8 @@ pub enum Command {
         /// Replace an existing results folder made from a different recipe or input.
         #[arg(long)]
         replace: bool,
+        #[command(flatten)]
+        engine: EngineArgs,
     },
     /// Check a recipe and its input table without computing the analysis.
     ///
@@ -41,6 +79,8 @@ pub enum Command {
     Check {
         /// The recipe file (TOML).
         recipe: PathBuf,
+        #[command(flatten)]
+        engine: EngineArgs,
     },
     /// Print the analysis a recipe describes as numbered plain sentences.
     ///
@@ -145,11 +185,20 @@ impl From<String> for Outcome {
 /// Runs the parsed command.
 pub fn execute(cli: Cli) -> Result<Outcome, Error> {
     Ok(match cli.command {
-        Command::Run { recipe, replace } => {
-            describe_run(&run::run(&recipe, &RunOptions { replace })?).into()
-        }
-        Command::Check { recipe } => {
-            let prepared = run::prepare(&recipe)?;
+        Command::Run {
+            recipe,
+            replace,
+            engine,
+        } => describe_run(&run::run(
+            &recipe,
+            &RunOptions {
+                replace,
+                engine: engine.options(),
+            },
+        )?)
+        .into(),
+        Command::Check { recipe, engine } => {
+            let prepared = run::prepare_with(&recipe, &engine.options())?;
             let pre = run::preprocess(&prepared)?;
             describe_check(&prepared, &pre).into()
         }
@@ -266,7 +315,8 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
         crate::recipe::raw::MissingMethod::DropRows => writeln!(
             out,
             "missing    {missing_cells} cells in used features; {} rows with a missing cell dropped, {} rows left",
-            m.rows_dropped, pre.scaled.matrix.rows
+            m.rows_dropped,
+            pre.scaled.n_rows()
         ),
         method => {
             let how = match method {

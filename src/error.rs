@@ -170,6 +170,18 @@ pub enum RecipeProblem {
     )]
     KeepAboveCompute { keep: usize, compute: usize },
     #[error(
+        "keep = {rule} {why}, but components.method = \"randomized\" computes only the leading components; give keep as a count such as 3, or use method = \"exact\""
+    )]
+    RandomizedNeedsCount { rule: String, why: &'static str },
+    #[error(
+        "components.method = \"randomized\" computes only the leading eigenvalues, so the SPE limit can only be Box's approximation (it needs the sum and the sum of squares of the dropped eigenvalues, both known exactly; Jackson–Mudholkar also needs their cubes): set diagnostics.spe_limit = \"box\", or use method = \"exact\""
+    )]
+    RandomizedNeedsBox,
+    #[error(
+        "[components.randomized] applies only with components.method = \"randomized\"; set the method or remove the table"
+    )]
+    RandomizedSettingsUnused,
+    #[error(
         "keep = {keep}{} asks for more components than the data can give: at most {available} ({reason}); set components.keep",
         if *.default { " (the default)" } else { "" }
     )]
@@ -362,6 +374,8 @@ pub enum AnalysisError {
         "the eigendecomposition did not produce finite values; the scaled data may be degenerate"
     )]
     NotFinite,
+    #[error("{path}: {reason}")]
+    OverBudget { path: String, reason: String },
 }
 
 /// Writing results failed or was refused.
@@ -382,5 +396,16 @@ impl OutputError {
             path: path.display().to_string(),
             source,
         }
+    }
+}
+
+/// A scratch file of the passes engine failed (its values are read back once per pass).
+impl From<std::io::Error> for Error {
+    fn from(source: std::io::Error) -> Error {
+        InputError::Io {
+            path: "the scratch file of the table's values".into(),
+            source,
+        }
+        .into()
     }
 }

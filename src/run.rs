@@ -1,7 +1,7 @@
 //! The one orchestrator: it reads the recipe and the input, runs the stages in
 //! order, and writes the results folder. All file I/O of a run happens here.
 
-use crate::error::{Error, InputError, RecipeError, RecipeProblem};
+use crate::error::{AnalysisError, Error, InputError, RecipeError, RecipeProblem};
 use crate::linalg::Matrix;
 use crate::outputs::folder::{check_replaceable, write_folder};
 use crate::outputs::hashing::sha256_hex;
@@ -21,8 +21,10 @@ use crate::stages::parallel::parallel_analysis;
 use crate::stages::scale::{ScaleReport, Scaled, scale};
 use crate::stages::select::{Evidence, Selection, select};
 use crate::stages::transform::{Applied, apply_transforms};
+use crate::stream::{Choice, EngineOptions};
 use crate::table::{ColumnData, Table, read_header, read_table_parallel};
 use serde_json::{Value, json};
+use std::collections::BTreeMap;
 use std::path::Path;
 use std::time::Instant;
 
@@ -30,8 +32,19 @@ use std::time::Instant;
 pub struct Prepared {
     pub recipe: LoadedRecipe,
     pub plan: Plan,
+    /// The table; when it is analysed in passes, its numeric columns carry their
+    /// counts but no values (those are in `passes`).
     pub table: Table,
     pub input: InputRecord,
+    /// The table's numbers when the passes engine analyses it.
+    pub passes: Option<PassData>,
+}
+
+/// The numbers of a table read for the passes engine.
+pub struct PassData {
+    pub store: crate::stream::store::Store,
+    /// The table column of each store column.
+    pub numeric: Vec<usize>,
 }
 
 /// The data after every preprocessing stage, with the stages' reports.
@@ -49,13 +62,41 @@ pub struct Preprocessed {
 
 /// Loads the recipe, reads and hashes the input, and checks the plan.
 pub fn prepare(recipe_path: &Path) -> Result<Prepared, Error> {
-    prepare_recipe(recipe::load(recipe_path)?)
+    prepare_with(recipe_path, &EngineOptions::default())
+}
+
+/// [`prepare`] with the engine settings of the command line.
+pub fn prepare_with(recipe_path: &Path, options: &EngineOptions) -> Result<Prepared, Error> {
+    prepare_recipe_with(recipe::load(recipe_path)?, options)
 }
 
 /// Reads and hashes the input of a loaded recipe, and checks the plan.
 pub fn prepare_recipe(recipe: LoadedRecipe) -> Result<Prepared, Error> {
+    prepare_recipe_with(recipe, &EngineOptions::default())
+}
+
+/// [`prepare_recipe`] with the engine settings of the command line.
+pub fn prepare_recipe_with(
+    recipe: LoadedRecipe,
+    options: &EngineOptions,
+) -> Result<Prepared, Error> {
     let input = input_plan(&recipe);
     let shown = input.file.display().to_string();
+    let size = std::fs::metadata(&input.file)
+        .map_err(|source| InputError::Io {
+            path: shown.clone(),
+            source,
+        })?
+        .len();
+    let choice = crate::stream::choose(&recipe.raw, size, options).map_err(|reason| {
+        AnalysisError::OverBudget {
+            path: shown.clone(),
+            reason,
+        }
+    })?;
+    if let Choice::Passes { keep_in_memory } = choice {
+        return prepare_in_passes(recipe, keep_in_memory);
+    }
     let t = std::time::Instant::now();
     let bytes = std::fs::read(&input.file).map_err(|source| InputError::Io {
         path: shown.clone(),
@@ -72,21 +113,7 @@ pub fn prepare_recipe(recipe: LoadedRecipe) -> Result<Prepared, Error> {
             Ok(read_table_parallel(&bytes, &shown, &input.options)?)
         },
     );
-    // A changed pinned file is reported first, whatever else is wrong with it.
-    if let Some((expected, at)) = &input.pin {
-        if *expected != sha256 {
-            return Err(RecipeError {
-                file: recipe.path.clone(),
-                at: Some(at.clone()),
-                problem: RecipeProblem::PinMismatch {
-                    path: shown,
-                    expected: expected.clone(),
-                    found: sha256,
-                },
-            }
-            .into());
-        }
-    }
+    check_pin(&recipe, &input, &shown, &sha256)?;
     let table = parsed?;
     let t = crate::timing::lap("hash and parse the table", t);
     check_ids(&table, input.id.as_deref())?;
@@ -104,7 +131,90 @@ pub fn prepare_recipe(recipe: LoadedRecipe) -> Result<Prepared, Error> {
         plan,
         table,
         input: record,
+        passes: None,
     })
+}
+
+/// Reads the input in chunks into a store for the passes engine, and checks
+/// the plan.
+fn prepare_in_passes(recipe: LoadedRecipe, keep_in_memory: u64) -> Result<Prepared, Error> {
+    let input = input_plan(&recipe);
+    let shown = input.file.display().to_string();
+    // Scratch files go beside the results folder, like its staging folder.
+    let (output, _) = crate::recipe::plan::output_folder(&recipe, &input)?;
+    let scratch = output
+        .parent()
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| ".".into());
+    std::fs::create_dir_all(&scratch).map_err(|e| crate::error::OutputError::io(&scratch, e))?;
+    let t = std::time::Instant::now();
+    let (sha256, bytes, ingested) = crate::stream::ingest::ingest(
+        &input.file,
+        &shown,
+        &input.options,
+        |header| Ok(check_names(&recipe, header)?),
+        keep_in_memory,
+        &scratch,
+    );
+    check_pin(&recipe, &input, &shown, &sha256)?;
+    let ingested = ingested?;
+    let t = crate::timing::lap("read, hash and parse in chunks", t);
+    let table = ingested.table;
+    check_ids(&table, input.id.as_deref())?;
+    let record = InputRecord {
+        path: input.display.clone(),
+        bytes,
+        sha256,
+        rows: table.n_rows(),
+        columns: table.columns.len(),
+    };
+    let plan = make_plan(&recipe, input, &table)?;
+    crate::timing::lap("check the plan", t);
+    if table.n_rows() < plan.features.len() {
+        return Err(AnalysisError::OverBudget {
+            path: shown,
+            reason: format!(
+                "the table has fewer rows ({}) than features ({}); such tables are analysed in memory (their n × n matrix of row products): use --engine in-memory or a larger --memory-budget",
+                table.n_rows(),
+                plan.features.len()
+            ),
+        }
+        .into());
+    }
+    Ok(Prepared {
+        recipe,
+        plan,
+        table,
+        input: record,
+        passes: Some(PassData {
+            store: ingested.store,
+            numeric: ingested.numeric,
+        }),
+    })
+}
+
+/// A changed pinned file is reported first, whatever else is wrong with it.
+fn check_pin(
+    recipe: &LoadedRecipe,
+    input: &crate::recipe::plan::InputPlan,
+    shown: &str,
+    sha256: &str,
+) -> Result<(), Error> {
+    if let Some((expected, at)) = &input.pin {
+        if expected != sha256 {
+            return Err(RecipeError {
+                file: recipe.path.clone(),
+                at: Some(at.clone()),
+                problem: RecipeProblem::PinMismatch {
+                    path: shown.to_string(),
+                    expected: expected.clone(),
+                    found: sha256.to_string(),
+                },
+            }
+            .into());
+        }
+    }
+    Ok(())
 }
 
 /// Ids must be present and unique, so every result row can be traced back.
@@ -138,6 +248,15 @@ fn check_ids(table: &Table, id: Option<&str>) -> Result<(), InputError> {
 
 /// Runs the missing, transform and scaling stages.
 pub fn preprocess(prepared: &Prepared) -> Result<Preprocessed, Error> {
+    let pre = match &prepared.passes {
+        Some(data) => crate::stream::passes::preprocess(prepared, &data.store, &data.numeric)?,
+        None => preprocess_in_memory(prepared)?,
+    };
+    check_keep_bound(prepared, &pre)?;
+    Ok(pre)
+}
+
+fn preprocess_in_memory(prepared: &Prepared) -> Result<Preprocessed, Error> {
     let plan = &prepared.plan;
     let data = FeatureData::from_table(&prepared.table, plan);
     if data.n_rows() < 2 {
@@ -162,31 +281,35 @@ pub fn preprocess(prepared: &Prepared) -> Result<Preprocessed, Error> {
     };
     let (data, missing, filled, fill_model) = handle_missing(data, &settings)?;
     let (scaled, scaling) = scale(data, plan.scaling, plan.constant_features)?;
-    let pre = Preprocessed {
+    Ok(Preprocessed {
         scaled,
         missing,
         transforms,
         scaling,
         filled,
         fill_model,
-    };
+    })
+}
+
+fn check_keep_bound(prepared: &Prepared, pre: &Preprocessed) -> Result<(), Error> {
+    let plan = &prepared.plan;
     // The rank cannot exceed min(n − 1, p) for centred data (n, p without centring),
     // so a fixed count above that fails now, in `check` too, rather than after the
     // decomposition.
-    let (n, p) = (pre.scaled.matrix.rows, pre.scaled.matrix.cols);
+    let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
     let bound = if plan.scaling.centers() { n - 1 } else { n }.min(p);
     if let Keep::Count(k) = plan.components.keep {
         if k.get() > bound {
-            return Err(keep_error(prepared, &pre, k.get(), bound));
+            return Err(keep_error(prepared, pre, k.get(), bound));
         }
     }
-    Ok(pre)
+    Ok(())
 }
 
 /// The error for a fixed count of components above what the data can give.
-fn keep_error(prepared: &Prepared, pre: &Preprocessed, keep: usize, available: usize) -> Error {
+pub fn keep_error(prepared: &Prepared, pre: &Preprocessed, keep: usize, available: usize) -> Error {
     let at = prepared.plan.components.keep_written.clone();
-    let (n, p) = (pre.scaled.matrix.rows, pre.scaled.matrix.cols);
+    let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
     Error::Recipe(RecipeError {
         file: prepared.recipe.path.clone(),
         at: at.clone(),
@@ -203,15 +326,65 @@ fn keep_error(prepared: &Prepared, pre: &Preprocessed, keep: usize, available: u
 pub struct Analysis {
     pub decomposition: Decomposition,
     pub selection: Selection,
+    /// Scores of the kept components (rows × kept).
     pub scores: Matrix,
+    /// Scores of the computed components after the kept ones (rows × (computed −
+    /// kept)), for the plots.
+    pub more_scores: Matrix,
     pub diagnostics: Diagnostics,
+    /// Σᵢ zᵢⱼ² of each scaled feature, summed in row order from +0 (the
+    /// correlation loadings' spreads).
+    pub column_squares: Vec<f64>,
+    /// The scaled values of the rows whose contributions are reported, by row
+    /// index (see [`rows_needing_values`]).
+    pub row_values: BTreeMap<usize, Vec<f64>>,
+}
+
+/// The rows whose contributions the outputs report: the most unusual flagged
+/// rows, up to the larger of the recipe's cap and the report's list, in row order.
+pub fn rows_needing_values(diagnostics: &Diagnostics, plan: &Plan) -> Vec<usize> {
+    let most = plan
+        .diagnostics
+        .contributions_max_rows
+        .0
+        .get()
+        .max(crate::outputs::present::REPORT_FLAGGED_ROWS);
+    let mut rows = diagnostics.most_unusual(most);
+    rows.sort_unstable();
+    rows
+}
+
+/// Σᵢ zᵢⱼ² of each column, rows in order, each sum starting from +0.
+pub fn column_squares(z: &Matrix) -> Vec<f64> {
+    let mut squares = vec![0.0; z.cols];
+    for i in 0..z.rows {
+        for (s, v) in squares.iter_mut().zip(z.row(i)) {
+            *s += v * v;
+        }
+    }
+    squares
+}
+
+/// The scores of components `from..to` (each entry the same dot product as in
+/// [`scores`], so splitting the components changes no bit).
+pub fn scores_between(z: &Matrix, loadings: &Matrix, from: usize, to: usize) -> Matrix {
+    let mut v = Matrix::zeros(loadings.rows, to - from);
+    for j in 0..loadings.rows {
+        for a in from..to {
+            v.set(j, a - from, loadings.get(j, a));
+        }
+    }
+    crate::linalg::crossprod::times(z, &v)
 }
 
 /// Decomposes the scaled data, chooses the number of components and computes the
 /// per-row diagnostics.
 pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Error> {
+    if let Some(data) = &prepared.passes {
+        return crate::stream::passes::analyse(prepared, pre, &data.store, &data.numeric);
+    }
     let plan = &prepared.plan;
-    let z = &pre.scaled.matrix;
+    let z = pre.scaled.data();
     let centred = plan.scaling.centers();
     // Loadings are kept for the components that are reported (more are
     // computed below if the rule keeps more).
@@ -274,6 +447,12 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         decomposition = decompose_keeping(z, centred, None, selection.computed)?;
     }
     let scores = scores(z, &decomposition.loadings, selection.kept);
+    let more_scores = scores_between(
+        z,
+        &decomposition.loadings,
+        selection.kept,
+        selection.computed,
+    );
     let diagnostics = diagnose(
         z,
         &decomposition.loadings,
@@ -283,11 +462,18 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         &plan.diagnostics.confidence.0,
         plan.diagnostics.spe_limit,
     );
+    let row_values = rows_needing_values(&diagnostics, plan)
+        .into_iter()
+        .map(|i| (i, z.row(i).to_vec()))
+        .collect();
     Ok(Analysis {
         decomposition,
         selection,
         scores,
+        more_scores,
         diagnostics,
+        column_squares: column_squares(z),
+        row_values,
     })
 }
 
@@ -296,6 +482,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
 pub struct RunOptions {
     /// Replace an existing results folder made from another recipe or input.
     pub replace: bool,
+    pub engine: EngineOptions,
 }
 
 /// What a finished run reports to the user.
@@ -376,7 +563,7 @@ pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed)
 pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error> {
     let start = Instant::now();
     let started_utc = manifest::utc_now();
-    let prepared = prepare(recipe_path)?;
+    let prepared = prepare_with(recipe_path, &options.engine)?;
     let lock = crate::outputs::lock::lock(&prepared.plan.output)?;
     let (pre, analysis, computed) = compute(&prepared)?;
     check_replaceable(
@@ -449,7 +636,6 @@ fn result_files(
     };
     let d = &analysis.decomposition;
     let s = &analysis.selection;
-    let z = &pre.scaled.matrix;
     // The most unusual flagged rows, written in row order.
     let mut chosen = analysis
         .diagnostics
@@ -461,8 +647,7 @@ fn result_files(
             (
                 i,
                 contributions(
-                    &analysis.diagnostics,
-                    z,
+                    &analysis.row_values[&i],
                     &d.loadings,
                     &analysis.scores,
                     &d.eigenvalues,
@@ -480,7 +665,10 @@ fn result_files(
             "loadings.csv".into(),
             tables::loadings_csv(&pre.scaled.names, d, s.computed),
         ),
-        ("variance.csv".into(), tables::variance_csv(d, s, z.rows)),
+        (
+            "variance.csv".into(),
+            tables::variance_csv(d, s, pre.scaled.n_rows()),
+        ),
         (
             "preprocessing.csv".into(),
             tables::preprocessing_csv(&plan.features, &plan.transforms, &pre.missing, &pre.scaling),
@@ -597,8 +785,8 @@ fn steps_json(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> V
         "decomposition": {
             "matrix": matrix_name(plan),
             "route": d.route,
-            "rows": pre.scaled.matrix.rows,
-            "features": pre.scaled.matrix.cols,
+            "rows": pre.scaled.n_rows(),
+            "features": pre.scaled.n_features(),
             "divisor": "n - 1",
             "rank": d.rank,
             "total_variance": d.total_variance,

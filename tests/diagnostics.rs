@@ -132,7 +132,7 @@ fn exact_identities_hold_on_every_reference_dataset() {
         ),
     ] {
         let (pre, a) = analysis(&data(file), body);
-        let n = pre.scaled.matrix.rows as f64;
+        let n = pre.scaled.n_rows() as f64;
         let t2: f64 = a.diagnostics.t2.iter().sum();
         assert!(
             rel(t2, k as f64 * (n - 1.0)) < 1e-10,
@@ -147,10 +147,9 @@ fn exact_identities_hold_on_every_reference_dataset() {
         );
         // Contributions add up to each row's T² and SPE.
         let d = &a.decomposition;
-        for i in [0, pre.scaled.matrix.rows - 1] {
+        for i in [0, pre.scaled.n_rows() - 1] {
             let c = contributions(
-                &a.diagnostics,
-                &pre.scaled.matrix,
+                pre.scaled.data().row(i),
                 &d.loadings,
                 &a.scores,
                 &d.eigenvalues,
@@ -187,7 +186,7 @@ fn keeping_every_component_leaves_no_spe_limit_and_no_nan() {
 
 fn standardized(file: &str) -> Matrix {
     let (pre, _) = analysis(&data(file), "exclude = [\"class\"]\n[components]\nkeep = 1");
-    pre.scaled.matrix
+    pre.scaled.data().clone()
 }
 
 /// The standard error of an estimated percentile q from m sorted draws: √(q(1 − q)/m) / f(x_q),
@@ -374,8 +373,7 @@ fn a_planted_outlier_is_flagged_by_spe_with_its_feature_on_top() {
     assert!(d.flagged_rows().contains(&40));
     let dec = &a.decomposition;
     let c = contributions(
-        d,
-        &pre.scaled.matrix,
+        pre.scaled.data().row(40),
         &dec.loadings,
         &a.scores,
         &dec.eigenvalues,

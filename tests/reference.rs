@@ -63,10 +63,10 @@ impl Run {
         &self.analysis.decomposition.loadings
     }
     fn n(&self) -> usize {
-        self.pre.scaled.matrix.rows
+        self.pre.scaled.n_rows()
     }
     fn p(&self) -> usize {
-        self.pre.scaled.matrix.cols
+        self.pre.scaled.n_features()
     }
 }
 
@@ -774,7 +774,7 @@ fn eigenvalues_sum_to_total_variance() {
             );
             // total_variance is the sum of the scaled features' variances.
             let direct: f64 = (0..r.p())
-                .map(|j| variance(&r.pre.scaled.matrix.column(j)))
+                .map(|j| variance(&r.pre.scaled.data().column(j)))
                 .sum();
             c.relative(
                 &format!("{file} {scaling}: total_variance vs Σ var(z_j)"),
@@ -830,7 +830,7 @@ fn reconstruction_residual_equals_dropped_eigenvalues() {
     for file in ALL {
         for scaling in SCALINGS {
             let r = run_all(file, scaling);
-            let (z, v, t) = (&r.pre.scaled.matrix, r.loadings(), &r.analysis.scores);
+            let (z, v, t) = (r.pre.scaled.data(), r.loadings(), &r.analysis.scores);
             let (n, p) = (r.n(), r.p());
             let total = r.analysis.decomposition.total_variance;
             for k in 0..=p {

@@ -28,6 +28,65 @@ pub fn gram_of_columns(x: &Matrix) -> Matrix {
     symmetric_from_upper(upper, p)
 }
 
+/// XᵀX of rows fed in order, a run at a time: the same blocks, the same order of
+/// combination and so the same bits as [`gram_of_columns`] of all the rows at once.
+pub struct GramAccumulator {
+    p: usize,
+    upper: Vec<f64>,
+    /// Rows not yet making a whole block.
+    pending: Vec<f64>,
+}
+
+impl GramAccumulator {
+    pub fn new(p: usize) -> GramAccumulator {
+        GramAccumulator {
+            p,
+            upper: vec![0.0; p * p],
+            pending: Vec::new(),
+        }
+    }
+
+    /// Adds rows (row-major, `p` values each), in table order.
+    pub fn add_rows(&mut self, rows: &[f64]) {
+        let block = BLOCK_ROWS * self.p.max(1);
+        let mut rows = rows;
+        if !self.pending.is_empty() {
+            let take = (block - self.pending.len()).min(rows.len());
+            self.pending.extend_from_slice(&rows[..take]);
+            rows = &rows[take..];
+            if self.pending.len() < block {
+                return;
+            }
+            let full = std::mem::take(&mut self.pending);
+            self.combine(&full);
+        }
+        let whole = rows.len() / block * block;
+        self.combine(&rows[..whole]);
+        self.pending.extend_from_slice(&rows[whole..]);
+    }
+
+    /// Adds the partials of whole blocks (the last one may be short) in order.
+    fn combine(&mut self, rows: &[f64]) {
+        let p = self.p;
+        let partials: Vec<Vec<f64>> = rows
+            .par_chunks(BLOCK_ROWS * p.max(1))
+            .map(|block| block_upper(block, p))
+            .collect();
+        for partial in &partials {
+            for (acc, v) in self.upper.iter_mut().zip(partial) {
+                *acc += v;
+            }
+        }
+    }
+
+    /// XᵀX of every row added.
+    pub fn finish(mut self) -> Matrix {
+        let rest = std::mem::take(&mut self.pending);
+        self.combine(&rest);
+        symmetric_from_upper(self.upper, self.p)
+    }
+}
+
 /// Upper triangle of Σ rowᵀrow over the rows of one block, rows taken in order.
 ///
 /// The triangle is updated in bands of `BAND` of its rows, each band over all the
@@ -142,6 +201,21 @@ mod tests {
             .unwrap();
         let one = pool.install(|| gram_of_columns(&x));
         assert_eq!(many.data, one.data);
+    }
+
+    #[test]
+    fn fed_in_runs_gives_the_same_bits() {
+        let x = sample(5000, 7);
+        let whole = gram_of_columns(&x);
+        for runs in [vec![5000], vec![1, 1023, 1, 2048, 1927], vec![999, 2, 3999]] {
+            let mut acc = GramAccumulator::new(7);
+            let mut at = 0;
+            for r in runs {
+                acc.add_rows(&x.data[at * 7..(at + r) * 7]);
+                at += r;
+            }
+            assert_eq!(acc.finish().data, whole.data);
+        }
     }
 
     #[test]

@@ -13,3 +13,19 @@ pub mod matrix;
 pub mod random;
 
 pub use matrix::Matrix;
+
+/// The value a float `sum()` starts from (the standard library's choice; −0 in
+/// current Rust). Sums carried across chunks start here so that they give the
+/// same bits as `iter().sum()` over the whole column.
+pub const SUM_START: f64 = -0.0;
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn sum_start_is_the_standard_librarys() {
+        let empty: f64 = std::iter::empty::<f64>().sum();
+        assert_eq!(super::SUM_START.to_bits(), empty.to_bits());
+        let one_zero: f64 = [0.0f64].iter().sum();
+        assert_eq!((super::SUM_START + 0.0).to_bits(), one_zero.to_bits());
+    }
+}

@@ -163,7 +163,7 @@ pub fn build(
         scaling: plan.scaling.name().to_string(),
         features,
         fill,
-        rows: pre.scaled.matrix.rows,
+        rows: pre.scaled.n_rows(),
         kept: k,
         eigenvalues: d.eigenvalues[..k].to_vec(),
         loadings: (0..names.len()).map(|j| (0..k).map(|a| d.loadings.get(j, a)).collect()).collect(),

@@ -2,10 +2,8 @@
 //! report's summary sentences and cautions.
 
 use super::view::{Evidence, FlaggedLine, PlotView, ReportView, Scores3d, VarianceLine};
-use crate::linalg::Matrix;
 use crate::recipe::raw::Keep;
 use crate::run::{Analysis, Prepared, Preprocessed};
-use crate::stages::decompose::scores;
 use crate::stages::diagnose::contributions;
 use crate::stages::select::pct;
 use crate::table::ColumnData;
@@ -57,19 +55,13 @@ fn correlation(a: &[f64], b: &[f64]) -> f64 {
 /// vⱼₐ √λₐ / sⱼ, with sⱼ the feature's standard deviation after scaling (the
 /// usual correlation loadings). One sequential pass over the rows gives the sⱼ.
 fn correlations_of_centred(
-    z: &Matrix,
+    squares: &[f64],
+    n_rows: usize,
     d: &crate::stages::decompose::Decomposition,
     computed: usize,
 ) -> Vec<Vec<f64>> {
-    let p = z.cols;
-    let mut squares = vec![0.0; p];
-    for i in 0..z.rows {
-        for (s, v) in squares.iter_mut().zip(z.row(i)) {
-            *s += v * v;
-        }
-    }
-    let divisor = (z.rows - 1) as f64;
-    (0..p)
+    let divisor = (n_rows - 1) as f64;
+    (0..squares.len())
         .map(|j| {
             let sd = (squares[j] / divisor).sqrt();
             (0..computed)
@@ -90,18 +82,25 @@ fn correlations_of_centred(
 pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> PlotView {
     let d = &analysis.decomposition;
     let s = &analysis.selection;
-    let z = &pre.scaled.matrix;
     let computed = s.computed;
-    let all_scores: Matrix = scores(z, &d.loadings, computed);
-    let p = z.cols;
+    let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
+    let row_scores = |i: usize| -> Vec<f64> {
+        let mut row = analysis.scores.row(i).to_vec();
+        row.extend_from_slice(analysis.more_scores.row(i));
+        row
+    };
     let loadings = (0..p)
         .map(|j| (0..computed).map(|a| d.loadings.get(j, a)).collect())
         .collect();
     let correlations = if prepared.plan.scaling.centers() {
-        correlations_of_centred(z, d, computed)
+        correlations_of_centred(&analysis.column_squares, n, d, computed)
     } else {
-        // Uncentred data: the closed form does not hold; correlate directly.
-        let score_columns: Vec<Vec<f64>> = (0..computed).map(|a| all_scores.column(a)).collect();
+        // Uncentred data: the closed form does not hold; correlate directly (only
+        // the in-memory engine analyses uncentred data).
+        let z = pre.scaled.data();
+        let score_columns: Vec<Vec<f64>> = (0..computed)
+            .map(|a| (0..n).map(|i| row_scores(i)[a]).collect())
+            .collect();
         (0..p)
             .into_par_iter()
             .map(|j| {
@@ -118,7 +117,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
     let plan = &prepared.plan;
     PlotView {
         features: pre.scaled.names.clone(),
-        n_rows: z.rows,
+        n_rows: n,
         eigenvalues: d.eigenvalues[..computed].to_vec(),
         total_variance: d.total_variance,
         p,
@@ -141,7 +140,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         },
         loadings,
         correlations,
-        scores: (0..z.rows).map(|i| all_scores.row(i).to_vec()).collect(),
+        scores: (0..n).into_par_iter().map(row_scores).collect(),
         row_labels: row_labels(prepared, pre),
         groups: plan
             .input
@@ -160,7 +159,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         confidence: first.map_or(0.95, |l| l.confidence),
         t2_limit: first.and_then(|l| l.t2),
         spe_limit: first.and_then(|l| l.spe),
-        flagged: (0..z.rows)
+        flagged: (0..n)
             .map(|i| {
                 let (a, b) = if diag.limits.is_empty() {
                     (false, false)
@@ -185,8 +184,8 @@ pub fn summary(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> 
         prepared.input.path,
         prepared.table.n_rows(),
         prepared.table.columns.len(),
-        pre.scaled.matrix.rows,
-        pre.scaled.matrix.cols
+        pre.scaled.n_rows(),
+        pre.scaled.n_features()
     )];
     let dropped: Vec<String> = m
         .features
@@ -319,7 +318,6 @@ pub fn report_view(
         })
         .collect();
     let diag = &analysis.diagnostics;
-    let z = &pre.scaled.matrix;
     let flagged = diag
         .most_unusual(REPORT_FLAGGED_ROWS)
         .into_iter()
@@ -329,7 +327,13 @@ pub fn report_view(
             } else {
                 diag.flags(i, 0)
             };
-            let parts = contributions(diag, z, &d.loadings, &analysis.scores, &d.eigenvalues, i);
+            let parts = contributions(
+                &analysis.row_values[&i],
+                &d.loadings,
+                &analysis.scores,
+                &d.eigenvalues,
+                i,
+            );
             let weight = |(t2, spe): &(f64, f64)| {
                 (t2.abs() / diag.t2[i].max(f64::MIN_POSITIVE))
                     .max(spe / diag.spe[i].max(f64::MIN_POSITIVE))
@@ -406,7 +410,8 @@ pub fn report_view(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::stages::decompose::decompose;
+    use crate::linalg::Matrix;
+    use crate::stages::decompose::{decompose, scores};
 
     #[test]
     fn closed_form_correlations_equal_pearson_correlations() {
@@ -428,7 +433,7 @@ mod tests {
             .collect();
         let z = Matrix::from_columns(&columns);
         let d = decompose(&z, true, None).unwrap();
-        let closed = correlations_of_centred(&z, &d, 2);
+        let closed = correlations_of_centred(&crate::run::column_squares(&z), z.rows, &d, 2);
         let t = scores(&z, &d.loadings, 2);
         for j in 0..3 {
             for a in 0..2 {

@@ -44,8 +44,6 @@ pub struct Diagnostics {
     pub moments: Option<ResidualMoments>,
     /// Why a limit is missing, in plain words.
     pub notes: Vec<String>,
-    /// Residuals e = z − t Pᵀ (rows × features), kept for contributions.
-    pub residuals: Matrix,
 }
 
 impl Diagnostics {
@@ -94,36 +92,44 @@ impl Diagnostics {
     }
 }
 
-/// T², SPE and the residual matrix of each row, in one fixed order of summation
-/// (shared by the analysis and by scoring new rows, so both give the same bits).
+/// T² and SPE of each row, in one fixed order of summation (shared by the
+/// analysis, by scoring new rows and by the streaming engine, so all of them give
+/// the same bits). Rows are independent, so any run of rows may be passed.
 pub fn row_statistics(
     z: &Matrix,
     loadings: &Matrix,
     scores: &Matrix,
     eigenvalues: &[f64],
-) -> (Vec<f64>, Vec<f64>, Matrix) {
-    let (n, p, k) = (z.rows, z.cols, scores.cols);
-    let t2: Vec<f64> = (0..n)
+) -> (Vec<f64>, Vec<f64>) {
+    let k = scores.cols;
+    let t2: Vec<f64> = (0..z.rows)
         .map(|i| {
             (0..k)
                 .map(|a| scores.get(i, a) * scores.get(i, a) / eigenvalues[a])
                 .sum()
         })
         .collect();
-    let mut residuals = Matrix::zeros(n, p);
-    let mut spe = vec![0.0; n];
-    for i in 0..n {
-        let t = scores.row(i);
-        let mut sum = 0.0;
-        for j in 0..p {
-            let fitted: f64 = (0..k).map(|a| t[a] * loadings.get(j, a)).sum();
-            let e = z.get(i, j) - fitted;
-            residuals.set(i, j, e);
-            sum += e * e;
-        }
-        spe[i] = sum;
-    }
-    (t2, spe, residuals)
+    let spe = (0..z.rows)
+        .map(|i| {
+            let t = scores.row(i);
+            z.row(i).iter().enumerate().fold(0.0, |sum, (j, &zj)| {
+                let e = residual(zj, t, loadings, j);
+                sum + e * e
+            })
+        })
+        .collect();
+    (t2, spe)
+}
+
+/// The residual e = z − t Pᵀ of one cell: `zj` the scaled value of feature `j`,
+/// `t` the row's kept scores.
+fn residual(zj: f64, t: &[f64], loadings: &Matrix, j: usize) -> f64 {
+    let fitted: f64 = t
+        .iter()
+        .enumerate()
+        .map(|(a, ta)| ta * loadings.get(j, a))
+        .sum();
+    zj - fitted
 }
 
 /// Computes T², SPE and their limits.
@@ -141,8 +147,22 @@ pub fn diagnose(
 ) -> Diagnostics {
     let k = scores.cols;
     let n = z.rows;
-    let (t2, spe, residuals) = row_statistics(z, loadings, scores, eigenvalues);
+    let (t2, spe) = row_statistics(z, loadings, scores, eigenvalues);
+    diagnose_rows(t2, spe, n, k, eigenvalues, rank, confidences, spe_method)
+}
 
+/// The limits and flags for rows whose T² and SPE are known.
+#[allow(clippy::too_many_arguments)]
+pub fn diagnose_rows(
+    t2: Vec<f64>,
+    spe: Vec<f64>,
+    n: usize,
+    k: usize,
+    eigenvalues: &[f64],
+    rank: usize,
+    confidences: &[f64],
+    spe_method: SpeLimit,
+) -> Diagnostics {
     let mut notes = Vec::new();
     let moments = match ResidualMoments::from_eigenvalues(&eigenvalues[k..rank]) {
         Ok(m) => Some(m),
@@ -186,27 +206,26 @@ pub fn diagnose(
         spe_method,
         moments,
         notes,
-        residuals,
     }
 }
 
-/// The contributions of each feature to row `i`'s T² and SPE.
+/// The contributions of each feature to row `i`'s T² and SPE; `z` is that
+/// row's scaled values.
 pub fn contributions(
-    d: &Diagnostics,
-    z: &Matrix,
+    z: &[f64],
     loadings: &Matrix,
     scores: &Matrix,
     eigenvalues: &[f64],
     i: usize,
 ) -> Vec<(f64, f64)> {
     let k = scores.cols;
-    (0..z.cols)
+    (0..z.len())
         .map(|j| {
             let t2: f64 = (0..k)
                 .map(|a| scores.get(i, a) / eigenvalues[a] * loadings.get(j, a))
                 .sum::<f64>()
-                * z.get(i, j);
-            let e = d.residuals.get(i, j);
+                * z[j];
+            let e = residual(z[j], scores.row(i), loadings, j);
             (t2, e * e)
         })
         .collect()

@@ -37,8 +37,28 @@ pub struct ScaleReport {
 #[derive(Debug, Clone)]
 pub struct Scaled {
     pub names: Vec<String>,
-    pub matrix: Matrix,
+    /// The values, or `None` when the streaming engine analysed the table in
+    /// passes without holding it (see [`crate::stream`]).
+    pub matrix: Option<Matrix>,
+    /// Index in the table of each analysed row.
     pub rows: Vec<usize>,
+}
+
+impl Scaled {
+    pub fn n_rows(&self) -> usize {
+        self.rows.len()
+    }
+
+    pub fn n_features(&self) -> usize {
+        self.names.len()
+    }
+
+    /// The values held in memory; only the in-memory engine's stages call this.
+    pub fn data(&self) -> &Matrix {
+        self.matrix
+            .as_ref()
+            .expect("the in-memory engine holds the scaled values")
+    }
 }
 
 /// Centres and scales every feature.
@@ -78,7 +98,8 @@ pub fn scale(
         for v in feature.values.iter_mut() {
             *v = (*v - stats.centre) / stats.scale;
         }
-        check_finite(&data.source, &feature.name, &stats, &feature.values)?;
+        let squares: f64 = feature.values.iter().map(|z| z * z).sum();
+        check_finite(&data.source, &feature.name, &stats, squares)?;
         columns.push(feature.values);
         names.push(feature.name);
         report.features.push(stats);
@@ -93,7 +114,7 @@ pub fn scale(
     Ok((
         Scaled {
             names,
-            matrix: Matrix::from_columns(&columns),
+            matrix: Some(Matrix::from_columns(&columns)),
             rows: data.rows,
         },
         report,
@@ -103,11 +124,11 @@ pub fn scale(
 /// Refuses values whose mean, spread or squares overflow double precision: the
 /// decomposition sums squares of the scaled values, and an infinity there would
 /// silently turn into a zero loading or a meaningless total.
-fn check_finite(
+pub fn check_finite(
     source: &str,
     name: &str,
     stats: &FeatureScale,
-    column: &[f64],
+    squares: f64,
 ) -> Result<(), AnalysisError> {
     let overflow = |what| AnalysisError::Overflow {
         path: source.to_string(),
@@ -120,7 +141,6 @@ fn check_finite(
     if !stats.sd.is_finite() || !stats.scale.is_finite() {
         return Err(overflow("its spread"));
     }
-    let squares: f64 = column.iter().map(|z| z * z).sum();
     if !squares.is_finite() {
         return Err(overflow("the sum of squares of its scaled values"));
     }

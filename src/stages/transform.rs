@@ -25,29 +25,16 @@ pub fn apply_transforms(mut data: FeatureData) -> Result<(FeatureData, Vec<Appli
             if v.is_nan() {
                 continue; // a missing cell, filled later on the transformed scale
             }
-            let ok = match t {
-                Transform::Log10 | Transform::Ln => *v > 0.0,
-                Transform::Sqrt => *v >= 0.0,
+            let Some(out) = transform_value(t, *v) else {
+                return Err(domain_error(
+                    &data.source,
+                    data.lines[i],
+                    &feature.name,
+                    *v,
+                    t,
+                ));
             };
-            if !ok {
-                return Err(InputError::BadTransformValue {
-                    path: data.source.clone(),
-                    line: data.lines[i],
-                    column: feature.name.clone(),
-                    value: crate::outputs::tables::number(*v),
-                    transform: t.name(),
-                    need: if t == Transform::Sqrt {
-                        "a value ≥ 0"
-                    } else {
-                        "a value > 0"
-                    },
-                });
-            }
-            *v = match t {
-                Transform::Log10 => libm::log10(*v),
-                Transform::Ln => libm::log(*v),
-                Transform::Sqrt => v.sqrt(), // IEEE 754 square root is correctly rounded everywhere
-            };
+            *v = out;
         }
         applied.push(Applied {
             feature: feature.name.clone(),
@@ -55,6 +42,35 @@ pub fn apply_transforms(mut data: FeatureData) -> Result<(FeatureData, Vec<Appli
         });
     }
     Ok((data, applied))
+}
+
+/// One observed value transformed, or `None` outside the transform's domain.
+pub fn transform_value(t: Transform, v: f64) -> Option<f64> {
+    let ok = match t {
+        Transform::Log10 | Transform::Ln => v > 0.0,
+        Transform::Sqrt => v >= 0.0,
+    };
+    ok.then(|| match t {
+        Transform::Log10 => libm::log10(v),
+        Transform::Ln => libm::log(v),
+        Transform::Sqrt => v.sqrt(), // IEEE 754 square root is correctly rounded everywhere
+    })
+}
+
+/// The error for a value outside a transform's domain.
+pub fn domain_error(source: &str, line: u64, column: &str, v: f64, t: Transform) -> InputError {
+    InputError::BadTransformValue {
+        path: source.to_string(),
+        line,
+        column: column.to_string(),
+        value: crate::outputs::tables::number(v),
+        transform: t.name(),
+        need: if t == Transform::Sqrt {
+            "a value ≥ 0"
+        } else {
+            "a value > 0"
+        },
+    }
 }
 
 impl Applied {

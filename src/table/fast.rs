@@ -36,45 +36,110 @@ pub fn read_table_in_pieces(
     pieces: usize,
 ) -> Result<Table, InputError> {
     let header = read_header(bytes, display, options.delimiter)?;
-    let width = header.names.len();
-    let is_text: Vec<bool> = header
-        .names
-        .iter()
-        .map(|n| options.text_columns.iter().any(|t| t == n))
-        .collect();
+    let layout = Layout::new(header.names, display, options);
+    let (body_start, header_lines) = header_end(bytes, options.delimiter);
+    let columns = layout.parse(&bytes[body_start..], 1 + header_lines, pieces)?;
+    Ok(Table::from_parts(
+        display,
+        layout.names,
+        columns.texts,
+        columns.numbers,
+        &layout.is_text,
+        columns.lines,
+    ))
+}
+
+/// Where the header record of a file ends (after a byte-order mark, if any) and
+/// how many lines it spans.
+pub fn header_end(bytes: &[u8], delimiter: u8) -> (usize, u64) {
     let start = if bytes.starts_with(b"\xef\xbb\xbf") {
         3
     } else {
         0
     };
-    let (header_end, header_lines) = record_end(bytes, start, options.delimiter);
-    let body = &bytes[header_end..];
-    let cuts = cut(body, pieces, options.delimiter);
-    // The file line each piece starts on: the header's lines, plus every newline
-    // (inside quotes too, as editors count them) in the pieces before it.
-    let newlines: Vec<u64> = cuts
-        .par_windows(2)
-        .map(|w| memchr::memchr_iter(b'\n', &body[w[0]..w[1]]).count() as u64)
-        .collect();
-    let mut first_lines = Vec::with_capacity(newlines.len());
-    let mut line = 1 + header_lines;
-    for n in &newlines {
-        first_lines.push(line);
-        line += n;
+    record_end(bytes, start, delimiter)
+}
+
+/// Just past the last whole record of `bytes`, which start at a record start;
+/// `None` when no record ends inside them.
+pub fn last_record_end(bytes: &[u8], delimiter: u8) -> Option<usize> {
+    if memchr::memchr(b'"', bytes).is_none() {
+        return memchr::memrchr(b'\n', bytes).map(|i| i + 1);
     }
-    let spec = Spec {
-        display,
-        width,
-        is_text: &is_text,
-        delimiter: options.delimiter,
-        missing: &options.missing_tokens,
-    };
-    let parsed: Vec<Piece> = cuts
-        .par_windows(2)
-        .zip(first_lines)
-        .map(|(w, line)| parse_piece(&body[w[0]..w[1]], line, &spec))
-        .collect();
-    join(parsed, header.names, &is_text, display)
+    let mut last = None;
+    scan_record_ends(bytes, delimiter, |end, _| {
+        last = Some(end);
+        true
+    });
+    last
+}
+
+/// What parsing a run of whole records needs to know about the table.
+pub struct Layout {
+    pub display: String,
+    pub names: Vec<String>,
+    pub is_text: Vec<bool>,
+    delimiter: u8,
+    missing: Vec<String>,
+}
+
+/// The cells of a run of records, column by column, with each record's line.
+pub struct Columns {
+    pub texts: Vec<Vec<String>>,
+    pub numbers: Vec<NumericColumn>,
+    pub lines: Vec<u64>,
+}
+
+impl Layout {
+    pub fn new(names: Vec<String>, display: &str, options: &ReadOptions) -> Layout {
+        let is_text = names
+            .iter()
+            .map(|n| options.text_columns.iter().any(|t| t == n))
+            .collect();
+        Layout {
+            display: display.to_string(),
+            names,
+            is_text,
+            delimiter: options.delimiter,
+            missing: options.missing_tokens.clone(),
+        }
+    }
+
+    /// Parses a run of whole records whose first starts on line `first_line`,
+    /// cut into (at most) `pieces` pieces parsed at the same time.
+    pub fn parse(
+        &self,
+        body: &[u8],
+        first_line: u64,
+        pieces: usize,
+    ) -> Result<Columns, InputError> {
+        let cuts = cut(body, pieces, self.delimiter);
+        // The file line each piece starts on: every newline (inside quotes too,
+        // as editors count them) in the pieces before it.
+        let newlines: Vec<u64> = cuts
+            .par_windows(2)
+            .map(|w| memchr::memchr_iter(b'\n', &body[w[0]..w[1]]).count() as u64)
+            .collect();
+        let mut first_lines = Vec::with_capacity(newlines.len());
+        let mut line = first_line;
+        for n in &newlines {
+            first_lines.push(line);
+            line += n;
+        }
+        let spec = Spec {
+            display: &self.display,
+            width: self.names.len(),
+            is_text: &self.is_text,
+            delimiter: self.delimiter,
+            missing: &self.missing,
+        };
+        let parsed: Vec<Piece> = cuts
+            .par_windows(2)
+            .zip(first_lines)
+            .map(|(w, line)| parse_piece(&body[w[0]..w[1]], line, &spec))
+            .collect();
+        join(parsed, &self.is_text)
+    }
 }
 
 /// Record ends (just past a newline that is not inside a quoted field), found
@@ -324,14 +389,9 @@ fn split_record(
 }
 
 /// Joins the pieces in order; the first error in file order wins.
-fn join(
-    parsed: Vec<Piece>,
-    names: Vec<String>,
-    is_text: &[bool],
-    display: &str,
-) -> Result<Table, InputError> {
+fn join(parsed: Vec<Piece>, is_text: &[bool]) -> Result<Columns, InputError> {
     let rows: usize = parsed.iter().map(|p| p.lines.len()).sum();
-    let width = names.len();
+    let width = is_text.len();
     let mut texts: Vec<Vec<String>> = (0..width)
         .map(|j| Vec::with_capacity(if is_text[j] { rows } else { 0 }))
         .collect();
@@ -349,16 +409,12 @@ fn join(
         lines.extend(piece.lines);
         for (j, (t, n)) in piece.texts.into_iter().zip(piece.numbers).enumerate() {
             texts[j].extend(t);
-            let column = &mut numbers[j];
-            column.values.extend(n.values);
-            column.missing += n.missing;
-            column.bad += n.bad;
-            if column.first_bad.is_none() {
-                column.first_bad = n.first_bad;
-            }
+            numbers[j].append(n);
         }
     }
-    Ok(Table::from_parts(
-        display, names, texts, numbers, is_text, lines,
-    ))
+    Ok(Columns {
+        texts,
+        numbers,
+        lines,
+    })
 }

@@ -92,10 +92,22 @@ pub struct NumericColumn {
 }
 
 impl NumericColumn {
-    /// A column counts as text when most of its non-missing cells are not numbers;
-    /// a few bad cells in a mostly numeric column are mistakes worth an error.
-    pub fn looks_textual(&self) -> bool {
-        let present = self.values.len() - self.missing;
+    /// A column of `rows` cells counts as text when most of its non-missing cells
+    /// are not numbers; a few bad cells in a mostly numeric column are mistakes
+    /// worth an error.
+    pub fn looks_textual(&self, rows: usize) -> bool {
+        let present = rows - self.missing;
         self.bad > 0 && 2 * self.bad > present
+    }
+
+    /// Appends the cells of the rows that follow; the first bad cell in row
+    /// order stays the one reported.
+    pub fn append(&mut self, next: NumericColumn) {
+        self.values.extend(next.values);
+        self.missing += next.missing;
+        self.bad += next.bad;
+        if self.first_bad.is_none() {
+            self.first_bad = next.first_bad;
+        }
     }
 }

@@ -1,0 +1,246 @@
+//! Reads the input once, in chunks of whole records: each chunk is hashed and
+//! parsed at the same time, its text columns are kept and its numbers go to the
+//! [`Store`]. Cells are parsed by the same code as the in-memory reader, so the
+//! values are the same bits.
+
+use super::store::{Chunk, Store};
+use crate::error::{Error, InputError};
+use crate::linalg::Matrix;
+use crate::table::fast::{Layout, header_end, last_record_end};
+use crate::table::{Header, NumericColumn, ReadOptions, Table, read_header};
+use sha2::{Digest, Sha256};
+use std::io::Read;
+use std::path::Path;
+
+/// Bytes read per chunk (a record longer than this makes its chunk longer).
+const CHUNK_BYTES: usize = 32 << 20;
+
+/// The table read in passes: its text columns, the counts of its numeric
+/// columns, and their values in a store.
+pub struct Ingested {
+    /// Text columns in full; numeric columns with their counts but no values.
+    pub table: Table,
+    /// Table column index of each of the store's columns.
+    pub numeric: Vec<usize>,
+    pub store: Store,
+    pub sha256: String,
+    pub bytes: u64,
+}
+
+/// Reads `file`. `check_header` sees the header before any record is parsed.
+/// On a parse error the rest of the file is still hashed, so the caller can
+/// report a changed pinned file first: the result is (hash, bytes, table).
+pub fn ingest(
+    file: &Path,
+    display: &str,
+    options: &ReadOptions,
+    check_header: impl FnOnce(&Header) -> Result<(), Error>,
+    keep_in_memory: u64,
+    scratch: &Path,
+) -> (String, u64, Result<Ingested, Error>) {
+    let mut reader = Reader::open(file, display);
+    let result = read_all(
+        &mut reader,
+        display,
+        options,
+        check_header,
+        keep_in_memory,
+        scratch,
+    );
+    let (sha256, bytes) = reader.finish_hash();
+    let result = result.map(|(table, numeric, store)| Ingested {
+        table,
+        numeric,
+        store,
+        sha256: sha256.clone(),
+        bytes,
+    });
+    (sha256, bytes, result)
+}
+
+/// The file, read forward once and hashed as it goes.
+struct Reader {
+    file: Option<std::fs::File>,
+    hasher: Sha256,
+    bytes: u64,
+    display: String,
+    error: Option<std::io::Error>,
+    eof: bool,
+}
+
+impl Reader {
+    fn open(path: &Path, display: &str) -> Reader {
+        let (file, error) = match std::fs::File::open(path) {
+            Ok(f) => (Some(f), None),
+            Err(e) => (None, Some(e)),
+        };
+        Reader {
+            file,
+            hasher: Sha256::new(),
+            bytes: 0,
+            display: display.to_string(),
+            error,
+            eof: false,
+        }
+    }
+
+    fn io_error(&mut self) -> Option<InputError> {
+        self.error.take().map(|source| InputError::Io {
+            path: self.display.clone(),
+            source,
+        })
+    }
+
+    /// Appends up to `want` more bytes to `buf`; returns where they start.
+    fn fill(&mut self, buf: &mut Vec<u8>, want: usize) -> Result<usize, InputError> {
+        let start = buf.len();
+        if let Some(e) = self.io_error() {
+            return Err(e);
+        }
+        let Some(file) = self.file.as_mut() else {
+            self.eof = true;
+            return Ok(start);
+        };
+        buf.resize(start + want, 0);
+        let mut got = start;
+        while got < buf.len() {
+            match file.read(&mut buf[got..]) {
+                Ok(0) => {
+                    self.eof = true;
+                    break;
+                }
+                Ok(n) => got += n,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(e) => {
+                    buf.truncate(got);
+                    return Err(InputError::Io {
+                        path: self.display.clone(),
+                        source: e,
+                    });
+                }
+            }
+        }
+        buf.truncate(got);
+        self.bytes += (got - start) as u64;
+        Ok(start)
+    }
+
+    /// Hashes whatever was not read yet and returns the file's hash and size.
+    fn finish_hash(mut self) -> (String, u64) {
+        let mut buf = Vec::new();
+        while !self.eof && self.file.is_some() {
+            buf.clear();
+            if self.fill(&mut buf, CHUNK_BYTES).is_err() {
+                break;
+            }
+            self.hasher.update(&buf);
+        }
+        let digest = self.hasher.finalize();
+        (
+            digest.iter().map(|b| format!("{b:02x}")).collect(),
+            self.bytes,
+        )
+    }
+}
+
+fn read_all(
+    reader: &mut Reader,
+    display: &str,
+    options: &ReadOptions,
+    check_header: impl FnOnce(&Header) -> Result<(), Error>,
+    keep_in_memory: u64,
+    scratch: &Path,
+) -> Result<(Table, Vec<usize>, Store), Error> {
+    let delimiter = options.delimiter;
+    let mut buf = Vec::new();
+    // The header: read until its record ends (or the file does).
+    let mut want = CHUNK_BYTES;
+    loop {
+        let start = reader.fill(&mut buf, want)?;
+        reader.hasher.update(&buf[start..]);
+        if reader.eof || last_record_end(&buf, delimiter).is_some() {
+            break;
+        }
+        want *= 2;
+    }
+    let header = read_header(&buf, display, delimiter)?;
+    check_header(&header)?;
+    let layout = Layout::new(header.names, display, options);
+    let (body_start, header_lines) = header_end(&buf, delimiter);
+    buf.drain(..body_start);
+    let width = layout.names.len();
+    let numeric: Vec<usize> = (0..width).filter(|&j| !layout.is_text[j]).collect();
+    let mut store = Store::new(numeric.len(), keep_in_memory);
+    let mut texts: Vec<Vec<String>> = vec![Vec::new(); width];
+    let mut counts: Vec<NumericColumn> = vec![NumericColumn::default(); width];
+    let mut lines: Vec<u64> = Vec::new();
+    let mut next_line = 1 + header_lines;
+    let pieces = 4 * rayon::current_num_threads().max(1);
+    // `buf[hashed..]` was read but not hashed yet: it is hashed while the
+    // records before it are parsed.
+    let mut hashed = buf.len();
+    loop {
+        let end = if reader.eof {
+            buf.len()
+        } else {
+            match last_record_end(&buf, delimiter) {
+                Some(end) => end,
+                None => {
+                    // No whole record yet: read on.
+                    reader.fill(&mut buf, CHUNK_BYTES)?;
+                    continue;
+                }
+            }
+        };
+        let hasher = &mut reader.hasher;
+        let (_, columns) = rayon::join(
+            || hasher.update(&buf[hashed..]),
+            || layout.parse(&buf[..end], next_line, pieces),
+        );
+        hashed = buf.len();
+        let columns = columns?;
+        next_line += memchr::memchr_iter(b'\n', &buf[..end]).count() as u64;
+        let rows = columns.lines.len();
+        lines.extend(columns.lines);
+        let mut values = Vec::with_capacity(numeric.len());
+        for (j, (t, mut n)) in columns.texts.into_iter().zip(columns.numbers).enumerate() {
+            if layout.is_text[j] {
+                texts[j].extend(t);
+            } else {
+                values.push(std::mem::take(&mut n.values));
+                counts[j].append(n);
+            }
+        }
+        if rows > 0 {
+            let rows_major = Matrix::from_columns(&values);
+            drop(values);
+            store
+                .push(
+                    Chunk {
+                        rows,
+                        values: rows_major.data,
+                    },
+                    scratch,
+                )
+                .map_err(|source| InputError::Io {
+                    path: format!("a scratch file in {}", scratch.display()),
+                    source,
+                })?;
+        }
+        buf.drain(..end);
+        hashed -= end;
+        if reader.eof {
+            break;
+        }
+        reader.fill(&mut buf, CHUNK_BYTES)?;
+    }
+    let table = Table::from_parts(
+        display,
+        layout.names.clone(),
+        texts,
+        counts,
+        &layout.is_text,
+        lines,
+    );
+    Ok((table, numeric, store))
+}

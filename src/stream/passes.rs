@@ -1,0 +1,608 @@
+//! The analysis in passes over the [`Store`]: each pass reads the rows in table
+//! order and carries its sums from chunk to chunk, so every number is summed in
+//! the same order, from the same start, as the in-memory stages sum it. That is
+//! what makes the two engines give the same bits (tested on whole results
+//! folders in tests/engines.rs).
+//!
+//! 1. transforms checked, missing cells counted, observed sums and ranges;
+//! 2. fill values; the scaling means and ranges of the filled values;
+//! 3. the sums of squared deviations (standard deviations);
+//! 4. the cross-products ZᵀZ in the same 1,024-row blocks, and Σ z²;
+//! 5. scores, T² and SPE, row by row;
+//! 6. the scaled values of the rows whose contributions are reported.
+
+use super::store::{Chunk, Store};
+use crate::error::{Error, InputError};
+use crate::linalg::crossprod::GramAccumulator;
+use crate::linalg::{Matrix, SUM_START};
+use crate::outputs::tables::number;
+use crate::recipe::plan::Transform;
+use crate::recipe::raw::{ConstantPolicy, MissingMethod};
+use crate::run::{Analysis, Prepared, Preprocessed, rows_needing_values, scores_between};
+use crate::stages::decompose::{add_squares, from_cross_products, scores};
+use crate::stages::diagnose::{diagnose_rows, row_statistics};
+use crate::stages::missing::{FeatureMissing, FillModel, FilledCell, MissingReport};
+use crate::stages::scale::{FeatureScale, ScaleReport, Scaled, check_finite};
+use crate::stages::select::{Evidence, select};
+use crate::stages::transform::{Applied, domain_error, transform_value};
+use rayon::prelude::*;
+use std::collections::BTreeSet;
+
+/// How each analysed feature is read from the store and brought to the scale
+/// of the analysis.
+#[derive(Debug, Clone)]
+pub struct Features {
+    names: Vec<String>,
+    /// The store column of each feature.
+    column: Vec<usize>,
+    transform: Vec<Option<Transform>>,
+    /// The value a missing cell is filled with (`NaN` when rows are dropped).
+    fill: Vec<f64>,
+    centre: Vec<f64>,
+    scale: Vec<f64>,
+    drop_incomplete: bool,
+}
+
+impl Features {
+    fn width(&self) -> usize {
+        self.names.len()
+    }
+
+    /// The rows of a chunk on the analysis scale (before centring): transformed,
+    /// filled; `None` for a row dropped for a missing cell.
+    fn filled_row(&self, chunk_row: &[f64], out: &mut [f64]) -> bool {
+        for (j, o) in out.iter_mut().enumerate() {
+            let v = chunk_row[self.column[j]];
+            *o = if v.is_nan() {
+                if self.drop_incomplete {
+                    return false;
+                }
+                self.fill[j]
+            } else {
+                match self.transform[j] {
+                    // Values outside the domain were refused in the first pass.
+                    Some(t) => transform_value(t, v).unwrap_or(f64::NAN),
+                    None => v,
+                }
+            };
+        }
+        true
+    }
+
+    /// The analysed rows of a chunk, row-major, filled (and scaled when
+    /// `scaled`), with each row's index in the chunk.
+    fn rows_of(&self, chunk: &Chunk, width: usize, scaled: bool) -> (Vec<f64>, Vec<usize>) {
+        let q = self.width();
+        let mut values = vec![0.0; chunk.rows * q];
+        let kept: Vec<bool> = values
+            .par_chunks_mut(q.max(1))
+            .zip(chunk.values.par_chunks(width.max(1)))
+            .map(|(out, row)| {
+                let keep = self.filled_row(row, out);
+                if keep && scaled {
+                    for (j, o) in out.iter_mut().enumerate() {
+                        *o = (*o - self.centre[j]) / self.scale[j];
+                    }
+                }
+                keep
+            })
+            .collect();
+        if kept.iter().all(|&k| k) {
+            return (values, (0..chunk.rows).collect());
+        }
+        let mut compact = Vec::with_capacity(values.len());
+        let mut rows = Vec::new();
+        for (r, &k) in kept.iter().enumerate() {
+            if k {
+                compact.extend_from_slice(&values[r * q..(r + 1) * q]);
+                rows.push(r);
+            }
+        }
+        (compact, rows)
+    }
+}
+
+impl Features {
+    /// The analysed features as the preprocessing passes left them.
+    fn of(prepared: &Prepared, pre: &Preprocessed, numeric: &[usize]) -> Features {
+        let plan = &prepared.plan;
+        let drop_incomplete = plan.missing_method == MissingMethod::DropRows;
+        let names = pre.scaled.names.clone();
+        let in_plan = |name: &str| {
+            plan.features
+                .iter()
+                .position(|f| f == name)
+                .expect("analysed features are the plan's")
+        };
+        Features {
+            column: names
+                .iter()
+                .map(|n| store_column(prepared, numeric, n))
+                .collect(),
+            transform: names.iter().map(|n| plan.transforms[in_plan(n)]).collect(),
+            fill: names
+                .iter()
+                .map(|n| {
+                    pre.missing.features[in_plan(n)]
+                        .fill_value
+                        .unwrap_or(f64::NAN)
+                })
+                .collect(),
+            centre: pre.scaling.features.iter().map(|f| f.centre).collect(),
+            scale: pre.scaling.features.iter().map(|f| f.scale).collect(),
+            names,
+            drop_incomplete,
+        }
+    }
+}
+
+/// The store column holding a table column.
+fn store_column(prepared: &Prepared, numeric: &[usize], name: &str) -> usize {
+    let t = prepared
+        .table
+        .columns
+        .iter()
+        .position(|c| c.name == name)
+        .expect("the plan's features are table columns");
+    numeric
+        .iter()
+        .position(|&c| c == t)
+        .expect("features are numeric columns")
+}
+
+/// Per-feature running statistics of pass 1.
+#[derive(Clone)]
+struct FirstPass {
+    missing: usize,
+    observed_sum: f64,
+    observed: usize,
+    low: f64,
+    high: f64,
+    /// The first value outside the transform's domain: its row and value.
+    bad: Option<(usize, f64)>,
+}
+
+/// Runs the missing, transform and scaling stages in passes 1–3.
+pub fn preprocess(
+    prepared: &Prepared,
+    store: &Store,
+    numeric: &[usize],
+) -> Result<Preprocessed, Error> {
+    let plan = &prepared.plan;
+    let table = &prepared.table;
+    let source = table.display.clone();
+    let n = table.n_rows();
+    if n < 2 {
+        return Err(InputError::TooFewRows {
+            path: source,
+            rows: n,
+            why: String::new(),
+        }
+        .into());
+    }
+    let width = store.width();
+    let all_columns: Vec<usize> = plan
+        .features
+        .iter()
+        .map(|f| store_column(prepared, numeric, f))
+        .collect();
+
+    // Pass 1.
+    let start = FirstPass {
+        missing: 0,
+        observed_sum: SUM_START,
+        observed: 0,
+        low: f64::INFINITY,
+        high: f64::NEG_INFINITY,
+        bad: None,
+    };
+    let mut first = vec![start; plan.features.len()];
+    let mut offset = 0;
+    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+        for r in 0..chunk.rows {
+            let row = &chunk.values[r * width..(r + 1) * width];
+            for (j, f) in first.iter_mut().enumerate() {
+                let v = row[all_columns[j]];
+                if v.is_nan() {
+                    f.missing += 1;
+                    continue;
+                }
+                let v = match plan.transforms[j] {
+                    Some(t) => match transform_value(t, v) {
+                        Some(out) => out,
+                        None => {
+                            f.bad.get_or_insert((offset + r, v));
+                            continue;
+                        }
+                    },
+                    None => v,
+                };
+                f.observed_sum += v;
+                f.observed += 1;
+                f.low = f.low.min(v);
+                f.high = f.high.max(v);
+            }
+        }
+        offset += chunk.rows;
+        Ok(())
+    })?;
+    // Transform errors in feature order, as the transform stage reports them.
+    for (j, f) in first.iter().enumerate() {
+        if let (Some((row, v)), Some(t)) = (f.bad, plan.transforms[j]) {
+            return Err(domain_error(&source, table.lines[row], &plan.features[j], v, t).into());
+        }
+    }
+    let transforms: Vec<Applied> = plan
+        .features
+        .iter()
+        .zip(&plan.transforms)
+        .filter_map(|(name, t)| {
+            t.map(|transform| Applied {
+                feature: name.clone(),
+                transform,
+            })
+        })
+        .collect();
+
+    // The missing stage's decisions.
+    let max_share = plan.max_feature_missing;
+    let mut reports = Vec::new();
+    let mut kept = Vec::new();
+    for (j, f) in first.iter().enumerate() {
+        let share = f.missing as f64 / n as f64;
+        let dropped = if f.missing == n {
+            Some("no observed cells".to_string())
+        } else if share > max_share {
+            Some(format!(
+                "missing share above max_feature_missing = {max_share}"
+            ))
+        } else {
+            None
+        };
+        if dropped.is_none() {
+            kept.push(j);
+        }
+        reports.push(FeatureMissing {
+            feature: plan.features[j].clone(),
+            missing: f.missing,
+            share,
+            dropped,
+            filled: 0,
+            fill_value: None,
+            mean_filled: None,
+            filled_outside_observed_range: 0,
+        });
+    }
+    if kept.is_empty() {
+        return Err(InputError::NoFeatures {
+            path: source,
+            why: format!(
+                " (every feature misses more than max_feature_missing = {max_share} of its cells)"
+            ),
+        }
+        .into());
+    }
+    let drop_incomplete = plan.missing_method == MissingMethod::DropRows;
+    let fill: Vec<f64> = kept
+        .iter()
+        .map(|&j| {
+            if drop_incomplete {
+                f64::NAN
+            } else {
+                first[j].observed_sum / first[j].observed as f64
+            }
+        })
+        .collect();
+    let features = Features {
+        names: kept.iter().map(|&j| plan.features[j].clone()).collect(),
+        column: kept.iter().map(|&j| all_columns[j]).collect(),
+        transform: kept.iter().map(|&j| plan.transforms[j]).collect(),
+        fill,
+        centre: Vec::new(),
+        scale: Vec::new(),
+        drop_incomplete,
+    };
+    let q = features.width();
+
+    // Pass 2: the analysed rows, the filled cells, sums and ranges.
+    let mut sums = vec![SUM_START; q];
+    let mut lows = vec![f64::INFINITY; q];
+    let mut highs = vec![f64::NEG_INFINITY; q];
+    let mut rows = Vec::new();
+    let mut filled = Vec::new();
+    let mut offset = 0;
+    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+        let (values, local) = features.rows_of(chunk, width, false);
+        for (row, &r) in values.chunks_exact(q.max(1)).zip(&local) {
+            for j in 0..q {
+                let v = row[j];
+                sums[j] += v;
+                lows[j] = lows[j].min(v);
+                highs[j] = highs[j].max(v);
+            }
+            if !drop_incomplete {
+                let raw = &chunk.values[r * width..(r + 1) * width];
+                for j in 0..q {
+                    if raw[features.column[j]].is_nan() {
+                        filled.push(FilledCell {
+                            row: offset + r,
+                            feature: features.names[j].clone(),
+                            value: row[j],
+                        });
+                    }
+                }
+            }
+            rows.push(offset + r);
+        }
+        offset += chunk.rows;
+        Ok(())
+    })?;
+    let analysed = rows.len();
+    let rows_dropped = n - analysed;
+    let mut warnings = Vec::new();
+    if !drop_incomplete {
+        for (k, &j) in kept.iter().enumerate() {
+            let value = features.fill[k];
+            let count = first[j].missing;
+            let report = &mut reports[j];
+            report.fill_value = Some(value);
+            report.filled = count;
+            if count > 0 {
+                // The mean of the filled values, summed as `mean` sums them.
+                let total = (0..count).fold(SUM_START, |s, _| s + value);
+                report.mean_filled = Some(total / count as f64);
+            }
+            let (lo, hi) = (first[j].low, first[j].high);
+            if count > 0 && (value < lo || value > hi) {
+                report.filled_outside_observed_range = count;
+                warnings.push(format!(
+                    "{} filled value(s) of `{}` lie outside its observed range [{}, {}]",
+                    count,
+                    features.names[k],
+                    number(lo),
+                    number(hi)
+                ));
+            }
+        }
+    }
+    if analysed < 2 {
+        return Err(InputError::TooFewRows {
+            path: source,
+            rows: analysed,
+            why: if rows_dropped > 0 {
+                format!(" after dropping {rows_dropped} row(s) with missing cells")
+            } else {
+                String::new()
+            },
+        }
+        .into());
+    }
+    let missing = MissingReport {
+        method: plan.missing_method,
+        max_feature_missing: max_share,
+        rows_in: n,
+        rows_dropped,
+        cells_filled: reports.iter().map(|r| r.filled).sum(),
+        features: reports,
+        iterative_pca: None,
+        knn_neighbours: None,
+        warnings,
+    };
+    let fill_model = if drop_incomplete {
+        FillModel::DropRows
+    } else {
+        FillModel::Constant(features.fill.clone())
+    };
+    let means: Vec<f64> = sums.iter().map(|s| s / analysed as f64).collect();
+
+    // Pass 3: squared deviations.
+    let mut squares = vec![SUM_START; q];
+    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+        let (values, _) = features.rows_of(chunk, width, false);
+        for row in values.chunks_exact(q.max(1)) {
+            for j in 0..q {
+                let d = row[j] - means[j];
+                squares[j] += d * d;
+            }
+        }
+        Ok(())
+    })?;
+
+    // The scaling stage's decisions, feature by feature.
+    let method = plan.scaling;
+    let mut scaling = ScaleReport {
+        method,
+        constant_features: plan.constant_features,
+        features: Vec::new(),
+        dropped_constant: Vec::new(),
+    };
+    let mut keep_scaled = Vec::new();
+    for j in 0..q {
+        let sd = (squares[j] / (analysed as f64 - 1.0)).sqrt();
+        let (min, max) = (lows[j], highs[j]);
+        let stats = FeatureScale {
+            feature: features.names[j].clone(),
+            mean: means[j],
+            sd,
+            min,
+            max,
+            centre: if method.centers() { means[j] } else { 0.0 },
+            scale: match method {
+                crate::recipe::raw::ScalingMethod::None
+                | crate::recipe::raw::ScalingMethod::Center => 1.0,
+                crate::recipe::raw::ScalingMethod::UnitVariance => sd,
+                crate::recipe::raw::ScalingMethod::Pareto => sd.sqrt(),
+                crate::recipe::raw::ScalingMethod::Range => max - min,
+            },
+        };
+        if method.divides() && min == max {
+            match plan.constant_features {
+                ConstantPolicy::Error => {
+                    return Err(InputError::ConstantFeature {
+                        path: source,
+                        column: stats.feature,
+                        value: number(min),
+                        scaling: method.name(),
+                    }
+                    .into());
+                }
+                ConstantPolicy::Drop => {
+                    scaling.dropped_constant.push(stats.feature);
+                    continue;
+                }
+            }
+        }
+        // The sum of squares of the scaled values is checked after pass 4.
+        check_finite(&source, &stats.feature, &stats, 0.0)?;
+        keep_scaled.push(j);
+        scaling.features.push(stats);
+    }
+    if keep_scaled.is_empty() {
+        return Err(InputError::NoFeatures {
+            path: source,
+            why: " (every feature is constant)".into(),
+        }
+        .into());
+    }
+    let pre = Preprocessed {
+        scaled: Scaled {
+            names: keep_scaled
+                .iter()
+                .map(|&j| features.names[j].clone())
+                .collect(),
+            matrix: None,
+            rows,
+        },
+        filled,
+        fill_model,
+        missing,
+        transforms,
+        scaling,
+    };
+    Ok(pre)
+}
+
+/// Passes 4–6: the decomposition, the choice of k, scores and diagnostics.
+pub fn analyse(
+    prepared: &Prepared,
+    pre: &Preprocessed,
+    store: &Store,
+    numeric: &[usize],
+) -> Result<Analysis, Error> {
+    let plan = &prepared.plan;
+    let features = &Features::of(prepared, pre, numeric);
+    let width = store.width();
+    let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
+    let centred = plan.scaling.centers();
+
+    // Pass 4.
+    let mut gram = GramAccumulator::new(p);
+    let mut squares = vec![SUM_START; p];
+    let mut column_squares = vec![0.0; p];
+    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+        let (z, _) = features.rows_of(chunk, width, true);
+        let ((), ()) = rayon::join(
+            || gram.add_rows(&z),
+            || {
+                for row in z.chunks_exact(p) {
+                    add_squares(&mut squares, row);
+                    add_squares(&mut column_squares, row);
+                }
+            },
+        );
+        Ok(())
+    })?;
+    for (j, &s) in squares.iter().enumerate() {
+        let stats = &pre.scaling.features[j];
+        check_finite(&prepared.table.display, &stats.feature, stats, s)?;
+    }
+    let decomposition = from_cross_products(gram.finish(), &squares, n, centred)?;
+    if decomposition.rank == 0 {
+        return Err(InputError::NoFeatures {
+            path: prepared.table.display.clone(),
+            why: " (the scaled data has no variance)".into(),
+        }
+        .into());
+    }
+    let selection = select(
+        &decomposition.eigenvalues,
+        decomposition.total_variance,
+        decomposition.rank,
+        &plan.components,
+        Evidence::default(),
+    )
+    .map_err(|e| crate::run::keep_error(prepared, pre, e.keep, e.available))?;
+    // The p × p route keeps a loading for every non-zero eigenvalue.
+    assert!(selection.computed <= decomposition.loadings.cols);
+    let (kept, computed) = (selection.kept, selection.computed);
+    let loadings = &decomposition.loadings;
+
+    // Pass 5.
+    let mut t_kept = Vec::with_capacity(n * kept);
+    let mut t_more = Vec::with_capacity(n * (computed - kept));
+    let mut t2 = Vec::with_capacity(n);
+    let mut spe = Vec::with_capacity(n);
+    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+        let (z, _) = features.rows_of(chunk, width, true);
+        let rows = z.len() / p;
+        let zc = Matrix {
+            rows,
+            cols: p,
+            data: z,
+        };
+        let t = scores(&zc, loadings, kept);
+        let more = scores_between(&zc, loadings, kept, computed);
+        let (a, b) = row_statistics(&zc, loadings, &t, &decomposition.eigenvalues);
+        t_kept.extend(t.data);
+        t_more.extend(more.data);
+        t2.extend(a);
+        spe.extend(b);
+        Ok(())
+    })?;
+    let diagnostics = diagnose_rows(
+        t2,
+        spe,
+        n,
+        kept,
+        &decomposition.eigenvalues,
+        decomposition.rank,
+        &plan.diagnostics.confidence.0,
+        plan.diagnostics.spe_limit,
+    );
+
+    // Pass 6.
+    let wanted: BTreeSet<usize> = rows_needing_values(&diagnostics, plan)
+        .into_iter()
+        .collect();
+    let mut row_values = std::collections::BTreeMap::new();
+    if !wanted.is_empty() {
+        let mut first = 0;
+        store.pass(|chunk: &Chunk| -> Result<(), Error> {
+            let (z, _) = features.rows_of(chunk, width, true);
+            let rows = z.len() / p;
+            for i in wanted.range(first..first + rows) {
+                let at = i - first;
+                row_values.insert(*i, z[at * p..(at + 1) * p].to_vec());
+            }
+            first += rows;
+            Ok(())
+        })?;
+    }
+    Ok(Analysis {
+        decomposition,
+        scores: Matrix {
+            rows: n,
+            cols: kept,
+            data: t_kept,
+        },
+        more_scores: Matrix {
+            rows: n,
+            cols: computed - kept,
+            data: t_more,
+        },
+        selection,
+        diagnostics,
+        column_squares,
+        row_values,
+    })
+}
