@@ -14,6 +14,7 @@ pub mod linalg;
 pub mod outputs;
 pub mod paths;
 pub mod pin;
+pub mod progress;
 pub mod recipe;
 pub mod run;
 pub mod stages;
