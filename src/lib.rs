@@ -20,6 +20,7 @@ pub mod run;
 pub mod stages;
 pub mod starter;
 pub mod stats;
+pub mod stream;
 pub mod table;
 pub mod timing;
 pub mod verify;

@@ -24,7 +24,11 @@ fn scaled(rows: usize, cols: usize, values: &[f64], method: ScalingMethod) -> Ma
         lines: (0..rows as u64).collect(),
         source: "generated".into(),
     };
-    scale(data, method, ConstantPolicy::Error).unwrap().0.matrix
+    scale(data, method, ConstantPolicy::Error)
+        .unwrap()
+        .0
+        .matrix
+        .expect("scaled in memory")
 }
 
 /// A random table with some correlation between columns (a low-rank part plus noise).

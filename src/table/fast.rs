@@ -297,7 +297,16 @@ fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec) -> Piece {
             return piece;
         }
         for (j, field) in fields.iter().enumerate() {
-            let Ok(text) = std::str::from_utf8(field.bytes(buf)) else {
+            let bytes = field.bytes(buf);
+            if !spec.is_text[j] && !spec.missing.iter().any(|m| m.as_bytes() == bytes) {
+                // Most cells are plain decimals: read them without the general
+                // parser (same value; see `number`).
+                if let Some(v) = super::number::plain_decimal(bytes) {
+                    piece.numbers[j].values.push(v);
+                    continue;
+                }
+            }
+            let Ok(text) = std::str::from_utf8(bytes) else {
                 piece.error = Some(InputError::Csv {
                     path: spec.display.to_string(),
                     line: record_line,

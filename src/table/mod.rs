@@ -4,6 +4,7 @@
 //! file is never accepted as data, so `NaN` always means "missing" here.
 
 pub mod fast;
+pub mod number;
 pub mod read;
 
 pub use fast::read_table_parallel;
