@@ -509,32 +509,62 @@ pub struct Computed {
 
 /// Runs every stage and renders the results in memory.
 pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed), Error> {
+    let (pre, analysis) = analyse_all(prepared)?;
+    let computed = render(prepared, &pre, &analysis)?;
+    Ok((pre, analysis, computed))
+}
+
+/// The preprocessing and the analysis.
+pub fn analyse_all(prepared: &Prepared) -> Result<(Preprocessed, Analysis), Error> {
     let t = std::time::Instant::now();
     let pre = preprocess(prepared)?;
     let t = crate::timing::lap("preprocess", t);
     let analysis = analyse(prepared, &pre)?;
-    let t = crate::timing::lap("decompose, choose k, diagnose", t);
+    crate::timing::lap("decompose, choose k, diagnose", t);
+    Ok((pre, analysis))
+}
+
+/// Renders the result files, figures, report and manifest body in memory.
+pub fn render(
+    prepared: &Prepared,
+    pre: &Preprocessed,
+    analysis: &Analysis,
+) -> Result<Computed, Error> {
+    let t = std::time::Instant::now();
     let resolved = resolved_recipe(&prepared.recipe, &prepared.plan.input);
     let resolved_sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
     let fingerprint = (resolved_sha.clone(), vec![prepared.input.sha256.clone()]);
-    let mut files = result_files(prepared, &pre, &analysis);
-    let model = crate::outputs::model::build(prepared, &pre, &analysis, &resolved_sha);
+    let mut files = result_files(prepared, pre, analysis);
+    let model = crate::outputs::model::build(prepared, pre, analysis, &resolved_sha);
     files.push(("model.json".into(), crate::outputs::model::to_json(&model)));
     let t = crate::timing::lap("result tables", t);
-    files.extend(figures_and_report(
+    // Each file is hashed once; the tables' hashes (the large part) while the
+    // figures are drawn.
+    let view = crate::outputs::present::plot_view(prepared, pre, analysis);
+    let t = crate::timing::lap("  the plots' view", t);
+    let (mut hashes, figures) = rayon::join(|| hash_all(&files), || figures(prepared, &view));
+    let figures = figures?;
+    hashes.extend(hash_all(&figures));
+    files.extend(figures);
+    let report = report_file(
         prepared,
-        &pre,
-        &analysis,
+        pre,
+        analysis,
+        &view,
         &files,
+        &hashes,
         &resolved_sha,
-    )?);
+    );
+    hashes.push(sha256_hex(&report.1));
+    files.push(report);
     crate::timing::lap("plots and report", t);
     let outputs = files
         .iter()
-        .map(|(path, bytes)| FileRecord {
+        .zip(hashes)
+        .map(|((path, bytes), sha256)| FileRecord {
             path: path.clone(),
             bytes: bytes.len() as u64,
-            sha256: sha256_hex(bytes),
+            sha256,
         })
         .collect();
     let body = ManifestBody {
@@ -545,27 +575,35 @@ pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed)
             "resolved_sha256": resolved_sha,
         }),
         inputs: vec![prepared.input.clone()],
-        steps: steps_json(prepared, &pre, &analysis),
+        steps: steps_json(prepared, pre, analysis),
     };
-    Ok((
-        pre,
-        analysis,
-        Computed {
-            files,
-            outputs,
-            body,
-            fingerprint,
-        },
-    ))
+    Ok(Computed {
+        files,
+        outputs,
+        body,
+        fingerprint,
+    })
+}
+
+/// The SHA-256 of each file, files in parallel.
+fn hash_all(files: &[(String, Vec<u8>)]) -> Vec<String> {
+    use rayon::prelude::*;
+    files
+        .par_iter()
+        .map(|(_, bytes)| sha256_hex(bytes))
+        .collect()
 }
 
 /// Runs a recipe end to end and writes its results folder.
 pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error> {
     let start = Instant::now();
     let started_utc = manifest::utc_now();
-    let prepared = prepare_with(recipe_path, &options.engine)?;
+    let mut prepared = prepare_with(recipe_path, &options.engine)?;
     let lock = crate::outputs::lock::lock(&prepared.plan.output)?;
-    let (pre, analysis, computed) = compute(&prepared)?;
+    let (pre, analysis) = analyse_all(&prepared)?;
+    // The table's values are not needed for the outputs: free them first.
+    prepared.passes = None;
+    let computed = render(&prepared, &pre, &analysis)?;
     check_replaceable(
         &prepared.plan.output,
         &computed.fingerprint,
@@ -684,21 +722,13 @@ fn result_files(
     ]
 }
 
-/// The plots and the report. The report's provenance names a results digest: the
-/// SHA-256 of the lines "sha256  path" of every other output, in order (the
-/// manifest's own digest covers the report too, so the report cannot show it).
-fn figures_and_report(
+/// The plots, in the recipe's order.
+fn figures(
     prepared: &Prepared,
-    pre: &Preprocessed,
-    analysis: &Analysis,
-    tables: &[(String, Vec<u8>)],
-    resolved_sha: &str,
+    view: &crate::outputs::view::PlotView,
 ) -> Result<Vec<(String, Vec<u8>)>, Error> {
-    use crate::outputs::{plots, present, report, view::Figure};
-    let t = std::time::Instant::now();
-    let view = present::plot_view(prepared, pre, analysis);
-    let mut t = crate::timing::lap("  the plots' view", t);
-    let mut figures = Vec::new();
+    let mut t = std::time::Instant::now();
+    let mut files = Vec::new();
     for plan in &prepared.plan.plots {
         if plan.highest_component() > view.computed {
             return Err(RecipeError {
@@ -711,25 +741,54 @@ fn figures_and_report(
             }
             .into());
         }
-        let svg = plots::render(plan, &view);
+        let svg = crate::outputs::plots::render(plan, view);
         t = crate::timing::lap(&format!("  plot {}", plan.file), t);
-        figures.push(Figure {
-            file: plan.file.clone(),
-            caption: plots::caption(plan, &view),
-            svg,
-        });
+        files.push((format!("plots/{}", plan.file), svg.into_bytes()));
     }
-    let mut files: Vec<(String, Vec<u8>)> = figures
+    Ok(files)
+}
+
+/// The report. Its provenance names a results digest: the SHA-256 of the lines
+/// "sha256  path" of every other output, in order (the manifest's own digest
+/// covers the report too, so the report cannot show it). `files` are the
+/// tables then the figures, `hashes` their SHA-256.
+#[allow(clippy::too_many_arguments)]
+fn report_file(
+    prepared: &Prepared,
+    pre: &Preprocessed,
+    analysis: &Analysis,
+    view: &crate::outputs::view::PlotView,
+    files: &[(String, Vec<u8>)],
+    hashes: &[String],
+    resolved_sha: &str,
+) -> (String, Vec<u8>) {
+    use crate::outputs::{plots, present, report, view::Figure};
+    let t = std::time::Instant::now();
+    let listing: String = files
         .iter()
-        .map(|f| (format!("plots/{}", f.file), f.svg.clone().into_bytes()))
+        .zip(hashes)
+        .map(|((path, _), sha)| format!("{sha}  {path}\n"))
         .collect();
-    let listing: String = tables
+    let figures = prepared
+        .plan
+        .plots
         .iter()
-        .chain(&files)
-        .map(|(path, bytes)| format!("{}  {path}\n", sha256_hex(bytes)))
+        .map(|plan| {
+            let path = format!("plots/{}", plan.file);
+            let svg = files
+                .iter()
+                .find(|(p, _)| *p == path)
+                .map(|(_, b)| String::from_utf8_lossy(b).into_owned())
+                .unwrap_or_default();
+            Figure {
+                file: plan.file.clone(),
+                caption: plots::caption(plan, view),
+                svg,
+            }
+        })
         .collect();
-    let mut report_view = present::report_view(prepared, pre, analysis, &view);
-    let report_start = crate::timing::lap("  the report's view", t);
+    let mut report_view = present::report_view(prepared, pre, analysis, view);
+    let t = crate::timing::lap("  the report's view", t);
     report_view.figures = figures;
     report_view.provenance = vec![
         (
@@ -751,12 +810,9 @@ fn figures_and_report(
         ),
         ("results digest".into(), sha256_hex(listing.as_bytes())),
     ];
-    files.push((
-        "report.html".into(),
-        report::render(&report_view).into_bytes(),
-    ));
-    crate::timing::lap("  the report", report_start);
-    Ok(files)
+    let html = report::render(&report_view).into_bytes();
+    crate::timing::lap("  the report", t);
+    ("report.html".into(), html)
 }
 
 /// What each step did, for the manifest.

@@ -11,3 +11,10 @@ pub fn lap(what: &str, since: Instant) -> Instant {
     }
     Instant::now()
 }
+
+/// Prints a total of several stretches of time, when timings are asked for.
+pub fn total(what: &str, seconds: f64) {
+    if std::env::var_os("SEXTANT_TIMING").is_some() {
+        eprintln!("timing {seconds:>8.3} s    {what} (total)");
+    }
+}

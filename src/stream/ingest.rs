@@ -5,7 +5,6 @@
 
 use super::store::{Chunk, Store};
 use crate::error::{Error, InputError};
-use crate::linalg::Matrix;
 use crate::table::fast::{Layout, header_end, last_record_end};
 use crate::table::{Header, NumericColumn, ReadOptions, Table, read_header};
 use sha2::{Digest, Sha256};
@@ -179,7 +178,9 @@ fn read_all(
     // `buf[hashed..]` was read but not hashed yet: it is hashed while the
     // records before it are parsed.
     let mut hashed = buf.len();
+    let mut spent = [0.0f64; 4]; // parsing, arranging rows, storing, reading
     loop {
+        let t = std::time::Instant::now();
         let end = if reader.eof {
             buf.len()
         } else {
@@ -193,32 +194,31 @@ fn read_all(
             }
         };
         let hasher = &mut reader.hasher;
-        let (_, columns) = rayon::join(
+        let (_, chunk) = rayon::join(
             || hasher.update(&buf[hashed..]),
-            || layout.parse(&buf[..end], next_line, pieces),
+            || layout.parse_rows(&buf[..end], next_line, pieces),
         );
         hashed = buf.len();
-        let columns = columns?;
-        next_line += memchr::memchr_iter(b'\n', &buf[..end]).count() as u64;
-        let rows = columns.lines.len();
-        lines.extend(columns.lines);
-        let mut values = Vec::with_capacity(numeric.len());
-        for (j, (t, mut n)) in columns.texts.into_iter().zip(columns.numbers).enumerate() {
+        let chunk = chunk?;
+        spent[0] += t.elapsed().as_secs_f64();
+        let t = std::time::Instant::now();
+        next_line += chunk.newlines;
+        let rows = chunk.lines.len();
+        lines.extend(chunk.lines);
+        for (j, (t, n)) in chunk.texts.into_iter().zip(chunk.counts).enumerate() {
             if layout.is_text[j] {
                 texts[j].extend(t);
             } else {
-                values.push(std::mem::take(&mut n.values));
                 counts[j].append(n);
             }
         }
+        spent[1] += t.elapsed().as_secs_f64();
         if rows > 0 {
-            let rows_major = Matrix::from_columns(&values);
-            drop(values);
             store
                 .push(
                     Chunk {
                         rows,
-                        values: rows_major.data,
+                        values: chunk.values,
                     },
                     scratch,
                 )
@@ -229,10 +229,19 @@ fn read_all(
         }
         buf.drain(..end);
         hashed -= end;
+        spent[2] += t.elapsed().as_secs_f64();
         if reader.eof {
             break;
         }
+        let t = std::time::Instant::now();
         reader.fill(&mut buf, CHUNK_BYTES)?;
+        spent[3] += t.elapsed().as_secs_f64();
+    }
+    for (what, s) in ["parse and hash", "arrange rows", "store", "read"]
+        .iter()
+        .zip(spent)
+    {
+        crate::timing::total(what, s);
     }
     let table = Table::from_parts(
         display,

@@ -70,35 +70,47 @@ impl Features {
     }
 
     /// The analysed rows of a chunk, row-major, filled (and scaled when
-    /// `scaled`), with each row's index in the chunk.
-    fn rows_of(&self, chunk: &Chunk, width: usize, scaled: bool) -> (Vec<f64>, Vec<usize>) {
+    /// `scaled`), into `values`, with each row's index in the chunk in `rows`.
+    /// The buffers are reused from chunk to chunk.
+    fn rows_of(
+        &self,
+        chunk: &Chunk,
+        width: usize,
+        scaled: bool,
+        values: &mut Vec<f64>,
+        rows: &mut Vec<usize>,
+    ) {
         let q = self.width();
-        let mut values = vec![0.0; chunk.rows * q];
+        values.resize(chunk.rows * q, 0.0);
         let kept: Vec<bool> = values
             .par_chunks_mut(q.max(1))
             .zip(chunk.values.par_chunks(width.max(1)))
             .map(|(out, row)| {
                 let keep = self.filled_row(row, out);
                 if keep && scaled {
-                    for (j, o) in out.iter_mut().enumerate() {
-                        *o = (*o - self.centre[j]) / self.scale[j];
-                    }
+                    self.scale_row(out);
                 }
                 keep
             })
             .collect();
-        if kept.iter().all(|&k| k) {
-            return (values, (0..chunk.rows).collect());
-        }
-        let mut compact = Vec::with_capacity(values.len());
-        let mut rows = Vec::new();
+        rows.clear();
+        let mut at = 0;
         for (r, &k) in kept.iter().enumerate() {
             if k {
-                compact.extend_from_slice(&values[r * q..(r + 1) * q]);
+                if at != r {
+                    values.copy_within(r * q..(r + 1) * q, at * q);
+                }
+                at += 1;
                 rows.push(r);
             }
         }
-        (compact, rows)
+        values.truncate(at * q);
+    }
+
+    fn scale_row(&self, row: &mut [f64]) {
+        for (j, o) in row.iter_mut().enumerate() {
+            *o = (*o - self.centre[j]) / self.scale[j];
+        }
     }
 }
 
@@ -311,8 +323,9 @@ pub fn preprocess(
     let mut rows = Vec::new();
     let mut filled = Vec::new();
     let mut offset = 0;
+    let (mut values, mut local) = (Vec::new(), Vec::new());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
-        let (values, local) = features.rows_of(chunk, width, false);
+        features.rows_of(chunk, width, false, &mut values, &mut local);
         for (row, &r) in values.chunks_exact(q.max(1)).zip(&local) {
             for j in 0..q {
                 let v = row[j];
@@ -398,7 +411,7 @@ pub fn preprocess(
     // Pass 3: squared deviations.
     let mut squares = vec![SUM_START; q];
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
-        let (values, _) = features.rows_of(chunk, width, false);
+        features.rows_of(chunk, width, false, &mut values, &mut local);
         for row in values.chunks_exact(q.max(1)) {
             for j in 0..q {
                 let d = row[j] - means[j];
@@ -499,10 +512,12 @@ pub fn analyse(
     let mut gram = GramAccumulator::new(p);
     let mut squares = vec![SUM_START; p];
     let mut column_squares = vec![0.0; p];
+    let (mut z, mut local) = (Vec::new(), Vec::new());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
-        let (z, _) = features.rows_of(chunk, width, true);
+        features.rows_of(chunk, width, true, &mut z, &mut local);
+        let z = &z;
         let ((), ()) = rayon::join(
-            || gram.add_rows(&z),
+            || gram.add_rows(z),
             || {
                 for row in z.chunks_exact(p) {
                     add_squares(&mut squares, row);
@@ -543,20 +558,28 @@ pub fn analyse(
     let mut t2 = Vec::with_capacity(n);
     let mut spe = Vec::with_capacity(n);
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
-        let (z, _) = features.rows_of(chunk, width, true);
-        let rows = z.len() / p;
-        let zc = Matrix {
-            rows,
-            cols: p,
-            data: z,
-        };
-        let t = scores(&zc, loadings, kept);
-        let more = scores_between(&zc, loadings, kept, computed);
-        let (a, b) = row_statistics(&zc, loadings, &t, &decomposition.eigenvalues);
-        t_kept.extend(t.data);
-        t_more.extend(more.data);
-        t2.extend(a);
-        spe.extend(b);
+        features.rows_of(chunk, width, true, &mut z, &mut local);
+        // Rows are independent: blocks of them in parallel, joined in order.
+        let parts: Vec<_> = z
+            .par_chunks(2048 * p)
+            .map(|block| {
+                let zc = Matrix {
+                    rows: block.len() / p,
+                    cols: p,
+                    data: block.to_vec(),
+                };
+                let t = scores(&zc, loadings, kept);
+                let more = scores_between(&zc, loadings, kept, computed);
+                let (a, b) = row_statistics(&zc, loadings, &t, &decomposition.eigenvalues);
+                (t.data, more.data, a, b)
+            })
+            .collect();
+        for (t, more, a, b) in parts {
+            t_kept.extend(t);
+            t_more.extend(more);
+            t2.extend(a);
+            spe.extend(b);
+        }
         Ok(())
     })?;
     let diagnostics = diagnose_rows(
@@ -570,21 +593,29 @@ pub fn analyse(
         plan.diagnostics.spe_limit,
     );
 
-    // Pass 6.
+    // Pass 6: only the wanted rows are brought to the analysis scale.
     let wanted: BTreeSet<usize> = rows_needing_values(&diagnostics, plan)
         .into_iter()
+        .map(|i| pre.scaled.rows[i])
         .collect();
+    let analysed_index: std::collections::BTreeMap<usize, usize> =
+        rows_needing_values(&diagnostics, plan)
+            .into_iter()
+            .map(|i| (pre.scaled.rows[i], i))
+            .collect();
     let mut row_values = std::collections::BTreeMap::new();
     if !wanted.is_empty() {
         let mut first = 0;
         store.pass(|chunk: &Chunk| -> Result<(), Error> {
-            let (z, _) = features.rows_of(chunk, width, true);
-            let rows = z.len() / p;
-            for i in wanted.range(first..first + rows) {
-                let at = i - first;
-                row_values.insert(*i, z[at * p..(at + 1) * p].to_vec());
+            for &t in wanted.range(first..first + chunk.rows) {
+                let raw = &chunk.values[(t - first) * width..(t - first + 1) * width];
+                let mut out = vec![0.0; p];
+                let complete = features.filled_row(raw, &mut out);
+                debug_assert!(complete, "an analysed row is complete");
+                features.scale_row(&mut out);
+                row_values.insert(analysed_index[&t], out);
             }
-            first += rows;
+            first += chunk.rows;
             Ok(())
         })?;
     }

@@ -88,6 +88,8 @@ pub struct Columns {
     pub texts: Vec<Vec<String>>,
     pub numbers: Vec<NumericColumn>,
     pub lines: Vec<u64>,
+    /// Newlines in the run (inside quoted fields too).
+    pub newlines: u64,
 }
 
 impl Layout {
@@ -136,9 +138,12 @@ impl Layout {
         let parsed: Vec<Piece> = cuts
             .par_windows(2)
             .zip(first_lines)
-            .map(|(w, line)| parse_piece(&body[w[0]..w[1]], line, &spec))
+            .zip(&newlines)
+            .map(|((w, line), &n)| parse_piece(&body[w[0]..w[1]], line, &spec, n))
             .collect();
-        join(parsed, &self.is_text)
+        let mut columns = join(parsed, &self.is_text)?;
+        columns.newlines = newlines.iter().sum();
+        Ok(columns)
     }
 }
 
@@ -265,11 +270,20 @@ impl Field {
 }
 
 /// Parses the records of one piece; stops at its first error.
-fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec) -> Piece {
+fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec, newlines: u64) -> Piece {
+    // About one record per newline: room for them all at once.
+    let rows = newlines as usize + 1;
     let mut piece = Piece {
-        texts: vec![Vec::new(); spec.width],
-        numbers: vec![NumericColumn::default(); spec.width],
-        lines: Vec::new(),
+        texts: (0..spec.width)
+            .map(|j| Vec::with_capacity(if spec.is_text[j] { rows } else { 0 }))
+            .collect(),
+        numbers: (0..spec.width)
+            .map(|j| NumericColumn {
+                values: Vec::with_capacity(if spec.is_text[j] { 0 } else { rows }),
+                ..NumericColumn::default()
+            })
+            .collect(),
+        lines: Vec::with_capacity(rows),
         error: None,
     };
     let mut pos = 0;
@@ -368,7 +382,12 @@ fn split_record(
             }
         }
         // Unquoted text, or what follows a closing quote, up to the field's end.
-        let end = memchr::memchr2(delimiter, b'\n', &buf[pos..]).map_or(buf.len(), |e| pos + e);
+        // A plain loop: most fields are a few bytes long, shorter than what a
+        // vectorised search needs to pay for its set-up.
+        let end = buf[pos..]
+            .iter()
+            .position(|&b| b == delimiter || b == b'\n')
+            .map_or(buf.len(), |e| pos + e);
         let at_line_end = buf.get(end).is_none_or(|&b| b == b'\n' && b != delimiter);
         let mut field = match owned {
             Some(mut v) => {
@@ -394,6 +413,101 @@ fn split_record(
         }
         fields.push(field);
         pos = end + 1;
+    }
+}
+
+/// A run of records with its numeric columns laid out row by row.
+pub struct RowChunk {
+    /// The text columns' cells (empty vectors for numeric columns).
+    pub texts: Vec<Vec<String>>,
+    /// The numeric columns' counts (missing, bad, first bad), without values.
+    pub counts: Vec<NumericColumn>,
+    /// rows × (numeric columns), row by row, in table column order.
+    pub values: Vec<f64>,
+    pub lines: Vec<u64>,
+    pub newlines: u64,
+}
+
+impl Layout {
+    /// Like [`Layout::parse`], but with the numbers laid out row by row (each
+    /// piece writes its own rows, in parallel): what the passes engine stores.
+    pub fn parse_rows(
+        &self,
+        body: &[u8],
+        first_line: u64,
+        pieces: usize,
+    ) -> Result<RowChunk, InputError> {
+        let cuts = cut(body, pieces, self.delimiter);
+        let newlines: Vec<u64> = cuts
+            .par_windows(2)
+            .map(|w| memchr::memchr_iter(b'\n', &body[w[0]..w[1]]).count() as u64)
+            .collect();
+        let mut first_lines = Vec::with_capacity(newlines.len());
+        let mut line = first_line;
+        for n in &newlines {
+            first_lines.push(line);
+            line += n;
+        }
+        let spec = Spec {
+            display: &self.display,
+            width: self.names.len(),
+            is_text: &self.is_text,
+            delimiter: self.delimiter,
+            missing: &self.missing,
+        };
+        let mut parsed: Vec<Piece> = cuts
+            .par_windows(2)
+            .zip(first_lines)
+            .zip(&newlines)
+            .map(|((w, line), &n)| parse_piece(&body[w[0]..w[1]], line, &spec, n))
+            .collect();
+        if let Some(e) = parsed.iter_mut().find_map(|p| p.error.take()) {
+            return Err(e);
+        }
+        let numeric: Vec<usize> = (0..self.names.len())
+            .filter(|&j| !self.is_text[j])
+            .collect();
+        let w = numeric.len();
+        let rows: usize = parsed.iter().map(|p| p.lines.len()).sum();
+        let mut values = vec![0.0; rows * w];
+        // Each piece fills its own stretch of rows.
+        let mut slices = Vec::with_capacity(parsed.len());
+        let mut rest = values.as_mut_slice();
+        for piece in &parsed {
+            let (mine, tail) = rest.split_at_mut(piece.lines.len() * w);
+            slices.push(mine);
+            rest = tail;
+        }
+        parsed.par_iter().zip(slices).for_each(|(piece, out)| {
+            const BLOCK: usize = 256;
+            for (b, block) in out.chunks_mut(BLOCK * w.max(1)).enumerate() {
+                let first = b * BLOCK;
+                for (jj, &j) in numeric.iter().enumerate() {
+                    let column = &piece.numbers[j].values[first..first + block.len() / w];
+                    for (r, &v) in column.iter().enumerate() {
+                        block[r * w + jj] = v;
+                    }
+                }
+            }
+        });
+        let mut texts: Vec<Vec<String>> = vec![Vec::new(); self.names.len()];
+        let mut counts: Vec<NumericColumn> = vec![NumericColumn::default(); self.names.len()];
+        let mut lines = Vec::with_capacity(rows);
+        for piece in parsed {
+            lines.extend(piece.lines);
+            for (j, (t, mut n)) in piece.texts.into_iter().zip(piece.numbers).enumerate() {
+                texts[j].extend(t);
+                n.values = Vec::new();
+                counts[j].append(n);
+            }
+        }
+        Ok(RowChunk {
+            texts,
+            counts,
+            values,
+            lines,
+            newlines: newlines.iter().sum(),
+        })
     }
 }
 
@@ -425,5 +539,6 @@ fn join(parsed: Vec<Piece>, is_text: &[bool]) -> Result<Columns, InputError> {
         texts,
         numbers,
         lines,
+        newlines: 0,
     })
 }

@@ -21,22 +21,25 @@ pub fn plain_decimal(bytes: &[u8]) -> Option<f64> {
         b'+' => (false, &bytes[1..]),
         _ => (false, bytes),
     };
-    let (whole, fraction) = match memchr::memchr(b'.', rest) {
-        Some(dot) => (&rest[..dot], Some(&rest[dot + 1..])),
-        None => (rest, None),
-    };
-    if whole.is_empty() || fraction.is_some_and(|f| f.is_empty()) {
-        return None;
-    }
     let mut w: u64 = 0;
-    for &b in whole.iter().chain(fraction.unwrap_or(&[])) {
+    let mut digits = 0;
+    let mut dot = None;
+    for (i, &b) in rest.iter().enumerate() {
         let digit = b.wrapping_sub(b'0');
-        if digit > 9 {
+        if digit <= 9 {
+            w = w.checked_mul(10)?.checked_add(u64::from(digit))?;
+            digits += 1;
+        } else if b == b'.' && dot.is_none() && digits > 0 {
+            dot = Some(i);
+        } else {
             return None;
         }
-        w = w.checked_mul(10)?.checked_add(u64::from(digit))?;
     }
-    let decimals = fraction.map_or(0, <[u8]>::len);
+    // Digits on both sides of a point, as in `12.5` (not `12.` or `.5`).
+    let decimals = dot.map_or(0, |d| rest.len() - d - 1);
+    if digits == 0 || dot.is_some_and(|_| decimals == 0) {
+        return None;
+    }
     if w > 1 << 53 || decimals >= POWERS.len() {
         return None;
     }
@@ -58,10 +61,29 @@ mod tests {
     #[test]
     fn agrees_with_the_standard_parser() {
         for text in [
-            "0", "-0", "+0", "0.0", "-0.0", "1", "-1", "61.89574", "-0.444496", "34423.11",
-            "0.1", "0.2", "0.3", "9007199254740992", "9007199254740993", "0.0000000000000000000001",
-            "123456789012345678", "1.7976931348623157", "4.9406564584124654", "2.2250738585072014",
-            "00012.50", "999999999999999.9", "0.1000000000000000055511151231257827",
+            "0",
+            "-0",
+            "+0",
+            "0.0",
+            "-0.0",
+            "1",
+            "-1",
+            "61.89574",
+            "-0.444496",
+            "34423.11",
+            "0.1",
+            "0.2",
+            "0.3",
+            "9007199254740992",
+            "9007199254740993",
+            "0.0000000000000000000001",
+            "123456789012345678",
+            "1.7976931348623157",
+            "4.9406564584124654",
+            "2.2250738585072014",
+            "00012.50",
+            "999999999999999.9",
+            "0.1000000000000000055511151231257827",
         ] {
             same_as_std(text);
         }
@@ -78,9 +100,17 @@ mod tests {
             let text = if decimals == 0 {
                 s
             } else {
-                format!("{}.{}", &s[..digits - decimals].to_string().max("0".into()), &s[digits - decimals..])
+                format!(
+                    "{}.{}",
+                    &s[..digits - decimals].to_string().max("0".into()),
+                    &s[digits - decimals..]
+                )
             };
-            let text = if state & 1 == 1 { format!("-{text}") } else { text };
+            let text = if state & 1 == 1 {
+                format!("-{text}")
+            } else {
+                text
+            };
             assert!(plain_decimal(text.as_bytes()).is_some(), "{text}");
             same_as_std(&text);
         }
@@ -89,8 +119,23 @@ mod tests {
     #[test]
     fn leaves_everything_else_to_the_standard_parser() {
         for text in [
-            "", "-", ".5", "5.", "1e5", "1E-3", " 1", "1 ", "NA", "nan", "inf", "1,5", "0x10",
-            "--1", "1.2.3", "12345678901234567890", "1.00000000000000000000001",
+            "",
+            "-",
+            ".5",
+            "5.",
+            "1e5",
+            "1E-3",
+            " 1",
+            "1 ",
+            "NA",
+            "nan",
+            "inf",
+            "1,5",
+            "0x10",
+            "--1",
+            "1.2.3",
+            "12345678901234567890",
+            "1.00000000000000000000001",
         ] {
             assert!(plain_decimal(text.as_bytes()).is_none(), "{text}");
         }
