@@ -132,21 +132,32 @@ pub fn gram_of_rows(x: &Matrix) -> Matrix {
 }
 
 /// X·V for a row-major n × p matrix X and p × k matrix V; each entry is a dot
-/// product summed in feature order.
+/// product summed in feature order, starting from +0 (as [`dot`]). The k sums of
+/// a row are carried side by side, feature after feature: the same additions in
+/// the same order as k separate dot products, without waiting on each other.
 pub fn times(x: &Matrix, v: &Matrix) -> Matrix {
     assert_eq!(x.cols, v.rows, "inner dimensions differ");
     let k = v.cols;
-    let vt = v.transpose();
     let mut out = Matrix::zeros(x.rows, k);
     if k == 0 {
         return out;
     }
-    out.data.par_chunks_mut(k).enumerate().for_each(|(i, row)| {
-        let xi = x.row(i);
-        for (a, slot) in row.iter_mut().enumerate() {
-            *slot = dot(xi, vt.row(a));
-        }
-    });
+    out.data
+        .par_chunks_mut(k * 256)
+        .zip(x.data.par_chunks(x.cols.max(1) * 256))
+        .for_each(|(rows_out, rows_in)| {
+            for (row, xi) in rows_out
+                .chunks_exact_mut(k)
+                .zip(rows_in.chunks_exact(x.cols.max(1)))
+            {
+                row.fill(0.0);
+                for (&xj, vj) in xi.iter().zip(v.data.chunks_exact(k)) {
+                    for (slot, &vja) in row.iter_mut().zip(vj) {
+                        *slot += xj * vja;
+                    }
+                }
+            }
+        });
     out
 }
 

@@ -5,7 +5,8 @@
 use super::LoadedRecipe;
 use super::plan::input_plan;
 use super::raw::{
-    ConstantPolicy, DEFAULT_COMPUTE, DEFAULT_KEEP, Keep, MissingMethod, ScalingMethod,
+    ConstantPolicy, DEFAULT_COMPUTE, DEFAULT_KEEP, DecompositionMethod, Keep, MissingMethod,
+    ScalingMethod,
 };
 use std::fmt::Write;
 use toml::Spanned;
@@ -150,7 +151,26 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         });
     }
 
-    s.push("Compute the eigenvalues and loadings of that matrix with divisor n − 1; make the largest loading of each component positive (ties go to the first feature).".into());
+    let method = raw
+        .components
+        .method
+        .as_ref()
+        .map_or(DecompositionMethod::Exact, |m| *m.get_ref());
+    s.push(match method {
+        DecompositionMethod::Exact => "Compute the eigenvalues and loadings of that matrix with divisor n − 1; make the largest loading of each component positive (ties go to the first feature).".into(),
+        DecompositionMethod::Randomized => {
+            let r = raw
+                .components
+                .randomized
+                .as_ref()
+                .map(|r| r.get_ref().clone())
+                .unwrap_or_default();
+            format!(
+                "Compute only the leading eigenvalues and loadings of that matrix (divisor n − 1) by the randomized method of Halko, Martinsson & Tropp (2011): multiply the data by {} random normal direction(s) more than the components wanted, drawn from seed {}, refine with {} power iteration(s), and solve the small eigenproblem of that sketch; the rest of the spectrum is known only through its sum and sum of squares, so T² and SPE are exact but the SPE limit uses Box's approximation. Make the largest loading of each component positive (ties go to the first feature).",
+                r.oversampling.0, r.seed, r.power_iterations.0
+            )
+        }
+    });
     let c = &raw.components;
     let compute = c
         .compute

@@ -7,7 +7,8 @@
 
 use super::LoadedRecipe;
 use super::raw::{
-    ConstantPolicy, DEFAULT_KEEP, DEFAULT_MISSING_TOKENS, Keep, MissingMethod, ScalingMethod,
+    ConstantPolicy, DEFAULT_KEEP, DEFAULT_MISSING_TOKENS, DecompositionMethod, Keep, MissingMethod,
+    RawRandomized, ScalingMethod, SpeLimit,
 };
 use crate::error::{Error, InputError, Position, RecipeError, RecipeProblem};
 use crate::paths::normalize;
@@ -60,6 +61,16 @@ pub struct ComponentsPlan {
     pub compute: Option<usize>,
 }
 
+/// How the eigenvalues and loadings are computed, with the settings of the method.
+#[derive(Debug, Clone, PartialEq)]
+pub enum MethodPlan {
+    /// Every eigenvalue and loading ([`crate::stages::decompose::decompose_keeping`]).
+    Exact,
+    /// The leading components only, from a seeded sketch
+    /// ([`crate::stages::decompose::decompose_randomized`]).
+    Randomized(RawRandomized),
+}
+
 /// Everything a run needs, checked.
 #[derive(Debug, Clone)]
 pub struct Plan {
@@ -82,6 +93,8 @@ pub struct Plan {
     pub scaling: ScalingMethod,
     pub constant_features: ConstantPolicy,
     pub components: ComponentsPlan,
+    /// `components.method` and its settings.
+    pub method: MethodPlan,
     pub diagnostics: super::raw::RawDiagnostics,
     pub plots: Vec<super::plots::PlotPlan>,
     /// The results folder as written in the recipe, and as a path to write.
@@ -214,6 +227,7 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
     let transforms = assign_transforms(recipe, &features)?;
     let (output, output_display) = output_folder(recipe, &input)?;
     let components = components_plan(recipe)?;
+    let method = method_plan(recipe)?;
     let plots = super::plots::plot_plans(recipe, &input.groups)?;
     Ok(Plan {
         title: raw.title.clone(),
@@ -230,6 +244,7 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
         scaling: raw.scaling.method,
         constant_features: raw.scaling.constant_features,
         components,
+        method,
         diagnostics: raw.diagnostics.clone(),
         plots,
         output_display,
@@ -484,9 +499,72 @@ fn components_plan(recipe: &LoadedRecipe) -> Result<ComponentsPlan, RecipeError>
     })
 }
 
+/// Checks `components.method` against the settings that need every eigenvalue.
+///
+/// The randomized method knows only the leading eigenvalues (and the sum and sum
+/// of squares of all of them), so rules that look at the whole spectrum and the
+/// Jackson–Mudholkar SPE limit (which needs the sum of cubes of the dropped
+/// eigenvalues) are refused rather than fed a partial spectrum.
+pub fn method_plan(recipe: &LoadedRecipe) -> Result<MethodPlan, RecipeError> {
+    let c = &recipe.raw.components;
+    let method = c
+        .method
+        .as_ref()
+        .map_or(DecompositionMethod::Exact, |m| *m.get_ref());
+    match method {
+        DecompositionMethod::Exact => {
+            if let Some(settings) = &c.randomized {
+                return Err(
+                    recipe.error_at(settings.span(), RecipeProblem::RandomizedSettingsUnused)
+                );
+            }
+            Ok(MethodPlan::Exact)
+        }
+        DecompositionMethod::Randomized => {
+            if let Some(keep) = &c.keep {
+                if let Some((rule, why)) = whole_spectrum_rule(*keep.get_ref()) {
+                    return Err(recipe.error_at(
+                        keep.span(),
+                        RecipeProblem::RandomizedNeedsCount { rule, why },
+                    ));
+                }
+            }
+            if recipe.raw.diagnostics.spe_limit != SpeLimit::Box {
+                let span = c.method.as_ref().map(|m| m.span()).unwrap_or_default();
+                return Err(recipe.error_at(span, RecipeProblem::RandomizedNeedsBox));
+            }
+            let settings = c
+                .randomized
+                .as_ref()
+                .map(|s| s.get_ref().clone())
+                .unwrap_or_default();
+            Ok(MethodPlan::Randomized(settings))
+        }
+    }
+}
+
+/// The rule as written and why it needs more than the leading components.
+fn whole_spectrum_rule(keep: Keep) -> Option<(String, &'static str)> {
+    let spectrum = "compares the eigenvalues with the whole spectrum";
+    match keep {
+        Keep::Count(_) => None,
+        Keep::Variance(s) => Some((format!("{{ variance = {} }}", s.0), spectrum)),
+        Keep::Kaiser => Some(("\"kaiser\"".into(), spectrum)),
+        Keep::BrokenStick => Some(("\"broken-stick\"".into(), spectrum)),
+        Keep::ParallelAnalysis => Some((
+            "\"parallel-analysis\"".into(),
+            "decomposes hundreds of random tables of the same shape exactly",
+        )),
+        Keep::CrossValidation => Some((
+            "\"cross-validation\"".into(),
+            "refits the exact decomposition on every fold",
+        )),
+    }
+}
+
 /// Resolves the results folder and refuses one that would hold the recipe or the
 /// input, since a rerun replaces the whole folder.
-fn output_folder(
+pub fn output_folder(
     recipe: &LoadedRecipe,
     input: &InputPlan,
 ) -> Result<(PathBuf, String), RecipeError> {

@@ -372,10 +372,90 @@ pub enum ConstantPolicy {
 pub struct RawComponents {
     pub keep: Option<Spanned<Keep>>,
     pub compute: Option<Spanned<Count>>,
+    /// How the eigenvalues and loadings are computed; absent means exact.
+    pub method: Option<Spanned<DecompositionMethod>>,
+    /// Settings of the randomized method; only allowed with `method = "randomized"`.
+    pub randomized: Option<Spanned<RawRandomized>>,
     #[serde(default)]
     pub parallel_analysis: RawParallel,
     #[serde(default)]
     pub cross_validation: RawCrossValidation,
+}
+
+/// How the eigenvalues and loadings are computed.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum DecompositionMethod {
+    /// Every eigenvalue and loading, from the full p × p (or n × n) matrix.
+    #[default]
+    Exact,
+    /// Only the leading components, from a seeded random sketch of the data
+    /// (Halko, Martinsson & Tropp 2011); for wide or large tables.
+    Randomized,
+}
+
+impl DecompositionMethod {
+    pub fn name(self) -> &'static str {
+        match self {
+            DecompositionMethod::Exact => "exact",
+            DecompositionMethod::Randomized => "randomized",
+        }
+    }
+}
+
+/// `[components.randomized]`: the randomized range finder with power iterations
+/// (Halko, Martinsson & Tropp 2011, "Finding structure with randomness", SIAM
+/// Review 53:217–288, Algorithms 4.4 and 5.1).
+#[derive(Debug, Clone, PartialEq, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawRandomized {
+    /// Random directions drawn beyond the components wanted.
+    #[serde(default = "default_oversampling")]
+    pub oversampling: Steps,
+    /// Passes of multiplying by XᵀX before the final sketch; each sharpens the
+    /// leading components when the eigenvalues decay slowly.
+    #[serde(default = "default_power_iterations")]
+    pub power_iterations: Steps,
+    /// Seed of the random stream; the same seed gives the same bits.
+    #[serde(default = "default_seed")]
+    pub seed: u64,
+}
+
+impl Default for RawRandomized {
+    fn default() -> Self {
+        RawRandomized {
+            oversampling: default_oversampling(),
+            power_iterations: default_power_iterations(),
+            seed: default_seed(),
+        }
+    }
+}
+
+fn default_oversampling() -> Steps {
+    Steps(10)
+}
+
+fn default_power_iterations() -> Steps {
+    Steps(4)
+}
+
+/// A whole number from 0 to [`Steps::MAX`] (oversampling, power iterations).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct Steps(pub usize);
+
+impl Steps {
+    /// More than this gains nothing over the exact method and only costs time.
+    pub const MAX: usize = 1000;
+}
+
+impl<'de> Deserialize<'de> for Steps {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        deserializer.deserialize_any(NumberVisitor("a whole number from 0 to 1000", |v| {
+            (v.fract() == 0.0 && (0.0..=Steps::MAX as f64).contains(&v))
+                .then_some(Steps(v as usize))
+                .ok_or_else(|| format!("{v} is not a whole number from 0 to 1000"))
+        }))
+    }
 }
 
 /// `[components.parallel_analysis]`: Horn's (1965) parallel analysis.

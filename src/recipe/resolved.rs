@@ -4,7 +4,7 @@
 
 use super::LoadedRecipe;
 use super::plan::InputPlan;
-use super::raw::{DEFAULT_COMPUTE, DEFAULT_KEEP, Keep};
+use super::raw::{DEFAULT_COMPUTE, DEFAULT_KEEP, DecompositionMethod, Keep};
 use serde_json::{Value, json};
 use toml::Spanned;
 
@@ -67,12 +67,7 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
             "method": raw.scaling.method,
             "constant_features": raw.scaling.constant_features,
         },
-        "components": {
-            "keep": keep_value(raw.components.keep.as_ref().map(|k| *k.get_ref())),
-            "compute": raw.components.compute.as_ref().map_or(DEFAULT_COMPUTE, |c| c.get_ref().0.get()),
-            "parallel_analysis": raw.components.parallel_analysis,
-            "cross_validation": raw.components.cross_validation,
-        },
+        "components": components_value(recipe),
         "diagnostics": {
             "confidence": raw.diagnostics.confidence,
             "spe_limit": raw.diagnostics.spe_limit,
@@ -81,6 +76,35 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
         "plot": plots_value(recipe, input),
         "output": { "folder": raw.output.folder.get_ref() },
     })
+}
+
+/// `[components]` with every default written. The randomized method's settings
+/// appear only when that method is chosen, since the recipe refuses them
+/// otherwise and a resolved recipe must read back as a recipe.
+fn components_value(recipe: &LoadedRecipe) -> Value {
+    let c = &recipe.raw.components;
+    let method = c
+        .method
+        .as_ref()
+        .map_or(DecompositionMethod::Exact, |m| *m.get_ref());
+    let mut v = json!({
+        "keep": keep_value(c.keep.as_ref().map(|k| *k.get_ref())),
+        "compute": c.compute.as_ref().map_or(DEFAULT_COMPUTE, |n| n.get_ref().0.get()),
+        "method": method,
+        "parallel_analysis": c.parallel_analysis,
+        "cross_validation": c.cross_validation,
+    });
+    if method == DecompositionMethod::Randomized {
+        let settings = c
+            .randomized
+            .as_ref()
+            .map(|s| s.get_ref().clone())
+            .unwrap_or_default();
+        v.as_object_mut()
+            .expect("an object")
+            .insert("randomized".into(), json!(settings));
+    }
+    v
 }
 
 /// The plots with every default written, using only the keys each kind takes.

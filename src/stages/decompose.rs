@@ -14,6 +14,8 @@ use crate::error::AnalysisError;
 use crate::linalg::Matrix;
 use crate::linalg::crossprod::{gram_of_columns, gram_of_rows, times, transpose_times};
 use crate::linalg::eigen::{fix_signs, symmetric_eigen};
+use crate::recipe::raw::RawRandomized;
+use crate::stages::randomized::RandomizedReport;
 use serde::Serialize;
 
 /// Which matrix was decomposed.
@@ -24,12 +26,17 @@ pub enum Route {
     Features,
     /// The n × n matrix of row products (tables with more features than rows).
     Samples,
+    /// The leading components only, from a seeded random sketch of the data
+    /// ([`decompose_randomized`]); chosen only when the recipe asks for it.
+    Randomized,
 }
 
 /// Eigenvalues and loadings of the scaled data.
 #[derive(Debug, Clone)]
 pub struct Decomposition {
     /// All p eigenvalues, descending; numerically negative values are set to 0.
+    /// The randomized route returns only the leading ones it computed (see
+    /// [`Decomposition::has_every_eigenvalue`]).
     pub eigenvalues: Vec<f64>,
     /// The sum of the feature variances (trace of the covariance matrix).
     pub total_variance: f64,
@@ -82,6 +89,9 @@ pub fn decompose_keeping(
             let eig = symmetric_eigen(&c)?;
             (eig.values, eig.vectors)
         }
+        Route::Randomized => {
+            panic!("the randomized route needs its settings: call decompose_randomized")
+        }
         Route::Samples => {
             let mut g = gram_of_rows(z);
             g.data.iter_mut().for_each(|v| *v /= divisor);
@@ -117,6 +127,29 @@ pub fn decompose_keeping(
         loadings: kept,
         route,
     })
+}
+
+impl Decomposition {
+    /// Whether all p eigenvalues are known. The randomized route knows only the
+    /// leading ones, so rules and limits that need the whole spectrum (Kaiser's
+    /// p, the broken stick's p, Bartlett's test, the θ's of the SPE limit) must
+    /// not read [`Decomposition::eigenvalues`] as if it were complete.
+    pub fn has_every_eigenvalue(&self) -> bool {
+        self.eigenvalues.len() == self.loadings.rows
+    }
+}
+
+/// The leading `want` components by the randomized method of Halko, Martinsson
+/// & Tropp (2011); see [`super::randomized`] for the steps and what is known of
+/// the rest of the spectrum. Only when the recipe sets
+/// `components.method = "randomized"`; never chosen by shape.
+pub fn decompose_randomized(
+    z: &Matrix,
+    centred: bool,
+    want: usize,
+    settings: &RawRandomized,
+) -> Result<(Decomposition, RandomizedReport), AnalysisError> {
+    super::randomized::randomized(z, centred, want, settings)
 }
 
 /// The tolerance below which an eigenvalue counts as zero: λ₁ · max(n, p) · ε, the

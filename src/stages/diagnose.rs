@@ -102,6 +102,7 @@ pub fn row_statistics(
     eigenvalues: &[f64],
 ) -> (Vec<f64>, Vec<f64>) {
     let k = scores.cols;
+    let p = z.cols;
     let t2: Vec<f64> = (0..z.rows)
         .map(|i| {
             (0..k)
@@ -109,11 +110,24 @@ pub fn row_statistics(
                 .sum()
         })
         .collect();
+    // The loadings component by component, so that the fitted values of all
+    // features grow together; each one still sums its k terms in component
+    // order from the same start as [`residual`].
+    let by_component: Vec<Vec<f64>> = (0..k)
+        .map(|a| (0..p).map(|j| loadings.get(j, a)).collect())
+        .collect();
+    let mut fitted = vec![0.0; p];
     let spe = (0..z.rows)
         .map(|i| {
             let t = scores.row(i);
-            z.row(i).iter().enumerate().fold(0.0, |sum, (j, &zj)| {
-                let e = residual(zj, t, loadings, j);
+            fitted.fill(crate::linalg::SUM_START);
+            for (ta, la) in t.iter().zip(&by_component) {
+                for (f, l) in fitted.iter_mut().zip(la) {
+                    *f += ta * l;
+                }
+            }
+            z.row(i).iter().zip(&fitted).fold(0.0, |sum, (zj, f)| {
+                let e = zj - f;
                 sum + e * e
             })
         })

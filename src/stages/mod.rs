@@ -10,6 +10,7 @@ pub mod diagnose;
 pub mod impute;
 pub mod missing;
 pub mod parallel;
+pub mod randomized;
 pub mod scale;
 pub mod select;
 pub mod transform;

@@ -200,6 +200,7 @@ pub fn preprocess(
         .collect();
 
     // Pass 1.
+    let t = std::time::Instant::now();
     let start = FirstPass {
         missing: 0,
         observed_sum: SUM_START,
@@ -316,6 +317,7 @@ pub fn preprocess(
     };
     let q = features.width();
 
+    let t = crate::timing::lap("  pass 1: counts and observed sums", t);
     // Pass 2: the analysed rows, the filled cells, sums and ranges.
     let mut sums = vec![SUM_START; q];
     let mut lows = vec![f64::INFINITY; q];
@@ -408,6 +410,7 @@ pub fn preprocess(
     };
     let means: Vec<f64> = sums.iter().map(|s| s / analysed as f64).collect();
 
+    let t = crate::timing::lap("  pass 2: filled sums and ranges", t);
     // Pass 3: squared deviations.
     let mut squares = vec![SUM_START; q];
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
@@ -421,6 +424,7 @@ pub fn preprocess(
         Ok(())
     })?;
 
+    crate::timing::lap("  pass 3: squared deviations", t);
     // The scaling stage's decisions, feature by feature.
     let method = plan.scaling;
     let mut scaling = ScaleReport {
@@ -509,6 +513,7 @@ pub fn analyse(
     let centred = plan.scaling.centers();
 
     // Pass 4.
+    let t = std::time::Instant::now();
     let mut gram = GramAccumulator::new(p);
     let mut squares = vec![SUM_START; p];
     let mut column_squares = vec![0.0; p];
@@ -531,7 +536,10 @@ pub fn analyse(
         let stats = &pre.scaling.features[j];
         check_finite(&prepared.table.display, &stats.feature, stats, s)?;
     }
-    let decomposition = from_cross_products(gram.finish(), &squares, n, centred)?;
+    let gram = gram.finish();
+    let t = crate::timing::lap("  pass 4: cross-products", t);
+    let decomposition = from_cross_products(gram, &squares, n, centred)?;
+    let t = crate::timing::lap("  eigendecomposition", t);
     if decomposition.rank == 0 {
         return Err(InputError::NoFeatures {
             path: prepared.table.display.clone(),
@@ -582,6 +590,7 @@ pub fn analyse(
         }
         Ok(())
     })?;
+    let t = crate::timing::lap("  pass 5: scores, T² and SPE", t);
     let diagnostics = diagnose_rows(
         t2,
         spe,
@@ -619,6 +628,7 @@ pub fn analyse(
             Ok(())
         })?;
     }
+    crate::timing::lap("  pass 6: rows for contributions", t);
     Ok(Analysis {
         decomposition,
         scores: Matrix {
