@@ -310,3 +310,73 @@ fn generated_lf_file_of_3_mb_is_the_same_on_1_2_and_8_threads() {
     );
     same_on_every_thread_count(&text, &lines, &[2, 3, 8, 61]);
 }
+
+/// A cell of a table without quotes, where records take the reader's short way:
+/// plain decimals of every length and sign, and the near misses that must go
+/// the general way (exponents, spaces, a lone point or sign, 20-digit numbers).
+fn plain_cell() -> impl Strategy<Value = String> {
+    prop_oneof![
+        (any::<i64>(), 0u32..25).prop_map(|(w, d)| {
+            let digits = w.unsigned_abs().to_string();
+            let d = (d as usize).min(digits.len());
+            let sign = if w < 0 { "-" } else { "" };
+            if d == 0 {
+                format!("{sign}{digits}")
+            } else {
+                let (a, b) = digits.split_at(digits.len() - d);
+                format!("{sign}{}.{b}", if a.is_empty() { "0" } else { a })
+            }
+        }),
+        (-1000.0f64..1000.0).prop_map(|v| format!("{v}")),
+        prop::sample::select(vec![
+            "",
+            "NA",
+            "n/d",
+            "+5",
+            "5.",
+            ".5",
+            "-",
+            "+",
+            ".",
+            "1e3",
+            "-2.5E-3",
+            " 7",
+            "7 ",
+            "00012.50",
+            "12345678901234567890",
+            "0.00000000000000000000001",
+            "-0",
+            "1.2.3",
+            "9007199254740993",
+            "x y",
+            "é",
+        ])
+        .prop_map(String::from),
+    ]
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(300))]
+
+    #[test]
+    fn tables_without_quotes_read_the_same_however_they_are_cut(
+        rows in prop::collection::vec((plain_cell(), plain_cell(), "[a-z]{0,3}"), 0..14),
+        crlf in any::<bool>(),
+        ragged in 0usize..20,
+        last_newline in any::<bool>(),
+    ) {
+        let end = if crlf { "\r\n" } else { "\n" };
+        let mut text = format!("id,a,note,b{end}");
+        for (i, (a, b, note)) in rows.iter().enumerate() {
+            if i == ragged {
+                text.push_str(&format!("r{i},{a},{note}"));
+            } else {
+                text.push_str(&format!("r{i},{a},{note},{b}"));
+            }
+            if i + 1 < rows.len() || last_newline {
+                text.push_str(end);
+            }
+        }
+        check(text.as_bytes());
+    }
+}

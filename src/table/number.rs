@@ -40,6 +40,20 @@ pub fn plain_decimal(bytes: &[u8]) -> Option<f64> {
     if digits == 0 || dot.is_some_and(|_| decimals == 0) {
         return None;
     }
+    finish(negative, w, decimals)
+}
+
+/// The value of a plain decimal read elsewhere: its sign, its `digits` digits
+/// as the integer `w`, and the count of digits after the point (`None`: no
+/// point). `None` when the fast path does not apply.
+pub fn from_parts(negative: bool, w: u64, digits: u32, decimals: Option<usize>) -> Option<f64> {
+    if digits == 0 || decimals == Some(0) {
+        return None;
+    }
+    finish(negative, w, decimals.unwrap_or(0))
+}
+
+fn finish(negative: bool, w: u64, decimals: usize) -> Option<f64> {
     if w > 1 << 53 || decimals >= POWERS.len() {
         return None;
     }
