@@ -3,7 +3,10 @@ use sextant::cli::{Cli, execute};
 
 fn main() {
     let cli = Cli::parse();
-    match execute(cli) {
+    let result = execute(cli);
+    // The progress line (if one was drawn) goes before anything is printed.
+    sextant::progress::current().finish();
+    match result {
         Ok(outcome) => {
             print!("{}", outcome.text);
             std::process::exit(outcome.code);

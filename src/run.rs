@@ -88,6 +88,8 @@ pub fn prepare_recipe_with(
             source,
         })?
         .len();
+    crate::progress::start(size);
+    crate::progress::current().stage("reading the table");
     let choice = crate::stream::choose(&recipe.raw, size, options).map_err(|reason| {
         AnalysisError::OverBudget {
             path: shown.clone(),
@@ -517,8 +519,10 @@ pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed)
 /// The preprocessing and the analysis.
 pub fn analyse_all(prepared: &Prepared) -> Result<(Preprocessed, Analysis), Error> {
     let t = std::time::Instant::now();
+    crate::progress::current().stage("missing cells, transforms and scaling");
     let pre = preprocess(prepared)?;
     let t = crate::timing::lap("preprocess", t);
+    crate::progress::current().stage("decomposition, scores and diagnostics");
     let analysis = analyse(prepared, &pre)?;
     crate::timing::lap("decompose, choose k, diagnose", t);
     Ok((pre, analysis))
@@ -531,6 +535,7 @@ pub fn render(
     analysis: &Analysis,
 ) -> Result<Computed, Error> {
     let t = std::time::Instant::now();
+    crate::progress::current().stage("result tables, figures and report");
     let resolved = resolved_recipe(&prepared.recipe, &prepared.plan.input);
     let resolved_sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
     let fingerprint = (resolved_sha.clone(), vec![prepared.input.sha256.clone()]);
@@ -621,8 +626,10 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
     let mut all = computed.files;
     all.push(("manifest.json".to_string(), manifest_text.into_bytes()));
     let t = std::time::Instant::now();
+    crate::progress::current().stage("writing the results folder");
     write_folder(&prepared.plan.output, &all)?;
     crate::timing::lap("write the folder", t);
+    crate::progress::current().finish();
     let notes = lock.stale_note.clone().into_iter().collect();
     drop(lock);
     Ok(RunSummary {

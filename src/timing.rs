@@ -7,7 +7,8 @@ use std::time::Instant;
 /// returns a new starting point.
 pub fn lap(what: &str, since: Instant) -> Instant {
     if std::env::var_os("SEXTANT_TIMING").is_some() {
-        eprintln!("timing {:>8.3} s  {what}", since.elapsed().as_secs_f64());
+        let seconds = since.elapsed().as_secs_f64();
+        crate::progress::current().suspend(|| eprintln!("timing {seconds:>8.3} s  {what}"));
     }
     Instant::now()
 }
@@ -15,6 +16,7 @@ pub fn lap(what: &str, since: Instant) -> Instant {
 /// Prints a total of several stretches of time, when timings are asked for.
 pub fn total(what: &str, seconds: f64) {
     if std::env::var_os("SEXTANT_TIMING").is_some() {
-        eprintln!("timing {seconds:>8.3} s    {what} (total)");
+        crate::progress::current()
+            .suspend(|| eprintln!("timing {seconds:>8.3} s    {what} (total)"));
     }
 }

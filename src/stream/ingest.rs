@@ -205,6 +205,8 @@ fn read_all(
         next_line += chunk.newlines;
         let rows = chunk.lines.len();
         lines.extend(chunk.lines);
+        crate::progress::current().add_bytes(end as u64);
+        crate::progress::current().set_rows(lines.len() as u64);
         for (j, (t, n)) in chunk.texts.into_iter().zip(chunk.counts).enumerate() {
             if layout.is_text[j] {
                 texts[j].extend(t);

@@ -200,6 +200,7 @@ pub fn preprocess(
         .collect();
 
     // Pass 1.
+    crate::progress::current().stage("pass 1 of 6: missing cells and observed sums");
     let t = std::time::Instant::now();
     let start = FirstPass {
         missing: 0,
@@ -319,6 +320,7 @@ pub fn preprocess(
 
     let t = crate::timing::lap("  pass 1: counts and observed sums", t);
     // Pass 2: the analysed rows, the filled cells, sums and ranges.
+    crate::progress::current().stage("pass 2 of 6: filled values");
     let mut sums = vec![SUM_START; q];
     let mut lows = vec![f64::INFINITY; q];
     let mut highs = vec![f64::NEG_INFINITY; q];
@@ -412,6 +414,7 @@ pub fn preprocess(
 
     let t = crate::timing::lap("  pass 2: filled sums and ranges", t);
     // Pass 3: squared deviations.
+    crate::progress::current().stage("pass 3 of 6: spreads");
     let mut squares = vec![SUM_START; q];
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, false, &mut values, &mut local);
@@ -513,6 +516,7 @@ pub fn analyse(
     let centred = plan.scaling.centers();
 
     // Pass 4.
+    crate::progress::current().stage("pass 4 of 6: cross-products");
     let t = std::time::Instant::now();
     let mut gram = GramAccumulator::new(p);
     let mut squares = vec![SUM_START; p];
@@ -561,6 +565,7 @@ pub fn analyse(
     let loadings = &decomposition.loadings;
 
     // Pass 5.
+    crate::progress::current().stage("pass 5 of 6: scores, T² and SPE");
     let mut t_kept = Vec::with_capacity(n * kept);
     let mut t_more = Vec::with_capacity(n * (computed - kept));
     let mut t2 = Vec::with_capacity(n);
@@ -603,6 +608,7 @@ pub fn analyse(
     );
 
     // Pass 6: only the wanted rows are brought to the analysis scale.
+    crate::progress::current().stage("pass 6 of 6: rows for contributions");
     let wanted: BTreeSet<usize> = rows_needing_values(&diagnostics, plan)
         .into_iter()
         .map(|i| pre.scaled.rows[i])
