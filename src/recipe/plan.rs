@@ -398,7 +398,7 @@ fn select_features(
         };
         if values.bad == 0 {
             features.push(name.to_string());
-        } else if !explicit && values.looks_textual() {
+        } else if !explicit && values.looks_textual(table.n_rows()) {
             unused.push((name.to_string(), "text, not numbers".to_string()));
         } else {
             let (line, text) = values.first_bad.clone().unwrap_or_default();

@@ -75,20 +75,16 @@ pub fn decompose_keeping(
     } else {
         Route::Features
     });
+    let squares = column_square_sums(z);
+    if route == Route::Features {
+        return from_cross_products(gram_of_columns(z), &squares, n, centred);
+    }
     let divisor = (n - 1) as f64;
-    let total_variance = (0..p)
-        .map(|j| z.column(j).iter().map(|v| v * v).sum::<f64>())
-        .sum::<f64>()
-        / divisor;
+    let total_variance = squares.iter().sum::<f64>() / divisor;
     let bound = if centred { n - 1 } else { n }.min(p);
 
     let (values, loadings) = match route {
-        Route::Features => {
-            let mut c = gram_of_columns(z);
-            c.data.iter_mut().for_each(|v| *v /= divisor);
-            let eig = symmetric_eigen(&c)?;
-            (eig.values, eig.vectors)
-        }
+        Route::Features => unreachable!("returned above"),
         Route::Randomized => {
             panic!("the randomized route needs its settings: call decompose_randomized")
         }
@@ -111,22 +107,7 @@ pub fn decompose_keeping(
     };
     let values: Vec<f64> = values.into_iter().map(|v| v.max(0.0)).collect();
     let r = rank(&values, n, p, bound);
-    // The p × p route has every eigenvector at no extra cost: keep them all.
-    let columns = r.min(loadings.cols);
-    let mut kept = Matrix::zeros(p, columns);
-    for i in 0..p {
-        for a in 0..columns {
-            kept.set(i, a, loadings.get(i, a));
-        }
-    }
-    fix_signs(&mut kept);
-    Ok(Decomposition {
-        eigenvalues: values,
-        total_variance,
-        rank: r,
-        loadings: kept,
-        route,
-    })
+    Ok(finish(values, total_variance, r, &loadings, route))
 }
 
 impl Decomposition {
@@ -150,6 +131,70 @@ pub fn decompose_randomized(
     settings: &RawRandomized,
 ) -> Result<(Decomposition, RandomizedReport), AnalysisError> {
     super::randomized::randomized(z, centred, want, settings)
+}
+
+/// Σᵢ zᵢⱼ² of each column, rows in order: the same sums as
+/// `column.iter().map(|v| v * v).sum::<f64>()` (same start, same order), taken
+/// row by row so the matrix is read once, in memory order.
+pub fn column_square_sums(z: &Matrix) -> Vec<f64> {
+    let mut sums = vec![crate::linalg::SUM_START; z.cols];
+    for i in 0..z.rows {
+        add_squares(&mut sums, z.row(i));
+    }
+    sums
+}
+
+/// Adds the squares of one row's values to per-column sums.
+pub fn add_squares(sums: &mut [f64], row: &[f64]) {
+    for (s, v) in sums.iter_mut().zip(row) {
+        *s += v * v;
+    }
+}
+
+/// The p × p route from the cross-products ZᵀZ (n rows) and each column's
+/// Σ z² (summed in row order): the same arithmetic whether the rows were held in
+/// memory or streamed in passes.
+pub fn from_cross_products(
+    mut c: Matrix,
+    squares: &[f64],
+    n: usize,
+    centred: bool,
+) -> Result<Decomposition, AnalysisError> {
+    let p = c.rows;
+    let divisor = (n - 1) as f64;
+    let total_variance = squares.iter().sum::<f64>() / divisor;
+    let bound = if centred { n - 1 } else { n }.min(p);
+    c.data.iter_mut().for_each(|v| *v /= divisor);
+    let eig = symmetric_eigen(&c)?;
+    let values: Vec<f64> = eig.values.into_iter().map(|v| v.max(0.0)).collect();
+    let r = rank(&values, n, p, bound);
+    Ok(finish(values, total_variance, r, &eig.vectors, Route::Features))
+}
+
+/// Keeps the first `r` loadings, sign-fixed.
+fn finish(
+    values: Vec<f64>,
+    total_variance: f64,
+    r: usize,
+    loadings: &Matrix,
+    route: Route,
+) -> Decomposition {
+    let p = loadings.rows;
+    let columns = r.min(loadings.cols);
+    let mut kept = Matrix::zeros(p, columns);
+    for i in 0..p {
+        for a in 0..columns {
+            kept.set(i, a, loadings.get(i, a));
+        }
+    }
+    fix_signs(&mut kept);
+    Decomposition {
+        eigenvalues: values,
+        total_variance,
+        rank: r,
+        loadings: kept,
+        route,
+    }
 }
 
 /// The tolerance below which an eigenvalue counts as zero: λ₁ · max(n, p) · ε, the
