@@ -168,7 +168,13 @@ pub fn from_cross_products(
     let eig = symmetric_eigen(&c)?;
     let values: Vec<f64> = eig.values.into_iter().map(|v| v.max(0.0)).collect();
     let r = rank(&values, n, p, bound);
-    Ok(finish(values, total_variance, r, &eig.vectors, Route::Features))
+    Ok(finish(
+        values,
+        total_variance,
+        r,
+        &eig.vectors,
+        Route::Features,
+    ))
 }
 
 /// Keeps the first `r` loadings, sign-fixed.
