@@ -240,7 +240,7 @@ pub fn apply(
             }
             filled.extend(gaps.iter().map(|&j| FilledCell {
                 row: i,
-                feature: model.features[j].name.clone(),
+                feature: model.features[j].name.as_str().into(),
                 value: row[j],
             }));
         }

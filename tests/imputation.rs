@@ -66,7 +66,7 @@ fn filled(pre: &Preprocessed) -> BTreeMap<(usize, usize), f64> {
         .iter()
         .map(|c| {
             (
-                (c.row, names.iter().position(|n| *n == c.feature).unwrap()),
+                (c.row, names.iter().position(|n| **n == *c.feature).unwrap()),
                 c.value,
             )
         })
@@ -265,7 +265,7 @@ fn rmse(pre: &Preprocessed, truth: &[(usize, usize, f64)]) -> f64 {
     let by: BTreeMap<(usize, String), f64> = pre
         .filled
         .iter()
-        .map(|c| ((c.row, c.feature.clone()), c.value))
+        .map(|c| ((c.row, c.feature.to_string()), c.value))
         .collect();
     let sum: f64 = truth
         .iter()

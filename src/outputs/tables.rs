@@ -200,7 +200,7 @@ pub fn imputed_csv(labels: &RowLabels, filled: &[crate::stages::missing::FilledC
     header_and_rows(&header, filled.len(), |out, scratch, i| {
         let cell = &filled[i];
         scratch.labels(out, labels, cell.row);
-        out.field(&cell.feature);
+        out.field(cell.feature.as_bytes());
         scratch.number(out, cell.value);
     })
 }
@@ -402,7 +402,7 @@ mod tests {
         out.row(&header);
         for cell in filled {
             let mut fields = label_fields(labels, cell.row);
-            fields.extend([cell.feature.clone(), number(cell.value)]);
+            fields.extend([cell.feature.to_string(), number(cell.value)]);
             out.row(&fields);
         }
         out.finish()
@@ -576,7 +576,7 @@ mod tests {
         let filled: Vec<FilledCell> = (0..3 * n)
             .map(|c| FilledCell {
                 row: rows[c / 3],
-                feature: ["x", "y,z", "\"w\""][c % 3].to_string(),
+                feature: ["x", "y,z", "\"w\""][c % 3].into(),
                 value: value(c, 1),
             })
             .collect();

@@ -62,11 +62,12 @@ pub enum FillModel {
     Knn { reference: Vec<Vec<f64>> },
 }
 
-/// One filled cell: the table row (0-based), the feature and the value.
+/// One filled cell: the table row (0-based), the feature and the value. The
+/// feature's name is shared by all its cells (a large table can have millions).
 #[derive(Debug, Clone, PartialEq)]
 pub struct FilledCell {
     pub row: usize,
-    pub feature: String,
+    pub feature: std::sync::Arc<str>,
     pub value: f64,
 }
 
@@ -204,11 +205,12 @@ pub fn handle_missing(
                 .filter(|&i| gaps[j][i])
                 .map(|i| f.values[i])
                 .collect();
+            let name: std::sync::Arc<str> = f.name.as_str().into();
             for (i, &gap) in gaps[j].iter().enumerate() {
                 if gap {
                     filled_cells.push(FilledCell {
                         row: data.rows[i],
-                        feature: f.name.clone(),
+                        feature: name.clone(),
                         value: f.values[i],
                     });
                 }

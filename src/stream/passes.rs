@@ -148,6 +148,17 @@ impl Features {
     }
 }
 
+/// Runs `f` on runs of per-feature accumulators at the same time (with the index
+/// of each run's first feature). Each feature's sums still take the rows in
+/// order, so how the features are split never changes a bit.
+fn by_columns<T: Send>(items: &mut [T], f: impl Fn(usize, &mut [T]) + Sync) {
+    let step = items.len().div_ceil(rayon::current_num_threads()).max(1);
+    items
+        .par_chunks_mut(step)
+        .enumerate()
+        .for_each(|(i, part)| f(i * step, part));
+}
+
 /// The store column holding a table column.
 fn store_column(prepared: &Prepared, numeric: &[usize], name: &str) -> usize {
     let t = prepared
@@ -213,30 +224,32 @@ pub fn preprocess(
     let mut first = vec![start; plan.features.len()];
     let mut offset = 0;
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
-        for r in 0..chunk.rows {
-            let row = &chunk.values[r * width..(r + 1) * width];
-            for (j, f) in first.iter_mut().enumerate() {
-                let v = row[all_columns[j]];
-                if v.is_nan() {
-                    f.missing += 1;
-                    continue;
+        by_columns(&mut first, |from, part| {
+            for r in 0..chunk.rows {
+                let row = &chunk.values[r * width..(r + 1) * width];
+                for (j, f) in (from..).zip(part.iter_mut()) {
+                    let v = row[all_columns[j]];
+                    if v.is_nan() {
+                        f.missing += 1;
+                        continue;
+                    }
+                    let v = match plan.transforms[j] {
+                        Some(t) => match transform_value(t, v) {
+                            Some(out) => out,
+                            None => {
+                                f.bad.get_or_insert((offset + r, v));
+                                continue;
+                            }
+                        },
+                        None => v,
+                    };
+                    f.observed_sum += v;
+                    f.observed += 1;
+                    f.low = f.low.min(v);
+                    f.high = f.high.max(v);
                 }
-                let v = match plan.transforms[j] {
-                    Some(t) => match transform_value(t, v) {
-                        Some(out) => out,
-                        None => {
-                            f.bad.get_or_insert((offset + r, v));
-                            continue;
-                        }
-                    },
-                    None => v,
-                };
-                f.observed_sum += v;
-                f.observed += 1;
-                f.low = f.low.min(v);
-                f.high = f.high.max(v);
             }
-        }
+        });
         offset += chunk.rows;
         Ok(())
     })?;
@@ -321,29 +334,34 @@ pub fn preprocess(
     let t = crate::timing::lap("  pass 1: counts and observed sums", t);
     // Pass 2: the analysed rows, the filled cells, sums and ranges.
     crate::progress::current().stage("pass 2 of 6: filled values");
-    let mut sums = vec![SUM_START; q];
-    let mut lows = vec![f64::INFINITY; q];
-    let mut highs = vec![f64::NEG_INFINITY; q];
+    // Per feature: the sum, lowest and highest of the filled values.
+    let mut filled_stats = vec![(SUM_START, f64::INFINITY, f64::NEG_INFINITY); q];
+    let shared_names: Vec<std::sync::Arc<str>> =
+        features.names.iter().map(|n| n.as_str().into()).collect();
     let mut rows = Vec::new();
     let mut filled = Vec::new();
     let mut offset = 0;
     let (mut values, mut local) = (Vec::new(), Vec::new());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, false, &mut values, &mut local);
-        for (row, &r) in values.chunks_exact(q.max(1)).zip(&local) {
-            for j in 0..q {
-                let v = row[j];
-                sums[j] += v;
-                lows[j] = lows[j].min(v);
-                highs[j] = highs[j].max(v);
+        by_columns(&mut filled_stats, |from, part| {
+            for row in values.chunks_exact(q.max(1)) {
+                for (j, (sum, low, high)) in (from..).zip(part.iter_mut()) {
+                    let v = row[j];
+                    *sum += v;
+                    *low = low.min(v);
+                    *high = high.max(v);
+                }
             }
+        });
+        for (row, &r) in values.chunks_exact(q.max(1)).zip(&local) {
             if !drop_incomplete {
                 let raw = &chunk.values[r * width..(r + 1) * width];
                 for j in 0..q {
                     if raw[features.column[j]].is_nan() {
                         filled.push(FilledCell {
                             row: offset + r,
-                            feature: features.names[j].clone(),
+                            feature: shared_names[j].clone(),
                             value: row[j],
                         });
                     }
@@ -354,6 +372,9 @@ pub fn preprocess(
         offset += chunk.rows;
         Ok(())
     })?;
+    let sums: Vec<f64> = filled_stats.iter().map(|s| s.0).collect();
+    let lows: Vec<f64> = filled_stats.iter().map(|s| s.1).collect();
+    let highs: Vec<f64> = filled_stats.iter().map(|s| s.2).collect();
     let analysed = rows.len();
     let rows_dropped = n - analysed;
     let mut warnings = Vec::new();
@@ -418,12 +439,14 @@ pub fn preprocess(
     let mut squares = vec![SUM_START; q];
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, false, &mut values, &mut local);
-        for row in values.chunks_exact(q.max(1)) {
-            for j in 0..q {
-                let d = row[j] - means[j];
-                squares[j] += d * d;
+        by_columns(&mut squares, |from, part| {
+            for row in values.chunks_exact(q.max(1)) {
+                for (j, square) in (from..).zip(part.iter_mut()) {
+                    let d = row[j] - means[j];
+                    *square += d * d;
+                }
             }
-        }
+        });
         Ok(())
     })?;
 
