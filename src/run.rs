@@ -7,6 +7,7 @@ use crate::outputs::folder::{check_replaceable, write_folder};
 use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, ManifestBody, RunInfo};
 use crate::outputs::tables::{self, RowLabels};
+use crate::recipe::plan::MethodPlan;
 use crate::recipe::plan::{Plan, check_names, input_plan, make_plan};
 use crate::recipe::raw::DEFAULT_COMPUTE;
 use crate::recipe::raw::Keep;
@@ -15,12 +16,15 @@ use crate::recipe::{self, LoadedRecipe};
 use crate::stages::FeatureData;
 use crate::stages::crossval::cross_validate;
 use crate::stages::decompose::{Decomposition, decompose_keeping, scores};
-use crate::stages::diagnose::{Diagnostics, contributions, diagnose};
+use crate::stages::diagnose::{
+    Diagnostics, contributions, diagnose, diagnose_rows, row_statistics,
+};
 use crate::stages::missing::{MissingReport, MissingSettings, handle_missing};
 use crate::stages::parallel::parallel_analysis;
 use crate::stages::scale::{ScaleReport, Scaled, scale};
-use crate::stages::select::{Evidence, Selection, select};
+use crate::stages::select::{Evidence, Selection, select_among};
 use crate::stages::transform::{Applied, apply_transforms};
+use crate::stats::limits::ResidualMoments;
 use crate::stream::{Choice, EngineOptions};
 use crate::table::{ColumnData, Table, read_header, read_table_parallel};
 use serde_json::{Value, json};
@@ -340,6 +344,8 @@ pub struct Analysis {
     /// The scaled values of the rows whose contributions are reported, by row
     /// index (see [`rows_needing_values`]).
     pub row_values: BTreeMap<usize, Vec<f64>>,
+    /// What the randomized method did, when the recipe asked for it.
+    pub randomized: Option<crate::stages::randomized::RandomizedReport>,
 }
 
 /// The rows whose contributions the outputs report: the most unusual flagged
@@ -406,7 +412,14 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         .unwrap_or(DEFAULT_COMPUTE)
         .max(fixed)
         .max(highest_plot);
-    let mut decomposition = decompose_keeping(z, centred, None, want)?;
+    let (mut decomposition, randomized) = match &plan.method {
+        MethodPlan::Exact => (decompose_keeping(z, centred, None, want)?, None),
+        MethodPlan::Randomized(settings) => {
+            let (d, report) =
+                crate::stages::decompose::decompose_randomized(z, centred, want, settings)?;
+            (d, Some(report))
+        }
+    };
     if decomposition.rank == 0 {
         return Err(InputError::NoFeatures {
             path: prepared.table.display.clone(),
@@ -437,15 +450,16 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         }
         _ => {}
     }
-    let selection = select(
+    let selection = select_among(
         &decomposition.eigenvalues,
+        z.cols,
         decomposition.total_variance,
         decomposition.rank,
         components,
         evidence,
     )
     .map_err(|e| keep_error(prepared, pre, e.keep, e.available))?;
-    if selection.computed > decomposition.loadings.cols {
+    if randomized.is_none() && selection.computed > decomposition.loadings.cols {
         decomposition = decompose_keeping(z, centred, None, selection.computed)?;
     }
     let scores = scores(z, &decomposition.loadings, selection.kept);
@@ -455,15 +469,40 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         selection.kept,
         selection.computed,
     );
-    let diagnostics = diagnose(
-        z,
-        &decomposition.loadings,
-        &scores,
-        &decomposition.eigenvalues,
-        decomposition.rank,
-        &plan.diagnostics.confidence.0,
-        plan.diagnostics.spe_limit,
-    );
+    let diagnostics = match &randomized {
+        None => diagnose(
+            z,
+            &decomposition.loadings,
+            &scores,
+            &decomposition.eigenvalues,
+            decomposition.rank,
+            &plan.diagnostics.confidence.0,
+            plan.diagnostics.spe_limit,
+        ),
+        Some(report) => {
+            // θ₁ and θ₂ from the exact total and Σλ², not from the known
+            // eigenvalues alone (the plan allows only Box's limit here).
+            let (t2, spe) = row_statistics(
+                z,
+                &decomposition.loadings,
+                &scores,
+                &decomposition.eigenvalues,
+            );
+            let moments = match report.residual_sums(&decomposition, selection.kept, z.rows) {
+                Some((theta1, theta2)) => ResidualMoments::from_first_two(theta1, theta2),
+                None => Err(crate::stats::limits::LimitError::NoResidualEigenvalues),
+            };
+            diagnose_rows(
+                t2,
+                spe,
+                z.rows,
+                selection.kept,
+                moments,
+                &plan.diagnostics.confidence.0,
+                plan.diagnostics.spe_limit,
+            )
+        }
+    };
     let row_values = rows_needing_values(&diagnostics, plan)
         .into_iter()
         .map(|i| (i, z.row(i).to_vec()))
@@ -476,6 +515,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         diagnostics,
         column_squares: column_squares(z),
         row_values,
+        randomized,
     })
 }
 
@@ -824,6 +864,14 @@ fn report_file(
 
 /// What each step did, for the manifest.
 fn steps_json(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> Value {
+    let mut steps = steps_json_exact(prepared, pre, analysis);
+    if let Some(report) = &analysis.randomized {
+        steps["decomposition"]["randomized"] = json!(report);
+    }
+    steps
+}
+
+fn steps_json_exact(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> Value {
     let plan = &prepared.plan;
     let d = &analysis.decomposition;
     let s = &analysis.selection;

@@ -361,10 +361,9 @@ fn the_exact_method_is_recorded_when_none_is_set() {
     assert_eq!(m["steps"]["decomposition"]["route"], "samples");
 }
 
-/// Needs the orchestrator to call `decompose_randomized` for
-/// `Plan::method == MethodPlan::Randomized` (see `stages::randomized`).
+/// A recipe asking for the randomized method is decomposed by it, and agrees
+/// with the exact method on the leading eigenvalues.
 #[test]
-#[ignore = "waits for run.rs to call decompose_randomized"]
 fn a_randomized_run_decomposes_by_the_randomized_route() {
     let dir = tempfile::tempdir().unwrap();
     write_wide_table(dir.path());

@@ -162,7 +162,8 @@ pub fn diagnose(
     let k = scores.cols;
     let n = z.rows;
     let (t2, spe) = row_statistics(z, loadings, scores, eigenvalues);
-    diagnose_rows(t2, spe, n, k, eigenvalues, rank, confidences, spe_method)
+    let moments = ResidualMoments::from_eigenvalues(&eigenvalues[k..rank]);
+    diagnose_rows(t2, spe, n, k, moments, confidences, spe_method)
 }
 
 /// The limits and flags for rows whose T² and SPE are known.
@@ -172,13 +173,12 @@ pub fn diagnose_rows(
     spe: Vec<f64>,
     n: usize,
     k: usize,
-    eigenvalues: &[f64],
-    rank: usize,
+    moments: Result<ResidualMoments, crate::stats::limits::LimitError>,
     confidences: &[f64],
     spe_method: SpeLimit,
 ) -> Diagnostics {
     let mut notes = Vec::new();
-    let moments = match ResidualMoments::from_eigenvalues(&eigenvalues[k..rank]) {
+    let moments = match moments {
         Ok(m) => Some(m),
         Err(e) => {
             notes.push(format!("no SPE limit: {e}"));

@@ -67,7 +67,19 @@ pub fn select(
     plan: &ComponentsPlan,
     evidence: Evidence,
 ) -> Result<Selection, KeepAboveRank> {
-    let p = eigenvalues.len();
+    select_among(eigenvalues, eigenvalues.len(), total, rank, plan, evidence)
+}
+
+/// [`select`] when only the leading `eigenvalues` of `p` are known (the
+/// randomized method): the broken stick and the mean eigenvalue still use p.
+pub fn select_among(
+    eigenvalues: &[f64],
+    p: usize,
+    total: f64,
+    rank: usize,
+    plan: &ComponentsPlan,
+    evidence: Evidence,
+) -> Result<Selection, KeepAboveRank> {
     let shares: Vec<f64> = eigenvalues.iter().map(|v| v / total).collect();
     let sticks = broken_stick(p);
     let mean_eigenvalue = total / p as f64;

@@ -133,6 +133,21 @@ impl ResidualMoments {
     /// and finite; pass only eigenvalues above the rank cut-off. The formulas are
     /// evaluated through ratios such as θ₂/θ₁, so any eigenvalues whose cubes
     /// are normal doubles (about 1e-102 to 1e102) work.
+    /// θ₁ and θ₂ known without the residual eigenvalues themselves (the
+    /// randomized method): θ₃ and h₀ are unknown (NaN), so only Box's limit,
+    /// which needs θ₁ and θ₂ alone, may be asked of the result.
+    pub fn from_first_two(theta1: f64, theta2: f64) -> Result<Self, LimitError> {
+        if !(theta1 > 0.0 && theta1.is_finite() && theta2 > 0.0 && theta2.is_finite()) {
+            return Err(LimitError::NoResidualEigenvalues);
+        }
+        Ok(ResidualMoments {
+            theta1,
+            theta2,
+            theta3: f64::NAN,
+            h0: f64::NAN,
+        })
+    }
+
     pub fn from_eigenvalues(residual_eigenvalues: &[f64]) -> Result<Self, LimitError> {
         if residual_eigenvalues.is_empty() {
             return Err(LimitError::NoResidualEigenvalues);

@@ -619,13 +619,15 @@ pub fn analyse(
         Ok(())
     })?;
     let t = crate::timing::lap("  pass 5: scores, T² and SPE", t);
+    let moments = crate::stats::limits::ResidualMoments::from_eigenvalues(
+        &decomposition.eigenvalues[kept..decomposition.rank],
+    );
     let diagnostics = diagnose_rows(
         t2,
         spe,
         n,
         kept,
-        &decomposition.eigenvalues,
-        decomposition.rank,
+        moments,
         &plan.diagnostics.confidence.0,
         plan.diagnostics.spe_limit,
     );
@@ -674,5 +676,6 @@ pub fn analyse(
         diagnostics,
         column_squares,
         row_values,
+        randomized: None,
     })
 }
