@@ -218,6 +218,22 @@ fn thousands(n: u64) -> String {
     out
 }
 
+/// The progress line of this process: one per run, started where the input's
+/// size becomes known ([`start`]) and reached from any stage through
+/// [`current`], as a log would be, so that no stage's signature carries it.
+static CURRENT: std::sync::OnceLock<Progress> = std::sync::OnceLock::new();
+
+/// Starts the progress line for an input of `total_input_bytes` bytes (shown
+/// only where [`wanted`]); later calls keep the first line.
+pub fn start(total_input_bytes: u64) {
+    let _ = CURRENT.set(Progress::new(total_input_bytes));
+}
+
+/// The progress line, or a hidden one when none was started.
+pub fn current() -> &'static Progress {
+    CURRENT.get_or_init(Progress::hidden)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -310,20 +326,4 @@ mod tests {
         assert_eq!(thousands(1000), "1,000");
         assert_eq!(thousands(12_345_678), "12,345,678");
     }
-}
-
-/// The progress line of this process: one per run, started where the input's
-/// size becomes known ([`start`]) and reached from any stage through
-/// [`current`], as a log would be, so that no stage's signature carries it.
-static CURRENT: std::sync::OnceLock<Progress> = std::sync::OnceLock::new();
-
-/// Starts the progress line for an input of `total_input_bytes` bytes (shown
-/// only where [`wanted`]); later calls keep the first line.
-pub fn start(total_input_bytes: u64) {
-    let _ = CURRENT.set(Progress::new(total_input_bytes));
-}
-
-/// The progress line, or a hidden one when none was started.
-pub fn current() -> &'static Progress {
-    CURRENT.get_or_init(Progress::hidden)
 }
