@@ -579,30 +579,25 @@ pub fn render(
     let resolved = resolved_recipe(&prepared.recipe, &prepared.plan.input);
     let resolved_sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
     let fingerprint = (resolved_sha.clone(), vec![prepared.input.sha256.clone()]);
+    // The figures and the report's view first: the plots' view (a copy of every
+    // row's scores and labels) is gone before the large tables are rendered.
+    let view = crate::outputs::present::plot_view(prepared, pre, analysis);
+    let t = crate::timing::lap("  the plots' view", t);
+    let figures = figures(prepared, &view)?;
+    let report_view = report_view_of(prepared, pre, analysis, &view, &figures);
+    drop(view);
+    let t = crate::timing::lap("plots and report", t);
     let mut files = result_files(prepared, pre, analysis);
     let model = crate::outputs::model::build(prepared, pre, analysis, &resolved_sha);
     files.push(("model.json".into(), crate::outputs::model::to_json(&model)));
     let t = crate::timing::lap("result tables", t);
-    // Each file is hashed once; the tables' hashes (the large part) while the
-    // figures are drawn.
-    let view = crate::outputs::present::plot_view(prepared, pre, analysis);
-    let t = crate::timing::lap("  the plots' view", t);
-    let (mut hashes, figures) = rayon::join(|| hash_all(&files), || figures(prepared, &view));
-    let figures = figures?;
-    hashes.extend(hash_all(&figures));
     files.extend(figures);
-    let report = report_file(
-        prepared,
-        pre,
-        analysis,
-        &view,
-        &files,
-        &hashes,
-        &resolved_sha,
-    );
+    // Each file is hashed once, files in parallel.
+    let mut hashes = hash_all(&files);
+    let report = finish_report(prepared, report_view, &files, &hashes, &resolved_sha);
     hashes.push(sha256_hex(&report.1));
     files.push(report);
-    crate::timing::lap("plots and report", t);
+    crate::timing::lap("hashes and the report", t);
     let outputs = files
         .iter()
         .zip(hashes)
@@ -795,48 +790,46 @@ fn figures(
     Ok(files)
 }
 
-/// The report. Its provenance names a results digest: the SHA-256 of the lines
-/// "sha256  path" of every other output, in order (the manifest's own digest
-/// covers the report too, so the report cannot show it). `files` are the
-/// tables then the figures, `hashes` their SHA-256.
-#[allow(clippy::too_many_arguments)]
-fn report_file(
+/// The report's view, with the figures (drawn from the same plot view).
+fn report_view_of(
     prepared: &Prepared,
     pre: &Preprocessed,
     analysis: &Analysis,
     view: &crate::outputs::view::PlotView,
+    figures: &[(String, Vec<u8>)],
+) -> crate::outputs::view::ReportView {
+    use crate::outputs::{plots, present, view::Figure};
+    let mut report_view = present::report_view(prepared, pre, analysis, view);
+    report_view.figures = prepared
+        .plan
+        .plots
+        .iter()
+        .zip(figures)
+        .map(|(plan, (_, svg))| Figure {
+            file: plan.file.clone(),
+            caption: plots::caption(plan, view),
+            svg: String::from_utf8_lossy(svg).into_owned(),
+        })
+        .collect();
+    report_view
+}
+
+/// The report. Its provenance names a results digest: the SHA-256 of the lines
+/// "sha256  path" of every other output, in order (the manifest's own digest
+/// covers the report too, so the report cannot show it). `files` are the
+/// tables then the figures, `hashes` their SHA-256.
+fn finish_report(
+    prepared: &Prepared,
+    mut report_view: crate::outputs::view::ReportView,
     files: &[(String, Vec<u8>)],
     hashes: &[String],
     resolved_sha: &str,
 ) -> (String, Vec<u8>) {
-    use crate::outputs::{plots, present, report, view::Figure};
-    let t = std::time::Instant::now();
     let listing: String = files
         .iter()
         .zip(hashes)
         .map(|((path, _), sha)| format!("{sha}  {path}\n"))
         .collect();
-    let figures = prepared
-        .plan
-        .plots
-        .iter()
-        .map(|plan| {
-            let path = format!("plots/{}", plan.file);
-            let svg = files
-                .iter()
-                .find(|(p, _)| *p == path)
-                .map(|(_, b)| String::from_utf8_lossy(b).into_owned())
-                .unwrap_or_default();
-            Figure {
-                file: plan.file.clone(),
-                caption: plots::caption(plan, view),
-                svg,
-            }
-        })
-        .collect();
-    let mut report_view = present::report_view(prepared, pre, analysis, view);
-    let t = crate::timing::lap("  the report's view", t);
-    report_view.figures = figures;
     report_view.provenance = vec![
         (
             "tool".into(),
@@ -857,9 +850,10 @@ fn report_file(
         ),
         ("results digest".into(), sha256_hex(listing.as_bytes())),
     ];
-    let html = report::render(&report_view).into_bytes();
-    crate::timing::lap("  the report", t);
-    ("report.html".into(), html)
+    (
+        "report.html".into(),
+        crate::outputs::report::render(&report_view).into_bytes(),
+    )
 }
 
 /// What each step did, for the manifest.
