@@ -3,7 +3,7 @@
 
 use crate::error::{AnalysisError, Error, InputError, RecipeError, RecipeProblem};
 use crate::linalg::Matrix;
-use crate::outputs::folder::{check_replaceable, write_folder};
+use crate::outputs::folder::{Staging, check_replaceable};
 use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, ManifestBody, RunInfo};
 use crate::outputs::tables::{self, RowLabels};
@@ -552,7 +552,7 @@ pub struct Computed {
 /// Runs every stage and renders the results in memory.
 pub fn compute(prepared: &Prepared) -> Result<(Preprocessed, Analysis, Computed), Error> {
     let (pre, analysis) = analyse_all(prepared)?;
-    let computed = render(prepared, &pre, &analysis)?;
+    let computed = render(prepared, &pre, &analysis, None)?;
     Ok((pre, analysis, computed))
 }
 
@@ -568,11 +568,14 @@ pub fn analyse_all(prepared: &Prepared) -> Result<(Preprocessed, Analysis), Erro
     Ok((pre, analysis))
 }
 
-/// Renders the result files, figures, report and manifest body in memory.
+/// Renders the result files, figures, report and manifest body in memory; with
+/// `staging`, also writes them there (the tables while they are hashed and the
+/// report is made).
 pub fn render(
     prepared: &Prepared,
     pre: &Preprocessed,
     analysis: &Analysis,
+    staging: Option<&Staging>,
 ) -> Result<Computed, Error> {
     let t = std::time::Instant::now();
     crate::progress::current().stage("result tables, figures and report");
@@ -592,9 +595,17 @@ pub fn render(
     files.push(("model.json".into(), crate::outputs::model::to_json(&model)));
     let t = crate::timing::lap("result tables", t);
     files.extend(figures);
-    // Each file is hashed once, files in parallel.
-    let mut hashes = hash_all(&files);
-    let report = finish_report(prepared, report_view, &files, &hashes, &resolved_sha);
+    // Each file is hashed once, files in parallel, while they are written.
+    let (written, (mut hashes, report)) = rayon::join(
+        || write_all(staging, &files),
+        || {
+            let hashes = hash_all(&files);
+            let report = finish_report(prepared, report_view, &files, &hashes, &resolved_sha);
+            (hashes, report)
+        },
+    );
+    written?;
+    write_all(staging, std::slice::from_ref(&report))?;
     hashes.push(sha256_hex(&report.1));
     files.push(report);
     crate::timing::lap("hashes and the report", t);
@@ -625,6 +636,24 @@ pub fn render(
     })
 }
 
+/// The resolved recipe's hash and the inputs' hashes: what must match for a
+/// results folder to be replaced without `--replace`.
+fn fingerprint(prepared: &Prepared) -> (String, Vec<String>) {
+    let resolved = resolved_recipe(&prepared.recipe, &prepared.plan.input);
+    let resolved_sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
+    (resolved_sha, vec![prepared.input.sha256.clone()])
+}
+
+/// Writes the files into `staging`, if there is one.
+fn write_all(staging: Option<&Staging>, files: &[(String, Vec<u8>)]) -> Result<(), Error> {
+    if let Some(staging) = staging {
+        for (name, bytes) in files {
+            staging.write(name, bytes)?;
+        }
+    }
+    Ok(())
+}
+
 /// The SHA-256 of each file, files in parallel.
 fn hash_all(files: &[(String, Vec<u8>)]) -> Vec<String> {
     use rayon::prelude::*;
@@ -643,12 +672,14 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
     let (pre, analysis) = analyse_all(&prepared)?;
     // The table's values are not needed for the outputs: free them first.
     prepared.passes = None;
-    let computed = render(&prepared, &pre, &analysis)?;
     check_replaceable(
         &prepared.plan.output,
-        &computed.fingerprint,
+        &fingerprint(&prepared),
         options.replace,
     )?;
+    let staging = Staging::new(&prepared.plan.output)?;
+    let computed = render(&prepared, &pre, &analysis, Some(&staging))?;
+    debug_assert_eq!(computed.fingerprint, fingerprint(&prepared));
     let seconds = start.elapsed().as_secs_f64();
     let run_info = RunInfo {
         started_utc,
@@ -658,11 +689,11 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
         platform: platform(),
     };
     let (manifest_text, digest) = manifest::render(&computed.body, &computed.outputs, &run_info);
-    let mut all = computed.files;
-    all.push(("manifest.json".to_string(), manifest_text.into_bytes()));
+    drop(computed.files);
     let t = std::time::Instant::now();
     crate::progress::current().stage("writing the results folder");
-    write_folder(&prepared.plan.output, &all)?;
+    staging.write("manifest.json", manifest_text.as_bytes())?;
+    staging.commit()?;
     crate::timing::lap("write the folder", t);
     crate::progress::current().finish();
     let notes = lock.stale_note.clone().into_iter().collect();

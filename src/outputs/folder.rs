@@ -59,42 +59,72 @@ pub fn check_replaceable(
 
 /// Writes `files` (relative path, bytes) into a new folder and moves it to `target`.
 pub fn write_folder(target: &Path, files: &[(String, Vec<u8>)]) -> Result<(), OutputError> {
-    let parent = match target.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    fs::create_dir_all(&parent).map_err(|e| OutputError::io(&parent, e))?;
-    let staging = tempfile::Builder::new()
-        .prefix(".sextant-new-")
-        .tempdir_in(&parent)
-        .map_err(|e| OutputError::io(&parent, e))?;
+    let staging = Staging::new(target)?;
     for (name, bytes) in files {
-        let path = staging.path().join(name);
+        staging.write(name, bytes)?;
+    }
+    staging.commit()
+}
+
+/// A results folder being written: a hidden temporary folder beside the target,
+/// removed if dropped before [`Staging::commit`] moves it into place.
+pub struct Staging {
+    dir: tempfile::TempDir,
+    target: PathBuf,
+    parent: PathBuf,
+}
+
+impl Staging {
+    pub fn new(target: &Path) -> Result<Staging, OutputError> {
+        let parent = match target.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+            _ => PathBuf::from("."),
+        };
+        fs::create_dir_all(&parent).map_err(|e| OutputError::io(&parent, e))?;
+        let dir = tempfile::Builder::new()
+            .prefix(".sextant-new-")
+            .tempdir_in(&parent)
+            .map_err(|e| OutputError::io(&parent, e))?;
+        Ok(Staging {
+            dir,
+            target: target.to_path_buf(),
+            parent,
+        })
+    }
+
+    /// Writes one file (a relative path); may be called from several threads.
+    pub fn write(&self, name: &str, bytes: &[u8]) -> Result<(), OutputError> {
+        let path = self.dir.path().join(name);
         if let Some(dir) = path.parent() {
             fs::create_dir_all(dir).map_err(|e| OutputError::io(dir, e))?;
         }
-        fs::write(&path, bytes).map_err(|e| OutputError::io(&path, e))?;
+        fs::write(&path, bytes).map_err(|e| OutputError::io(&path, e))
     }
-    // Move any earlier results aside first, so a failed move can be undone.
-    let old = if target.exists() {
-        let aside = tempfile::Builder::new()
-            .prefix(".sextant-old-")
-            .tempdir_in(&parent)
-            .map_err(|e| OutputError::io(&parent, e))?;
-        let aside_path = aside.path().join("results");
-        fs::rename(target, &aside_path).map_err(|e| OutputError::io(target, e))?;
-        Some((aside, aside_path))
-    } else {
-        None
-    };
-    let staged = staging.keep();
-    if let Err(e) = fs::rename(&staged, target) {
-        if let Some((_, aside_path)) = &old {
-            let _ = fs::rename(aside_path, target);
+
+    /// Moves the finished folder into place (any earlier results aside first, so
+    /// a failed move can be undone).
+    pub fn commit(self) -> Result<(), OutputError> {
+        let (target, parent) = (&self.target, &self.parent);
+        let old = if target.exists() {
+            let aside = tempfile::Builder::new()
+                .prefix(".sextant-old-")
+                .tempdir_in(parent)
+                .map_err(|e| OutputError::io(parent, e))?;
+            let aside_path = aside.path().join("results");
+            fs::rename(target, &aside_path).map_err(|e| OutputError::io(target, e))?;
+            Some((aside, aside_path))
+        } else {
+            None
+        };
+        let staged = self.dir.keep();
+        if let Err(e) = fs::rename(&staged, target) {
+            if let Some((_, aside_path)) = &old {
+                let _ = fs::rename(aside_path, target);
+            }
+            let _ = fs::remove_dir_all(&staged);
+            return Err(OutputError::io(target, e));
         }
-        let _ = fs::remove_dir_all(&staged);
-        return Err(OutputError::io(target, e));
+        drop(old); // removes the earlier results
+        Ok(())
     }
-    drop(old); // removes the earlier results
-    Ok(())
 }

@@ -344,31 +344,49 @@ pub fn preprocess(
     let (mut values, mut local) = (Vec::new(), Vec::new());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, false, &mut values, &mut local);
-        by_columns(&mut filled_stats, |from, part| {
-            for row in values.chunks_exact(q.max(1)) {
-                for (j, (sum, low, high)) in (from..).zip(part.iter_mut()) {
-                    let v = row[j];
-                    *sum += v;
-                    *low = low.min(v);
-                    *high = high.max(v);
-                }
-            }
-        });
-        for (row, &r) in values.chunks_exact(q.max(1)).zip(&local) {
-            if !drop_incomplete {
-                let raw = &chunk.values[r * width..(r + 1) * width];
-                for j in 0..q {
-                    if raw[features.column[j]].is_nan() {
-                        filled.push(FilledCell {
-                            row: offset + r,
-                            feature: shared_names[j].clone(),
-                            value: row[j],
-                        });
+        // The sums by feature and the filled cells by blocks of rows, at the
+        // same time; the blocks' cells are joined in row order.
+        let (_, cells) = rayon::join(
+            || {
+                by_columns(&mut filled_stats, |from, part| {
+                    for row in values.chunks_exact(q.max(1)) {
+                        for (j, (sum, low, high)) in (from..).zip(part.iter_mut()) {
+                            let v = row[j];
+                            *sum += v;
+                            *low = low.min(v);
+                            *high = high.max(v);
+                        }
                     }
+                })
+            },
+            || {
+                if drop_incomplete {
+                    return Vec::new();
                 }
-            }
-            rows.push(offset + r);
-        }
+                values
+                    .par_chunks(4096 * q.max(1))
+                    .zip(local.par_chunks(4096))
+                    .map(|(block, block_rows)| {
+                        let mut cells = Vec::new();
+                        for (row, &r) in block.chunks_exact(q.max(1)).zip(block_rows) {
+                            let raw = &chunk.values[r * width..(r + 1) * width];
+                            for j in 0..q {
+                                if raw[features.column[j]].is_nan() {
+                                    cells.push(FilledCell {
+                                        row: offset + r,
+                                        feature: shared_names[j].clone(),
+                                        value: row[j],
+                                    });
+                                }
+                            }
+                        }
+                        cells
+                    })
+                    .collect::<Vec<_>>()
+            },
+        );
+        filled.extend(cells.into_iter().flatten());
+        rows.extend(local.iter().map(|r| offset + r));
         offset += chunk.rows;
         Ok(())
     })?;
