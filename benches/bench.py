@@ -297,7 +297,9 @@ def ingest(name, a, sextant, data, logs):
     steps = median_steps([sextant_steps(r.stderr) for r in ok])
     # The steps before the plan check: reading, hashing and parsing the bytes
     # (sextant has named and grouped them differently across versions).
-    read_parse = sum(v for k, v in steps.items() if any(w in k for w in ("read", "hash", "parse")))
+    # Top-level steps only: indented steps and "(total)" lines are parts of one.
+    top = {k: v for k, v in steps.items() if not k.endswith("(total)") and not k.startswith(" ")}
+    read_parse = sum(v for k, v in top.items() if any(w in k for w in ("read", "hash", "parse")))
     return {"table": name, "bytes": size, "runs": len(ok), "wall": wall,
             "peak_mib": statistics.median(r.peak_mib for r in ok),
             "mb_per_s": size / 1e6 / wall, "steps": steps,
