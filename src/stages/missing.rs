@@ -100,15 +100,7 @@ pub fn handle_missing(
         } else {
             missing as f64 / n as f64
         };
-        let dropped = if missing == n {
-            Some("no observed cells".to_string())
-        } else if share > max_share {
-            Some(format!(
-                "missing share above max_feature_missing = {max_share}"
-            ))
-        } else {
-            None
-        };
+        let dropped = drop_reason(missing, n, max_share);
         reports.push(FeatureMissing {
             feature: feature.name.clone(),
             missing,
@@ -264,6 +256,19 @@ pub fn handle_missing(
         filled_cells,
         fill_model,
     ))
+}
+
+/// Why a feature with `missing` of `n` cells missing is dropped, if it is.
+pub fn drop_reason(missing: usize, n: usize, max_share: f64) -> Option<String> {
+    if missing == n {
+        Some("no observed cells".to_string())
+    } else if missing as f64 / n as f64 > max_share {
+        Some(format!(
+            "missing share above max_feature_missing = {max_share}"
+        ))
+    } else {
+        None
+    }
 }
 
 fn drop_incomplete_rows(data: &mut FeatureData) -> usize {

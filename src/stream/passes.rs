@@ -277,15 +277,7 @@ pub fn preprocess(
     let mut kept = Vec::new();
     for (j, f) in first.iter().enumerate() {
         let share = f.missing as f64 / n as f64;
-        let dropped = if f.missing == n {
-            Some("no observed cells".to_string())
-        } else if share > max_share {
-            Some(format!(
-                "missing share above max_feature_missing = {max_share}"
-            ))
-        } else {
-            None
-        };
+        let dropped = crate::stages::missing::drop_reason(f.missing, n, max_share);
         if dropped.is_none() {
             kept.push(j);
         }

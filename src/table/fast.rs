@@ -107,14 +107,10 @@ impl Layout {
         }
     }
 
-    /// Parses a run of whole records whose first starts on line `first_line`,
-    /// cut into (at most) `pieces` pieces parsed at the same time.
-    pub fn parse(
-        &self,
-        body: &[u8],
-        first_line: u64,
-        pieces: usize,
-    ) -> Result<Columns, InputError> {
+    /// Cuts a run of whole records (the first on line `first_line`) into at
+    /// most `pieces` pieces and parses them at the same time; also returns the
+    /// newlines in the run.
+    fn parse_pieces(&self, body: &[u8], first_line: u64, pieces: usize) -> (Vec<Piece>, u64) {
         let cuts = cut(body, pieces, self.delimiter);
         // The file line each piece starts on: every newline (inside quotes too,
         // as editors count them) in the pieces before it.
@@ -135,14 +131,26 @@ impl Layout {
             delimiter: self.delimiter,
             missing: &self.missing,
         };
-        let parsed: Vec<Piece> = cuts
+        let parsed = cuts
             .par_windows(2)
             .zip(first_lines)
             .zip(&newlines)
             .map(|((w, line), &n)| parse_piece(&body[w[0]..w[1]], line, &spec, n))
             .collect();
+        (parsed, newlines.iter().sum())
+    }
+
+    /// Parses a run of whole records whose first starts on line `first_line`,
+    /// cut into (at most) `pieces` pieces parsed at the same time.
+    pub fn parse(
+        &self,
+        body: &[u8],
+        first_line: u64,
+        pieces: usize,
+    ) -> Result<Columns, InputError> {
+        let (parsed, newlines) = self.parse_pieces(body, first_line, pieces);
         let mut columns = join(parsed, &self.is_text)?;
-        columns.newlines = newlines.iter().sum();
+        columns.newlines = newlines;
         Ok(columns)
     }
 }
@@ -554,30 +562,7 @@ impl Layout {
         first_line: u64,
         pieces: usize,
     ) -> Result<RowChunk, InputError> {
-        let cuts = cut(body, pieces, self.delimiter);
-        let newlines: Vec<u64> = cuts
-            .par_windows(2)
-            .map(|w| memchr::memchr_iter(b'\n', &body[w[0]..w[1]]).count() as u64)
-            .collect();
-        let mut first_lines = Vec::with_capacity(newlines.len());
-        let mut line = first_line;
-        for n in &newlines {
-            first_lines.push(line);
-            line += n;
-        }
-        let spec = Spec {
-            display: &self.display,
-            width: self.names.len(),
-            is_text: &self.is_text,
-            delimiter: self.delimiter,
-            missing: &self.missing,
-        };
-        let mut parsed: Vec<Piece> = cuts
-            .par_windows(2)
-            .zip(first_lines)
-            .zip(&newlines)
-            .map(|((w, line), &n)| parse_piece(&body[w[0]..w[1]], line, &spec, n))
-            .collect();
+        let (mut parsed, newlines) = self.parse_pieces(body, first_line, pieces);
         if let Some(e) = parsed.iter_mut().find_map(|p| p.error.take()) {
             return Err(e);
         }
@@ -623,7 +608,7 @@ impl Layout {
             counts,
             values,
             lines,
-            newlines: newlines.iter().sum(),
+            newlines,
         })
     }
 }
