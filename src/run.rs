@@ -101,7 +101,7 @@ pub fn prepare_recipe_with(
         }
     })?;
     if let Choice::Passes { keep_in_memory } = choice {
-        return prepare_in_passes(recipe, keep_in_memory);
+        return prepare_in_passes(recipe, keep_in_memory, options.engine);
     }
     let t = std::time::Instant::now();
     let bytes = std::fs::read(&input.file).map_err(|source| InputError::Io {
@@ -143,7 +143,11 @@ pub fn prepare_recipe_with(
 
 /// Reads the input in chunks into a store for the passes engine, and checks
 /// the plan.
-fn prepare_in_passes(recipe: LoadedRecipe, keep_in_memory: u64) -> Result<Prepared, Error> {
+fn prepare_in_passes(
+    recipe: LoadedRecipe,
+    keep_in_memory: u64,
+    engine: crate::stream::Engine,
+) -> Result<Prepared, Error> {
     let input = input_plan(&recipe);
     let shown = input.file.display().to_string();
     // Scratch files go beside the results folder, like its staging folder.
@@ -176,7 +180,20 @@ fn prepare_in_passes(recipe: LoadedRecipe, keep_in_memory: u64) -> Result<Prepar
     };
     let plan = make_plan(&recipe, input, &table)?;
     crate::timing::lap("check the plan", t);
-    if table.n_rows() < plan.features.len() {
+    let wide = table.n_rows() < plan.features.len();
+    if wide && engine == crate::stream::Engine::Auto && !ingested.store.spilled() {
+        // Only the in-memory engine analyses such a table (its n × n route), and
+        // its values fit the budget: they become the table's columns.
+        let table = crate::stream::table_with_values(table, &ingested.store, &ingested.numeric);
+        return Ok(Prepared {
+            recipe,
+            plan,
+            table,
+            input: record,
+            passes: None,
+        });
+    }
+    if wide {
         return Err(AnalysisError::OverBudget {
             path: shown,
             reason: format!(

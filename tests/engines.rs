@@ -259,3 +259,51 @@ fn recipes_that_need_memory_say_so_when_forced_into_passes() {
     assert_eq!(fine.code, 0, "{}", fine.stderr);
     assert!(fine.stdout.contains("results"), "{}", fine.stdout);
 }
+
+#[test]
+fn a_large_wide_table_is_analysed_in_memory_when_it_fits() {
+    // 480 rows × 10,000 features, about 36 MB: above the size from which the
+    // passes engine reads the file, but only the in-memory engine can analyse a
+    // table with fewer rows than features; read in chunks, it moves there.
+    let ws = workspace();
+    let dir = ws.path();
+    let mut state: u64 = 7;
+    let mut text = String::from("id");
+    for j in 0..10_000 {
+        text.push_str(&format!(",f{j}"));
+    }
+    text.push('\n');
+    for i in 0..480 {
+        text.push_str(&format!("r{i}"));
+        let latent = (i % 7) as f64 - 3.0;
+        for j in 0..10_000 {
+            state = state
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            let noise = (state >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
+            text.push_str(&format!(",{:.4}", latent * ((j % 5) as f64) + noise));
+        }
+        text.push('\n');
+    }
+    assert!(text.len() > 33 << 20, "{} bytes", text.len());
+    fs::write(dir.join("wide.csv"), text).unwrap();
+    fs::write(
+        dir.join("wide.toml"),
+        "format = 1\n[input]\nfile = \"wide.csv\"\nid = \"id\"\n[components]\nkeep = 3\n[[plot]]\nkind = \"scree\"\n[output]\nfolder = \"out\"\n",
+    )
+    .unwrap();
+    run_into(dir, "wide.toml", "out", &[], "auto", None);
+    run_into(
+        dir,
+        "wide.toml",
+        "out",
+        &["--engine", "in-memory"],
+        "memory",
+        None,
+    );
+    assert_same_folders(&dir.join("auto"), &dir.join("memory"), "wide table");
+    // Forced into passes, it says why it cannot.
+    let forced = sextant(dir, &["run", "wide.toml", "--engine", "passes"]);
+    assert_ne!(forced.code, 0);
+    assert!(forced.stderr.contains("fewer rows"), "{}", forced.stderr);
+}

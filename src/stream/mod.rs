@@ -135,6 +135,33 @@ pub fn choose(raw: &RawRecipe, size: u64, options: &EngineOptions) -> Result<Cho
     }
 }
 
+/// The table with its numeric columns' values taken from the store (for a
+/// table read in chunks that only the in-memory engine can analyse).
+pub fn table_with_values(
+    mut table: crate::table::Table,
+    store: &store::Store,
+    numeric: &[usize],
+) -> crate::table::Table {
+    let width = store.width();
+    let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(store.rows()); width];
+    store
+        .pass(|chunk: &store::Chunk| -> Result<(), std::io::Error> {
+            for row in chunk.values.chunks_exact(width.max(1)) {
+                for (column, &v) in columns.iter_mut().zip(row) {
+                    column.push(v);
+                }
+            }
+            Ok(())
+        })
+        .expect("a store held in memory has no file to fail");
+    for (values, &c) in columns.into_iter().zip(numeric) {
+        if let crate::table::ColumnData::Numeric(column) = &mut table.columns[c].data {
+            column.values = values;
+        }
+    }
+    table
+}
+
 /// Reads a size such as `512MB`, `2GB`, `1.5GiB`, `64KB` or a count of bytes
 /// (KB, MB, GB are powers of 1,000; KiB, MiB, GiB of 1,024).
 pub fn parse_size(text: &str) -> Result<u64, String> {
