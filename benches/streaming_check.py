@@ -11,7 +11,7 @@ With ``--compare`` it also runs the in-memory engine on the same table (this
 needs about 4 x the file size of memory) and checks that every result file is
 the same bytes.
 
-    python3 benches/streaming_check.py                     # 2 GB table, 2 GB budget
+    python3 benches/streaming_check.py                     # 2 GB table, 1.5 GB budget
     python3 benches/streaming_check.py --gb 2 --budget 2GB --compare
 """
 import argparse
@@ -86,7 +86,7 @@ def size_arg(text):
 def main():
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--gb", type=float, default=2.0, help="size of the table in GB (default 2)")
-    ap.add_argument("--budget", default="2GB", help="memory budget given to sextant (default 2GB)")
+    ap.add_argument("--budget", default="1.5GB", help="memory budget given to sextant (default 1.5GB)")
     ap.add_argument("--data", default=os.path.join(ROOT, "target", "bench-data"))
     ap.add_argument("--sextant", default=os.path.join(ROOT, "target", "release", "sextant"))
     ap.add_argument("--compare", action="store_true", help="also run in memory and compare the results")

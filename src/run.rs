@@ -607,32 +607,28 @@ pub fn render(
     let report_view = report_view_of(prepared, pre, analysis, &view, &figures);
     drop(view);
     let t = crate::timing::lap("plots and report", t);
-    let mut files = result_files(prepared, pre, analysis);
+    let mut files = result_files(prepared, pre, analysis, staging)?;
     let model = crate::outputs::model::build(prepared, pre, analysis, &resolved_sha);
-    files.push(("model.json".into(), crate::outputs::model::to_json(&model)));
+    files.push((
+        "model.json".into(),
+        Content::Bytes(crate::outputs::model::to_json(&model)),
+    ));
     let t = crate::timing::lap("result tables", t);
-    files.extend(figures);
+    files.extend(figures.into_iter().map(|(n, b)| (n, Content::Bytes(b))));
     // Each file is hashed once, files in parallel, while they are written.
-    let (written, (mut hashes, report)) = rayon::join(
-        || write_all(staging, &files),
-        || {
-            let hashes = hash_all(&files);
-            let report = finish_report(prepared, report_view, &files, &hashes, &resolved_sha);
-            (hashes, report)
-        },
-    );
+    let (written, mut outputs) = rayon::join(|| write_all(staging, &files), || records(&files));
     written?;
+    let report = finish_report(prepared, report_view, &outputs, &resolved_sha);
     write_all(staging, std::slice::from_ref(&report))?;
-    hashes.push(sha256_hex(&report.1));
+    outputs.extend(records(std::slice::from_ref(&report)));
     files.push(report);
     crate::timing::lap("hashes and the report", t);
-    let outputs = files
-        .iter()
-        .zip(hashes)
-        .map(|((path, bytes), sha256)| FileRecord {
-            path: path.clone(),
-            bytes: bytes.len() as u64,
-            sha256,
+    // In memory: every file's bytes (all of them when nothing was streamed).
+    let files = files
+        .into_iter()
+        .filter_map(|(name, content)| match content {
+            Content::Bytes(bytes) => Some((name, bytes)),
+            Content::Written { .. } => None,
         })
         .collect();
     let body = ManifestBody {
@@ -661,22 +657,34 @@ fn fingerprint(prepared: &Prepared) -> (String, Vec<String>) {
     (resolved_sha, vec![prepared.input.sha256.clone()])
 }
 
-/// Writes the files into `staging`, if there is one.
-fn write_all(staging: Option<&Staging>, files: &[(String, Vec<u8>)]) -> Result<(), Error> {
+/// Writes the files held in memory into `staging`, if there is one.
+fn write_all(staging: Option<&Staging>, files: &[(String, Content)]) -> Result<(), Error> {
     if let Some(staging) = staging {
-        for (name, bytes) in files {
-            staging.write(name, bytes)?;
+        for (name, content) in files {
+            if let Content::Bytes(bytes) = content {
+                staging.write(name, bytes)?;
+            }
         }
     }
     Ok(())
 }
 
-/// The SHA-256 of each file, files in parallel.
-fn hash_all(files: &[(String, Vec<u8>)]) -> Vec<String> {
+/// Each file's path, size and SHA-256 (files in memory hashed in parallel).
+fn records(files: &[(String, Content)]) -> Vec<FileRecord> {
     use rayon::prelude::*;
     files
         .par_iter()
-        .map(|(_, bytes)| sha256_hex(bytes))
+        .map(|(path, content)| {
+            let (bytes, sha256) = match content {
+                Content::Bytes(b) => (b.len() as u64, sha256_hex(b)),
+                Content::Written { bytes, sha256 } => (*bytes, sha256.clone()),
+            };
+            FileRecord {
+                path: path.clone(),
+                bytes,
+                sha256,
+            }
+        })
         .collect()
 }
 
@@ -740,12 +748,93 @@ pub fn platform() -> String {
     format!("{}-{}{env}", std::env::consts::ARCH, std::env::consts::OS)
 }
 
-/// The result tables, in a fixed order.
+/// A result file: its bytes, or, for a large table written straight into the
+/// staging folder a stretch at a time, its size and SHA-256.
+enum Content {
+    Bytes(Vec<u8>),
+    Written { bytes: u64, sha256: String },
+}
+
+/// A table being written into the staging folder: a thread of its own writes
+/// and hashes each stretch while the next is formatted.
+struct StreamedFile {
+    stretches: Option<std::sync::mpsc::SyncSender<Vec<u8>>>,
+    worker: Option<std::thread::JoinHandle<std::io::Result<(u64, String)>>>,
+    path: std::path::PathBuf,
+}
+
+impl StreamedFile {
+    fn create(staging: &Staging, name: &str) -> Result<StreamedFile, Error> {
+        use sha2::Digest;
+        use std::io::Write;
+        let (path, mut file) = staging.create(name)?;
+        let (sender, receiver) = std::sync::mpsc::sync_channel::<Vec<u8>>(2);
+        let worker = std::thread::spawn(move || {
+            let mut hasher = sha2::Sha256::new();
+            let mut bytes = 0u64;
+            for stretch in receiver {
+                file.write_all(&stretch)?;
+                hasher.update(&stretch);
+                bytes += stretch.len() as u64;
+            }
+            let digest = hasher.finalize();
+            Ok((bytes, digest.iter().map(|b| format!("{b:02x}")).collect()))
+        });
+        Ok(StreamedFile {
+            stretches: Some(sender),
+            worker: Some(worker),
+            path,
+        })
+    }
+
+    fn finish(mut self) -> Result<Content, Error> {
+        drop(self.stretches.take());
+        let worker = self.worker.take().expect("joined once");
+        let (bytes, sha256) = worker
+            .join()
+            .expect("the writing thread does not panic")
+            .map_err(|e| crate::error::OutputError::io(&self.path, e))?;
+        Ok(Content::Written { bytes, sha256 })
+    }
+}
+
+impl tables::TableSink for StreamedFile {
+    fn put(&mut self, bytes: Vec<u8>) {
+        if let Some(sender) = &self.stretches {
+            // A failed write ends the thread; `finish` reports its error.
+            let _ = sender.send(bytes);
+        }
+    }
+}
+
+/// A large table: in memory, or straight into the staging folder.
+fn large_table(
+    staging: Option<&Staging>,
+    name: &str,
+    write: impl FnOnce(&mut dyn tables::TableSink),
+) -> Result<Content, Error> {
+    match staging {
+        None => {
+            let mut bytes = Vec::new();
+            write(&mut bytes);
+            Ok(Content::Bytes(bytes))
+        }
+        Some(staging) => {
+            let mut file = StreamedFile::create(staging, name)?;
+            write(&mut file);
+            file.finish()
+        }
+    }
+}
+
+/// The result tables, in a fixed order; with `staging`, the two that grow with
+/// the rows (scores, filled cells) are written there as they are formatted.
 fn result_files(
     prepared: &Prepared,
     pre: &Preprocessed,
     analysis: &Analysis,
-) -> Vec<(String, Vec<u8>)> {
+    staging: Option<&Staging>,
+) -> Result<Vec<(String, Content)>, Error> {
     let table = &prepared.table;
     let plan = &prepared.plan;
     let text = |name: &str| match table.column(name).map(|c| &c.data) {
@@ -784,32 +873,46 @@ fn result_files(
             )
         })
         .collect();
-    vec![
+    let bytes = Content::Bytes;
+    Ok(vec![
         (
             "scores.csv".into(),
-            tables::scores_csv(&labels, &analysis.scores, &analysis.diagnostics),
+            large_table(staging, "scores.csv", |sink| {
+                tables::scores_csv_into(&labels, &analysis.scores, &analysis.diagnostics, sink)
+            })?,
         ),
         (
             "loadings.csv".into(),
-            tables::loadings_csv(&pre.scaled.names, d, s.computed),
+            bytes(tables::loadings_csv(&pre.scaled.names, d, s.computed)),
         ),
         (
             "variance.csv".into(),
-            tables::variance_csv(d, s, pre.scaled.n_rows()),
+            bytes(tables::variance_csv(d, s, pre.scaled.n_rows())),
         ),
         (
             "preprocessing.csv".into(),
-            tables::preprocessing_csv(&plan.features, &plan.transforms, &pre.missing, &pre.scaling),
+            bytes(tables::preprocessing_csv(
+                &plan.features,
+                &plan.transforms,
+                &pre.missing,
+                &pre.scaling,
+            )),
         ),
         (
             "imputed.csv".into(),
-            tables::imputed_csv(&labels, &pre.filled),
+            large_table(staging, "imputed.csv", |sink| {
+                tables::imputed_csv_into(&labels, &pre.filled, sink)
+            })?,
         ),
         (
             "contributions.csv".into(),
-            tables::contributions_csv(&labels, &pre.scaled.names, &flagged),
+            bytes(tables::contributions_csv(
+                &labels,
+                &pre.scaled.names,
+                &flagged,
+            )),
         ),
-    ]
+    ])
 }
 
 /// The plots, in the recipe's order.
@@ -869,14 +972,12 @@ fn report_view_of(
 fn finish_report(
     prepared: &Prepared,
     mut report_view: crate::outputs::view::ReportView,
-    files: &[(String, Vec<u8>)],
-    hashes: &[String],
+    outputs: &[FileRecord],
     resolved_sha: &str,
-) -> (String, Vec<u8>) {
-    let listing: String = files
+) -> (String, Content) {
+    let listing: String = outputs
         .iter()
-        .zip(hashes)
-        .map(|((path, _), sha)| format!("{sha}  {path}\n"))
+        .map(|r| format!("{}  {}\n", r.sha256, r.path))
         .collect();
     report_view.provenance = vec![
         (
@@ -900,7 +1001,7 @@ fn finish_report(
     ];
     (
         "report.html".into(),
-        crate::outputs::report::render(&report_view).into_bytes(),
+        Content::Bytes(crate::outputs::report::render(&report_view).into_bytes()),
     )
 }
 

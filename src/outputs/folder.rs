@@ -101,6 +101,16 @@ impl Staging {
         fs::write(&path, bytes).map_err(|e| OutputError::io(&path, e))
     }
 
+    /// Creates one file (a relative path) to be written by the caller.
+    pub fn create(&self, name: &str) -> Result<(PathBuf, fs::File), OutputError> {
+        let path = self.dir.path().join(name);
+        if let Some(dir) = path.parent() {
+            fs::create_dir_all(dir).map_err(|e| OutputError::io(dir, e))?;
+        }
+        let file = fs::File::create(&path).map_err(|e| OutputError::io(&path, e))?;
+        Ok((path, file))
+    }
+
     /// Moves the finished folder into place (any earlier results aside first, so
     /// a failed move can be undone).
     pub fn commit(self) -> Result<(), OutputError> {

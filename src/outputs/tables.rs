@@ -98,32 +98,53 @@ impl Scratch {
     }
 }
 
+/// Where a table's bytes go: into memory, or on to a file a stretch at a time,
+/// so that a large table is never whole in memory.
+pub trait TableSink {
+    fn put(&mut self, bytes: Vec<u8>);
+}
+
+impl TableSink for Vec<u8> {
+    fn put(&mut self, bytes: Vec<u8>) {
+        if self.is_empty() {
+            *self = bytes;
+        } else {
+            self.extend_from_slice(&bytes);
+        }
+    }
+}
+
+/// Blocks formatted at the same time before they are handed on in order.
+const BLOCKS_AT_ONCE: usize = 8;
+
 /// The header line, then `n` rows written by `write_row`, formatted in blocks of
-/// [`BLOCK_ROWS`] rows at the same time and joined in order.
-fn header_and_rows<F>(header: &[String], n: usize, write_row: F) -> Vec<u8>
+/// [`BLOCK_ROWS`] rows at the same time and handed to `sink` in order, a run of
+/// blocks at a time.
+fn header_and_rows_into<F>(header: &[String], n: usize, write_row: F, sink: &mut dyn TableSink)
 where
     F: Fn(&mut CsvOut, &mut Scratch, usize) + Sync,
 {
     let mut head = CsvOut::new();
     head.row(header);
-    let blocks: Vec<Vec<u8>> = (0..n.div_ceil(BLOCK_ROWS))
-        .into_par_iter()
-        .map(|b| {
-            let mut out = CsvOut::new();
-            let mut scratch = Scratch::default();
-            for i in b * BLOCK_ROWS..n.min((b + 1) * BLOCK_ROWS) {
-                write_row(&mut out, &mut scratch, i);
-                out.end();
-            }
-            out.finish()
-        })
-        .collect();
-    let mut bytes = head.finish();
-    bytes.reserve_exact(blocks.iter().map(Vec::len).sum());
-    for block in blocks {
-        bytes.extend_from_slice(&block);
+    sink.put(head.finish());
+    let blocks = n.div_ceil(BLOCK_ROWS);
+    for first in (0..blocks).step_by(BLOCKS_AT_ONCE) {
+        let run: Vec<Vec<u8>> = (first..blocks.min(first + BLOCKS_AT_ONCE))
+            .into_par_iter()
+            .map(|b| {
+                let mut out = CsvOut::new();
+                let mut scratch = Scratch::default();
+                for i in b * BLOCK_ROWS..n.min((b + 1) * BLOCK_ROWS) {
+                    write_row(&mut out, &mut scratch, i);
+                    out.end();
+                }
+                out.finish()
+            })
+            .collect();
+        for block in run {
+            sink.put(block);
+        }
     }
-    bytes
 }
 
 /// Component column names PC1..PCk.
@@ -170,6 +191,18 @@ fn yes_no_str(flag: bool) -> &'static str {
 /// scores.csv: one line per analysed row: labels, scores, T², SPE and, per
 /// confidence level, whether each exceeds its limit.
 pub fn scores_csv(labels: &RowLabels, scores: &Matrix, diagnostics: &Diagnostics) -> Vec<u8> {
+    let mut bytes = Vec::new();
+    scores_csv_into(labels, scores, diagnostics, &mut bytes);
+    bytes
+}
+
+/// [`scores_csv`] handed to `sink` a stretch at a time.
+pub fn scores_csv_into(
+    labels: &RowLabels,
+    scores: &Matrix,
+    diagnostics: &Diagnostics,
+    sink: &mut dyn TableSink,
+) {
     let mut header = label_header(labels);
     header.extend(component_names(scores.cols));
     header.extend(["T2".to_string(), "SPE".to_string()]);
@@ -177,7 +210,7 @@ pub fn scores_csv(labels: &RowLabels, scores: &Matrix, diagnostics: &Diagnostics
         let level = level_label(l.confidence);
         header.extend([format!("T2_above_{level}"), format!("SPE_above_{level}")]);
     }
-    header_and_rows(&header, labels.rows.len(), |out, scratch, i| {
+    let write_row = |out: &mut CsvOut, scratch: &mut Scratch, i: usize| {
         scratch.labels(out, labels, labels.rows[i]);
         for &v in scores.row(i) {
             scratch.number(out, v);
@@ -189,20 +222,33 @@ pub fn scores_csv(labels: &RowLabels, scores: &Matrix, diagnostics: &Diagnostics
             out.field(yes_no_str(t2));
             out.field(yes_no_str(spe));
         }
-    })
+    };
+    header_and_rows_into(&header, labels.rows.len(), write_row, sink);
 }
 
 /// imputed.csv: every filled cell: the row's labels, the feature and the value
 /// filled in (on the transformed scale when the feature is transformed).
 pub fn imputed_csv(labels: &RowLabels, filled: &[crate::stages::missing::FilledCell]) -> Vec<u8> {
+    let mut bytes = Vec::new();
+    imputed_csv_into(labels, filled, &mut bytes);
+    bytes
+}
+
+/// [`imputed_csv`] handed to `sink` a stretch at a time.
+pub fn imputed_csv_into(
+    labels: &RowLabels,
+    filled: &[crate::stages::missing::FilledCell],
+    sink: &mut dyn TableSink,
+) {
     let mut header = label_header(labels);
     header.extend(["feature", "filled_value"].map(String::from));
-    header_and_rows(&header, filled.len(), |out, scratch, i| {
+    let write_row = |out: &mut CsvOut, scratch: &mut Scratch, i: usize| {
         let cell = &filled[i];
         scratch.labels(out, labels, cell.row);
         out.field(cell.feature.as_bytes());
         scratch.number(out, cell.value);
-    })
+    };
+    header_and_rows_into(&header, filled.len(), write_row, sink);
 }
 
 /// contributions.csv: for each flagged row, each feature's contribution to its T²
