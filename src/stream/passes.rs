@@ -26,7 +26,6 @@ use crate::stages::scale::{FeatureScale, ScaleReport, Scaled, check_finite};
 use crate::stages::select::{Evidence, select};
 use crate::stages::transform::{Applied, domain_error, transform_value};
 use rayon::prelude::*;
-use std::collections::BTreeSet;
 
 /// How each analysed feature is read from the store and brought to the scale
 /// of the analysis.
@@ -644,26 +643,22 @@ pub fn analyse(
 
     // Pass 6: only the wanted rows are brought to the analysis scale.
     crate::progress::current().stage("pass 6 of 6: rows for contributions");
-    let wanted: BTreeSet<usize> = rows_needing_values(&diagnostics, plan)
+    // The wanted rows by their table row, with their index among the analysed rows.
+    let wanted: std::collections::BTreeMap<usize, usize> = rows_needing_values(&diagnostics, plan)
         .into_iter()
-        .map(|i| pre.scaled.rows[i])
+        .map(|i| (pre.scaled.rows[i], i))
         .collect();
-    let analysed_index: std::collections::BTreeMap<usize, usize> =
-        rows_needing_values(&diagnostics, plan)
-            .into_iter()
-            .map(|i| (pre.scaled.rows[i], i))
-            .collect();
     let mut row_values = std::collections::BTreeMap::new();
     if !wanted.is_empty() {
         let mut first = 0;
         store.pass(|chunk: &Chunk| -> Result<(), Error> {
-            for &t in wanted.range(first..first + chunk.rows) {
+            for (&t, &i) in wanted.range(first..first + chunk.rows) {
                 let raw = &chunk.values[(t - first) * width..(t - first + 1) * width];
                 let mut out = vec![0.0; p];
                 let complete = features.filled_row(raw, &mut out);
                 debug_assert!(complete, "an analysed row is complete");
                 features.scale_row(&mut out);
-                row_values.insert(analysed_index[&t], out);
+                row_values.insert(i, out);
             }
             first += chunk.rows;
             Ok(())
