@@ -46,7 +46,8 @@ pub struct Prepared {
 
 /// The numbers of a table read for the passes engine.
 pub struct PassData {
-    pub store: crate::stream::store::Store,
+    /// Behind a lock because the first pass transforms the values in place.
+    pub store: std::sync::Mutex<crate::stream::store::Store>,
     /// The table column of each store column.
     pub numeric: Vec<usize>,
 }
@@ -210,7 +211,7 @@ fn prepare_in_passes(
         table,
         input: record,
         passes: Some(PassData {
-            store: ingested.store,
+            store: std::sync::Mutex::new(ingested.store),
             numeric: ingested.numeric,
         }),
     })
@@ -272,7 +273,11 @@ fn check_ids(table: &Table, id: Option<&str>) -> Result<(), InputError> {
 /// Runs the missing, transform and scaling stages.
 pub fn preprocess(prepared: &Prepared) -> Result<Preprocessed, Error> {
     let pre = match &prepared.passes {
-        Some(data) => crate::stream::passes::preprocess(prepared, &data.store, &data.numeric)?,
+        Some(data) => crate::stream::passes::preprocess(
+            prepared,
+            &mut data.store.lock().expect("no pass panicked"),
+            &data.numeric,
+        )?,
         None => preprocess_in_memory(prepared)?,
     };
     check_keep_bound(prepared, &pre)?;
@@ -406,7 +411,12 @@ pub fn scores_between(z: &Matrix, loadings: &Matrix, from: usize, to: usize) -> 
 /// per-row diagnostics.
 pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Error> {
     if let Some(data) = &prepared.passes {
-        return crate::stream::passes::analyse(prepared, pre, &data.store, &data.numeric);
+        return crate::stream::passes::analyse(
+            prepared,
+            pre,
+            &data.store.lock().expect("no pass panicked"),
+            &data.numeric,
+        );
     }
     let plan = &prepared.plan;
     let z = pre.scaled.data();

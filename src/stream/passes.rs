@@ -4,7 +4,8 @@
 //! what makes the two engines give the same bits (tested on whole results
 //! folders in tests/engines.rs).
 //!
-//! 1. transforms checked, missing cells counted, observed sums and ranges;
+//! 1. transforms checked, missing cells counted, observed sums and ranges; then
+//!    the transforms applied to the store once, in place;
 //! 2. fill values; the scaling means and ranges of the filled values;
 //! 3. the sums of squared deviations (standard deviations);
 //! 4. the cross-products ZᵀZ in the same 1,024-row blocks, and Σ z²;
@@ -32,9 +33,8 @@ use rayon::prelude::*;
 #[derive(Debug, Clone)]
 pub struct Features {
     names: Vec<String>,
-    /// The store column of each feature.
+    /// The store column of each feature (its values already transformed).
     column: Vec<usize>,
-    transform: Vec<Option<Transform>>,
     /// The value a missing cell is filled with (`NaN` when rows are dropped).
     fill: Vec<f64>,
     centre: Vec<f64>,
@@ -47,8 +47,8 @@ impl Features {
         self.names.len()
     }
 
-    /// The rows of a chunk on the analysis scale (before centring): transformed,
-    /// filled; `None` for a row dropped for a missing cell.
+    /// A row of a chunk on the analysis scale (before centring): filled;
+    /// `false` for a row dropped for a missing cell.
     fn filled_row(&self, chunk_row: &[f64], out: &mut [f64]) -> bool {
         for (j, o) in out.iter_mut().enumerate() {
             let v = chunk_row[self.column[j]];
@@ -58,11 +58,7 @@ impl Features {
                 }
                 self.fill[j]
             } else {
-                match self.transform[j] {
-                    // Values outside the domain were refused in the first pass.
-                    Some(t) => transform_value(t, v).unwrap_or(f64::NAN),
-                    None => v,
-                }
+                v
             };
         }
         true
@@ -130,7 +126,6 @@ impl Features {
                 .iter()
                 .map(|n| store_column(prepared, numeric, n))
                 .collect(),
-            transform: names.iter().map(|n| plan.transforms[in_plan(n)]).collect(),
             fill: names
                 .iter()
                 .map(|n| {
@@ -187,7 +182,7 @@ struct FirstPass {
 /// Runs the missing, transform and scaling stages in passes 1–3.
 pub fn preprocess(
     prepared: &Prepared,
-    store: &Store,
+    store: &mut Store,
     numeric: &[usize],
 ) -> Result<Preprocessed, Error> {
     let plan = &prepared.plan;
@@ -221,6 +216,13 @@ pub fn preprocess(
         bad: None,
     };
     let mut first = vec![start; plan.features.len()];
+    // The transforms still to apply (none when an earlier preprocessing of
+    // this store applied them).
+    let pending: Vec<Option<Transform>> = if store.transformed {
+        vec![None; plan.features.len()]
+    } else {
+        plan.transforms.clone()
+    };
     let mut offset = 0;
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         by_columns(&mut first, |from, part| {
@@ -232,7 +234,7 @@ pub fn preprocess(
                         f.missing += 1;
                         continue;
                     }
-                    let v = match plan.transforms[j] {
+                    let v = match pending[j] {
                         Some(t) => match transform_value(t, v) {
                             Some(out) => out,
                             None => {
@@ -254,9 +256,28 @@ pub fn preprocess(
     })?;
     // Transform errors in feature order, as the transform stage reports them.
     for (j, f) in first.iter().enumerate() {
-        if let (Some((row, v)), Some(t)) = (f.bad, plan.transforms[j]) {
+        if let (Some((row, v)), Some(t)) = (f.bad, pending[j]) {
             return Err(domain_error(&source, table.lines[row], &plan.features[j], v, t).into());
         }
+    }
+    // Every value is in its transform's domain: transform the store once, so
+    // that the later passes read the values as they are.
+    if pending.iter().any(Option::is_some) {
+        let columns: Vec<(usize, Transform)> = all_columns
+            .iter()
+            .zip(&pending)
+            .filter_map(|(&c, t)| t.map(|t| (c, t)))
+            .collect();
+        store.update(|chunk| {
+            chunk.values.par_chunks_mut(width.max(1)).for_each(|row| {
+                for &(c, t) in &columns {
+                    if !row[c].is_nan() {
+                        row[c] = transform_value(t, row[c]).expect("checked in pass 1");
+                    }
+                }
+            })
+        })?;
+        store.transformed = true;
     }
     let transforms: Vec<Applied> = plan
         .features
@@ -314,7 +335,6 @@ pub fn preprocess(
     let features = Features {
         names: kept.iter().map(|&j| plan.features[j].clone()).collect(),
         column: kept.iter().map(|&j| all_columns[j]).collect(),
-        transform: kept.iter().map(|&j| plan.transforms[j]).collect(),
         fill,
         centre: Vec::new(),
         scale: Vec::new(),

@@ -21,6 +21,9 @@ pub struct Store {
     held_bytes: u64,
     spill: Option<Spill>,
     rows: usize,
+    /// Whether the recipe's transforms have been applied to the values (after
+    /// the first pass checked them), so later passes read them as they are.
+    pub transformed: bool,
 }
 
 /// The scratch file: chunks written one after the other, removed when dropped.
@@ -41,6 +44,7 @@ impl Store {
             held_bytes: 0,
             spill: None,
             rows: 0,
+            transformed: false,
         }
     }
 
@@ -112,6 +116,45 @@ impl Store {
     }
 }
 
+impl Store {
+    /// Changes every chunk in place with `f` (in the scratch file, each chunk is
+    /// read, changed and written back where it was).
+    pub fn update(&mut self, mut f: impl FnMut(&mut Chunk)) -> io::Result<()> {
+        let width = self.width;
+        match &mut self.spill {
+            None => {
+                self.held.iter_mut().for_each(f);
+                Ok(())
+            }
+            Some(spill) => {
+                let file = spill.file.as_file_mut();
+                let mut at = 0u64;
+                let mut bytes = Vec::new();
+                for &rows in &spill.chunks {
+                    bytes.resize(rows * width * 8, 0);
+                    file.seek(SeekFrom::Start(at))?;
+                    file.read_exact(&mut bytes)?;
+                    let mut chunk = Chunk {
+                        rows,
+                        values: bytes
+                            .chunks_exact(8)
+                            .map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")))
+                            .collect(),
+                    };
+                    f(&mut chunk);
+                    for (b, v) in bytes.chunks_exact_mut(8).zip(&chunk.values) {
+                        b.copy_from_slice(&v.to_le_bytes());
+                    }
+                    file.seek(SeekFrom::Start(at))?;
+                    file.write_all(&bytes)?;
+                    at += bytes.len() as u64;
+                }
+                Ok(())
+            }
+        }
+    }
+}
+
 impl Spill {
     fn write(&mut self, chunk: &Chunk) -> io::Result<()> {
         let mut bytes = Vec::with_capacity(chunk.values.len() * 8);
@@ -170,6 +213,15 @@ mod tests {
         assert!(a.iter().zip(&b).all(|(x, y)| x.to_bits() == y.to_bits()));
         // A second pass reads the same again.
         assert_eq!(read_all(&spilled), b);
+        // Changed in place, both the same again.
+        for store in [&mut held, &mut spilled] {
+            store
+                .update(|c| c.values.iter_mut().for_each(|v| *v = -*v * 2.0))
+                .unwrap();
+        }
+        let (a, b) = (read_all(&held), read_all(&spilled));
+        assert_eq!(a[44], -2.0 * (44.0 * 0.1 - 3.0));
+        assert!(a.iter().zip(&b).all(|(x, y)| x.to_bits() == y.to_bits()));
         // The scratch file goes away with the store.
         drop(spilled);
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
