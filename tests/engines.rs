@@ -307,3 +307,31 @@ fn a_large_wide_table_is_analysed_in_memory_when_it_fits() {
     assert_ne!(forced.code, 0);
     assert!(forced.stderr.contains("fewer rows"), "{}", forced.stderr);
 }
+
+#[test]
+fn check_reports_the_same_in_passes() {
+    let ws = workspace();
+    let dir = ws.path();
+    fs::write(dir.join("table.csv"), generated(3000)).unwrap();
+    fs::write(
+        dir.join("check.toml"),
+        "format = 1\n[input]\nfile = \"table.csv\"\nid = \"id\"\ngroups = [\"site\"]\nexclude = [\"note\"]\nmissing = [\"NA\"]\n[transform]\nlog10 = [\"skewed\"]\n[scaling]\nconstant_features = \"drop\"\n[output]\nfolder = \"out\"\n",
+    )
+    .unwrap();
+    let memory = sextant(dir, &["check", "check.toml", "--engine", "in-memory"]);
+    let passes = sextant(
+        dir,
+        &[
+            "check",
+            "check.toml",
+            "--engine",
+            "passes",
+            "--memory-budget",
+            "16KB",
+        ],
+    );
+    assert_eq!(memory.code, 0, "{}", memory.stderr);
+    assert_eq!(memory.code, passes.code);
+    assert_eq!(memory.stdout, passes.stdout);
+    assert!(memory.stdout.contains("sparse"), "{}", memory.stdout);
+}
