@@ -247,27 +247,34 @@ fn check_ids(table: &Table, id: Option<&str>) -> Result<(), InputError> {
     let Some(ColumnData::Text(values)) = table.column(name).map(|c| &c.data) else {
         return Ok(());
     };
-    let mut seen = std::collections::BTreeMap::new();
-    for (i, v) in values.iter().enumerate() {
-        let line = table.lines[i];
-        if v.is_empty() {
-            return Err(InputError::MissingId {
-                path: table.display.clone(),
-                line,
-                column: name.into(),
-            });
-        }
-        if let Some(first_line) = seen.insert(v.as_str(), line) {
-            return Err(InputError::DuplicateId {
-                path: table.display.clone(),
-                line,
-                column: name.into(),
-                id: v.clone(),
-                first_line,
-            });
-        }
+    // The first row whose id is empty or was seen before: rows sorted by id (in
+    // parallel), a repeated id is first seen at the second row of its run.
+    let empty = values.iter().position(String::is_empty);
+    let mut order: Vec<usize> = (0..values.len()).collect();
+    {
+        use rayon::prelude::*;
+        order.par_sort_unstable_by(|&a, &b| values[a].cmp(&values[b]).then(a.cmp(&b)));
     }
-    Ok(())
+    let repeat = order
+        .windows(2)
+        .filter(|w| values[w[0]] == values[w[1]])
+        .map(|w| (w[1], w[0]))
+        .min();
+    match (empty, repeat) {
+        (Some(i), r) if r.is_none_or(|(j, _)| i <= j) => Err(InputError::MissingId {
+            path: table.display.clone(),
+            line: table.lines[i],
+            column: name.into(),
+        }),
+        (_, Some((i, first))) => Err(InputError::DuplicateId {
+            path: table.display.clone(),
+            line: table.lines[i],
+            column: name.into(),
+            id: values[i].clone(),
+            first_line: table.lines[first],
+        }),
+        _ => Ok(()),
+    }
 }
 
 /// Runs the missing, transform and scaling stages.
@@ -1093,5 +1100,38 @@ pub fn matrix_name(plan: &Plan) -> &'static str {
         UnitVariance => "correlation",
         Pareto => "covariance of Pareto-scaled features",
         Range => "covariance of range-scaled features",
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn ids(values: &[&str]) -> Result<(), InputError> {
+        let table = Table::from_parts(
+            "t.csv",
+            vec!["id".into()],
+            vec![values.iter().map(|v| v.to_string()).collect()],
+            vec![crate::table::NumericColumn::default()],
+            &[true],
+            (0..values.len() as u64).map(|i| i + 2).collect(),
+        );
+        check_ids(&table, Some("id"))
+    }
+
+    #[test]
+    fn the_first_bad_id_in_row_order_is_reported() {
+        assert!(ids(&["a", "b", "c"]).is_ok());
+        // Three of a kind: reported at the second, naming the first.
+        let e = ids(&["x", "a", "x", "b", "x"]).unwrap_err().to_string();
+        assert!(e.contains("t.csv:4:") && e.contains("line 2"), "{e}");
+        // The earlier of two repeats wins, whatever their order by id.
+        let e = ids(&["z", "a", "z", "a"]).unwrap_err().to_string();
+        assert!(e.contains("t.csv:4:") && e.contains("`z`"), "{e}");
+        // An empty id before a repeat is reported first, and after it, second.
+        let e = ids(&["a", "", "a"]).unwrap_err().to_string();
+        assert!(e.contains("t.csv:3:") && e.contains("empty"), "{e}");
+        let e = ids(&["a", "a", ""]).unwrap_err().to_string();
+        assert!(e.contains("t.csv:3:") && e.contains("`a`"), "{e}");
     }
 }
