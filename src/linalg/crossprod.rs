@@ -96,18 +96,23 @@ impl GramAccumulator {
 fn block_upper(block: &[f64], p: usize) -> Vec<f64> {
     const BAND: usize = 32;
     let mut acc = vec![0.0; p * p];
-    for first in (0..p).step_by(BAND) {
-        let last = (first + BAND).min(p);
-        for row in block.chunks_exact(p) {
-            for i in first..last {
-                let xi = row[i];
-                let target = &mut acc[i * p + i..(i + 1) * p];
-                for (a, &xj) in target.iter_mut().zip(&row[i..]) {
-                    *a += xi * xj;
+    // Bands write disjoint rows of the triangle, so they may also run at the
+    // same time (which matters when a table has few blocks and many features).
+    acc.par_chunks_mut(BAND * p.max(1))
+        .enumerate()
+        .for_each(|(b, band)| {
+            let first = b * BAND;
+            let last = (first + BAND).min(p);
+            for row in block.chunks_exact(p) {
+                for i in first..last {
+                    let xi = row[i];
+                    let target = &mut band[(i - first) * p + i..(i - first + 1) * p];
+                    for (a, &xj) in target.iter_mut().zip(&row[i..]) {
+                        *a += xi * xj;
+                    }
                 }
             }
-        }
-    }
+        });
     acc
 }
 
