@@ -42,6 +42,10 @@ pub struct Prepared {
     pub input: InputRecord,
     /// The table's numbers when the passes engine analyses it.
     pub passes: Option<PassData>,
+    /// Whether those numbers went to a scratch file, the table being larger
+    /// than the memory budget: then the outputs are made one after another,
+    /// never two large ones at once.
+    pub over_budget: bool,
 }
 
 /// The numbers of a table read for the passes engine.
@@ -139,6 +143,7 @@ pub fn prepare_recipe_with(
         table,
         input: record,
         passes: None,
+        over_budget: false,
     })
 }
 
@@ -192,6 +197,7 @@ fn prepare_in_passes(
             table,
             input: record,
             passes: None,
+            over_budget: false,
         });
     }
     if wide {
@@ -210,6 +216,7 @@ fn prepare_in_passes(
         plan,
         table,
         input: record,
+        over_budget: ingested.store.spilled(),
         passes: Some(PassData {
             store: std::sync::Mutex::new(ingested.store),
             numeric: ingested.numeric,
@@ -620,11 +627,25 @@ pub fn render(
     // row's scores and labels) is gone before the large tables are rendered.
     let view = crate::outputs::present::plot_view(prepared, pre, analysis);
     let t = crate::timing::lap("  the plots' view", t);
-    let figures = figures(prepared, &view)?;
-    let report_view = report_view_of(prepared, pre, analysis, &view, &figures);
-    drop(view);
-    let t = crate::timing::lap("plots and report", t);
-    let mut files = result_files(prepared, pre, analysis, staging)?;
+    // The figures and the tables at the same time, unless the table was over
+    // the memory budget: then the plots' copy of every row is dropped first.
+    let draw = || -> Result<_, Error> {
+        let figures = figures(prepared, &view)?;
+        let report_view = report_view_of(prepared, pre, analysis, &view, &figures);
+        Ok((figures, report_view))
+    };
+    let tables = || result_files(prepared, pre, analysis, staging);
+    let (drawn, tables) = if prepared.over_budget {
+        let drawn = draw();
+        drop(view);
+        (drawn, tables())
+    } else {
+        let both = rayon::join(draw, tables);
+        drop(view);
+        both
+    };
+    let (figures, report_view) = drawn?;
+    let mut files = tables?;
     let model = crate::outputs::model::build(prepared, pre, analysis, &resolved_sha);
     files.push((
         "model.json".into(),
