@@ -215,12 +215,11 @@ pub fn handle_missing(
             report.filled_outside_observed_range =
                 values.iter().filter(|&&v| v < lo || v > hi).count();
             if report.filled_outside_observed_range > 0 {
-                warnings.push(format!(
-                    "{} filled value(s) of `{}` lie outside its observed range [{}, {}]",
+                warnings.push(outside_range_warning(
                     report.filled_outside_observed_range,
-                    f.name,
-                    crate::outputs::tables::number(lo),
-                    crate::outputs::tables::number(hi)
+                    &f.name,
+                    lo,
+                    hi,
                 ));
             }
         }
@@ -256,6 +255,16 @@ pub fn handle_missing(
         filled_cells,
         fill_model,
     ))
+}
+
+/// The warning for filled values outside a feature's observed range [lo, hi].
+pub fn outside_range_warning(count: usize, feature: &str, lo: f64, hi: f64) -> String {
+    use crate::outputs::tables::number;
+    format!(
+        "{count} filled value(s) of `{feature}` lie outside its observed range [{}, {}]",
+        number(lo),
+        number(hi)
+    )
 }
 
 /// Why a feature with `missing` of `n` cells missing is dropped, if it is.

@@ -156,6 +156,19 @@ impl FeatureScale {
         let sd = (ss / (n - 1.0)).sqrt();
         let min = values.iter().copied().fold(f64::INFINITY, f64::min);
         let max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        FeatureScale::from_moments(name, mean, sd, min, max, method)
+    }
+
+    /// The centre and scale `method` takes from a feature's mean, standard
+    /// deviation and range (however they were summed).
+    pub fn from_moments(
+        name: &str,
+        mean: f64,
+        sd: f64,
+        min: f64,
+        max: f64,
+        method: ScalingMethod,
+    ) -> FeatureScale {
         let centre = if method.centers() { mean } else { 0.0 };
         let scale = match method {
             ScalingMethod::None | ScalingMethod::Center => 1.0,

@@ -422,12 +422,11 @@ pub fn preprocess(
             let (lo, hi) = (first[j].low, first[j].high);
             if count > 0 && (value < lo || value > hi) {
                 report.filled_outside_observed_range = count;
-                warnings.push(format!(
-                    "{} filled value(s) of `{}` lie outside its observed range [{}, {}]",
+                warnings.push(crate::stages::missing::outside_range_warning(
                     count,
-                    features.names[k],
-                    number(lo),
-                    number(hi)
+                    &features.names[k],
+                    lo,
+                    hi,
                 ));
             }
         }
@@ -492,21 +491,7 @@ pub fn preprocess(
     for j in 0..q {
         let sd = (squares[j] / (analysed as f64 - 1.0)).sqrt();
         let (min, max) = (lows[j], highs[j]);
-        let stats = FeatureScale {
-            feature: features.names[j].clone(),
-            mean: means[j],
-            sd,
-            min,
-            max,
-            centre: if method.centers() { means[j] } else { 0.0 },
-            scale: match method {
-                crate::recipe::raw::ScalingMethod::None
-                | crate::recipe::raw::ScalingMethod::Center => 1.0,
-                crate::recipe::raw::ScalingMethod::UnitVariance => sd,
-                crate::recipe::raw::ScalingMethod::Pareto => sd.sqrt(),
-                crate::recipe::raw::ScalingMethod::Range => max - min,
-            },
-        };
+        let stats = FeatureScale::from_moments(&features.names[j], means[j], sd, min, max, method);
         if method.divides() && min == max {
             match plan.constant_features {
                 ConstantPolicy::Error => {
