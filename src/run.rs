@@ -402,9 +402,7 @@ pub fn rows_needing_values(diagnostics: &Diagnostics, plan: &Plan) -> Vec<usize>
 pub fn column_squares(z: &Matrix) -> Vec<f64> {
     let mut squares = vec![0.0; z.cols];
     for i in 0..z.rows {
-        for (s, v) in squares.iter_mut().zip(z.row(i)) {
-            *s += v * v;
-        }
+        crate::stages::decompose::add_squares(&mut squares, z.row(i));
     }
     squares
 }

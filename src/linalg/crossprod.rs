@@ -13,19 +13,9 @@ pub const BLOCK_ROWS: usize = 1024;
 
 /// XᵀX (p × p, symmetric) of a row-major n × p matrix.
 pub fn gram_of_columns(x: &Matrix) -> Matrix {
-    let p = x.cols;
-    let partials: Vec<Vec<f64>> = x
-        .data
-        .par_chunks(BLOCK_ROWS * p.max(1))
-        .map(|block| block_upper(block, p))
-        .collect();
-    let mut upper = vec![0.0; p * p];
-    for partial in &partials {
-        for (acc, v) in upper.iter_mut().zip(partial) {
-            *acc += v;
-        }
-    }
-    symmetric_from_upper(upper, p)
+    let mut gram = GramAccumulator::new(x.cols);
+    gram.add_rows(&x.data);
+    gram.finish()
 }
 
 /// XᵀX of rows fed in order, a run at a time: the same blocks, the same order of
