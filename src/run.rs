@@ -137,14 +137,21 @@ pub fn prepare_recipe_with(
     };
     let plan = make_plan(&recipe, input, &table)?;
     crate::timing::lap("check the plan", t);
-    Ok(Prepared {
-        recipe,
-        plan,
-        table,
-        input: record,
-        passes: None,
-        over_budget: false,
-    })
+    Ok(Prepared::in_memory(recipe, plan, table, record))
+}
+
+impl Prepared {
+    /// A table held in memory, for the in-memory engine.
+    fn in_memory(recipe: LoadedRecipe, plan: Plan, table: Table, input: InputRecord) -> Prepared {
+        Prepared {
+            recipe,
+            plan,
+            table,
+            input,
+            passes: None,
+            over_budget: false,
+        }
+    }
 }
 
 /// Reads the input in chunks into a store for the passes engine, and checks
@@ -191,14 +198,7 @@ fn prepare_in_passes(
         // Only the in-memory engine analyses such a table (its n × n route), and
         // its values fit the budget: they become the table's columns.
         let table = crate::stream::table_with_values(table, &ingested.store, &ingested.numeric);
-        return Ok(Prepared {
-            recipe,
-            plan,
-            table,
-            input: record,
-            passes: None,
-            over_budget: false,
-        });
+        return Ok(Prepared::in_memory(recipe, plan, table, record));
     }
     if wide {
         return Err(AnalysisError::OverBudget {
