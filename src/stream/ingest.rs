@@ -178,7 +178,8 @@ fn read_all(
     // `buf[hashed..]` was read but not hashed yet: it is hashed while the
     // records before it are parsed.
     let mut hashed = buf.len();
-    let mut spent = [0.0f64; 4]; // parsing, arranging rows, storing, reading
+    // Seconds spent parsing (and hashing) and waiting for reads, for SEXTANT_TIMING.
+    let (mut parsing, mut reading) = (0.0, 0.0);
     loop {
         let t = std::time::Instant::now();
         let end = if reader.eof {
@@ -200,8 +201,7 @@ fn read_all(
         );
         hashed = buf.len();
         let chunk = chunk?;
-        spent[0] += t.elapsed().as_secs_f64();
-        let t = std::time::Instant::now();
+        parsing += t.elapsed().as_secs_f64();
         next_line += chunk.newlines;
         let rows = chunk.lines.len();
         lines.extend(chunk.lines);
@@ -214,7 +214,6 @@ fn read_all(
                 counts[j].append(n);
             }
         }
-        spent[1] += t.elapsed().as_secs_f64();
         if rows > 0 {
             store
                 .push(
@@ -231,20 +230,15 @@ fn read_all(
         }
         buf.drain(..end);
         hashed -= end;
-        spent[2] += t.elapsed().as_secs_f64();
         if reader.eof {
             break;
         }
         let t = std::time::Instant::now();
         reader.fill(&mut buf, CHUNK_BYTES)?;
-        spent[3] += t.elapsed().as_secs_f64();
+        reading += t.elapsed().as_secs_f64();
     }
-    for (what, s) in ["parse and hash", "arrange rows", "store", "read"]
-        .iter()
-        .zip(spent)
-    {
-        crate::timing::total(what, s);
-    }
+    crate::timing::total("parse and hash", parsing);
+    crate::timing::total("read", reading);
     let table = Table::from_parts(
         display,
         layout.names.clone(),
