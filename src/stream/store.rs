@@ -104,11 +104,10 @@ impl Store {
                 for &rows in &spill.chunks {
                     bytes.resize(rows * self.width * 8, 0);
                     reader.read_exact(&mut bytes)?;
-                    let values = bytes
-                        .chunks_exact(8)
-                        .map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")))
-                        .collect();
-                    f(&Chunk { rows, values })?;
+                    f(&Chunk {
+                        rows,
+                        values: decode(&bytes),
+                    })?;
                 }
                 Ok(())
             }
@@ -136,15 +135,10 @@ impl Store {
                     file.read_exact(&mut bytes)?;
                     let mut chunk = Chunk {
                         rows,
-                        values: bytes
-                            .chunks_exact(8)
-                            .map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")))
-                            .collect(),
+                        values: decode(&bytes),
                     };
                     f(&mut chunk);
-                    for (b, v) in bytes.chunks_exact_mut(8).zip(&chunk.values) {
-                        b.copy_from_slice(&v.to_le_bytes());
-                    }
+                    encode(&chunk.values, &mut bytes);
                     file.seek(SeekFrom::Start(at))?;
                     file.write_all(&bytes)?;
                     at += bytes.len() as u64;
@@ -157,16 +151,28 @@ impl Store {
 
 impl Spill {
     fn write(&mut self, chunk: &Chunk) -> io::Result<()> {
-        let mut bytes = Vec::with_capacity(chunk.values.len() * 8);
-        for v in &chunk.values {
-            bytes.extend_from_slice(&v.to_le_bytes());
-        }
+        let mut bytes = vec![0; chunk.values.len() * 8];
+        encode(&chunk.values, &mut bytes);
         let file: &mut File = self.file.as_file_mut();
         file.seek(SeekFrom::End(0))?;
         file.write_all(&bytes)?;
         self.chunks.push(chunk.rows);
         Ok(())
     }
+}
+
+/// Values as the scratch file holds them: 8 little-endian bytes each, the exact bits.
+fn encode(values: &[f64], bytes: &mut [u8]) {
+    for (b, v) in bytes.chunks_exact_mut(8).zip(values) {
+        b.copy_from_slice(&v.to_le_bytes());
+    }
+}
+
+fn decode(bytes: &[u8]) -> Vec<f64> {
+    bytes
+        .chunks_exact(8)
+        .map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")))
+        .collect()
 }
 
 #[cfg(test)]
