@@ -196,6 +196,18 @@ pub fn scores_csv(labels: &RowLabels, scores: &Matrix, diagnostics: &Diagnostics
     bytes
 }
 
+/// The header of scores.csv: labels, PC1..PCk, T², SPE and a flag pair per level.
+fn scores_header(labels: &RowLabels, k: usize, diagnostics: &Diagnostics) -> Vec<String> {
+    let mut header = label_header(labels);
+    header.extend(component_names(k));
+    header.extend(["T2".to_string(), "SPE".to_string()]);
+    for l in &diagnostics.limits {
+        let level = level_label(l.confidence);
+        header.extend([format!("T2_above_{level}"), format!("SPE_above_{level}")]);
+    }
+    header
+}
+
 /// [`scores_csv`] handed to `sink` a stretch at a time.
 pub fn scores_csv_into(
     labels: &RowLabels,
@@ -203,13 +215,7 @@ pub fn scores_csv_into(
     diagnostics: &Diagnostics,
     sink: &mut dyn TableSink,
 ) {
-    let mut header = label_header(labels);
-    header.extend(component_names(scores.cols));
-    header.extend(["T2".to_string(), "SPE".to_string()]);
-    for l in &diagnostics.limits {
-        let level = level_label(l.confidence);
-        header.extend([format!("T2_above_{level}"), format!("SPE_above_{level}")]);
-    }
+    let header = scores_header(labels, scores.cols, diagnostics);
     let write_row = |out: &mut CsvOut, scratch: &mut Scratch, i: usize| {
         scratch.labels(out, labels, labels.rows[i]);
         for &v in scores.row(i) {
@@ -425,14 +431,7 @@ mod tests {
         diagnostics: &Diagnostics,
     ) -> Vec<u8> {
         let mut out = CsvOut::new();
-        let mut header = label_header(labels);
-        header.extend(component_names(scores.cols));
-        header.extend(["T2".to_string(), "SPE".to_string()]);
-        for l in &diagnostics.limits {
-            let level = level_label(l.confidence);
-            header.extend([format!("T2_above_{level}"), format!("SPE_above_{level}")]);
-        }
-        out.row(&header);
+        out.row(scores_header(labels, scores.cols, diagnostics));
         for (i, &row) in labels.rows.iter().enumerate() {
             let mut fields = label_fields(labels, row);
             fields.extend(scores.row(i).iter().map(|&v| number(v)));
