@@ -101,38 +101,55 @@ pub fn row_statistics(
     scores: &Matrix,
     eigenvalues: &[f64],
 ) -> (Vec<f64>, Vec<f64>) {
-    let k = scores.cols;
-    let p = z.cols;
-    let t2: Vec<f64> = (0..z.rows)
-        .map(|i| {
-            (0..k)
-                .map(|a| scores.get(i, a) * scores.get(i, a) / eigenvalues[a])
-                .sum()
-        })
-        .collect();
-    // The loadings component by component, so that the fitted values of all
-    // features grow together; each one still sums its k terms in component
-    // order from the same start as [`residual`].
-    let by_component: Vec<Vec<f64>> = (0..k)
-        .map(|a| (0..p).map(|j| loadings.get(j, a)).collect())
-        .collect();
-    let mut fitted = vec![0.0; p];
-    let spe = (0..z.rows)
-        .map(|i| {
-            let t = scores.row(i);
-            fitted.fill(crate::linalg::SUM_START);
-            for (ta, la) in t.iter().zip(&by_component) {
-                for (f, l) in fitted.iter_mut().zip(la) {
-                    *f += ta * l;
-                }
+    let rows = RowStatistics::new(loadings, scores.cols, eigenvalues);
+    let mut fitted = vec![0.0; z.cols];
+    (0..z.rows)
+        .map(|i| rows.of_row(z.row(i), scores.row(i), &mut fitted))
+        .unzip()
+}
+
+/// What T² and SPE of a row need from the model, arranged for one row at a
+/// time (so that a pass can compute them chunk by chunk into its own buffers).
+pub struct RowStatistics<'a> {
+    /// The kept loadings component by component, so that the fitted values of
+    /// all features grow together; each one still sums its k terms in
+    /// component order from the same start as [`residual`].
+    by_component: Vec<Vec<f64>>,
+    eigenvalues: &'a [f64],
+}
+
+impl<'a> RowStatistics<'a> {
+    /// For the first `k` components of `loadings` (p × ≥ k).
+    pub fn new(loadings: &Matrix, k: usize, eigenvalues: &'a [f64]) -> RowStatistics<'a> {
+        let by_component = (0..k)
+            .map(|a| (0..loadings.rows).map(|j| loadings.get(j, a)).collect())
+            .collect();
+        RowStatistics {
+            by_component,
+            eigenvalues,
+        }
+    }
+
+    /// (T², SPE) of one row: `z` its scaled values, `t` its k kept scores;
+    /// `fitted` is scratch space of the row's length.
+    pub fn of_row(&self, z: &[f64], t: &[f64], fitted: &mut [f64]) -> (f64, f64) {
+        let t2: f64 = t
+            .iter()
+            .zip(self.eigenvalues)
+            .map(|(ta, l)| ta * ta / l)
+            .sum();
+        fitted.fill(crate::linalg::SUM_START);
+        for (ta, la) in t.iter().zip(&self.by_component) {
+            for (f, l) in fitted.iter_mut().zip(la) {
+                *f += ta * l;
             }
-            z.row(i).iter().zip(&fitted).fold(0.0, |sum, (zj, f)| {
-                let e = zj - f;
-                sum + e * e
-            })
-        })
-        .collect();
-    (t2, spe)
+        }
+        let spe = z.iter().zip(fitted.iter()).fold(0.0, |sum, (zj, f)| {
+            let e = zj - f;
+            sum + e * e
+        });
+        (t2, spe)
+    }
 }
 
 /// The residual e = z − t Pᵀ of one cell: `zj` the scaled value of feature `j`,

@@ -14,14 +14,14 @@
 
 use super::store::{Chunk, Store};
 use crate::error::{Error, InputError};
-use crate::linalg::crossprod::GramAccumulator;
+use crate::linalg::crossprod::{GramAccumulator, row_times};
 use crate::linalg::{Matrix, SUM_START};
 use crate::outputs::tables::number;
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::{ConstantPolicy, MissingMethod};
-use crate::run::{Analysis, Prepared, Preprocessed, rows_needing_values, scores_between};
-use crate::stages::decompose::{add_squares, from_cross_products, scores};
-use crate::stages::diagnose::{diagnose_rows, row_statistics};
+use crate::run::{Analysis, Prepared, Preprocessed, rows_needing_values};
+use crate::stages::decompose::{add_squares, from_cross_products};
+use crate::stages::diagnose::{RowStatistics, diagnose_rows};
 use crate::stages::missing::{FeatureMissing, FillModel, FilledCell, MissingReport};
 use crate::stages::scale::{FeatureScale, ScaleReport, Scaled, check_finite};
 use crate::stages::select::{Evidence, select};
@@ -140,6 +140,27 @@ impl Features {
             drop_incomplete,
         }
     }
+}
+
+/// Loadings `from..to` as a row-major p × (to − from) matrix's values.
+fn columns_of(loadings: &Matrix, from: usize, to: usize) -> Vec<f64> {
+    (0..loadings.rows)
+        .flat_map(|j| (from..to).map(move |a| loadings.get(j, a)))
+        .collect()
+}
+
+/// `count` consecutive pieces of `size` values (the last may be shorter, and all
+/// are empty when `size` is 0), so that blocks of rows can be zipped with their
+/// share of an output whose width may be zero.
+fn pieces(data: &mut [f64], size: usize, count: usize) -> Vec<&mut [f64]> {
+    let mut out = Vec::with_capacity(count);
+    let mut rest = data;
+    for _ in 0..count {
+        let (piece, tail) = rest.split_at_mut(size.min(rest.len()));
+        out.push(piece);
+        rest = tail;
+    }
+    out
 }
 
 /// Runs `f` on runs of per-feature accumulators at the same time (with the index
@@ -603,33 +624,44 @@ pub fn analyse(
 
     // Pass 5.
     crate::progress::current().stage("pass 5 of 6: scores, T² and SPE");
+    let more = computed - kept;
+    let v_kept = columns_of(loadings, 0, kept);
+    let v_more = columns_of(loadings, kept, computed);
+    let statistics = RowStatistics::new(loadings, kept, &decomposition.eigenvalues);
     let mut t_kept = Vec::with_capacity(n * kept);
-    let mut t_more = Vec::with_capacity(n * (computed - kept));
+    let mut t_more = Vec::with_capacity(n * more);
     let mut t2 = Vec::with_capacity(n);
     let mut spe = Vec::with_capacity(n);
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, true, &mut z, &mut local);
-        // Rows are independent: blocks of them in parallel, joined in order.
-        let parts: Vec<_> = z
-            .par_chunks(2048 * p)
-            .map(|block| {
-                let zc = Matrix {
-                    rows: block.len() / p,
-                    cols: p,
-                    data: block.to_vec(),
-                };
-                let t = scores(&zc, loadings, kept);
-                let more = scores_between(&zc, loadings, kept, computed);
-                let (a, b) = row_statistics(&zc, loadings, &t, &decomposition.eigenvalues);
-                (t.data, more.data, a, b)
-            })
+        let m = z.len() / p;
+        let from = t2.len();
+        t_kept.resize((from + m) * kept, 0.0);
+        t_more.resize((from + m) * more, 0.0);
+        t2.resize(from + m, 0.0);
+        spe.resize(from + m, 0.0);
+        // Rows are independent: blocks of them in parallel, each row's numbers
+        // written in place (the same per-row arithmetic as the in-memory stages,
+        // without a copy of the block).
+        const ROWS: usize = 2048;
+        let blocks = m.div_ceil(ROWS);
+        let jobs: Vec<_> = z
+            .chunks(ROWS * p)
+            .zip(pieces(&mut t_kept[from * kept..], ROWS * kept, blocks))
+            .zip(pieces(&mut t_more[from * more..], ROWS * more, blocks))
+            .zip(t2[from..].chunks_mut(ROWS))
+            .zip(spe[from..].chunks_mut(ROWS))
             .collect();
-        for (t, more, a, b) in parts {
-            t_kept.extend(t);
-            t_more.extend(more);
-            t2.extend(a);
-            spe.extend(b);
-        }
+        jobs.into_par_iter()
+            .for_each(|((((zb, tb), mb), t2b), speb)| {
+                let mut fitted = vec![0.0; p];
+                for (r, zr) in zb.chunks_exact(p).enumerate() {
+                    let tr = &mut tb[r * kept..(r + 1) * kept];
+                    row_times(zr, &v_kept, tr);
+                    row_times(zr, &v_more, &mut mb[r * more..(r + 1) * more]);
+                    (t2b[r], speb[r]) = statistics.of_row(zr, tr, &mut fitted);
+                }
+            });
         Ok(())
     })?;
     let t = crate::timing::lap("  pass 5: scores, T² and SPE", t);
