@@ -799,6 +799,8 @@ enum Content {
 /// and hashes each stretch while the next is formatted.
 struct StreamedFile {
     stretches: Option<std::sync::mpsc::SyncSender<Vec<u8>>>,
+    /// Buffers the writing thread has finished with, emptied, for reuse.
+    spares: std::sync::mpsc::Receiver<Vec<u8>>,
     worker: Option<std::thread::JoinHandle<std::io::Result<(u64, String)>>>,
     path: std::path::PathBuf,
 }
@@ -809,19 +811,24 @@ impl StreamedFile {
         use std::io::Write;
         let (path, mut file) = staging.create(name)?;
         let (sender, receiver) = std::sync::mpsc::sync_channel::<Vec<u8>>(2);
+        let (give_back, spares) = std::sync::mpsc::channel::<Vec<u8>>();
         let worker = std::thread::spawn(move || {
             let mut hasher = sha2::Sha256::new();
             let mut bytes = 0u64;
-            for stretch in receiver {
+            for mut stretch in receiver {
                 file.write_all(&stretch)?;
                 hasher.update(&stretch);
                 bytes += stretch.len() as u64;
+                stretch.clear();
+                // The formatter may have finished; then the buffer is dropped.
+                let _ = give_back.send(stretch);
             }
             let digest = hasher.finalize();
             Ok((bytes, digest.iter().map(|b| format!("{b:02x}")).collect()))
         });
         Ok(StreamedFile {
             stretches: Some(sender),
+            spares,
             worker: Some(worker),
             path,
         })
@@ -844,6 +851,10 @@ impl tables::TableSink for StreamedFile {
             // A failed write ends the thread; `finish` reports its error.
             let _ = sender.send(bytes);
         }
+    }
+
+    fn spare(&mut self) -> Vec<u8> {
+        self.spares.try_recv().unwrap_or_default()
     }
 }
 
@@ -946,11 +957,9 @@ fn result_files(
         ),
         (
             "contributions.csv".into(),
-            bytes(tables::contributions_csv(
-                &labels,
-                &pre.scaled.names,
-                &flagged,
-            )),
+            large_table(staging, "contributions.csv", |sink| {
+                tables::contributions_csv_into(&labels, &pre.scaled.names, &flagged, sink)
+            })?,
         ),
     ])
 }

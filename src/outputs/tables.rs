@@ -40,10 +40,15 @@ struct CsvOut(csv::Writer<Vec<u8>>);
 
 impl CsvOut {
     fn new() -> Self {
+        CsvOut::into_buffer(Vec::new())
+    }
+
+    /// Writes after the bytes already in `buffer` (normally empty, kept for its capacity).
+    fn into_buffer(buffer: Vec<u8>) -> Self {
         CsvOut(
             csv::WriterBuilder::new()
                 .terminator(csv::Terminator::Any(b'\n'))
-                .from_writer(Vec::new()),
+                .from_writer(buffer),
         )
     }
 
@@ -102,6 +107,13 @@ impl Scratch {
 /// so that a large table is never whole in memory.
 pub trait TableSink {
     fn put(&mut self, bytes: Vec<u8>);
+
+    /// An empty buffer to format the next stretch into: one the sink has
+    /// finished with, when it has one, so that a long table reuses a few
+    /// buffers instead of asking the system for fresh memory for every stretch.
+    fn spare(&mut self) -> Vec<u8> {
+        Vec::new()
+    }
 }
 
 impl TableSink for Vec<u8> {
@@ -129,10 +141,13 @@ where
     sink.put(head.finish());
     let blocks = n.div_ceil(BLOCK_ROWS);
     for first in (0..blocks).step_by(BLOCKS_AT_ONCE) {
-        let run: Vec<Vec<u8>> = (first..blocks.min(first + BLOCKS_AT_ONCE))
+        let last = blocks.min(first + BLOCKS_AT_ONCE);
+        let buffers: Vec<Vec<u8>> = (first..last).map(|_| sink.spare()).collect();
+        let run: Vec<Vec<u8>> = (first..last)
             .into_par_iter()
-            .map(|b| {
-                let mut out = CsvOut::new();
+            .zip(buffers)
+            .map(|(b, buffer)| {
+                let mut out = CsvOut::into_buffer(buffer);
                 let mut scratch = Scratch::default();
                 for i in b * BLOCK_ROWS..n.min((b + 1) * BLOCK_ROWS) {
                     write_row(&mut out, &mut scratch, i);
@@ -165,7 +180,9 @@ pub fn level_label(confidence: f64) -> String {
     number(confidence * 100.0)
 }
 
-/// The label columns of a row: its number, then id and groups.
+/// The label columns of a row: its number, then id and groups (the serial
+/// writers in the tests build their lines from these).
+#[cfg(test)]
 fn label_fields(labels: &RowLabels, row: usize) -> Vec<String> {
     let mut fields = vec![(row + 1).to_string()];
     fields.extend(labels.id.iter().map(|(_, v)| v[row].clone()));
@@ -264,19 +281,32 @@ pub fn contributions_csv(
     features: &[String],
     flagged: &[(usize, Vec<(f64, f64)>)],
 ) -> Vec<u8> {
-    let mut out = CsvOut::new();
+    let mut bytes = Vec::new();
+    contributions_csv_into(labels, features, flagged, &mut bytes);
+    bytes
+}
+
+/// [`contributions_csv`] handed to `sink` a stretch at a time: a line per
+/// flagged row and feature, formatted in parallel blocks like scores.csv.
+pub fn contributions_csv_into(
+    labels: &RowLabels,
+    features: &[String],
+    flagged: &[(usize, Vec<(f64, f64)>)],
+    sink: &mut dyn TableSink,
+) {
     let mut header = label_header(labels);
     header.extend(["feature", "T2_contribution", "SPE_contribution"].map(String::from));
-    out.row(&header);
-    for (i, parts) in flagged {
-        let base = label_fields(labels, labels.rows[*i]);
-        for (name, (t2, spe)) in features.iter().zip(parts) {
-            let mut fields = base.clone();
-            fields.extend([name.clone(), number(*t2), number(*spe)]);
-            out.row(&fields);
-        }
-    }
-    out.finish()
+    let p = features.len().max(1);
+    let write_row = |out: &mut CsvOut, scratch: &mut Scratch, line: usize| {
+        let (i, parts) = &flagged[line / p];
+        let j = line % p;
+        scratch.labels(out, labels, labels.rows[*i]);
+        out.field(features[j].as_bytes());
+        let (t2, spe) = parts[j];
+        scratch.number(out, t2);
+        scratch.number(out, spe);
+    };
+    header_and_rows_into(&header, flagged.len() * features.len(), write_row, sink);
 }
 
 /// loadings.csv: one line per feature, one column per computed component.
@@ -641,6 +671,59 @@ mod tests {
             assert!(got == reference, "imputed.csv differs on {threads} threads");
         }
         assert_eq!(imputed_csv(&labels, &[]), imputed_csv_serial(&labels, &[]));
+    }
+
+    /// The serial contributions writer the parallel one replaced.
+    fn contributions_csv_serial(
+        labels: &RowLabels,
+        features: &[String],
+        flagged: &[(usize, Vec<(f64, f64)>)],
+    ) -> Vec<u8> {
+        let mut out = CsvOut::new();
+        let mut header = label_header(labels);
+        header.extend(["feature", "T2_contribution", "SPE_contribution"].map(String::from));
+        out.row(&header);
+        for (i, parts) in flagged {
+            let base = label_fields(labels, labels.rows[*i]);
+            for (name, (t2, spe)) in features.iter().zip(parts) {
+                let mut fields = base.clone();
+                fields.extend([name.clone(), number(*t2), number(*spe)]);
+                out.row(&fields);
+            }
+        }
+        out.finish()
+    }
+
+    #[test]
+    fn contributions_are_the_serial_writers_bytes_on_any_thread_count() {
+        let n = 1200;
+        let (rows, id, group) = awkward(n);
+        let labels = RowLabels {
+            rows: &rows,
+            id: Some(("id", &id)),
+            groups: vec![("g", &group)],
+        };
+        let features: Vec<String> = (0..47)
+            .map(|j| ["x", "y,z", "\"w\"", "line\nbreak"][j % 4].to_string() + &j.to_string())
+            .collect();
+        // Every third row flagged, so the lines span several blocks.
+        let flagged: Vec<(usize, Vec<(f64, f64)>)> = (0..n)
+            .step_by(3)
+            .map(|i| (i, (0..47).map(|j| (value(i, j), value(j, i))).collect()))
+            .collect();
+        assert!(flagged.len() * features.len() > 2 * BLOCK_ROWS);
+        let reference = contributions_csv_serial(&labels, &features, &flagged);
+        for threads in [1, 2, 8] {
+            let got = on_threads(threads, || contributions_csv(&labels, &features, &flagged));
+            assert!(
+                got == reference,
+                "contributions.csv differs on {threads} threads"
+            );
+        }
+        assert_eq!(
+            contributions_csv(&labels, &features, &[]),
+            contributions_csv_serial(&labels, &features, &[])
+        );
     }
 
     /// Times the serial and the parallel scores writer on 1,000,000 rows:
