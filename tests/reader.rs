@@ -6,7 +6,7 @@
 //! editor shows.
 
 use proptest::prelude::*;
-use sextant::table::fast::{read_table_in_pieces, read_table_parallel};
+use sextant::table::fast::{read_table_by_rows, read_table_in_pieces, read_table_parallel};
 use sextant::table::{ColumnData, ReadOptions, Table, read_table};
 
 fn options() -> ReadOptions {
@@ -63,6 +63,14 @@ fn check(text: &[u8]) {
             got,
             reference,
             "{pieces} pieces of {:?}",
+            String::from_utf8_lossy(text)
+        );
+        // The passes engine's row-by-row layout holds the same cells.
+        let by_rows = outcome(read_table_by_rows(text, "t.csv", &options(), pieces));
+        assert_eq!(
+            by_rows,
+            reference,
+            "{pieces} pieces, by rows, of {:?}",
             String::from_utf8_lossy(text)
         );
     }
@@ -188,6 +196,14 @@ fn same_on_every_thread_count(text: &[u8], lines: &[u64], pieces: &[usize]) {
             .unwrap_or_else(|e| panic!("{n} pieces on {threads} threads: {e}"));
             assert_eq!(summary(&t), expected, "{n} pieces on {threads} threads");
             assert_eq!(t.lines, lines, "{n} pieces on {threads} threads");
+            let t = on_threads(threads, || read_table_by_rows(text, "t.csv", &options(), n))
+                .unwrap_or_else(|e| panic!("{n} pieces by rows on {threads} threads: {e}"));
+            assert_eq!(
+                summary(&t),
+                expected,
+                "{n} pieces by rows on {threads} threads"
+            );
+            assert_eq!(t.lines, lines, "{n} pieces by rows on {threads} threads");
         }
     }
 }

@@ -203,7 +203,6 @@ fn read_all(
         let chunk = chunk?;
         parsing += t.elapsed().as_secs_f64();
         next_line += chunk.newlines;
-        let rows = chunk.lines.len();
         lines.extend(chunk.lines);
         crate::progress::current().add_bytes(end as u64);
         crate::progress::current().set_rows(lines.len() as u64);
@@ -214,15 +213,12 @@ fn read_all(
                 counts[j].append(n);
             }
         }
-        if rows > 0 {
+        for (rows, values) in chunk.runs {
+            if rows == 0 {
+                continue;
+            }
             store
-                .push(
-                    Chunk {
-                        rows,
-                        values: chunk.values,
-                    },
-                    scratch,
-                )
+                .push(Chunk { rows, values }, scratch)
                 .map_err(|source| InputError::Io {
                     path: format!("a scratch file in {}", scratch.display()),
                     source,

@@ -10,7 +10,7 @@
 //! the number of threads; [`super::read::read_table`] (on the `csv` crate) is the
 //! reference it is tested against.
 
-use super::read::{ReadOptions, read_header};
+use super::read::{ReadOptions, number_cell, read_header};
 use super::{NumericColumn, Table};
 use crate::error::InputError;
 use rayon::prelude::*;
@@ -46,6 +46,40 @@ pub fn read_table_in_pieces(
         columns.numbers,
         &layout.is_text,
         columns.lines,
+    ))
+}
+
+/// Reads the whole table the way the passes engine does (numbers row by row,
+/// in runs, see [`Layout::parse_rows`]) and lays it out as a [`Table`] again, so
+/// that tests can hold both ways of parsing to the same reference.
+pub fn read_table_by_rows(
+    bytes: &[u8],
+    display: &str,
+    options: &ReadOptions,
+    pieces: usize,
+) -> Result<Table, InputError> {
+    let header = read_header(bytes, display, options.delimiter)?;
+    let layout = Layout::new(header.names, display, options);
+    let (body_start, header_lines) = header_end(bytes, options.delimiter);
+    let chunk = layout.parse_rows(&bytes[body_start..], 1 + header_lines, pieces)?;
+    let numeric: Vec<usize> = (0..layout.names.len())
+        .filter(|&j| !layout.is_text[j])
+        .collect();
+    let mut counts = chunk.counts;
+    for (rows, values) in &chunk.runs {
+        for r in 0..*rows {
+            for (jj, &j) in numeric.iter().enumerate() {
+                counts[j].values.push(values[r * numeric.len() + jj]);
+            }
+        }
+    }
+    Ok(Table::from_parts(
+        display,
+        layout.names,
+        chunk.texts,
+        counts,
+        &layout.is_text,
+        chunk.lines,
     ))
 }
 
@@ -110,7 +144,13 @@ impl Layout {
     /// Cuts a run of whole records (the first on line `first_line`) into at
     /// most `pieces` pieces and parses them at the same time; also returns the
     /// newlines in the run.
-    fn parse_pieces(&self, body: &[u8], first_line: u64, pieces: usize) -> (Vec<Piece>, u64) {
+    fn parse_pieces(
+        &self,
+        body: &[u8],
+        first_line: u64,
+        pieces: usize,
+        row_major: bool,
+    ) -> (Vec<Piece>, u64) {
         let cuts = cut(body, pieces, self.delimiter);
         // The file line each piece starts on: every newline (inside quotes too,
         // as editors count them) in the pieces before it.
@@ -130,6 +170,7 @@ impl Layout {
             is_text: &self.is_text,
             delimiter: self.delimiter,
             missing: &self.missing,
+            row_major,
         };
         let parsed = cuts
             .par_windows(2)
@@ -148,7 +189,7 @@ impl Layout {
         first_line: u64,
         pieces: usize,
     ) -> Result<Columns, InputError> {
-        let (parsed, newlines) = self.parse_pieces(body, first_line, pieces);
+        let (parsed, newlines) = self.parse_pieces(body, first_line, pieces, false);
         let mut columns = join(parsed, &self.is_text)?;
         columns.newlines = newlines;
         Ok(columns)
@@ -251,14 +292,36 @@ struct Spec<'a> {
     is_text: &'a [bool],
     delimiter: u8,
     missing: &'a [String],
+    /// Numbers go row by row into [`Piece::rows`] instead of into their columns.
+    row_major: bool,
 }
 
-/// One piece's rows, column by column.
+/// One piece's rows: text and counts column by column; the numbers by column,
+/// or row by row when the spec asks for that.
 struct Piece {
     texts: Vec<Vec<String>>,
     numbers: Vec<NumericColumn>,
+    /// The numeric cells row after row, in column order (row-major mode only).
+    rows: Vec<f64>,
     lines: Vec<u64>,
     error: Option<InputError>,
+}
+
+impl Piece {
+    /// Keeps the value of numeric column `j`'s cell in the current row.
+    fn put(&mut self, row_major: bool, j: usize, v: f64) {
+        if row_major {
+            self.rows.push(v);
+        } else {
+            self.numbers[j].values.push(v);
+        }
+    }
+
+    /// Reads a numeric cell that is not a plain decimal (see [`number_cell`]).
+    fn put_cell(&mut self, spec: &Spec, j: usize, cell: &str, line: u64) {
+        let v = number_cell(&mut self.numbers[j], cell, line, spec.missing);
+        self.put(spec.row_major, j, v);
+    }
 }
 
 /// One field of a record: a stretch of the piece's bytes, or (for a quoted
@@ -281,16 +344,19 @@ impl Field {
 fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec, newlines: u64) -> Piece {
     // About one record per newline: room for them all at once.
     let rows = newlines as usize + 1;
+    let numeric = spec.is_text.iter().filter(|&&t| !t).count();
+    let by_column = if spec.row_major { 0 } else { rows };
     let mut piece = Piece {
         texts: (0..spec.width)
             .map(|j| Vec::with_capacity(if spec.is_text[j] { rows } else { 0 }))
             .collect(),
         numbers: (0..spec.width)
             .map(|j| NumericColumn {
-                values: Vec::with_capacity(if spec.is_text[j] { 0 } else { rows }),
+                values: Vec::with_capacity(if spec.is_text[j] { 0 } else { by_column }),
                 ..NumericColumn::default()
             })
             .collect(),
+        rows: Vec::with_capacity(if spec.row_major { rows * numeric } else { 0 }),
         lines: Vec::with_capacity(rows),
         error: None,
     };
@@ -339,7 +405,7 @@ fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec, newlines: u64) -> Piece
                 // Most cells are plain decimals: read them without the general
                 // parser (same value; see `number`).
                 if let Some(v) = super::number::plain_decimal(bytes) {
-                    piece.numbers[j].values.push(v);
+                    piece.put(spec.row_major, j, v);
                     continue;
                 }
             }
@@ -355,7 +421,7 @@ fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec, newlines: u64) -> Piece
             if spec.is_text[j] {
                 piece.texts[j].push(cell.to_string());
             } else {
-                super::read::push_number(&mut piece.numbers[j], cell, record_line, spec.missing);
+                piece.put_cell(spec, j, cell, record_line);
             }
         }
         piece.lines.push(record_line);
@@ -396,7 +462,7 @@ fn plain_record(
         };
         let cell = &record[start..end];
         match value {
-            Some(v) => piece.numbers[j].values.push(v),
+            Some(v) => piece.put(spec.row_major, j, v),
             None => {
                 let text = std::str::from_utf8(cell)
                     .expect("the record is valid UTF-8")
@@ -404,7 +470,7 @@ fn plain_record(
                 if spec.is_text[j] {
                     piece.texts[j].push(text.to_string());
                 } else {
-                    super::read::push_number(&mut piece.numbers[j], text, line, spec.missing);
+                    piece.put_cell(spec, j, text, line);
                 }
             }
         }
@@ -547,66 +613,45 @@ pub struct RowChunk {
     pub texts: Vec<Vec<String>>,
     /// The numeric columns' counts (missing, bad, first bad), without values.
     pub counts: Vec<NumericColumn>,
+    /// The rows in runs, in order: each run's row count and its values,
     /// rows × (numeric columns), row by row, in table column order.
-    pub values: Vec<f64>,
+    pub runs: Vec<(usize, Vec<f64>)>,
     pub lines: Vec<u64>,
     pub newlines: u64,
 }
 
 impl Layout {
-    /// Like [`Layout::parse`], but with the numbers laid out row by row (each
-    /// piece writes its own rows, in parallel): what the passes engine stores.
+    /// Like [`Layout::parse`], but with the numbers laid out row by row: each
+    /// piece writes its rows straight into a run of its own, which is what the
+    /// passes engine stores (no copy from columns to rows, and no second
+    /// buffer per chunk).
     pub fn parse_rows(
         &self,
         body: &[u8],
         first_line: u64,
         pieces: usize,
     ) -> Result<RowChunk, InputError> {
-        let (mut parsed, newlines) = self.parse_pieces(body, first_line, pieces);
+        let (mut parsed, newlines) = self.parse_pieces(body, first_line, pieces, true);
         if let Some(e) = parsed.iter_mut().find_map(|p| p.error.take()) {
             return Err(e);
         }
-        let numeric: Vec<usize> = (0..self.names.len())
-            .filter(|&j| !self.is_text[j])
-            .collect();
-        let w = numeric.len();
         let rows: usize = parsed.iter().map(|p| p.lines.len()).sum();
-        let mut values = vec![0.0; rows * w];
-        // Each piece fills its own stretch of rows.
-        let mut slices = Vec::with_capacity(parsed.len());
-        let mut rest = values.as_mut_slice();
-        for piece in &parsed {
-            let (mine, tail) = rest.split_at_mut(piece.lines.len() * w);
-            slices.push(mine);
-            rest = tail;
-        }
-        parsed.par_iter().zip(slices).for_each(|(piece, out)| {
-            const BLOCK: usize = 256;
-            for (b, block) in out.chunks_mut(BLOCK * w.max(1)).enumerate() {
-                let first = b * BLOCK;
-                for (jj, &j) in numeric.iter().enumerate() {
-                    let column = &piece.numbers[j].values[first..first + block.len() / w];
-                    for (r, &v) in column.iter().enumerate() {
-                        block[r * w + jj] = v;
-                    }
-                }
-            }
-        });
         let mut texts: Vec<Vec<String>> = vec![Vec::new(); self.names.len()];
         let mut counts: Vec<NumericColumn> = vec![NumericColumn::default(); self.names.len()];
         let mut lines = Vec::with_capacity(rows);
+        let mut runs = Vec::with_capacity(parsed.len());
         for piece in parsed {
+            runs.push((piece.lines.len(), piece.rows));
             lines.extend(piece.lines);
-            for (j, (t, mut n)) in piece.texts.into_iter().zip(piece.numbers).enumerate() {
+            for (j, (t, n)) in piece.texts.into_iter().zip(piece.numbers).enumerate() {
                 texts[j].extend(t);
-                n.values = Vec::new();
                 counts[j].append(n);
             }
         }
         Ok(RowChunk {
             texts,
             counts,
-            values,
+            runs,
             lines,
             newlines,
         })

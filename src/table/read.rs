@@ -133,19 +133,30 @@ pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<
 }
 
 pub(crate) fn push_number(column: &mut NumericColumn, cell: &str, line: u64, missing: &[String]) {
+    let v = number_cell(column, cell, line, missing);
+    column.values.push(v);
+}
+
+/// The value of a numeric cell (`NaN` when it is missing or not a finite
+/// number), counting missing and bad cells in `column` but not storing the value.
+pub(crate) fn number_cell(
+    column: &mut NumericColumn,
+    cell: &str,
+    line: u64,
+    missing: &[String],
+) -> f64 {
     if missing.iter().any(|m| m == cell) {
         column.missing += 1;
-        column.values.push(f64::NAN);
-        return;
+        return f64::NAN;
     }
     match cell.parse::<f64>() {
-        Ok(v) if v.is_finite() => column.values.push(v),
+        Ok(v) if v.is_finite() => v,
         _ => {
             column.bad += 1;
             if column.first_bad.is_none() {
                 column.first_bad = Some((line, cell.to_string()));
             }
-            column.values.push(f64::NAN);
+            f64::NAN
         }
     }
 }
