@@ -6,7 +6,7 @@
 
 use sextant::error::Position;
 use sextant::outputs::plots::{self, MAX_INDIVIDUAL};
-use sextant::outputs::view::{Evidence, PlotView};
+use sextant::outputs::view::{Evidence, PlotView, ScoreRows};
 use sextant::recipe::plots::PlotPlan;
 use sextant::recipe::raw::{PlotKind, PointLabels};
 use std::fs;
@@ -95,7 +95,7 @@ fn view(n: usize, flag_every: usize) -> PlotView {
         },
         loadings,
         correlations,
-        scores,
+        scores: ScoreRows::from_rows(&scores),
         row_labels: (0..n).map(|i| format!("row-{i:04}")).collect(),
         groups: vec![(
             "site".into(),
@@ -405,7 +405,7 @@ fn scores_use_equal_scaling() {
 fn legend_does_not_depend_on_row_order() {
     let v = view(40, 10);
     let mut reversed = v.clone();
-    reversed.scores.reverse();
+    reversed.scores.reverse_rows();
     reversed.row_labels.reverse();
     reversed.groups[0].1.reverse();
     reversed.t2.reverse();
@@ -700,9 +700,7 @@ fn a_million_rows_render_small_and_fast() {
 fn degenerate_views_give_no_nan_or_inf() {
     // All scores zero, one eigenvalue zero, non-finite values in places.
     let mut v = view(6, 2);
-    for r in &mut v.scores {
-        r.iter_mut().for_each(|s| *s = 0.0);
-    }
+    v.scores.data.iter_mut().for_each(|s| *s = 0.0);
     v.eigenvalues[2] = 0.0;
     v.t2 = vec![0.0; 6];
     v.spe = vec![0.0; 6];

@@ -1,7 +1,7 @@
 //! Builds the plain views that figures and the report are drawn from, and the
 //! report's summary sentences and cautions.
 
-use super::view::{Evidence, FlaggedLine, PlotView, ReportView, Scores3d, VarianceLine};
+use super::view::{Evidence, FlaggedLine, PlotView, ReportView, ScoreRows, Scores3d, VarianceLine};
 use crate::recipe::raw::Keep;
 use crate::run::{Analysis, Prepared, Preprocessed};
 use crate::stages::diagnose::contributions;
@@ -89,6 +89,18 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         row.extend_from_slice(analysis.more_scores.row(i));
         row
     };
+    let scores = {
+        let (kept, more) = (analysis.scores.cols, analysis.more_scores.cols);
+        let cols = kept + more;
+        let mut data = vec![0.0; n * cols];
+        data.par_chunks_mut(cols.max(1))
+            .enumerate()
+            .for_each(|(i, row)| {
+                row[..kept].copy_from_slice(analysis.scores.row(i));
+                row[kept..kept + more].copy_from_slice(analysis.more_scores.row(i));
+            });
+        ScoreRows { cols, data }
+    };
     let loadings = (0..p)
         .map(|j| (0..computed).map(|a| d.loadings.get(j, a)).collect())
         .collect();
@@ -140,7 +152,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         },
         loadings,
         correlations,
-        scores: (0..n).into_par_iter().map(row_scores).collect(),
+        scores,
         row_labels: row_labels(prepared, pre),
         groups: plan
             .input
@@ -363,7 +375,13 @@ pub fn report_view(
         axis_titles: [view.axis_title(0), view.axis_title(1), view.axis_title(2)],
         points: shown
             .iter()
-            .map(|&i| [view.scores[i][0], view.scores[i][1], view.scores[i][2]])
+            .map(|&i| {
+                [
+                    view.scores.row(i)[0],
+                    view.scores.row(i)[1],
+                    view.scores.row(i)[2],
+                ]
+            })
             .collect(),
         labels: shown.iter().map(|&i| view.row_labels[i].clone()).collect(),
         group: view.groups.first().map(|(name, values)| {

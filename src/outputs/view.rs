@@ -30,8 +30,8 @@ pub struct PlotView {
     /// `correlations[feature][component]`: Pearson correlation of each scaled
     /// feature with each component's scores.
     pub correlations: Vec<Vec<f64>>,
-    /// `scores[row][component]` for the computed components.
-    pub scores: Vec<Vec<f64>>,
+    /// Each row's scores on the computed components.
+    pub scores: ScoreRows,
     /// The id of each row (or its row number when there is no id column).
     pub row_labels: Vec<String>,
     /// Group columns: name and one value per analysed row.
@@ -47,6 +47,64 @@ pub struct PlotView {
     pub flagged: Vec<bool>,
     /// The scaling method's name, e.g. "unit-variance".
     pub scaling: String,
+}
+
+/// Scores row by row in one block of memory (a vector per row would cost an
+/// allocation and a pointer per row on tables of millions of rows).
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct ScoreRows {
+    /// Values per row (the computed components).
+    pub cols: usize,
+    /// Row after row.
+    pub data: Vec<f64>,
+}
+
+impl ScoreRows {
+    /// From one vector per row, all of the same length.
+    pub fn from_rows(rows: &[Vec<f64>]) -> ScoreRows {
+        let cols = rows.first().map_or(0, Vec::len);
+        assert!(rows.iter().all(|r| r.len() == cols), "rows of equal length");
+        ScoreRows {
+            cols,
+            data: rows.concat(),
+        }
+    }
+
+    pub fn len(&self) -> usize {
+        self.data.len().checked_div(self.cols).unwrap_or(0)
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    pub fn row(&self, i: usize) -> &[f64] {
+        &self.data[i * self.cols..(i + 1) * self.cols]
+    }
+
+    pub fn iter(&self) -> impl DoubleEndedIterator<Item = &[f64]> {
+        self.data.chunks_exact(self.cols.max(1))
+    }
+
+    /// The rows in the opposite order.
+    pub fn reverse_rows(&mut self) {
+        let rows: Vec<Vec<f64>> = self.iter().rev().map(<[f64]>::to_vec).collect();
+        self.data = rows.concat();
+    }
+}
+
+impl std::ops::Index<usize> for ScoreRows {
+    type Output = [f64];
+
+    fn index(&self, i: usize) -> &[f64] {
+        self.row(i)
+    }
+}
+
+impl std::ops::IndexMut<usize> for ScoreRows {
+    fn index_mut(&mut self, i: usize) -> &mut [f64] {
+        &mut self.data[i * self.cols..(i + 1) * self.cols]
+    }
 }
 
 /// Evidence for the number of components, per component.
