@@ -284,56 +284,59 @@ fn implicit_ql(
         while m + 1 < n && e[m].abs() > eps * tst1 {
             m += 1;
         }
+        // m > l: the block l..=m is not yet split; sweep until e[l] is negligible.
         let mut sweeps = 0;
-        while m > l {
-            sweeps += 1;
-            if sweeps > MAX_SWEEPS {
-                return Err(AnalysisError::NoConvergence { sweeps: MAX_SWEEPS });
-            }
-            // The shift: the eigenvalue of the leading 2 × 2 block nearer d[l].
-            let g = d[l];
-            let mut pp = (d[l + 1] - g) / (2.0 * e[l]);
-            let mut r = libm::hypot(pp, 1.0);
-            if pp < 0.0 {
-                r = -r;
-            }
-            d[l] = e[l] / (pp + r);
-            d[l + 1] = e[l] * (pp + r);
-            let dl1 = d[l + 1];
-            let h = g - d[l];
-            for di in &mut d[l + 2..n] {
-                *di -= h;
-            }
-            shift += h;
-            // The implicit QL sweep from m − 1 up to l.
-            pp = d[m];
-            let (mut c, mut c2, mut c3) = (1.0, 1.0, 1.0);
-            let el1 = e[l + 1];
-            let (mut s, mut s2) = (0.0, 0.0);
-            if let Some(log) = log.as_deref_mut() {
-                log.sweeps.push((l, m, log.pairs.len()));
-            }
-            for i in (l..m).rev() {
-                c3 = c2;
-                c2 = c;
-                s2 = s;
-                let g = c * e[i];
-                let h = c * pp;
-                let r = libm::hypot(pp, e[i]);
-                e[i + 1] = s * r;
-                s = e[i] / r;
-                c = pp / r;
-                pp = c * d[i] - s * g;
-                d[i + 1] = h + s * (c * g + s * d[i]);
-                if let Some(log) = log.as_deref_mut() {
-                    log.pairs.push((c, s));
+        if m > l {
+            loop {
+                sweeps += 1;
+                if sweeps > MAX_SWEEPS {
+                    return Err(AnalysisError::NoConvergence { sweeps: MAX_SWEEPS });
                 }
-            }
-            pp = -s * s2 * c3 * el1 * e[l] / dl1;
-            e[l] = s * pp;
-            d[l] = c * pp;
-            if e[l].abs() <= eps * tst1 {
-                break;
+                // The shift: the eigenvalue of the leading 2 × 2 block nearer d[l].
+                let g = d[l];
+                let mut pp = (d[l + 1] - g) / (2.0 * e[l]);
+                let mut r = libm::hypot(pp, 1.0);
+                if pp < 0.0 {
+                    r = -r;
+                }
+                d[l] = e[l] / (pp + r);
+                d[l + 1] = e[l] * (pp + r);
+                let dl1 = d[l + 1];
+                let h = g - d[l];
+                for di in &mut d[l + 2..n] {
+                    *di -= h;
+                }
+                shift += h;
+                // The implicit QL sweep from m − 1 up to l.
+                pp = d[m];
+                let (mut c, mut c2, mut c3) = (1.0, 1.0, 1.0);
+                let el1 = e[l + 1];
+                let (mut s, mut s2) = (0.0, 0.0);
+                if let Some(log) = log.as_deref_mut() {
+                    log.sweeps.push((l, m, log.pairs.len()));
+                }
+                for i in (l..m).rev() {
+                    c3 = c2;
+                    c2 = c;
+                    s2 = s;
+                    let g = c * e[i];
+                    let h = c * pp;
+                    let r = libm::hypot(pp, e[i]);
+                    e[i + 1] = s * r;
+                    s = e[i] / r;
+                    c = pp / r;
+                    pp = c * d[i] - s * g;
+                    d[i + 1] = h + s * (c * g + s * d[i]);
+                    if let Some(log) = log.as_deref_mut() {
+                        log.pairs.push((c, s));
+                    }
+                }
+                pp = -s * s2 * c3 * el1 * e[l] / dl1;
+                e[l] = s * pp;
+                d[l] = c * pp;
+                if e[l].abs() <= eps * tst1 {
+                    break;
+                }
             }
         }
         d[l] += shift;
