@@ -8,11 +8,12 @@
 //!    product of the next are fused into one sweep over the trailing rows, since
 //!    both are bound by memory; rows are split across threads, and each row's
 //!    values and dot product are computed by one task in one order.
-//! 2. All eigenvalues of T by the implicit QL method with shifts, `tql2` of
-//!    Bowdler, Martin, Reinsch & Wilkinson (1968), "The QR and QL algorithms for
-//!    symmetric matrices", *Numerische Mathematik* 11, 293–306. Instead of
-//!    accumulating a p × p matrix of rotations, each plane rotation (c, s) is
-//!    written to a log, sweep by sweep.
+//! 2. All eigenvalues of T by the implicit QL method with shifts of Bowdler,
+//!    Martin, Reinsch & Wilkinson (1968), "The QR and QL algorithms for
+//!    symmetric matrices", *Numerische Mathematik* 11, 293–306 (their `tql2`),
+//!    run on T in reverse order so that a graded matrix keeps the relative
+//!    accuracy of its small eigenvalues. Instead of accumulating a p × p matrix of rotations, each plane rotation
+//!    (c, s) is written to a log, sweep by sweep.
 //! 3. Only for the eigenvectors wanted: the eigenvector of T is the column that
 //!    `tql2` would have accumulated, R₁R₂⋯R_N e_j, formed by applying the logged
 //!    rotations in reverse to e_j; the Householder reflectors then carry it to
@@ -56,8 +57,9 @@ pub fn symmetric_eigen_leading(m: &Matrix, want: usize) -> Result<Eigen, Analysi
     let p = m.rows;
     let want = want.min(p);
     let reduced = tridiagonalise(lower_symmetric(m));
-    let mut values = reduced.diag.clone();
-    let mut off = reduced.off.clone();
+    // The QL method runs on T in reverse order (J T J, J the reversal), see
+    // `reversed`.
+    let (mut values, mut off) = reversed(&reduced);
     let mut log = (want > 0).then(RotationLog::default);
     implicit_ql(&mut values, &mut off, log.as_mut())?;
     if values.iter().any(|v| !v.is_finite()) {
@@ -197,6 +199,21 @@ fn tridiagonalise(mut a: Matrix) -> Tridiagonal {
     }
 }
 
+/// The diagonal and off-diagonal of J T J, T in reverse order. The reduction
+/// from the top leaves the large entries of a graded matrix (a covariance of
+/// features in very different units) near the top of T; the QL method chases
+/// from the bottom up and keeps the relative accuracy of the small eigenvalues
+/// only when the large entries are at the bottom (Wilkinson & Reinsch 1971,
+/// *Handbook for Automatic Computation* II, contribution II/3). The reversal is
+/// exact, and is undone on the eigenvectors.
+fn reversed(t: &Tridiagonal) -> (Vec<f64>, Vec<f64>) {
+    let p = t.diag.len();
+    let diag = t.diag.iter().rev().copied().collect();
+    let mut off: Vec<f64> = t.off[..p.saturating_sub(1)].iter().rev().copied().collect();
+    off.resize(p, 0.0);
+    (diag, off)
+}
+
 /// row ← row − (vᵢ w + wᵢ v), elementwise.
 fn rank_two(row: &mut [f64], v: &[f64], w: &[f64], vi: f64, wi: f64) {
     for ((x, &vj), &wj) in row.iter_mut().zip(v).zip(w) {
@@ -263,8 +280,8 @@ struct RotationLog {
     pairs: Vec<(f64, f64)>,
 }
 
-/// The implicit QL method with Wilkinson-like shifts (`tql2`, Bowdler et al.
-/// 1968, as transcribed in the public-domain JAMA library): on return `d` holds
+/// The implicit QL method with shifts (`tql2`, Bowdler et al. 1968, in the form
+/// of the public-domain JAMA library): on return `d` holds
 /// the eigenvalues of the tridiagonal matrix (diagonal `d`, off-diagonal `e`,
 /// `e[k]` coupling k and k + 1), in no particular order. Each rotation is
 /// written to `log` when there is one; the arithmetic is the same either way.
@@ -345,53 +362,82 @@ fn implicit_ql(
     Ok(())
 }
 
-/// The eigenvectors of A for the tridiagonal positions `block`: for each, e_j
-/// through the logged rotations in reverse (the column `tql2` accumulates), then
-/// through the reflectors H_{p−2}, …, H₀. A sweep over positions l..=m is skipped
-/// for a vector that is still zero there, so that vector's bits depend only on
-/// its own position.
+/// The eigenvectors of A for the tridiagonal positions `block` (at most
+/// [`VECTOR_BLOCK`]): for each, e_j through the logged rotations in reverse (the
+/// column the QL method would accumulate), then through the reflectors H_{p−2}, …, H₀.
+///
+/// The vectors are stored interleaved (entry i of vector b at `i * B + b`) so
+/// that one rotation or one reflector is applied to all of them in a row: their
+/// chains of dependent operations then overlap instead of waiting on each other.
+/// Each vector's arithmetic is still its own and in the same order, so its bits
+/// do not depend on the block it is in. A sweep over positions l..=m is skipped
+/// for a vector that is still zero there (a decision that depends only on that
+/// vector's own position).
 fn eigenvectors(t: &Tridiagonal, log: &RotationLog, block: &[usize]) -> Vec<Vec<f64>> {
+    const B: usize = VECTOR_BLOCK;
     let p = t.diag.len();
-    let mut xs: Vec<Vec<f64>> = block
-        .iter()
-        .map(|&j| {
-            let mut x = vec![0.0; p];
-            x[j] = 1.0;
-            x
-        })
-        .collect();
+    let mut x = vec![0.0; p * B];
     let mut support: Vec<(usize, usize)> = block.iter().map(|&j| (j, j)).collect();
-    for s in (0..log.sweeps.len()).rev() {
-        let (l, m, first) = log.sweeps[s];
+    for (b, &j) in block.iter().enumerate() {
+        x[j * B + b] = 1.0;
+    }
+    let mut active = Vec::with_capacity(B);
+    for &(l, m, first) in log.sweeps.iter().rev() {
+        // l is the sweep's lowest position.
+        active.clear();
+        for (b, (lo, hi)) in support.iter_mut().enumerate() {
+            if *hi >= l && *lo <= m {
+                (*lo, *hi) = ((*lo).min(l), (*hi).max(m));
+                active.push(b);
+            }
+        }
+        if active.is_empty() {
+            continue;
+        }
+        // pairs[0] is position m − 1, the last pair position l.
         let pairs = &log.pairs[first..first + (m - l)];
-        for (x, (lo, hi)) in xs.iter_mut().zip(support.iter_mut()) {
-            if *hi < l || *lo > m {
-                continue;
-            }
-            (*lo, *hi) = ((*lo).min(l), (*hi).max(m));
-            // pairs[0] is position m − 1, the last pair position l.
-            for (q, &(c, sn)) in pairs.iter().enumerate().rev() {
-                let i = m - 1 - q;
-                let (a, b) = (x[i], x[i + 1]);
-                x[i] = c * a + sn * b;
-                x[i + 1] = c * b - sn * a;
+        for (q, &(c, s)) in pairs.iter().enumerate().rev() {
+            let i = m - 1 - q;
+            let (lower, upper) = x[i * B..(i + 2) * B].split_at_mut(B);
+            for &b in &active {
+                let (u, w) = (lower[b], upper[b]);
+                lower[b] = c * u + s * w;
+                upper[b] = c * w - s * u;
             }
         }
     }
-    for x in &mut xs {
-        for k in (0..p.saturating_sub(1)).rev() {
-            let tau = t.taus[k];
-            if tau == 0.0 {
-                continue;
+    // Back from the reversed order the QL method worked in.
+    for i in 0..p / 2 {
+        let (front, back) = x.split_at_mut((p - 1 - i) * B);
+        front[i * B..(i + 1) * B].swap_with_slice(&mut back[..B]);
+    }
+    let lanes = block.len();
+    for k in (0..p.saturating_sub(1)).rev() {
+        let tau = t.taus[k];
+        if tau == 0.0 {
+            continue;
+        }
+        let v = &t.reflectors.row(k)[k + 1..];
+        let tail = &mut x[(k + 1) * B..];
+        // f = τ vᵀx for each vector, summed in index order.
+        let mut f = [0.0f64; B];
+        for (&vi, xi) in v.iter().zip(tail.chunks_exact(B)) {
+            for b in 0..B {
+                f[b] += vi * xi[b];
             }
-            let v = &t.reflectors.row(k)[k + 1..];
-            let f = tau * dot(v, &x[k + 1..]);
-            for (xi, &vi) in x[k + 1..].iter_mut().zip(v) {
-                *xi -= f * vi;
+        }
+        for fb in &mut f {
+            *fb *= tau;
+        }
+        for (&vi, xi) in v.iter().zip(tail.chunks_exact_mut(B)) {
+            for b in 0..B {
+                xi[b] -= f[b] * vi;
             }
         }
     }
-    xs
+    (0..lanes)
+        .map(|b| (0..p).map(|i| x[i * B + b]).collect())
+        .collect()
 }
 
 /// Entries whose magnitudes differ by less than this share of the largest count
