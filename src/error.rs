@@ -374,6 +374,10 @@ pub enum AnalysisError {
         "the eigendecomposition did not produce finite values; the scaled data may be degenerate"
     )]
     NotFinite,
+    #[error(
+        "the eigenvalues did not converge within {sweeps} QL sweeps per eigenvalue; the scaled data may be degenerate"
+    )]
+    NoConvergence { sweeps: usize },
     #[error("{path}: {reason}")]
     OverBudget { path: String, reason: String },
 }

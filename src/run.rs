@@ -419,6 +419,29 @@ pub fn scores_between(z: &Matrix, loadings: &Matrix, from: usize, to: usize) -> 
     crate::linalg::crossprod::times(z, &v)
 }
 
+/// How many loadings to compute before the number of components is chosen: the
+/// components reported, a fixed count and the highest component plotted (more
+/// are computed afterwards if the rule keeps more). Both engines ask for the
+/// same number.
+pub fn loadings_wanted(plan: &crate::recipe::plan::Plan) -> usize {
+    let components = &plan.components;
+    let highest_plot = plan
+        .plots
+        .iter()
+        .map(|p| p.highest_component())
+        .max()
+        .unwrap_or(0);
+    let fixed = match components.keep {
+        Keep::Count(k) => k.get(),
+        _ => 0,
+    };
+    components
+        .compute
+        .unwrap_or(DEFAULT_COMPUTE)
+        .max(fixed)
+        .max(highest_plot)
+}
+
 /// Decomposes the scaled data, chooses the number of components and computes the
 /// per-row diagnostics.
 pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Error> {
@@ -433,24 +456,8 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
     let plan = &prepared.plan;
     let z = pre.scaled.data();
     let centred = plan.scaling.centers();
-    // Loadings are kept for the components that are reported (more are
-    // computed below if the rule keeps more).
     let components = &plan.components;
-    let highest_plot = plan
-        .plots
-        .iter()
-        .map(|p| p.highest_component())
-        .max()
-        .unwrap_or(0);
-    let fixed = match components.keep {
-        Keep::Count(k) => k.get(),
-        _ => 0,
-    };
-    let want = components
-        .compute
-        .unwrap_or(DEFAULT_COMPUTE)
-        .max(fixed)
-        .max(highest_plot);
+    let want = loadings_wanted(plan);
     let (mut decomposition, randomized) = match &plan.method {
         MethodPlan::Exact => (decompose_keeping(z, centred, None, want)?, None),
         MethodPlan::Randomized(settings) => {

@@ -531,7 +531,8 @@ fn iris_correlation_pca_matches_published_r_output() {
 // ---------------------------------------------------------------------------
 
 fn correlation_pca_matches_library(file: &str, key: &str) {
-    let r = run(file, "unit-variance", "2");
+    // Every component kept, so that every loading vector is computed and checked.
+    let r = run_all(file, "unit-variance");
     let refs = &reference()[key];
     let mut c = Check::default();
     // Library: numpy 2.4.6 eigh of the correlation matrix, agreeing with scikit-learn 1.9.1's
@@ -813,7 +814,11 @@ fn score_variances_equal_eigenvalues() {
                     &format!("{file} {scaling}: var(score PC{})", a + 1),
                     var,
                     r.eigenvalues()[a],
-                    1e-10,
+                    // The smallest eigenvalues of the unscaled Breast Cancer
+                    // covariance (10⁻⁶ against 4 · 10⁵) carry relative errors of a
+                    // few 10⁻¹⁰ from the tridiagonal reduction; the same bound as
+                    // `eigenvalues_match_exact_arithmetic`.
+                    1e-9,
                 );
             }
         }

@@ -3,9 +3,10 @@
 //! Passes over the data (cross-products, scores) are plain Rust loops in a fixed
 //! order, split into fixed-size row blocks whose partial results are combined in
 //! block order. The result therefore does not depend on the number of threads or
-//! on which CPU features are detected at run time. Only the small p × p (or n × n)
-//! symmetric eigenproblem goes to nalgebra, built without its runtime-dispatched
-//! matrix product.
+//! on which CPU features are detected at run time. The p × p (or n × n) symmetric
+//! eigenproblem is ours too ([`eigen`]): Householder tridiagonalisation, every
+//! eigenvalue by the implicit QL method, and eigenvectors only for the eigenvalues
+//! wanted, each computed on its own in a fixed order.
 
 pub mod crossprod;
 pub mod eigen;

@@ -64,7 +64,8 @@ pub struct ComponentsPlan {
 /// How the eigenvalues and loadings are computed, with the settings of the method.
 #[derive(Debug, Clone, PartialEq)]
 pub enum MethodPlan {
-    /// Every eigenvalue and loading ([`crate::stages::decompose::decompose_keeping`]).
+    /// Every eigenvalue, and the loadings of the components used, from the full
+    /// matrix ([`crate::stages::decompose::decompose_keeping`]).
     Exact,
     /// The leading components only, from a seeded sketch
     /// ([`crate::stages::decompose::decompose_randomized`]).

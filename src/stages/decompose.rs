@@ -13,7 +13,7 @@
 use crate::error::AnalysisError;
 use crate::linalg::Matrix;
 use crate::linalg::crossprod::{gram_of_columns, gram_of_rows, times, transpose_times};
-use crate::linalg::eigen::{fix_signs, symmetric_eigen};
+use crate::linalg::eigen::{fix_signs, symmetric_eigen_leading};
 use crate::recipe::raw::RawRandomized;
 use crate::stages::randomized::RandomizedReport;
 use serde::Serialize;
@@ -42,7 +42,8 @@ pub struct Decomposition {
     pub total_variance: f64,
     /// How many eigenvalues are non-zero within rounding (see [`rank_tolerance`]).
     pub rank: usize,
-    /// p × (rank, or fewer when asked): the loading vectors (unit length) as columns, sign-fixed.
+    /// p × min(rank, the `want` asked for): the loading vectors (unit length) as
+    /// columns, sign-fixed. Read no column beyond `loadings.cols`.
     pub loadings: Matrix,
     pub route: Route,
 }
@@ -58,11 +59,12 @@ pub fn decompose(
     decompose_keeping(z, centred, route, usize::MAX)
 }
 
-/// Like [`decompose`], but on the n × n route (wide tables) computes the loadings
-/// of at most `want` components (all eigenvalues are still returned). There each
-/// loading costs a pass over the data, so asking only for what is used saves most
-/// of the time; the loadings computed are the same bits either way. The p × p
-/// route keeps every loading, which costs nothing extra.
+/// Like [`decompose`], but computes the loadings of at most `want` components
+/// (all eigenvalues are still returned; `want` = 0 gives eigenvalues only). On
+/// both routes each eigenvector is computed on its own
+/// ([`symmetric_eigen_leading`]), and on the n × n route each loading also costs a
+/// pass over the data, so asking only for what is used saves most of the time;
+/// the loadings computed are the same bits whatever `want` is.
 pub fn decompose_keeping(
     z: &Matrix,
     centred: bool,
@@ -77,7 +79,7 @@ pub fn decompose_keeping(
     });
     let squares = column_square_sums(z);
     if route == Route::Features {
-        return from_cross_products(gram_of_columns(z), &squares, n, centred);
+        return from_cross_products(&gram_of_columns(z), &squares, n, centred, want);
     }
     let divisor = (n - 1) as f64;
     let total_variance = squares.iter().sum::<f64>() / divisor;
@@ -91,8 +93,8 @@ pub fn decompose_keeping(
         Route::Samples => {
             let mut g = gram_of_rows(z);
             g.data.iter_mut().for_each(|v| *v /= divisor);
-            let eig = symmetric_eigen(&g)?;
-            let r = rank(&eig.values, n, p, bound).min(want);
+            let eig = symmetric_eigen_leading(&g, want)?;
+            let r = rank(&eig.values, n, p, bound).min(eig.vectors.cols);
             let mut u = Matrix::zeros(n, r);
             for a in 0..r {
                 let norm = (divisor * eig.values[a]).sqrt();
@@ -153,19 +155,22 @@ pub fn add_squares(sums: &mut [f64], row: &[f64]) {
 
 /// The p × p route from the cross-products ZᵀZ (n rows) and each column's
 /// Σ z² (summed in row order): the same arithmetic whether the rows were held in
-/// memory or streamed in passes.
+/// memory or streamed in passes. Every eigenvalue, and the loadings of at most
+/// `want` components (each the same bits whatever `want` is).
 pub fn from_cross_products(
-    mut c: Matrix,
+    cross_products: &Matrix,
     squares: &[f64],
     n: usize,
     centred: bool,
+    want: usize,
 ) -> Result<Decomposition, AnalysisError> {
-    let p = c.rows;
+    let p = cross_products.rows;
     let divisor = (n - 1) as f64;
     let total_variance = squares.iter().sum::<f64>() / divisor;
     let bound = if centred { n - 1 } else { n }.min(p);
+    let mut c = cross_products.clone();
     c.data.iter_mut().for_each(|v| *v /= divisor);
-    let eig = symmetric_eigen(&c)?;
+    let eig = symmetric_eigen_leading(&c, want)?;
     let values: Vec<f64> = eig.values.into_iter().map(|v| v.max(0.0)).collect();
     let r = rank(&values, n, p, bound);
     Ok(finish(

@@ -600,7 +600,14 @@ pub fn analyse(
     }
     let gram = gram.finish();
     let t = crate::timing::lap("  pass 4: cross-products", t);
-    let decomposition = from_cross_products(gram, &squares, n, centred)?;
+    // The same loadings as the in-memory engine asks for (`run::analyse`).
+    let mut decomposition = from_cross_products(
+        &gram,
+        &squares,
+        n,
+        centred,
+        crate::run::loadings_wanted(plan),
+    )?;
     let t = crate::timing::lap("  eigendecomposition", t);
     if decomposition.rank == 0 {
         return Err(InputError::NoFeatures {
@@ -617,7 +624,9 @@ pub fn analyse(
         Evidence::default(),
     )
     .map_err(|e| crate::run::keep_error(prepared, pre, e.keep, e.available))?;
-    // The p × p route keeps a loading for every non-zero eigenvalue.
+    if selection.computed > decomposition.loadings.cols {
+        decomposition = from_cross_products(&gram, &squares, n, centred, selection.computed)?;
+    }
     assert!(selection.computed <= decomposition.loadings.cols);
     let (kept, computed) = (selection.kept, selection.computed);
     let loadings = &decomposition.loadings;
