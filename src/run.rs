@@ -30,6 +30,7 @@ use crate::table::{ColumnData, Table, read_header, read_table_parallel};
 use serde_json::{Value, json};
 use std::collections::BTreeMap;
 use std::path::Path;
+use std::sync::Arc;
 use std::time::Instant;
 
 /// A recipe with its table read and its plan checked.
@@ -802,61 +803,93 @@ enum Content {
     Written { bytes: u64, sha256: String },
 }
 
-/// A table being written into the staging folder: a thread of its own writes
-/// and hashes each stretch while the next is formatted.
+/// A table being written into the staging folder: one thread writes each
+/// stretch and another hashes it while the next is formatted. (Writing into the
+/// page cache and hashing each cost about as much as formatting; one thread
+/// doing both was the slowest part of writing a large table.)
 struct StreamedFile {
-    stretches: Option<std::sync::mpsc::SyncSender<Vec<u8>>>,
-    /// Buffers the writing thread has finished with, emptied, for reuse.
+    /// To the writing thread and to the hashing thread, in that order.
+    stretches: Option<[std::sync::mpsc::SyncSender<Arc<Vec<u8>>>; 2]>,
+    /// Buffers both threads have finished with, emptied, for reuse.
     spares: std::sync::mpsc::Receiver<Vec<u8>>,
-    worker: Option<std::thread::JoinHandle<std::io::Result<(u64, String)>>>,
+    writer: Option<std::thread::JoinHandle<std::io::Result<()>>>,
+    hasher: Option<std::thread::JoinHandle<(u64, String)>>,
     path: std::path::PathBuf,
+}
+
+/// Hands an emptied buffer back when the other thread is done with it too.
+fn recycle(stretch: Arc<Vec<u8>>, give_back: &std::sync::mpsc::Sender<Vec<u8>>) {
+    if let Ok(mut buffer) = Arc::try_unwrap(stretch) {
+        buffer.clear();
+        // The formatter may have finished; then the buffer is dropped.
+        let _ = give_back.send(buffer);
+    }
 }
 
 impl StreamedFile {
     fn create(staging: &Staging, name: &str) -> Result<StreamedFile, Error> {
         use sha2::Digest;
         use std::io::Write;
+        use std::sync::mpsc::{channel, sync_channel};
         let (path, mut file) = staging.create(name)?;
-        let (sender, receiver) = std::sync::mpsc::sync_channel::<Vec<u8>>(2);
-        let (give_back, spares) = std::sync::mpsc::channel::<Vec<u8>>();
-        let worker = std::thread::spawn(move || {
+        let (to_writer, for_writer) = sync_channel::<Arc<Vec<u8>>>(2);
+        let (to_hasher, for_hasher) = sync_channel::<Arc<Vec<u8>>>(2);
+        let (give_back, spares) = channel::<Vec<u8>>();
+        let give_back_too = give_back.clone();
+        let writer = std::thread::spawn(move || {
+            for stretch in for_writer {
+                file.write_all(&stretch)?;
+                recycle(stretch, &give_back);
+            }
+            Ok(())
+        });
+        let hasher = std::thread::spawn(move || {
             let mut hasher = sha2::Sha256::new();
             let mut bytes = 0u64;
-            for mut stretch in receiver {
-                file.write_all(&stretch)?;
-                hasher.update(&stretch);
+            for stretch in for_hasher {
+                hasher.update(&*stretch);
                 bytes += stretch.len() as u64;
-                stretch.clear();
-                // The formatter may have finished; then the buffer is dropped.
-                let _ = give_back.send(stretch);
+                recycle(stretch, &give_back_too);
             }
             let digest = hasher.finalize();
-            Ok((bytes, digest.iter().map(|b| format!("{b:02x}")).collect()))
+            (bytes, digest.iter().map(|b| format!("{b:02x}")).collect())
         });
         Ok(StreamedFile {
-            stretches: Some(sender),
+            stretches: Some([to_writer, to_hasher]),
             spares,
-            worker: Some(worker),
+            writer: Some(writer),
+            hasher: Some(hasher),
             path,
         })
     }
 
     fn finish(mut self) -> Result<Content, Error> {
         drop(self.stretches.take());
-        let worker = self.worker.take().expect("joined once");
-        let (bytes, sha256) = worker
+        let written = self
+            .writer
+            .take()
+            .expect("joined once")
             .join()
-            .expect("the writing thread does not panic")
-            .map_err(|e| crate::error::OutputError::io(&self.path, e))?;
+            .expect("the writing thread does not panic");
+        let (bytes, sha256) = self
+            .hasher
+            .take()
+            .expect("joined once")
+            .join()
+            .expect("the hashing thread does not panic");
+        written.map_err(|e| crate::error::OutputError::io(&self.path, e))?;
         Ok(Content::Written { bytes, sha256 })
     }
 }
 
 impl tables::TableSink for StreamedFile {
     fn put(&mut self, bytes: Vec<u8>) {
-        if let Some(sender) = &self.stretches {
-            // A failed write ends the thread; `finish` reports its error.
-            let _ = sender.send(bytes);
+        if let Some(senders) = &self.stretches {
+            let stretch = Arc::new(bytes);
+            for sender in senders {
+                // A failed write ends the writing thread; `finish` reports its error.
+                let _ = sender.send(Arc::clone(&stretch));
+            }
         }
     }
 

@@ -652,7 +652,7 @@ pub fn analyse(
         // Rows are independent: blocks of them in parallel, each row's numbers
         // written in place (the same per-row arithmetic as the in-memory stages,
         // without a copy of the block).
-        const ROWS: usize = 2048;
+        const ROWS: usize = 256;
         let blocks = m.div_ceil(ROWS);
         let jobs: Vec<_> = z
             .chunks(ROWS * p)
