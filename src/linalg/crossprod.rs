@@ -235,16 +235,43 @@ pub fn times(x: &Matrix, v: &Matrix) -> Matrix {
 /// One row of X·V: `out[a] = Σⱼ xⱼ·vⱼₐ` over the features in order from +0, for
 /// V row-major p × k with k = `out.len()` (the arithmetic of [`times`]).
 pub fn row_times(x: &[f64], v: &[f64], out: &mut [f64]) {
-    let k = out.len();
-    out.fill(0.0);
-    if k == 0 {
-        return;
-    }
-    for (&xj, vj) in x.iter().zip(v.chunks_exact(k)) {
-        for (slot, &vja) in out.iter_mut().zip(vj) {
-            *slot += xj * vja;
+    // The usual numbers of components get sums of a fixed count, which the
+    // compiler keeps in registers; each sum adds the same terms in the same
+    // order either way.
+    match out.len() {
+        0 => {}
+        1 => row_times_fixed::<1>(x, v, out),
+        2 => row_times_fixed::<2>(x, v, out),
+        3 => row_times_fixed::<3>(x, v, out),
+        4 => row_times_fixed::<4>(x, v, out),
+        5 => row_times_fixed::<5>(x, v, out),
+        6 => row_times_fixed::<6>(x, v, out),
+        7 => row_times_fixed::<7>(x, v, out),
+        8 => row_times_fixed::<8>(x, v, out),
+        9 => row_times_fixed::<9>(x, v, out),
+        10 => row_times_fixed::<10>(x, v, out),
+        11 => row_times_fixed::<11>(x, v, out),
+        12 => row_times_fixed::<12>(x, v, out),
+        k => {
+            out.fill(0.0);
+            for (&xj, vj) in x.iter().zip(v.chunks_exact(k)) {
+                for (slot, &vja) in out.iter_mut().zip(vj) {
+                    *slot += xj * vja;
+                }
+            }
         }
     }
+}
+
+/// [`row_times`] for `K` components.
+fn row_times_fixed<const K: usize>(x: &[f64], v: &[f64], out: &mut [f64]) {
+    let mut sums = [0.0f64; K];
+    for (&xj, vj) in x.iter().zip(v.chunks_exact(K)) {
+        for a in 0..K {
+            sums[a] += xj * vj[a];
+        }
+    }
+    out.copy_from_slice(&sums);
 }
 
 /// Xᵀ·U for a row-major n × p matrix X and n × k matrix U; each entry summed in row order.
@@ -350,6 +377,27 @@ mod tests {
                 at += r;
             }
             assert_eq!(acc.finish().data, whole.data);
+        }
+    }
+
+    #[test]
+    fn row_products_have_the_plain_sums_bit_for_bit() {
+        let x = sample(3, 37);
+        for k in 0..=14 {
+            let v = sample(37, k.max(1));
+            let v = &v.data[..37 * k];
+            for row in x.data.chunks_exact(37) {
+                let mut got = vec![f64::NAN; k];
+                row_times(row, v, &mut got);
+                let mut want = vec![0.0; k];
+                for (j, &xj) in row.iter().enumerate() {
+                    for a in 0..k {
+                        want[a] += xj * v[j * k + a];
+                    }
+                }
+                let bits = |s: &[f64]| s.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                assert_eq!(bits(&got), bits(&want), "k = {k}");
+            }
         }
     }
 
