@@ -386,7 +386,8 @@ pub struct RawComponents {
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum DecompositionMethod {
-    /// Every eigenvalue and loading, from the full p × p (or n × n) matrix.
+    /// Every eigenvalue, from the full p × p (or n × n) matrix, and the loadings
+    /// of the components computed.
     #[default]
     Exact,
     /// Only the leading components, from a seeded random sketch of the data
