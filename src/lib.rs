@@ -7,6 +7,7 @@
 //! or writes files during a run.
 
 pub mod apply;
+pub mod cleanup;
 pub mod cli;
 pub mod compare;
 pub mod error;

@@ -2,6 +2,7 @@ use clap::Parser;
 use sextant::cli::{Cli, execute};
 
 fn main() {
+    sextant::cleanup::install();
     let cli = Cli::parse();
     let result = execute(cli);
     // The progress line (if one was drawn) goes before anything is printed.

@@ -72,6 +72,8 @@ pub struct Staging {
     dir: tempfile::TempDir,
     target: PathBuf,
     parent: PathBuf,
+    /// Removes the staging folder if the process is interrupted.
+    registered: crate::cleanup::Registration,
 }
 
 impl Staging {
@@ -86,6 +88,7 @@ impl Staging {
             .tempdir_in(&parent)
             .map_err(|e| OutputError::io(&parent, e))?;
         Ok(Staging {
+            registered: crate::cleanup::register(dir.path()),
             dir,
             target: target.to_path_buf(),
             parent,
@@ -114,27 +117,40 @@ impl Staging {
     /// Moves the finished folder into place (any earlier results aside first, so
     /// a failed move can be undone).
     pub fn commit(self) -> Result<(), OutputError> {
-        let (target, parent) = (&self.target, &self.parent);
+        let Staging {
+            dir,
+            target,
+            parent,
+            registered,
+        } = self;
+        // No signal handler may cut the swap in half (see crate::cleanup).
+        let hold = crate::cleanup::hold();
         let old = if target.exists() {
             let aside = tempfile::Builder::new()
                 .prefix(".sextant-old-")
-                .tempdir_in(parent)
-                .map_err(|e| OutputError::io(parent, e))?;
+                .tempdir_in(&parent)
+                .map_err(|e| OutputError::io(&parent, e))?;
             let aside_path = aside.path().join("results");
-            fs::rename(target, &aside_path).map_err(|e| OutputError::io(target, e))?;
+            fs::rename(&target, &aside_path).map_err(|e| OutputError::io(&target, e))?;
             Some((aside, aside_path))
         } else {
             None
         };
-        let staged = self.dir.keep();
-        if let Err(e) = fs::rename(&staged, target) {
+        let staged = dir.keep();
+        if let Err(e) = fs::rename(&staged, &target) {
             if let Some((_, aside_path)) = &old {
-                let _ = fs::rename(aside_path, target);
+                let _ = fs::rename(aside_path, &target);
             }
             let _ = fs::remove_dir_all(&staged);
-            return Err(OutputError::io(target, e));
+            return Err(OutputError::io(&target, e));
         }
-        drop(old); // removes the earlier results
+        drop(hold);
+        drop(registered);
+        // The new results are in place; the earlier ones go, even if interrupted.
+        if let Some((aside, _)) = old {
+            let _forget_on_signal = crate::cleanup::register(aside.path());
+            drop(aside);
+        }
         Ok(())
     }
 }

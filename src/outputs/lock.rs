@@ -17,6 +17,8 @@ pub struct FolderLock {
     created: Vec<PathBuf>,
     /// Set when a stale lock had to be removed first.
     pub stale_note: Option<String>,
+    /// Removes the lock file if the process is interrupted.
+    _registered: crate::cleanup::Registration,
 }
 
 impl Drop for FolderLock {
@@ -61,6 +63,7 @@ pub fn lock(folder: &Path) -> Result<FolderLock, OutputError> {
                 writeln!(file, "{} {host}", std::process::id())
                     .map_err(|e| OutputError::io(&path, e))?;
                 return Ok(FolderLock {
+                    _registered: crate::cleanup::register(&path),
                     path,
                     created,
                     stale_note,

@@ -29,6 +29,8 @@ pub struct Store {
 /// The scratch file: chunks written one after the other, removed when dropped.
 struct Spill {
     file: tempfile::NamedTempFile,
+    /// Removes the scratch file if the process is interrupted.
+    _registered: crate::cleanup::Registration,
     /// Rows of each chunk, in order.
     chunks: Vec<usize>,
 }
@@ -77,6 +79,7 @@ impl Store {
                 .prefix(".sextant-scratch-")
                 .tempfile_in(dir)?;
             let mut spill = Spill {
+                _registered: crate::cleanup::register(file.path()),
                 file,
                 chunks: Vec::new(),
             };

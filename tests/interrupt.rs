@@ -1,0 +1,141 @@
+//! An interrupted run leaves nothing behind: Ctrl-C (SIGINT) in the middle of a
+//! run removes its scratch file, staging folder and lock, exits with 130, and
+//! leaves the previous results exactly as they were.
+
+#![cfg(unix)]
+
+#[allow(dead_code)] // not every shared helper is used here
+mod common;
+
+use common::{BIN, sextant};
+use std::fs;
+use std::path::Path;
+use std::process::{Child, Command, Stdio};
+use std::time::{Duration, Instant};
+
+/// A generated table of about 40 MB: large enough for the passes engine and
+/// for a run that lasts long enough to be interrupted at a chosen stage.
+fn write_table(path: &Path) {
+    let mut text = String::from("id,site");
+    for j in 0..30 {
+        text.push_str(&format!(",x{j:02}"));
+    }
+    text.push('\n');
+    let mut state = 12_345u64;
+    for i in 0..140_000 {
+        text.push_str(&format!("r{i},s{}", i % 4));
+        for j in 0..30 {
+            state = state
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            let noise = (state >> 11) as f64 / (1u64 << 53) as f64;
+            text.push_str(&format!(
+                ",{:.6}",
+                (i % 97) as f64 * (j + 1) as f64 * 0.01 + noise
+            ));
+        }
+        text.push('\n');
+    }
+    fs::write(path, text).unwrap();
+}
+
+/// The hidden entries sextant makes beside a results folder.
+fn hidden_leftovers(dir: &Path) -> Vec<String> {
+    let mut names: Vec<String> = fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.starts_with(".sextant-") || n.ends_with(".sextant-lock"))
+        .collect();
+    names.sort();
+    names
+}
+
+fn start(dir: &Path, args: &[&str]) -> Child {
+    Command::new(BIN)
+        .args(args)
+        .current_dir(dir)
+        .env("SEXTANT_NO_PROGRESS", "1")
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap()
+}
+
+/// Waits until an entry whose name starts with `prefix` appears in `dir`, then
+/// sends SIGINT; returns false if the run ended first.
+fn interrupt_when(child: &mut Child, dir: &Path, prefix: &str) -> bool {
+    let deadline = Instant::now() + Duration::from_secs(60);
+    while Instant::now() < deadline {
+        if child.try_wait().unwrap().is_some() {
+            return false;
+        }
+        let seen = fs::read_dir(dir)
+            .unwrap()
+            .any(|e| e.unwrap().file_name().to_string_lossy().starts_with(prefix));
+        if seen {
+            let status = Command::new("kill")
+                .args(["-INT", &child.id().to_string()])
+                .status()
+                .unwrap();
+            assert!(status.success(), "kill -INT failed");
+            return true;
+        }
+        std::thread::sleep(Duration::from_millis(1));
+    }
+    panic!("{prefix}* never appeared");
+}
+
+#[test]
+fn ctrl_c_removes_the_scratch_file_staging_folder_and_lock() {
+    let ws = tempfile::tempdir().unwrap();
+    let dir = ws.path();
+    write_table(&dir.join("t.csv"));
+    fs::write(
+        dir.join("r.toml"),
+        "format = 1\n[input]\nfile = \"t.csv\"\nid = \"id\"\ngroups = [\"site\"]\n[components]\nkeep = 3\n[output]\nfolder = \"out\"\n",
+    )
+    .unwrap();
+
+    // During the passes, with the values in a scratch file.
+    let args = [
+        "run",
+        "r.toml",
+        "--engine",
+        "passes",
+        "--memory-budget",
+        "1MB",
+    ];
+    let mut child = start(dir, &args);
+    assert!(
+        interrupt_when(&mut child, dir, ".sextant-scratch-"),
+        "the run ended before its scratch file was seen"
+    );
+    let out = child.wait_with_output().unwrap();
+    assert_eq!(out.status.code(), Some(130), "{:?}", out);
+    assert!(String::from_utf8_lossy(&out.stderr).contains("interrupted"));
+    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert!(
+        !dir.join("out").exists(),
+        "no results folder from an interrupted run"
+    );
+
+    // While the results are being written, with earlier results in place.
+    let done = sextant(dir, &args);
+    assert_eq!(done.code, 0, "{}", done.stderr);
+    let before = fs::read(dir.join("out/manifest.json")).unwrap();
+    let mut child = start(dir, &[&args[..], &["--replace"]].concat());
+    assert!(
+        interrupt_when(&mut child, dir, ".sextant-new-"),
+        "the run ended before its staging folder was seen"
+    );
+    let out = child.wait_with_output().unwrap();
+    assert_eq!(out.status.code(), Some(130), "{:?}", out);
+    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert_eq!(
+        fs::read(dir.join("out/manifest.json")).unwrap(),
+        before,
+        "the earlier results are untouched"
+    );
+    let verify = sextant(dir, &["verify", "out"]);
+    assert_eq!(verify.code, 0, "{}{}", verify.stdout, verify.stderr);
+}
