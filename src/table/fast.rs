@@ -35,10 +35,8 @@ pub fn read_table_in_pieces(
     options: &ReadOptions,
     pieces: usize,
 ) -> Result<Table, InputError> {
-    let header = read_header(bytes, display, options.delimiter)?;
-    let layout = Layout::new(header.names, display, options);
-    let (body_start, header_lines) = header_end(bytes, options.delimiter);
-    let columns = layout.parse(&bytes[body_start..], 1 + header_lines, pieces)?;
+    let (layout, body, first_line) = layout_and_body(bytes, display, options)?;
+    let columns = layout.parse(body, first_line, pieces)?;
     Ok(Table::from_parts(
         display,
         layout.names,
@@ -47,6 +45,18 @@ pub fn read_table_in_pieces(
         &layout.is_text,
         columns.lines,
     ))
+}
+
+/// The layout the header gives, the body after it and the line the body starts on.
+fn layout_and_body<'a>(
+    bytes: &'a [u8],
+    display: &str,
+    options: &ReadOptions,
+) -> Result<(Layout, &'a [u8], u64), InputError> {
+    let header = read_header(bytes, display, options.delimiter)?;
+    let layout = Layout::new(header.names, display, options);
+    let (body_start, header_lines) = header_end(bytes, options.delimiter);
+    Ok((layout, &bytes[body_start..], 1 + header_lines))
 }
 
 /// Reads the whole table the way the passes engine does (numbers row by row,
@@ -58,10 +68,8 @@ pub fn read_table_by_rows(
     options: &ReadOptions,
     pieces: usize,
 ) -> Result<Table, InputError> {
-    let header = read_header(bytes, display, options.delimiter)?;
-    let layout = Layout::new(header.names, display, options);
-    let (body_start, header_lines) = header_end(bytes, options.delimiter);
-    let chunk = layout.parse_rows(&bytes[body_start..], 1 + header_lines, pieces)?;
+    let (layout, body, first_line) = layout_and_body(bytes, display, options)?;
+    let chunk = layout.parse_rows(body, first_line, pieces)?;
     let numeric: Vec<usize> = (0..layout.names.len())
         .filter(|&j| !layout.is_text[j])
         .collect();
@@ -495,18 +503,7 @@ fn field_end(record: &[u8], start: usize, delimiter: u8) -> usize {
 /// The end of the field starting at `start` and, when it is a plain decimal
 /// (see [`super::number`]), its value, read in the same sweep.
 fn scan_number(record: &[u8], start: usize, delimiter: u8) -> (usize, Option<f64>) {
-    let mut i = start;
-    let negative = match record.get(i) {
-        Some(b'-') => {
-            i += 1;
-            true
-        }
-        Some(b'+') => {
-            i += 1;
-            false
-        }
-        _ => false,
-    };
+    let (negative, mut i) = leading_sign(record, start);
     let (mut w, mut digits);
     (w, digits, i) = digit_run(record, i, 0, 0);
     let mut decimals = None;
@@ -521,6 +518,16 @@ fn scan_number(record: &[u8], start: usize, delimiter: u8) -> (usize, Option<f64
         Some(_) => return (field_end(record, i, delimiter), None),
     }
     (i, super::number::from_parts(negative, w, digits, decimals))
+}
+
+/// Whether the field at `i` starts with a minus sign, and where its digits start
+/// (after a `-` or `+`).
+fn leading_sign(record: &[u8], i: usize) -> (bool, usize) {
+    match record.get(i) {
+        Some(b'-') => (true, i + 1),
+        Some(b'+') => (false, i + 1),
+        _ => (false, i),
+    }
 }
 
 /// Most digits a plain decimal may have (more could overflow `u64`).
@@ -760,18 +767,7 @@ mod tests {
 
     /// The byte-at-a-time scan that [`scan_number`] replaced: the reference.
     fn scan_number_bytewise(record: &[u8], start: usize, delimiter: u8) -> (usize, Option<f64>) {
-        let mut i = start;
-        let negative = match record.get(i) {
-            Some(b'-') => {
-                i += 1;
-                true
-            }
-            Some(b'+') => {
-                i += 1;
-                false
-            }
-            _ => false,
-        };
+        let (negative, mut i) = leading_sign(record, start);
         let mut w: u64 = 0;
         let mut digits = 0u32;
         let mut decimals: Option<usize> = None;
