@@ -100,28 +100,22 @@ impl Reader {
             self.eof = true;
             return Ok(start);
         };
-        buf.resize(start + want, 0);
-        let mut got = start;
-        while got < buf.len() {
-            match file.read(&mut buf[got..]) {
-                Ok(0) => {
+        // Read into the vector's spare room (no zeroing of 32 MB first);
+        // fewer bytes than asked for means the file has ended.
+        buf.reserve(want);
+        match file.take(want as u64).read_to_end(buf) {
+            Ok(n) => {
+                if n < want {
                     self.eof = true;
-                    break;
                 }
-                Ok(n) => got += n,
-                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
-                Err(e) => {
-                    buf.truncate(got);
-                    return Err(InputError::Io {
-                        path: self.display.clone(),
-                        source: e,
-                    });
-                }
+                self.bytes += n as u64;
+                Ok(start)
             }
+            Err(source) => Err(InputError::Io {
+                path: self.display.clone(),
+                source,
+            }),
         }
-        buf.truncate(got);
-        self.bytes += (got - start) as u64;
-        Ok(start)
     }
 
     /// Hashes whatever was not read yet and returns the file's hash and size.
