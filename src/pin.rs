@@ -54,6 +54,7 @@ pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), OutputError> {
         _ => Path::new("."),
     };
     let mut tmp = tempfile::NamedTempFile::new_in(dir).map_err(|e| OutputError::io(dir, e))?;
+    let _on_signal = crate::cleanup::register(tmp.path());
     std::io::Write::write_all(&mut tmp, bytes).map_err(|e| OutputError::io(path, e))?;
     tmp.persist(path)
         .map_err(|e| OutputError::io(path, e.error))?;

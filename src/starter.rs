@@ -1243,6 +1243,8 @@ fn write_checked(target: &Path, dir: &Path, bytes: &[u8], force: bool) -> Result
         builder.permissions(std::fs::Permissions::from_mode(0o666));
     }
     let mut file = builder.tempfile_in(dir).map_err(io)?;
+    // Checking the recipe reads the whole table: an interruption removes it.
+    let _on_signal = crate::cleanup::register(file.path());
     file.write_all(bytes).map_err(io)?;
     file.as_file().sync_all().map_err(io)?;
 

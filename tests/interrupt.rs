@@ -1,6 +1,7 @@
 //! An interrupted run leaves nothing behind: Ctrl-C (SIGINT) in the middle of a
 //! run removes its scratch file, staging folder and lock, exits with 130, and
-//! leaves the previous results exactly as they were.
+//! leaves the previous results exactly as they were; an interrupted `new`
+//! leaves no half-made recipe.
 
 #![cfg(unix)]
 
@@ -138,4 +139,22 @@ fn ctrl_c_removes_the_scratch_file_staging_folder_and_lock() {
     );
     let verify = sextant(dir, &["verify", "out"]);
     assert_eq!(verify.code, 0, "{}{}", verify.stdout, verify.stderr);
+}
+
+#[test]
+fn ctrl_c_during_new_leaves_no_recipe_behind() {
+    let ws = tempfile::tempdir().unwrap();
+    let dir = ws.path();
+    write_table(&dir.join("t.csv"));
+    // `new` checks its starter recipe against the whole table before renaming
+    // it into place; the temporary recipe is the moment to interrupt.
+    let mut child = start(dir, &["new", "t.csv", "-o", "starter.toml"]);
+    assert!(
+        interrupt_when(&mut child, dir, ".sextant-new-"),
+        "`new` ended before its temporary recipe was seen"
+    );
+    let out = child.wait_with_output().unwrap();
+    assert_eq!(out.status.code(), Some(130), "{:?}", out);
+    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert!(!dir.join("starter.toml").exists());
 }
