@@ -251,7 +251,7 @@ fn read(data: &Path) -> Result<Loaded, Error> {
             unreachable!("every column is read as text")
         };
         names.push(column.name);
-        cells.push(values);
+        cells.push(std::sync::Arc::unwrap_or_clone(values));
     }
     if table.lines.len() < 2 {
         return Err(InputError::TooFewRows {

@@ -322,7 +322,7 @@ fn scores_show_every_row_with_groups_labels_and_ellipse() {
     let labels = texts(&doc, "labels");
     assert_eq!(labels.len(), flagged);
     for (i, _) in v.flagged.iter().enumerate().filter(|(_, f)| **f) {
-        assert!(labels.contains(&v.row_labels[i]));
+        assert!(labels.contains(&v.row_labels[i].to_string()));
     }
     // Axis titles with the shares: 2/5 and 1.25/5.
     assert_eq!(v.axis_title(0), "PC1 (40.0 %)");

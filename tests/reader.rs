@@ -229,7 +229,7 @@ v, ,plain,\"8.5\"";
         panic!("note is text")
     };
     assert_eq!(
-        notes,
+        notes.as_slice(),
         &[
             "two\nlines",
             "say \"hi\", \"twice\"",

@@ -1,35 +1,34 @@
 //! Builds the plain views that figures and the report are drawn from, and the
 //! report's summary sentences and cautions.
 
-use super::view::{Evidence, FlaggedLine, PlotView, ReportView, ScoreRows, Scores3d, VarianceLine};
+use super::view::{
+    Evidence, FlaggedLine, PlotView, ReportView, RowTexts, ScoreRows, Scores3d, VarianceLine,
+};
 use crate::recipe::raw::Keep;
 use crate::run::{Analysis, Prepared, Preprocessed};
 use crate::stages::diagnose::contributions;
 use crate::stages::select::pct;
 use crate::table::ColumnData;
 use rayon::prelude::*;
+use std::sync::Arc;
 
-/// The text of a table column (id and group columns are read as text).
-fn text_column<'a>(prepared: &'a Prepared, name: &str) -> &'a [String] {
+/// A text column of the table, shared (id and group columns are read as text).
+fn text_column(prepared: &Prepared, name: &str) -> Arc<Vec<String>> {
     match prepared.table.column(name).map(|c| &c.data) {
-        Some(ColumnData::Text(v)) => v,
+        Some(ColumnData::Text(v)) => Arc::clone(v),
         _ => unreachable!("id and group columns are read as text"),
     }
 }
 
 /// The label of each analysed row: its id, or its row number.
-pub fn row_labels(prepared: &Prepared, pre: &Preprocessed) -> Vec<String> {
+fn row_labels(prepared: &Prepared, rows: &Arc<Vec<usize>>) -> RowTexts {
     match &prepared.plan.input.id {
-        Some(id) => {
-            let ids = text_column(prepared, id);
-            pre.scaled.rows.iter().map(|&r| ids[r].clone()).collect()
-        }
-        None => pre
-            .scaled
-            .rows
-            .iter()
-            .map(|r| format!("row {}", r + 1))
-            .collect(),
+        Some(id) => RowTexts::of_rows(text_column(prepared, id), Arc::clone(rows)),
+        None => RowTexts::from(
+            rows.iter()
+                .map(|r| format!("row {}", r + 1))
+                .collect::<Vec<_>>(),
+        ),
     }
 }
 
@@ -104,6 +103,8 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
     let loadings = (0..p)
         .map(|j| (0..computed).map(|a| d.loadings.get(j, a)).collect())
         .collect();
+    // The table row of each analysed row, shared by the label and group columns.
+    let rows = Arc::new(pre.scaled.rows.clone());
     let correlations = if prepared.plan.scaling.centers() {
         correlations_of_centred(&analysis.column_squares, n, d, computed)
     } else {
@@ -153,17 +154,14 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         loadings,
         correlations,
         scores,
-        row_labels: row_labels(prepared, pre),
+        row_labels: row_labels(prepared, &rows),
         groups: plan
             .input
             .groups
             .iter()
             .map(|g| {
-                let values = text_column(prepared, g);
-                (
-                    g.clone(),
-                    pre.scaled.rows.iter().map(|&r| values[r].clone()).collect(),
-                )
+                let values = RowTexts::of_rows(text_column(prepared, g), Arc::clone(&rows));
+                (g.clone(), values)
             })
             .collect(),
         t2: diag.t2.clone(),
@@ -357,7 +355,7 @@ pub fn report_view(
                     .then(a.cmp(&b))
             });
             FlaggedLine {
-                label: view.row_labels[i].clone(),
+                label: view.row_labels[i].to_string(),
                 t2: diag.t2[i],
                 spe: diag.spe[i],
                 t2_above,
@@ -383,11 +381,14 @@ pub fn report_view(
                 ]
             })
             .collect(),
-        labels: shown.iter().map(|&i| view.row_labels[i].clone()).collect(),
+        labels: shown
+            .iter()
+            .map(|&i| view.row_labels[i].to_string())
+            .collect(),
         group: view.groups.first().map(|(name, values)| {
             (
                 name.clone(),
-                shown.iter().map(|&i| values[i].clone()).collect(),
+                shown.iter().map(|&i| values[i].to_string()).collect(),
             )
         }),
     });

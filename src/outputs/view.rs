@@ -3,6 +3,7 @@
 //! nothing else and can be tested on hand-made views.
 
 use serde::Serialize;
+use std::sync::Arc;
 
 /// Everything a plot may need.
 #[derive(Debug, Clone, Default, Serialize)]
@@ -33,9 +34,9 @@ pub struct PlotView {
     /// Each row's scores on the computed components.
     pub scores: ScoreRows,
     /// The id of each row (or its row number when there is no id column).
-    pub row_labels: Vec<String>,
+    pub row_labels: RowTexts,
     /// Group columns: name and one value per analysed row.
-    pub groups: Vec<(String, Vec<String>)>,
+    pub groups: Vec<(String, RowTexts)>,
     /// Hotelling's T² and SPE of each row, and their limits at `confidence`
     /// (the first level of the recipe); `None` where a limit is not defined.
     pub t2: Vec<f64>,
@@ -104,6 +105,80 @@ impl std::ops::Index<usize> for ScoreRows {
 impl std::ops::IndexMut<usize> for ScoreRows {
     fn index_mut(&mut self, i: usize) -> &mut [f64] {
         &mut self.data[i * self.cols..(i + 1) * self.cols]
+    }
+}
+
+/// A text for each analysed row, read from a table column it shares rather
+/// than copies (a table may have millions of rows).
+#[derive(Debug, Clone, Default)]
+pub struct RowTexts {
+    values: Arc<Vec<String>>,
+    /// The table row of each analysed row; `None`: row i is `values[i]`.
+    rows: Option<Arc<Vec<usize>>>,
+}
+
+impl RowTexts {
+    /// The texts of the analysed `rows` of a table column.
+    pub fn of_rows(values: Arc<Vec<String>>, rows: Arc<Vec<usize>>) -> RowTexts {
+        RowTexts {
+            values,
+            rows: Some(rows),
+        }
+    }
+
+    pub fn len(&self) -> usize {
+        self.rows.as_ref().map_or(self.values.len(), |r| r.len())
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    pub fn get(&self, i: usize) -> Option<&str> {
+        let at = match &self.rows {
+            Some(rows) => *rows.get(i)?,
+            None => i,
+        };
+        self.values.get(at).map(String::as_str)
+    }
+
+    pub fn iter(&self) -> impl DoubleEndedIterator<Item = &str> {
+        (0..self.len()).map(|i| &self[i])
+    }
+
+    /// The rows in the opposite order.
+    pub fn reverse(&mut self) {
+        let reversed: Vec<String> = self.iter().rev().map(String::from).collect();
+        *self = RowTexts::from(reversed);
+    }
+}
+
+impl From<Vec<String>> for RowTexts {
+    fn from(values: Vec<String>) -> RowTexts {
+        RowTexts {
+            values: Arc::new(values),
+            rows: None,
+        }
+    }
+}
+
+impl FromIterator<String> for RowTexts {
+    fn from_iter<I: IntoIterator<Item = String>>(texts: I) -> RowTexts {
+        RowTexts::from(texts.into_iter().collect::<Vec<_>>())
+    }
+}
+
+impl std::ops::Index<usize> for RowTexts {
+    type Output = str;
+
+    fn index(&self, i: usize) -> &str {
+        self.get(i).expect("a row of the view")
+    }
+}
+
+impl Serialize for RowTexts {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_seq(self.iter())
     }
 }
 

@@ -43,7 +43,7 @@ impl Table {
             .map(|((name, (text, number)), &text_kind)| Column {
                 name,
                 data: if text_kind {
-                    ColumnData::Text(text)
+                    ColumnData::Text(std::sync::Arc::new(text))
                 } else {
                     ColumnData::Numeric(number)
                 },
@@ -75,7 +75,9 @@ pub struct Column {
 /// A column's cells, kept as text for id and group columns and as numbers otherwise.
 #[derive(Debug, Clone)]
 pub enum ColumnData {
-    Text(Vec<String>),
+    /// Shared, so that the views figures are drawn from can refer to a column
+    /// of millions of labels instead of copying it.
+    Text(std::sync::Arc<Vec<String>>),
     Numeric(NumericColumn),
 }
 

@@ -181,7 +181,7 @@ mod tests {
         assert_eq!(t.columns[0].name, "id");
         assert_eq!(t.lines, vec![2, 3]);
         match &t.columns[0].data {
-            ColumnData::Text(v) => assert_eq!(v, &["x,1", "y"]),
+            ColumnData::Text(v) => assert_eq!(v.as_slice(), &["x,1", "y"]),
             _ => panic!("id should be text"),
         }
         match &t.columns[2].data {

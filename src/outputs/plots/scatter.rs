@@ -55,7 +55,7 @@ impl Groups {
         };
         let mut seen: BTreeMap<&str, usize> = BTreeMap::new();
         for v in values.iter().take(n) {
-            *seen.entry(v.as_str()).or_insert(0) += 1;
+            *seen.entry(v).or_insert(0) += 1;
         }
         let mut names: Vec<&str> = seen.keys().copied().filter(|s| !s.is_empty()).collect();
         names.sort_by(|a, b| natural_cmp(a, b));
@@ -69,7 +69,7 @@ impl Groups {
             .map(|i| {
                 values
                     .get(i)
-                    .and_then(|v| index.get(v.as_str()).copied())
+                    .and_then(|v| index.get(v).copied())
                     .unwrap_or(missing_index)
             })
             .collect();
@@ -670,7 +670,7 @@ pub fn label_rows(
         .iter()
         .map(|&i| {
             let (x, y) = at(i);
-            (x, y, view.row_labels.get(i).cloned().unwrap_or_default())
+            (x, y, view.row_labels.get(i).unwrap_or_default().to_string())
         })
         .collect();
     let marks: Vec<(f64, f64)> = sel.drawn.iter().map(|&i| at(i)).collect();
