@@ -411,13 +411,7 @@ pub fn column_squares(z: &Matrix) -> Vec<f64> {
 /// The scores of components `from..to` (each entry the same dot product as in
 /// [`scores`], so splitting the components changes no bit).
 pub fn scores_between(z: &Matrix, loadings: &Matrix, from: usize, to: usize) -> Matrix {
-    let mut v = Matrix::zeros(loadings.rows, to - from);
-    for j in 0..loadings.rows {
-        for a in from..to {
-            v.set(j, a - from, loadings.get(j, a));
-        }
-    }
-    crate::linalg::crossprod::times(z, &v)
+    crate::linalg::crossprod::times(z, &loadings.columns(from, to))
 }
 
 /// How many loadings to compute before the number of components is chosen: the

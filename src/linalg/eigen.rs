@@ -12,8 +12,9 @@
 //!    Martin, Reinsch & Wilkinson (1968), "The QR and QL algorithms for
 //!    symmetric matrices", *Numerische Mathematik* 11, 293–306 (their `tql2`),
 //!    run on T in reverse order so that a graded matrix keeps the relative
-//!    accuracy of its small eigenvalues. Instead of accumulating a p × p matrix of rotations, each plane rotation
-//!    (c, s) is written to a log, sweep by sweep.
+//!    accuracy of its small eigenvalues. Instead of accumulating a p × p matrix
+//!    of rotations, each plane rotation (c, s) is written to a log, sweep by
+//!    sweep.
 //! 3. Only for the eigenvectors wanted: the eigenvector of T is the column that
 //!    `tql2` would have accumulated, R₁R₂⋯R_N e_j, formed by applying the logged
 //!    rotations in reverse to e_j; the Householder reflectors then carry it to

@@ -59,6 +59,18 @@ impl Matrix {
         (0..self.rows).map(|i| self.get(i, j)).collect()
     }
 
+    /// Columns `from..to` as a matrix of their own.
+    pub fn columns(&self, from: usize, to: usize) -> Matrix {
+        let data = (0..self.rows)
+            .flat_map(|i| self.row(i)[from..to].iter().copied())
+            .collect();
+        Matrix {
+            rows: self.rows,
+            cols: to - from,
+            data,
+        }
+    }
+
     pub fn transpose(&self) -> Matrix {
         let mut t = Matrix::zeros(self.cols, self.rows);
         for i in 0..self.rows {

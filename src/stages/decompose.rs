@@ -190,14 +190,7 @@ fn finish(
     loadings: &Matrix,
     route: Route,
 ) -> Decomposition {
-    let p = loadings.rows;
-    let columns = r.min(loadings.cols);
-    let mut kept = Matrix::zeros(p, columns);
-    for i in 0..p {
-        for a in 0..columns {
-            kept.set(i, a, loadings.get(i, a));
-        }
-    }
+    let mut kept = loadings.columns(0, r.min(loadings.cols));
     fix_signs(&mut kept);
     Decomposition {
         eigenvalues: values,
@@ -222,11 +215,5 @@ fn rank(values: &[f64], n: usize, p: usize, bound: usize) -> usize {
 
 /// Scores: the scaled rows times the first `k` loadings.
 pub fn scores(z: &Matrix, loadings: &Matrix, k: usize) -> Matrix {
-    let mut v = Matrix::zeros(loadings.rows, k);
-    for i in 0..loadings.rows {
-        for a in 0..k {
-            v.set(i, a, loadings.get(i, a));
-        }
-    }
-    times(z, &v)
+    times(z, &loadings.columns(0, k))
 }

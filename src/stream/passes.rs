@@ -142,13 +142,6 @@ impl Features {
     }
 }
 
-/// Loadings `from..to` as a row-major p × (to − from) matrix's values.
-fn columns_of(loadings: &Matrix, from: usize, to: usize) -> Vec<f64> {
-    (0..loadings.rows)
-        .flat_map(|j| (from..to).map(move |a| loadings.get(j, a)))
-        .collect()
-}
-
 /// `count` consecutive pieces of `size` values (the last may be shorter, and all
 /// are empty when `size` is 0), so that blocks of rows can be zipped with their
 /// share of an output whose width may be zero.
@@ -634,8 +627,8 @@ pub fn analyse(
     // Pass 5.
     crate::progress::current().stage("pass 5 of 6: scores, T² and SPE");
     let more = computed - kept;
-    let v_kept = columns_of(loadings, 0, kept);
-    let v_more = columns_of(loadings, kept, computed);
+    let v_kept = loadings.columns(0, kept).data;
+    let v_more = loadings.columns(kept, computed).data;
     let statistics = RowStatistics::new(loadings, kept, &decomposition.eigenvalues);
     let mut t_kept = Vec::with_capacity(n * kept);
     let mut t_more = Vec::with_capacity(n * more);
