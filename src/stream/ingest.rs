@@ -212,7 +212,7 @@ fn read_all(
                 continue;
             }
             store
-                .push(Chunk { rows, values }, scratch)
+                .push(Chunk::numbers(rows, values), scratch)
                 .map_err(|source| InputError::Io {
                     path: format!("a scratch file in {}", scratch.display()),
                     source,

@@ -1,4 +1,5 @@
-//! Where the passes engine keeps the table's numbers between passes: in memory
+//! Where the passes engine keeps rows between passes: the table's numbers (with
+//! its text cells and line numbers), and later the rows' results. In memory
 //! while they fit the memory budget, otherwise in a scratch file beside the
 //! results folder that each pass reads back in order.
 
@@ -6,15 +7,40 @@ use std::fs::File;
 use std::io::{self, Read, Seek, SeekFrom, Write};
 use std::path::Path;
 
-/// A run of consecutive table rows: `rows` × the store's width, row by row.
+/// A run of consecutive rows: `rows` × the store's width of numbers, row by
+/// row, and as many texts per row as the store's text width.
+#[derive(Debug, Clone, Default)]
 pub struct Chunk {
     pub rows: usize,
     pub values: Vec<f64>,
+    /// Rows × the text width, row by row.
+    pub texts: Vec<String>,
+    /// The file line of each row, when the store keeps lines (else empty).
+    pub lines: Vec<u64>,
 }
 
-/// The table's numeric columns, chunk by chunk, in file order.
+impl Chunk {
+    /// A chunk of numbers only.
+    pub fn numbers(rows: usize, values: Vec<f64>) -> Chunk {
+        Chunk {
+            rows,
+            values,
+            texts: Vec::new(),
+            lines: Vec::new(),
+        }
+    }
+
+    /// Bytes the chunk holds in memory (texts counted with their `String`).
+    fn bytes(&self) -> u64 {
+        let texts: usize = self.texts.iter().map(|t| t.len() + 24).sum();
+        (self.values.len() * 8 + self.lines.len() * 8 + texts) as u64
+    }
+}
+
+/// Rows, chunk by chunk, in order.
 pub struct Store {
     width: usize,
+    text_width: usize,
     /// Bytes of values allowed in memory.
     limit: u64,
     held: Vec<Chunk>,
@@ -31,16 +57,18 @@ struct Spill {
     file: tempfile::NamedTempFile,
     /// Removes the scratch file if the process is interrupted.
     _registered: crate::cleanup::Registration,
-    /// Rows of each chunk, in order.
-    chunks: Vec<usize>,
+    /// Each chunk's rows, where it starts and its length in bytes.
+    chunks: Vec<(usize, u64, usize)>,
+    end: u64,
 }
 
 impl Store {
-    /// An empty store for rows of `width` values that keeps up to `limit` bytes
-    /// in memory; beyond that every chunk goes to a scratch file made in `dir`.
+    /// An empty store for rows of `width` numbers (and no texts) that keeps up to
+    /// `limit` bytes in memory; beyond that every chunk goes to a scratch file.
     pub fn new(width: usize, limit: u64) -> Store {
         Store {
             width,
+            text_width: 0,
             limit,
             held: Vec::new(),
             held_bytes: 0,
@@ -50,25 +78,37 @@ impl Store {
         }
     }
 
+    /// The same store with `text_width` texts per row.
+    pub fn with_texts(mut self, text_width: usize) -> Store {
+        self.text_width = text_width;
+        self
+    }
+
     pub fn width(&self) -> usize {
         self.width
+    }
+
+    pub fn text_width(&self) -> usize {
+        self.text_width
     }
 
     pub fn rows(&self) -> usize {
         self.rows
     }
 
-    /// Whether the values went to the scratch file.
+    /// Whether the rows went to the scratch file.
     pub fn spilled(&self) -> bool {
         self.spill.is_some()
     }
 
     /// Adds the next rows; moves everything to a scratch file in `dir` once the
-    /// values held would pass the limit.
+    /// bytes held would pass the limit.
     pub fn push(&mut self, chunk: Chunk, dir: &Path) -> io::Result<()> {
         debug_assert_eq!(chunk.values.len(), chunk.rows * self.width);
+        debug_assert_eq!(chunk.texts.len(), chunk.rows * self.text_width);
+        debug_assert!(chunk.lines.is_empty() || chunk.lines.len() == chunk.rows);
         self.rows += chunk.rows;
-        let bytes = (chunk.values.len() * 8) as u64;
+        let bytes = chunk.bytes();
         if self.spill.is_none() && self.held_bytes + bytes <= self.limit {
             self.held_bytes += bytes;
             self.held.push(chunk);
@@ -82,6 +122,7 @@ impl Store {
                 _registered: crate::cleanup::register(file.path()),
                 file,
                 chunks: Vec::new(),
+                end: 0,
             };
             for held in self.held.drain(..) {
                 spill.write(&held)?;
@@ -92,7 +133,7 @@ impl Store {
         self.spill.as_mut().expect("made above").write(&chunk)
     }
 
-    /// Calls `f` with every chunk in order (a pass over the table).
+    /// Calls `f` with every chunk in order (a pass over the rows).
     pub fn pass<E: From<io::Error>>(
         &self,
         mut f: impl FnMut(&Chunk) -> Result<(), E>,
@@ -104,23 +145,20 @@ impl Store {
                 file.seek(SeekFrom::Start(0))?;
                 let mut reader = io::BufReader::with_capacity(1 << 20, file);
                 let mut bytes = Vec::new();
-                for &rows in &spill.chunks {
-                    bytes.resize(rows * self.width * 8, 0);
+                for &(rows, _, length) in &spill.chunks {
+                    bytes.resize(length, 0);
                     reader.read_exact(&mut bytes)?;
-                    f(&Chunk {
-                        rows,
-                        values: decode(&bytes),
-                    })?;
+                    f(&decode(&bytes, rows, self.width, self.text_width)?)?;
                 }
                 Ok(())
             }
         }
     }
-}
 
-impl Store {
-    /// Changes every chunk in place with `f` (in the scratch file, each chunk is
-    /// read, changed and written back where it was).
+    /// Changes the numbers of every chunk in place with `f`, which must leave
+    /// the texts and lines as they are (in the scratch file, each chunk's
+    /// numbers are read, changed and written back where they were; `f` then
+    /// sees no texts or lines).
     pub fn update(&mut self, mut f: impl FnMut(&mut Chunk)) -> io::Result<()> {
         let width = self.width;
         match &mut self.spill {
@@ -130,21 +168,17 @@ impl Store {
             }
             Some(spill) => {
                 let file = spill.file.as_file_mut();
-                let mut at = 0u64;
                 let mut bytes = Vec::new();
-                for &rows in &spill.chunks {
+                for &(rows, at, _) in &spill.chunks {
                     bytes.resize(rows * width * 8, 0);
                     file.seek(SeekFrom::Start(at))?;
                     file.read_exact(&mut bytes)?;
-                    let mut chunk = Chunk {
-                        rows,
-                        values: decode(&bytes),
-                    };
+                    let mut chunk = Chunk::numbers(rows, numbers(&bytes));
                     f(&mut chunk);
-                    encode(&chunk.values, &mut bytes);
+                    bytes.clear();
+                    put_numbers(&chunk.values, &mut bytes);
                     file.seek(SeekFrom::Start(at))?;
                     file.write_all(&bytes)?;
-                    at += bytes.len() as u64;
                 }
                 Ok(())
             }
@@ -154,28 +188,77 @@ impl Store {
 
 impl Spill {
     fn write(&mut self, chunk: &Chunk) -> io::Result<()> {
-        let mut bytes = vec![0; chunk.values.len() * 8];
-        encode(&chunk.values, &mut bytes);
+        let bytes = encode(chunk);
         let file: &mut File = self.file.as_file_mut();
-        file.seek(SeekFrom::End(0))?;
+        file.seek(SeekFrom::Start(self.end))?;
         file.write_all(&bytes)?;
-        self.chunks.push(chunk.rows);
+        self.chunks.push((chunk.rows, self.end, bytes.len()));
+        self.end += bytes.len() as u64;
         Ok(())
     }
 }
 
-/// Values as the scratch file holds them: 8 little-endian bytes each, the exact bits.
-fn encode(values: &[f64], bytes: &mut [u8]) {
-    for (b, v) in bytes.chunks_exact_mut(8).zip(values) {
-        b.copy_from_slice(&v.to_le_bytes());
+/// A chunk as the scratch file holds it: its numbers (8 little-endian bytes
+/// each, the exact bits), a flag and its lines, then each text as its length
+/// (4 bytes) and its UTF-8 bytes.
+fn encode(chunk: &Chunk) -> Vec<u8> {
+    let texts: usize = chunk.texts.iter().map(|t| t.len() + 4).sum();
+    let mut bytes = Vec::with_capacity((chunk.values.len() + chunk.lines.len()) * 8 + 1 + texts);
+    put_numbers(&chunk.values, &mut bytes);
+    bytes.push(u8::from(!chunk.lines.is_empty()));
+    for line in &chunk.lines {
+        bytes.extend_from_slice(&line.to_le_bytes());
+    }
+    for text in &chunk.texts {
+        let length = u32::try_from(text.len()).expect("a cell of a chunk is under 4 GB");
+        bytes.extend_from_slice(&length.to_le_bytes());
+        bytes.extend_from_slice(text.as_bytes());
+    }
+    bytes
+}
+
+fn put_numbers(values: &[f64], bytes: &mut Vec<u8>) {
+    for v in values {
+        bytes.extend_from_slice(&v.to_le_bytes());
     }
 }
 
-fn decode(bytes: &[u8]) -> Vec<f64> {
+fn numbers(bytes: &[u8]) -> Vec<f64> {
     bytes
         .chunks_exact(8)
         .map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")))
         .collect()
+}
+
+/// The chunk [`encode`] wrote.
+fn decode(bytes: &[u8], rows: usize, width: usize, text_width: usize) -> io::Result<Chunk> {
+    let broken = || io::Error::new(io::ErrorKind::InvalidData, "a scratch file was changed");
+    let (values, mut rest) = bytes.split_at(rows * width * 8);
+    let (&has_lines, tail) = rest.split_first().ok_or_else(broken)?;
+    rest = tail;
+    let mut lines = Vec::new();
+    if has_lines == 1 {
+        let (raw, tail) = rest.split_at(rows * 8);
+        lines = raw
+            .chunks_exact(8)
+            .map(|b| u64::from_le_bytes(b.try_into().expect("8 bytes")))
+            .collect();
+        rest = tail;
+    }
+    let mut texts = Vec::with_capacity(rows * text_width);
+    for _ in 0..rows * text_width {
+        let length = rest.get(..4).ok_or_else(broken)?;
+        let length = u32::from_le_bytes(length.try_into().expect("4 bytes")) as usize;
+        let text = rest.get(4..4 + length).ok_or_else(broken)?;
+        texts.push(String::from_utf8(text.to_vec()).map_err(|_| broken())?);
+        rest = &rest[4 + length..];
+    }
+    Ok(Chunk {
+        rows,
+        values: numbers(values),
+        texts,
+        lines,
+    })
 }
 
 #[cfg(test)]
@@ -188,25 +271,37 @@ mod tests {
             values: (0..rows * width)
                 .map(|i| (first * width + i) as f64 * 0.1 - 3.0)
                 .collect(),
+            // Two texts per row, one of them empty or not ASCII now and then.
+            texts: (first..first + rows)
+                .flat_map(|r| [format!("id-{r}"), ["", "é", "x,y"][r % 3].to_string()])
+                .collect(),
+            lines: (first..first + rows).map(|r| 2 + 3 * r as u64).collect(),
         }
     }
 
     fn read_all(store: &Store) -> Vec<f64> {
-        let mut all = Vec::new();
+        read_rows(store).0
+    }
+
+    /// Every value, text and line, in order.
+    fn read_rows(store: &Store) -> (Vec<f64>, Vec<String>, Vec<u64>) {
+        let (mut values, mut texts, mut lines) = (Vec::new(), Vec::new(), Vec::new());
         store
             .pass(|c: &Chunk| -> io::Result<()> {
-                all.extend_from_slice(&c.values);
+                values.extend_from_slice(&c.values);
+                texts.extend_from_slice(&c.texts);
+                lines.extend_from_slice(&c.lines);
                 Ok(())
             })
             .unwrap();
-        all
+        (values, texts, lines)
     }
 
     #[test]
     fn spilled_and_held_stores_give_the_same_values() {
         let dir = tempfile::tempdir().unwrap();
-        let mut held = Store::new(3, u64::MAX);
-        let mut spilled = Store::new(3, 100);
+        let mut held = Store::new(3, u64::MAX).with_texts(2);
+        let mut spilled = Store::new(3, 100).with_texts(2);
         let mut first = 0;
         for rows in [2, 5, 1, 7] {
             held.push(chunk(first, rows, 3), dir.path()).unwrap();
@@ -220,6 +315,16 @@ mod tests {
         let b = read_all(&spilled);
         assert_eq!(a.len(), 45);
         assert!(a.iter().zip(&b).all(|(x, y)| x.to_bits() == y.to_bits()));
+        // The texts and lines come back as they went in.
+        let (_, texts, lines) = read_rows(&spilled);
+        assert_eq!((texts.clone(), lines.clone()), {
+            let (_, t, l) = read_rows(&held);
+            (t, l)
+        });
+        assert_eq!(texts.len(), 30);
+        assert_eq!((texts[28].as_str(), texts[29].as_str()), ("id-14", "x,y"));
+        assert_eq!(texts[3], "é");
+        assert_eq!(lines[14], 44);
         // A second pass reads the same again.
         assert_eq!(read_all(&spilled), b);
         // Changed in place, both the same again.
@@ -231,6 +336,9 @@ mod tests {
         let (a, b) = (read_all(&held), read_all(&spilled));
         assert_eq!(a[44], -2.0 * (44.0 * 0.1 - 3.0));
         assert!(a.iter().zip(&b).all(|(x, y)| x.to_bits() == y.to_bits()));
+        // Changing the numbers left the texts and lines where they were.
+        assert_eq!(read_rows(&spilled).1, texts);
+        assert_eq!(read_rows(&spilled).2, lines);
         // The scratch file goes away with the store.
         drop(spilled);
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
