@@ -17,6 +17,7 @@ pub mod paths;
 pub mod pin;
 pub mod progress;
 pub mod recipe;
+pub mod rows;
 pub mod run;
 pub mod stages;
 pub mod starter;

@@ -153,6 +153,28 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         },
         loadings,
         correlations,
+        rows: Arc::new(crate::rows::RowResults::from_parts(
+            scores.cols,
+            &pre.scaled.rows,
+            &scores.data,
+            &diag.t2,
+            &diag.spe,
+            plan.input.id.as_ref().map(|id| {
+                let values = text_column(prepared, id);
+                (
+                    id.clone(),
+                    rows.iter().map(|&r| values[r].clone()).collect(),
+                )
+            }),
+            plan.input
+                .groups
+                .iter()
+                .map(|g| {
+                    let values = text_column(prepared, g);
+                    (g.clone(), rows.iter().map(|&r| values[r].clone()).collect())
+                })
+                .collect(),
+        )),
         scores,
         row_labels: row_labels(prepared, &rows),
         groups: plan

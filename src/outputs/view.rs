@@ -31,6 +31,10 @@ pub struct PlotView {
     /// `correlations[feature][component]`: Pearson correlation of each scaled
     /// feature with each component's scores.
     pub correlations: Vec<Vec<f64>>,
+    /// Every analysed row's scores on the computed components, T², SPE, id and
+    /// group values, read in runs of rows (they may be in a scratch file).
+    #[serde(skip)]
+    pub rows: Arc<crate::rows::RowResults>,
     /// Each row's scores on the computed components.
     pub scores: ScoreRows,
     /// The id of each row (or its row number when there is no id column).
@@ -198,6 +202,11 @@ pub struct Evidence {
 }
 
 impl PlotView {
+    /// Whether a row with these T² and SPE is above a limit at `confidence`.
+    pub fn is_flagged(&self, t2: f64, spe: f64) -> bool {
+        self.t2_limit.is_some_and(|l| t2 > l) || self.spe_limit.is_some_and(|l| spe > l)
+    }
+
     /// The share of the variance of component `a` (0-based).
     pub fn share(&self, a: usize) -> f64 {
         self.eigenvalues[a] / self.total_variance

@@ -1,0 +1,340 @@
+//! The analysed rows' results: each row's table row, scores, T², SPE, id and
+//! group values, in row order. Both engines hand the outputs these rows in
+//! chunks, so every table, figure and list that reads all rows does it in one
+//! way; a table larger than the memory budget keeps them in a scratch file
+//! (the same [`Store`] the table's numbers use), so that no output holds a
+//! copy of every row.
+
+use crate::stream::store::{Chunk, Store};
+use std::borrow::Cow;
+use std::io;
+use std::path::{Path, PathBuf};
+use std::sync::Mutex;
+
+/// Rows per chunk when the results are built from whole vectors.
+const CHUNK_ROWS: usize = 1 << 16;
+
+/// The results of every analysed row.
+pub struct RowResults {
+    /// Per row: the table row, the scores, T² and SPE; then the id (when the
+    /// table has one) and the group values as texts.
+    store: Store,
+    /// Scores per row (the computed components).
+    cols: usize,
+    /// The id column's name, if any.
+    pub id: Option<String>,
+    /// The group columns' names.
+    pub groups: Vec<String>,
+    /// Where a spilled store's scratch file goes.
+    scratch: PathBuf,
+    /// The first error reading the scratch file back, for [`RowResults::scan`].
+    failed: Mutex<Option<io::Error>>,
+}
+
+/// What one row brings to [`RowResults::push`].
+pub struct RowsIn<'a> {
+    /// The table row (0-based) of each row.
+    pub table_rows: &'a [usize],
+    /// Rows × `cols` scores.
+    pub scores: &'a [f64],
+    pub t2: &'a [f64],
+    pub spe: &'a [f64],
+    /// Rows × (id? + groups) texts.
+    pub texts: Vec<String>,
+}
+
+impl RowResults {
+    /// Empty results with `cols` scores per row, keeping up to `limit` bytes in
+    /// memory and the rest in a scratch file in `scratch`.
+    pub fn new(
+        cols: usize,
+        id: Option<String>,
+        groups: Vec<String>,
+        limit: u64,
+        scratch: &Path,
+    ) -> RowResults {
+        let texts = usize::from(id.is_some()) + groups.len();
+        RowResults {
+            store: Store::new(cols + 3, limit).with_texts(texts),
+            cols,
+            id,
+            groups,
+            scratch: scratch.to_path_buf(),
+            failed: Mutex::new(None),
+        }
+    }
+
+    /// Results held in memory, from whole columns (for the in-memory engine and
+    /// for tests): `table_rows` holds the table row of each row, `scores` is
+    /// rows × `cols`; `ids` and each group hold a text per row.
+    pub fn from_parts(
+        cols: usize,
+        table_rows: &[usize],
+        scores: &[f64],
+        t2: &[f64],
+        spe: &[f64],
+        id: Option<(String, Vec<String>)>,
+        groups: Vec<(String, Vec<String>)>,
+    ) -> RowResults {
+        let n = t2.len();
+        assert_eq!(scores.len(), n * cols, "scores for every row");
+        assert_eq!(spe.len(), n, "an SPE for every row");
+        assert_eq!(table_rows.len(), n, "a table row for every row");
+        let (id_name, ids) = id.map_or((None, None), |(name, ids)| (Some(name), Some(ids)));
+        let names = groups.iter().map(|(name, _)| name.clone()).collect();
+        let mut results = RowResults::new(cols, id_name, names, u64::MAX, Path::new("."));
+        for first in (0..n).step_by(CHUNK_ROWS) {
+            let last = n.min(first + CHUNK_ROWS);
+            let mut texts = Vec::new();
+            for i in first..last {
+                texts.extend(ids.iter().map(|v| v[i].clone()));
+                texts.extend(groups.iter().map(|(_, v)| v[i].clone()));
+            }
+            results
+                .push(RowsIn {
+                    table_rows: &table_rows[first..last],
+                    scores: &scores[first * cols..last * cols],
+                    t2: &t2[first..last],
+                    spe: &spe[first..last],
+                    texts,
+                })
+                .expect("results in memory are never written to a file");
+        }
+        results
+    }
+
+    /// Adds the next rows.
+    pub fn push(&mut self, rows: RowsIn) -> io::Result<()> {
+        let m = rows.t2.len();
+        let mut values = Vec::with_capacity(m * (self.cols + 3));
+        for i in 0..m {
+            values.push(rows.table_rows[i] as f64);
+            values.extend_from_slice(&rows.scores[i * self.cols..(i + 1) * self.cols]);
+            values.extend([rows.t2[i], rows.spe[i]]);
+        }
+        let chunk = Chunk {
+            rows: m,
+            values,
+            texts: rows.texts,
+            lines: Vec::new(),
+        };
+        self.store.push(chunk, &self.scratch)
+    }
+
+    /// The number of rows.
+    pub fn len(&self) -> usize {
+        self.store.rows()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Scores per row.
+    pub fn cols(&self) -> usize {
+        self.cols
+    }
+
+    /// Whether the rows are in a scratch file.
+    pub fn spilled(&self) -> bool {
+        self.store.spilled()
+    }
+
+    /// Calls `f` with every run of rows, in order.
+    pub fn each(&self, mut f: impl FnMut(&Batch)) -> io::Result<()> {
+        let mut first = 0;
+        self.store.pass(|chunk: &Chunk| -> io::Result<()> {
+            f(&Batch {
+                first,
+                chunk,
+                cols: self.cols,
+                texts: self.store.text_width(),
+                has_id: self.id.is_some(),
+            });
+            first += chunk.rows;
+            Ok(())
+        })
+    }
+
+    /// [`RowResults::each`] for drawing code that cannot return an error: a
+    /// failure to read the scratch file is kept, and the caller asks for it
+    /// with [`RowResults::take_error`] once the drawing is done.
+    pub fn scan(&self, f: impl FnMut(&Batch)) {
+        if let Err(e) = self.each(f) {
+            let mut failed = self.failed.lock().expect("no scan panicked");
+            failed.get_or_insert(e);
+        }
+    }
+
+    /// The first error a [`RowResults::scan`] met, if any.
+    pub fn take_error(&self) -> Option<io::Error> {
+        self.failed.lock().expect("no scan panicked").take()
+    }
+
+    /// The index among the group columns of the column called `name`.
+    pub fn group_index(&self, name: &str) -> Option<usize> {
+        self.groups.iter().position(|g| g == name)
+    }
+}
+
+impl Default for RowResults {
+    fn default() -> RowResults {
+        RowResults::from_parts(0, &[], &[], &[], &[], None, Vec::new())
+    }
+}
+
+impl std::fmt::Debug for RowResults {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("RowResults")
+            .field("rows", &self.len())
+            .field("cols", &self.cols)
+            .field("id", &self.id)
+            .field("groups", &self.groups)
+            .finish()
+    }
+}
+
+/// A run of consecutive rows of [`RowResults`].
+pub struct Batch<'a> {
+    /// The index of the run's first row among all the rows.
+    pub first: usize,
+    chunk: &'a Chunk,
+    cols: usize,
+    texts: usize,
+    has_id: bool,
+}
+
+impl<'a> Batch<'a> {
+    /// Rows in the run.
+    pub fn len(&self) -> usize {
+        self.chunk.rows
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    fn values(&self, i: usize) -> &'a [f64] {
+        let width = self.cols + 3;
+        &self.chunk.values[i * width..(i + 1) * width]
+    }
+
+    /// The table row (0-based) of the run's row `i`.
+    pub fn table_row(&self, i: usize) -> usize {
+        self.values(i)[0] as usize
+    }
+
+    /// The scores of the run's row `i`.
+    pub fn scores(&self, i: usize) -> &'a [f64] {
+        &self.values(i)[1..1 + self.cols]
+    }
+
+    pub fn t2(&self, i: usize) -> f64 {
+        self.values(i)[1 + self.cols]
+    }
+
+    pub fn spe(&self, i: usize) -> f64 {
+        self.values(i)[2 + self.cols]
+    }
+
+    /// The id of the run's row `i`, when the table has an id column.
+    pub fn id(&self, i: usize) -> Option<&'a str> {
+        self.has_id
+            .then(|| self.chunk.texts[i * self.texts].as_str())
+    }
+
+    /// What names the row in figures and lists: its id, or "row N" (N its
+    /// 1-based table row) when there is no id column.
+    pub fn label(&self, i: usize) -> Cow<'a, str> {
+        match self.id(i) {
+            Some(id) => Cow::Borrowed(id),
+            None => Cow::Owned(format!("row {}", self.table_row(i) + 1)),
+        }
+    }
+
+    /// The value of group column `g` in the run's row `i`.
+    pub fn group(&self, g: usize, i: usize) -> &'a str {
+        &self.chunk.texts[i * self.texts + usize::from(self.has_id) + g]
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Every row's values and texts as the batches give them.
+    fn rows_of(results: &RowResults) -> Vec<(usize, usize, Vec<f64>, String, String)> {
+        let mut out = Vec::new();
+        results
+            .each(|b| {
+                for i in 0..b.len() {
+                    let mut v = b.scores(i).to_vec();
+                    v.extend([b.t2(i), b.spe(i)]);
+                    out.push((
+                        b.first + i,
+                        b.table_row(i),
+                        v,
+                        b.label(i).into_owned(),
+                        b.group(0, i).to_string(),
+                    ));
+                }
+            })
+            .unwrap();
+        out
+    }
+
+    #[test]
+    fn spilled_results_read_back_the_same() {
+        let dir = tempfile::tempdir().unwrap();
+        let n = 50;
+        let scores: Vec<f64> = (0..2 * n).map(|i| i as f64 / 7.0 - 3.0).collect();
+        let t2: Vec<f64> = (0..n).map(|i| i as f64 * 0.5).collect();
+        let spe: Vec<f64> = (0..n).map(|i| 1.0 / (i + 1) as f64).collect();
+        let ids: Vec<String> = (0..n).map(|i| format!("s{i}")).collect();
+        let group: Vec<String> = (0..n).map(|i| ["a", "", "b"][i % 3].to_string()).collect();
+        let all: Vec<usize> = (0..n).collect();
+        let whole = RowResults::from_parts(
+            2,
+            &all,
+            &scores,
+            &t2,
+            &spe,
+            Some(("id".into(), ids.clone())),
+            vec![("g".into(), group.clone())],
+        );
+        // The same rows in runs of 7 through a store that spills at once, with
+        // every table row shifted by 10 (as when rows were dropped).
+        let mut spilled = RowResults::new(2, Some("id".into()), vec!["g".into()], 64, dir.path());
+        for first in (0..n).step_by(7) {
+            let last = n.min(first + 7);
+            let table_rows: Vec<usize> = (first + 10..last + 10).collect();
+            spilled
+                .push(RowsIn {
+                    table_rows: &table_rows,
+                    scores: &scores[2 * first..2 * last],
+                    t2: &t2[first..last],
+                    spe: &spe[first..last],
+                    texts: (first..last)
+                        .flat_map(|i| [ids[i].clone(), group[i].clone()])
+                        .collect(),
+                })
+                .unwrap();
+        }
+        assert!(spilled.spilled() && !whole.spilled());
+        let (a, b) = (rows_of(&whole), rows_of(&spilled));
+        assert_eq!(a.len(), n);
+        for (x, y) in a.iter().zip(&b) {
+            assert_eq!(x.0, y.0);
+            assert_eq!(x.1 + 10, y.1);
+            assert_eq!((&x.2, &x.3, &x.4), (&y.2, &y.3, &y.4));
+        }
+        assert_eq!(a[49].2, vec![scores[98], scores[99], 24.5, 0.02]);
+        assert_eq!(a[4].4, "");
+        // Without an id, rows are named by their 1-based table row.
+        let unnamed =
+            RowResults::from_parts(2, &all, &scores, &t2, &spe, None, vec![("g".into(), group)]);
+        assert_eq!(rows_of(&unnamed)[4].3, "row 5");
+        drop(spilled);
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
+    }
+}
