@@ -18,6 +18,7 @@
 pub mod ingest;
 pub mod passes;
 pub mod store;
+pub mod unique;
 
 use crate::recipe::raw::{DecompositionMethod, Keep, MissingMethod, RawRecipe, ScalingMethod};
 
