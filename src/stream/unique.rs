@@ -464,7 +464,7 @@ mod tests {
 
     #[test]
     fn random_columns_match_the_in_memory_reference() {
-        let mut rng = Lcg(0x5eed_1d5);
+        let mut rng = Lcg(2024);
         let dir = tempfile::tempdir().unwrap();
         let mut seen = [0usize; 3]; // no problem, empty, repeat
         for case in 0..1500 {
