@@ -17,8 +17,9 @@ use crate::outputs::manifest::{self, FileRecord, InputRecord, RunInfo};
 use crate::outputs::model::{Fill, Model};
 use crate::outputs::tables::{self, RowLabels};
 use crate::recipe::plan::Transform;
+use crate::rows::RowResults;
 use crate::stages::decompose::scores;
-use crate::stages::diagnose::{Diagnostics, Limits, contributions, row_statistics};
+use crate::stages::diagnose::{Limits, contributions, diagnose_all, row_statistics, with_limits};
 use crate::stages::impute::{fill_row_from_model, fill_row_from_reference};
 use crate::stages::missing::FilledCell;
 use crate::stages::transform::apply_transforms;
@@ -289,10 +290,9 @@ pub fn apply(
             t2: l.t2_new_rows,
             t2_new_rows: l.t2_new_rows,
             spe: l.spe,
-            t2_flagged: l
-                .t2_new_rows
-                .map_or(0, |u| t2.iter().filter(|&&v| v > u).count()),
-            spe_flagged: l.spe.map_or(0, |u| spe.iter().filter(|&&v| v > u).count()),
+            // Counted with the rows below.
+            t2_flagged: 0,
+            spe_flagged: 0,
         })
         .collect();
     let spe_method = if model.spe_limit == "box" {
@@ -300,14 +300,15 @@ pub fn apply(
     } else {
         crate::recipe::raw::SpeLimit::JacksonMudholkar
     };
-    let diagnostics = Diagnostics {
-        t2,
-        spe,
-        limits,
-        spe_method,
-        moments: None,
-        notes: Vec::new(),
-    };
+    let max_rows = source
+        .pointer("/recipe/resolved/diagnostics/contributions_max_rows")
+        .and_then(Value::as_u64)
+        .unwrap_or(1000) as usize;
+    let diagnostics = diagnose_all(
+        with_limits(limits, spe_method, None, Vec::new(), max_rows),
+        &t2,
+        &spe,
+    );
 
     // Result files.
     let text_of = |name: &str| match table.column(name).map(|c| &c.data) {
@@ -319,18 +320,28 @@ pub fn apply(
         id: id.as_deref().map(|n| (n, text_of(n))),
         groups: groups.iter().map(|g| (g.as_str(), text_of(g))).collect(),
     };
-    let max_rows = source
-        .pointer("/recipe/resolved/diagnostics/contributions_max_rows")
-        .and_then(Value::as_u64)
-        .unwrap_or(1000) as usize;
-    let mut chosen = diagnostics.most_unusual(max_rows);
-    chosen.sort_unstable();
-    let flagged: Vec<(usize, Vec<(f64, f64)>)> = chosen
-        .into_iter()
-        .map(|i| {
+    let texts = |name: &str| -> Vec<String> {
+        let values = text_of(name);
+        scored_rows.iter().map(|&r| values[r].clone()).collect()
+    };
+    let rows = RowResults::from_parts(
+        k,
+        &scored_rows,
+        &t.data,
+        &t2,
+        &spe,
+        id.as_deref().map(|n| (n.to_string(), texts(n))),
+        groups.iter().map(|g| (g.clone(), texts(g))).collect(),
+    );
+    let chosen = diagnostics.most_unusual(max_rows);
+    let values = chosen.iter().map(|&i| (i, z.row(i).to_vec())).collect();
+    let details = crate::run::row_details(&rows, k, values)?;
+    let flagged: Vec<(&crate::run::RowDetail, Vec<(f64, f64)>)> = details
+        .values()
+        .map(|d| {
             (
-                i,
-                contributions(z.row(i), &loadings, &t, &model.eigenvalues, i),
+                d,
+                contributions(&d.z, &loadings, &d.scores, &model.eigenvalues),
             )
         })
         .collect();
@@ -338,11 +349,12 @@ pub fn apply(
     let files: Vec<(String, Vec<u8>)> = vec![
         (
             "scores.csv".into(),
-            tables::scores_csv(&labels, &t, &diagnostics),
+            tables::scores_csv(&rows, k, &diagnostics)
+                .map_err(|e| crate::error::OutputError::io(Path::new("a scratch file"), e))?,
         ),
         (
             "contributions.csv".into(),
-            tables::contributions_csv(&labels, &names, &flagged),
+            tables::contributions_csv(&rows, &names, &flagged),
         ),
         ("imputed.csv".into(), tables::imputed_csv(&labels, &filled)),
     ];

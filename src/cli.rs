@@ -414,7 +414,7 @@ pub fn describe_run(s: &RunSummary) -> String {
     let _ = writeln!(
         out,
         "           {} rows above a limit at some level; contributions.csv says which features made them so",
-        s.analysis.diagnostics.flagged_rows().len()
+        s.analysis.diagnostics.flagged
     );
     for note in &s.analysis.diagnostics.notes {
         let _ = writeln!(out, "  note     {note}");

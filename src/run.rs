@@ -13,12 +13,11 @@ use crate::recipe::raw::DEFAULT_COMPUTE;
 use crate::recipe::raw::Keep;
 use crate::recipe::resolved::resolved_recipe;
 use crate::recipe::{self, LoadedRecipe};
+use crate::rows::RowResults;
 use crate::stages::FeatureData;
 use crate::stages::crossval::cross_validate;
 use crate::stages::decompose::{Decomposition, decompose_keeping, scores};
-use crate::stages::diagnose::{
-    Diagnostics, contributions, diagnose, diagnose_rows, row_statistics,
-};
+use crate::stages::diagnose::{Diagnostics, contributions, diagnose_all, row_statistics};
 use crate::stages::missing::{MissingReport, MissingSettings, handle_missing};
 use crate::stages::parallel::parallel_analysis;
 use crate::stages::scale::{ScaleReport, Scaled, scale};
@@ -369,20 +368,52 @@ pub fn keep_error(prepared: &Prepared, pre: &Preprocessed, keep: usize, availabl
 pub struct Analysis {
     pub decomposition: Decomposition,
     pub selection: Selection,
-    /// Scores of the kept components (rows × kept).
-    pub scores: Matrix,
-    /// Scores of the computed components after the kept ones (rows × (computed −
-    /// kept)), for the plots.
-    pub more_scores: Matrix,
+    /// Every analysed row's scores (of the computed components), T², SPE and
+    /// labels, in row order.
+    pub rows: Arc<RowResults>,
     pub diagnostics: Diagnostics,
     /// Σᵢ zᵢⱼ² of each scaled feature, summed in row order from +0 (the
     /// correlation loadings' spreads).
     pub column_squares: Vec<f64>,
-    /// The scaled values of the rows whose contributions are reported, by row
-    /// index (see [`rows_needing_values`]).
-    pub row_values: BTreeMap<usize, Vec<f64>>,
+    /// The rows whose contributions are reported, by row index (see
+    /// [`rows_needing_values`]).
+    pub details: BTreeMap<usize, RowDetail>,
     /// What the randomized method did, when the recipe asked for it.
     pub randomized: Option<crate::stages::randomized::RandomizedReport>,
+}
+
+impl Analysis {
+    /// Every row's T² (read from the rows; for checks on small tables).
+    pub fn t2(&self) -> Vec<f64> {
+        self.per_row(|b, i| b.t2(i))
+    }
+
+    /// Every row's SPE.
+    pub fn spe(&self) -> Vec<f64> {
+        self.per_row(|b, i| b.spe(i))
+    }
+
+    /// The kept components' scores, rows × kept.
+    pub fn kept_scores(&self) -> Matrix {
+        let kept = self.selection.kept;
+        let mut data = Vec::with_capacity(self.rows.len() * kept);
+        self.rows
+            .each(|b| (0..b.len()).for_each(|i| data.extend_from_slice(&b.scores(i)[..kept])))
+            .expect("the rows can be read back");
+        Matrix {
+            rows: self.rows.len(),
+            cols: kept,
+            data,
+        }
+    }
+
+    fn per_row(&self, f: impl Fn(&crate::rows::Batch, usize) -> f64) -> Vec<f64> {
+        let mut out = Vec::with_capacity(self.rows.len());
+        self.rows
+            .each(|b| out.extend((0..b.len()).map(|i| f(b, i))))
+            .expect("the rows can be read back");
+        out
+    }
 }
 
 /// The rows whose contributions the outputs report: the most unusual flagged
@@ -394,7 +425,7 @@ pub fn rows_needing_values(diagnostics: &Diagnostics, plan: &Plan) -> Vec<usize>
         .0
         .get()
         .max(crate::outputs::present::REPORT_FLAGGED_ROWS);
-    let mut rows = diagnostics.most_unusual(most);
+    let mut rows = diagnostics.most_unusual(most.min(unusual_kept(plan)));
     rows.sort_unstable();
     rows
 }
@@ -503,61 +534,159 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
     if randomized.is_none() && selection.computed > decomposition.loadings.cols {
         decomposition = decompose_keeping(z, centred, None, selection.computed)?;
     }
-    let scores = scores(z, &decomposition.loadings, selection.kept);
-    let more_scores = scores_between(
+    let kept = selection.kept;
+    let scores = scores(z, &decomposition.loadings, kept);
+    let more_scores = scores_between(z, &decomposition.loadings, kept, selection.computed);
+    let (t2, spe) = row_statistics(
         z,
         &decomposition.loadings,
-        selection.kept,
-        selection.computed,
+        &scores,
+        &decomposition.eigenvalues,
     );
-    let diagnostics = match &randomized {
-        None => diagnose(
-            z,
-            &decomposition.loadings,
-            &scores,
-            &decomposition.eigenvalues,
-            decomposition.rank,
-            &plan.diagnostics.confidence.0,
-            plan.diagnostics.spe_limit,
-        ),
-        Some(report) => {
-            // θ₁ and θ₂ from the exact total and Σλ², not from the known
-            // eigenvalues alone (the plan allows only Box's limit here).
-            let (t2, spe) = row_statistics(
-                z,
-                &decomposition.loadings,
-                &scores,
-                &decomposition.eigenvalues,
-            );
-            let moments = match report.residual_sums(&decomposition, selection.kept, z.rows) {
-                Some((theta1, theta2)) => ResidualMoments::from_first_two(theta1, theta2),
-                None => Err(crate::stats::limits::LimitError::NoResidualEigenvalues),
-            };
-            diagnose_rows(
-                t2,
-                spe,
-                z.rows,
-                selection.kept,
-                moments,
-                &plan.diagnostics.confidence.0,
-                plan.diagnostics.spe_limit,
-            )
+    let moments = match &randomized {
+        // θ₁ and θ₂ from the exact total and Σλ², not from the known
+        // eigenvalues alone (the plan allows only Box's limit here).
+        Some(report) => match report.residual_sums(&decomposition, kept, z.rows) {
+            Some((theta1, theta2)) => ResidualMoments::from_first_two(theta1, theta2),
+            None => Err(crate::stats::limits::LimitError::NoResidualEigenvalues),
+        },
+        None => {
+            ResidualMoments::from_eigenvalues(&decomposition.eigenvalues[kept..decomposition.rank])
         }
     };
+    let diagnostics = diagnose_all(diagnostics_for(plan, z.rows, kept, moments), &t2, &spe);
     let row_values = rows_needing_values(&diagnostics, plan)
         .into_iter()
         .map(|i| (i, z.row(i).to_vec()))
         .collect();
+    let joined: Vec<f64> = (0..z.rows)
+        .flat_map(|i| scores.row(i).iter().chain(more_scores.row(i)).copied())
+        .collect();
+    let rows = RowResults::from_parts(
+        selection.computed,
+        &pre.scaled.rows,
+        &joined,
+        &t2,
+        &spe,
+        plan.input
+            .id
+            .as_ref()
+            .map(|id| (id.clone(), texts_of(prepared, id, &pre.scaled.rows))),
+        plan.input
+            .groups
+            .iter()
+            .map(|g| (g.clone(), texts_of(prepared, g, &pre.scaled.rows)))
+            .collect(),
+    );
+    let details = row_details(&rows, kept, row_values)?;
     Ok(Analysis {
         decomposition,
         selection,
-        scores,
-        more_scores,
         diagnostics,
         column_squares: column_squares(z),
-        row_values,
+        rows: Arc::new(rows),
+        details,
         randomized,
     })
+}
+
+/// The texts of a table's text column in the given table rows.
+pub fn texts_of(prepared: &Prepared, column: &str, rows: &[usize]) -> Vec<String> {
+    match prepared.table.column(column).map(|c| &c.data) {
+        Some(ColumnData::Text(values)) => rows.iter().map(|&r| values[r].clone()).collect(),
+        _ => unreachable!("id and group columns are read as text"),
+    }
+}
+
+/// Where scratch files go: beside the results folder, like its staging folder.
+pub fn scratch_dir(plan: &Plan) -> std::path::PathBuf {
+    plan.output
+        .parent()
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| ".".into())
+}
+
+/// How many of the most unusual rows the outputs list: contributions.csv's
+/// cap, the report's table and the rotating view's extra rows.
+pub fn unusual_kept(plan: &Plan) -> usize {
+    plan.diagnostics
+        .contributions_max_rows
+        .0
+        .get()
+        .max(crate::outputs::present::REPORT_FLAGGED_ROWS)
+        .max(crate::outputs::present::UNUSUAL_3D)
+}
+
+/// The limits of the plan's confidence levels for `n` rows and `kept`
+/// components, nothing counted yet.
+pub fn diagnostics_for(
+    plan: &Plan,
+    n: usize,
+    kept: usize,
+    moments: Result<ResidualMoments, crate::stats::limits::LimitError>,
+) -> Diagnostics {
+    crate::stages::diagnose::limits(
+        n,
+        kept,
+        moments,
+        &plan.diagnostics.confidence.0,
+        plan.diagnostics.spe_limit,
+        unusual_kept(plan),
+    )
+}
+
+/// One of the rows the outputs show in detail (contributions, the report's
+/// flagged rows).
+#[derive(Debug, Clone)]
+pub struct RowDetail {
+    /// The row's scaled values.
+    pub z: Vec<f64>,
+    /// Its kept scores, T² and SPE.
+    pub scores: Vec<f64>,
+    pub t2: f64,
+    pub spe: f64,
+    /// Its table row (0-based), its label (id or "row N") and its id and group
+    /// values, as scores.csv writes them.
+    pub table_row: usize,
+    pub label: String,
+    pub texts: Vec<String>,
+}
+
+/// The details of the rows in `values` (scaled values by row index), read from
+/// the rows' results in one pass.
+pub fn row_details(
+    rows: &RowResults,
+    kept: usize,
+    mut values: BTreeMap<usize, Vec<f64>>,
+) -> Result<BTreeMap<usize, RowDetail>, Error> {
+    let mut details = BTreeMap::new();
+    let texts = usize::from(rows.id.is_some()) + rows.groups.len();
+    rows.each(|b| {
+        let wanted: Vec<usize> = values
+            .range(b.first..b.first + b.len())
+            .map(|(&i, _)| i)
+            .collect();
+        for i in wanted {
+            let r = i - b.first;
+            let mut own = Vec::with_capacity(texts);
+            own.extend(b.id(r).map(String::from));
+            own.extend((0..rows.groups.len()).map(|g| b.group(g, r).to_string()));
+            details.insert(
+                i,
+                RowDetail {
+                    z: values.remove(&i).expect("listed above"),
+                    scores: b.scores(r)[..kept].to_vec(),
+                    t2: b.t2(r),
+                    spe: b.spe(r),
+                    table_row: b.table_row(r),
+                    label: b.label(r).into_owned(),
+                    texts: own,
+                },
+            );
+        }
+    })
+    .map_err(|e| crate::error::OutputError::io(Path::new("a scratch file"), e))?;
+    Ok(details)
 }
 
 /// Options of `sextant run`.
@@ -896,18 +1025,22 @@ impl tables::TableSink for StreamedFile {
 fn large_table(
     staging: Option<&Staging>,
     name: &str,
-    write: impl FnOnce(&mut dyn tables::TableSink),
+    write: impl FnOnce(&mut dyn tables::TableSink) -> std::io::Result<()>,
 ) -> Result<Content, Error> {
+    // Reading the rows back from a scratch file is the only way `write` fails.
+    let scratch = |e| crate::error::OutputError::io(Path::new("a scratch file"), e);
     match staging {
         None => {
             let mut bytes = Vec::new();
-            write(&mut bytes);
+            write(&mut bytes).map_err(scratch)?;
             Ok(Content::Bytes(bytes))
         }
         Some(staging) => {
             let mut file = StreamedFile::create(staging, name)?;
-            write(&mut file);
-            file.finish()
+            let written = write(&mut file);
+            let content = file.finish()?;
+            written.map_err(scratch)?;
+            Ok(content)
         }
     }
 }
@@ -943,27 +1076,23 @@ fn result_files(
         .diagnostics
         .most_unusual(plan.diagnostics.contributions_max_rows.0.get());
     chosen.sort_unstable();
-    let flagged: Vec<(usize, Vec<(f64, f64)>)> = chosen
+    let flagged: Vec<(&RowDetail, Vec<(f64, f64)>)> = chosen
         .into_iter()
         .map(|i| {
+            let row = &analysis.details[&i];
             (
-                i,
-                contributions(
-                    &analysis.row_values[&i],
-                    &d.loadings,
-                    &analysis.scores,
-                    &d.eigenvalues,
-                    i,
-                ),
+                row,
+                contributions(&row.z, &d.loadings, &row.scores, &d.eigenvalues),
             )
         })
         .collect();
+    let rows = &analysis.rows;
     let bytes = Content::Bytes;
     Ok(vec![
         (
             "scores.csv".into(),
             large_table(staging, "scores.csv", |sink| {
-                tables::scores_csv_into(&labels, &analysis.scores, &analysis.diagnostics, sink)
+                tables::scores_csv_into(rows, s.kept, &analysis.diagnostics, sink)
             })?,
         ),
         (
@@ -986,13 +1115,15 @@ fn result_files(
         (
             "imputed.csv".into(),
             large_table(staging, "imputed.csv", |sink| {
-                tables::imputed_csv_into(&labels, &pre.filled, sink)
+                tables::imputed_csv_into(&labels, &pre.filled, sink);
+                Ok(())
             })?,
         ),
         (
             "contributions.csv".into(),
             large_table(staging, "contributions.csv", |sink| {
-                tables::contributions_csv_into(&labels, &pre.scaled.names, &flagged, sink)
+                tables::contributions_csv_into(rows, &pre.scaled.names, &flagged, sink);
+                Ok(())
             })?,
         ),
     ])
@@ -1151,8 +1282,8 @@ fn diagnostics_json(diag: &Diagnostics, rank: usize, kept: usize, max_rows: usiz
         "residual_eigenvalues": rank - kept,
         "residual_moments": diag.moments,
         "limits": diag.limits,
-        "flagged_rows": diag.flagged_rows().len(),
-        "contributions_written_for": diag.flagged_rows().len().min(max_rows),
+        "flagged_rows": diag.flagged,
+        "contributions_written_for": diag.flagged.min(max_rows),
         "notes": diag.notes,
     })
 }

@@ -59,20 +59,20 @@ fn wine_t2_and_spe_match_numpy() {
         &data("wine.csv"),
         "exclude = [\"class\"]\n[components]\nkeep = 3",
     );
-    let d = &a.diagnostics;
+    let (t2s, spes) = (a.t2(), a.spe());
     for (i, t2, spe) in WINE_T2_SPE {
-        assert!(rel(d.t2[i], t2) < 1e-10, "row {i}: T² {} vs {t2}", d.t2[i]);
+        assert!(rel(t2s[i], t2) < 1e-10, "row {i}: T² {} vs {t2}", t2s[i]);
         assert!(
-            rel(d.spe[i], spe) < 1e-9,
+            rel(spes[i], spe) < 1e-9,
             "row {i}: SPE {} vs {spe}",
-            d.spe[i]
+            spes[i]
         );
     }
     let argmax = |v: &[f64]| (0..v.len()).fold(0, |m, i| if v[i] > v[m] { i } else { m });
-    assert_eq!(argmax(&d.t2), 121);
-    assert!(rel(d.t2[121], 20.05106090787208) < 1e-10);
-    assert_eq!(argmax(&d.spe), 95);
-    assert!(rel(d.spe[95], 24.533280454156106) < 1e-9);
+    assert_eq!(argmax(&t2s), 121);
+    assert!(rel(t2s[121], 20.05106090787208) < 1e-10);
+    assert_eq!(argmax(&spes), 95);
+    assert!(rel(spes[95], 24.533280454156106) < 1e-9);
 }
 
 #[test]
@@ -99,8 +99,7 @@ fn wine_limits_match_the_published_forms() {
     assert!(rel(l[0].spe.unwrap(), 8.6914429) < 1e-7 && rel(l[1].spe.unwrap(), 11.3890007) < 1e-7);
     // Flags follow the limits.
     let flagged = a
-        .diagnostics
-        .t2
+        .t2()
         .iter()
         .filter(|&&v| v > a.diagnostics.limits[0].t2.unwrap())
         .count();
@@ -133,13 +132,13 @@ fn exact_identities_hold_on_every_reference_dataset() {
     ] {
         let (pre, a) = analysis(&data(file), body);
         let n = pre.scaled.n_rows() as f64;
-        let t2: f64 = a.diagnostics.t2.iter().sum();
+        let t2: f64 = a.t2().iter().sum();
         assert!(
             rel(t2, k as f64 * (n - 1.0)) < 1e-10,
             "{file}: Σ T² = {t2}, k(n − 1) = {}",
             k as f64 * (n - 1.0)
         );
-        let spe: f64 = a.diagnostics.spe.iter().sum();
+        let spe: f64 = a.spe().iter().sum();
         let rest: f64 = a.decomposition.eigenvalues[k..].iter().sum::<f64>() * (n - 1.0);
         assert!(
             rel(spe, rest) < 1e-9,
@@ -151,17 +150,16 @@ fn exact_identities_hold_on_every_reference_dataset() {
             let c = contributions(
                 pre.scaled.data().row(i),
                 &d.loadings,
-                &a.scores,
+                a.kept_scores().row(i),
                 &d.eigenvalues,
-                i,
             );
             let (ct2, cspe): (f64, f64) = c.iter().fold((0.0, 0.0), |s, x| (s.0 + x.0, s.1 + x.1));
             assert!(
-                (ct2 - a.diagnostics.t2[i]).abs() < 1e-9 * a.diagnostics.t2[i].max(1.0),
+                (ct2 - a.t2()[i]).abs() < 1e-9 * a.t2()[i].max(1.0),
                 "{file} row {i}"
             );
             assert!(
-                (cspe - a.diagnostics.spe[i]).abs() < 1e-9 * a.diagnostics.spe[i].max(1.0),
+                (cspe - a.spe()[i]).abs() < 1e-9 * a.spe()[i].max(1.0),
                 "{file} row {i}"
             );
         }
@@ -175,13 +173,14 @@ fn keeping_every_component_leaves_no_spe_limit_and_no_nan() {
         "exclude = [\"class\"]\n[components]\nkeep = 4",
     );
     let d = &a.diagnostics;
+    let (_, spes) = (a.t2(), a.spe());
     assert!(d.limits[0].spe.is_none());
     assert!(
         d.notes.iter().any(|n| n.contains("no SPE limit")),
         "{:?}",
         d.notes
     );
-    assert!(d.spe.iter().all(|v| v.is_finite() && *v < 1e-20));
+    assert!(spes.iter().all(|v| v.is_finite() && *v < 1e-20));
 }
 
 fn standardized(file: &str) -> Matrix {
@@ -364,20 +363,21 @@ fn a_planted_outlier_is_flagged_by_spe_with_its_feature_on_top() {
 
     let (pre, a) = analysis(&table, "exclude = [\"class\"]\n[components]\nkeep = 3");
     let d = &a.diagnostics;
+    let (t2s, spes) = (a.t2(), a.spe());
     assert!(
-        d.spe[40] > d.limits[0].spe.unwrap(),
+        spes[40] > d.limits[0].spe.unwrap(),
         "SPE {} limit {:?}",
-        d.spe[40],
+        spes[40],
         d.limits[0].spe
     );
-    assert!(d.flagged_rows().contains(&40));
+    assert!(d.flagged_at_any(t2s[40], spes[40]));
+    assert!(d.most_unusual(d.flagged).contains(&40));
     let dec = &a.decomposition;
     let c = contributions(
         pre.scaled.data().row(40),
         &dec.loadings,
-        &a.scores,
+        a.kept_scores().row(40),
         &dec.eigenvalues,
-        40,
     );
     let top = (0..c.len()).fold(0, |m, j| if c[j].1 > c[m].1 { j } else { m });
     assert_eq!(pre.scaled.names[top], "ash");

@@ -77,6 +77,7 @@ fn view(n: usize, flag_every: usize) -> PlotView {
         .collect();
     let spe: Vec<f64> = (0..n).map(|i| 0.2 + (i % 7) as f64 * 0.1).collect();
     PlotView {
+        rows: Default::default(),
         features: FEATURES.iter().map(|s| s.to_string()).collect(),
         n_rows: n,
         eigenvalues: eigenvalues.clone(),

@@ -424,7 +424,7 @@ fn nist_covariance_eigenvalues_loadings_and_scores_match_library() {
     );
     // Scores of all ten observations (centred X × loadings), library values.
     let want = table(&refs["cov_scores_library_sign"]);
-    let t = &r.analysis.scores;
+    let t = &r.analysis.kept_scores();
     c.truth(
         &format!("NIST scores shape {}×{}", t.rows, t.cols),
         t.rows == 10 && t.cols == 3,
@@ -803,7 +803,7 @@ fn score_variances_equal_eigenvalues() {
     for file in ALL {
         for scaling in SCALINGS {
             let r = run_all(file, scaling);
-            let t = &r.analysis.scores;
+            let t = &r.analysis.kept_scores();
             c.truth(
                 &format!("{file} {scaling}: scores {}×{}", t.rows, t.cols),
                 t.rows == r.n() && t.cols == r.p(),
@@ -835,7 +835,7 @@ fn reconstruction_residual_equals_dropped_eigenvalues() {
     for file in ALL {
         for scaling in SCALINGS {
             let r = run_all(file, scaling);
-            let (z, v, t) = (r.pre.scaled.data(), r.loadings(), &r.analysis.scores);
+            let (z, v, t) = (r.pre.scaled.data(), r.loadings(), &r.analysis.kept_scores());
             let (n, p) = (r.n(), r.p());
             let total = r.analysis.decomposition.total_variance;
             for k in 0..=p {

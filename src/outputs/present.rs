@@ -83,22 +83,20 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
     let s = &analysis.selection;
     let computed = s.computed;
     let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
-    let row_scores = |i: usize| -> Vec<f64> {
-        let mut row = analysis.scores.row(i).to_vec();
-        row.extend_from_slice(analysis.more_scores.row(i));
-        row
-    };
-    let scores = {
-        let (kept, more) = (analysis.scores.cols, analysis.more_scores.cols);
-        let cols = kept + more;
-        let mut data = vec![0.0; n * cols];
-        data.par_chunks_mut(cols.max(1))
-            .enumerate()
-            .for_each(|(i, row)| {
-                row[..kept].copy_from_slice(analysis.scores.row(i));
-                row[kept..kept + more].copy_from_slice(analysis.more_scores.row(i));
-            });
-        ScoreRows { cols, data }
+    // The plots read the rows through `rows`; these whole-table copies are
+    // what the plots read before and go once none of them does.
+    let (scores, t2, spe) = {
+        let cols = analysis.rows.cols();
+        let mut data = Vec::with_capacity(n * cols);
+        let (mut t2, mut spe) = (Vec::with_capacity(n), Vec::with_capacity(n));
+        analysis.rows.scan(|b| {
+            for i in 0..b.len() {
+                data.extend_from_slice(b.scores(i));
+                t2.push(b.t2(i));
+                spe.push(b.spe(i));
+            }
+        });
+        (ScoreRows { cols, data }, t2, spe)
     };
     let loadings = (0..p)
         .map(|j| (0..computed).map(|a| d.loadings.get(j, a)).collect())
@@ -112,7 +110,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         // the in-memory engine analyses uncentred data).
         let z = pre.scaled.data();
         let score_columns: Vec<Vec<f64>> = (0..computed)
-            .map(|a| (0..n).map(|i| row_scores(i)[a]).collect())
+            .map(|a| (0..n).map(|i| scores.row(i)[a]).collect())
             .collect();
         (0..p)
             .into_par_iter()
@@ -153,28 +151,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         },
         loadings,
         correlations,
-        rows: Arc::new(crate::rows::RowResults::from_parts(
-            scores.cols,
-            &pre.scaled.rows,
-            &scores.data,
-            &diag.t2,
-            &diag.spe,
-            plan.input.id.as_ref().map(|id| {
-                let values = text_column(prepared, id);
-                (
-                    id.clone(),
-                    rows.iter().map(|&r| values[r].clone()).collect(),
-                )
-            }),
-            plan.input
-                .groups
-                .iter()
-                .map(|g| {
-                    let values = text_column(prepared, g);
-                    (g.clone(), rows.iter().map(|&r| values[r].clone()).collect())
-                })
-                .collect(),
-        )),
+        rows: Arc::clone(&analysis.rows),
         scores,
         row_labels: row_labels(prepared, &rows),
         groups: plan
@@ -186,21 +163,21 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
                 (g.clone(), values)
             })
             .collect(),
-        t2: diag.t2.clone(),
-        spe: diag.spe.clone(),
+        flagged: t2
+            .iter()
+            .zip(&spe)
+            .map(|(&a, &b)| {
+                !diag.limits.is_empty() && {
+                    let (x, y) = diag.flags(a, b, 0);
+                    x || y
+                }
+            })
+            .collect(),
+        t2,
+        spe,
         confidence: first.map_or(0.95, |l| l.confidence),
         t2_limit: first.and_then(|l| l.t2),
         spe_limit: first.and_then(|l| l.spe),
-        flagged: (0..n)
-            .map(|i| {
-                let (a, b) = if diag.limits.is_empty() {
-                    (false, false)
-                } else {
-                    diag.flags(i, 0)
-                };
-                a || b
-            })
-            .collect(),
         scaling: plan.scaling.name().to_string(),
     }
 }
@@ -295,22 +272,51 @@ pub fn cautions() -> Vec<String> {
 
 /// Flagged rows listed in the report, the most unusual first.
 pub const REPORT_FLAGGED_ROWS: usize = 50;
+/// The most unusual flagged rows the rotating view of a large table adds.
+pub const UNUSUAL_3D: usize = 500;
 /// Regularly spaced rows in the rotating view of a large table.
 pub const POINTS_3D: usize = 5_000;
 
 /// The rows the rotating view shows: all of a small table; of a large one, every
-/// k-th row and up to 500 of the most unusual flagged rows, in row order.
-fn rows_for_3d(view: &PlotView, diag: &crate::stages::diagnose::Diagnostics) -> Vec<usize> {
-    let n = view.scores.len();
+/// k-th row and up to [`UNUSUAL_3D`] of the most unusual flagged rows, in row order.
+fn rows_for_3d(n: usize, diag: &crate::stages::diagnose::Diagnostics) -> Vec<usize> {
     if n <= POINTS_3D {
         return (0..n).collect();
     }
     let stride = n.div_ceil(POINTS_3D);
     let mut rows: Vec<usize> = (0..n).step_by(stride).collect();
-    rows.extend(diag.most_unusual(500));
+    rows.extend(diag.most_unusual(UNUSUAL_3D));
     rows.sort_unstable();
     rows.dedup();
     rows
+}
+
+/// The first three scores, labels and first group of the `shown` rows (in
+/// row order), read in one pass over the rows.
+fn scores_3d(view: &PlotView, rows: &crate::rows::RowResults, shown: &[usize]) -> Scores3d {
+    let mut points = Vec::with_capacity(shown.len());
+    let mut labels = Vec::with_capacity(shown.len());
+    let mut group = Vec::new();
+    let first_group = rows.groups.first().map(|_| 0);
+    rows.scan(|b| {
+        let from = shown.partition_point(|&i| i < b.first);
+        let to = shown.partition_point(|&i| i < b.first + b.len());
+        for &i in &shown[from..to] {
+            let r = i - b.first;
+            let t = b.scores(r);
+            points.push([t[0], t[1], t[2]]);
+            labels.push(b.label(r).into_owned());
+            if let Some(g) = first_group {
+                group.push(b.group(g, r).to_string());
+            }
+        }
+    });
+    Scores3d {
+        axis_titles: [view.axis_title(0), view.axis_title(1), view.axis_title(2)],
+        points,
+        labels,
+        group: rows.groups.first().map(|name| (name.clone(), group)),
+    }
 }
 
 /// The report view; `figures` and `provenance` are filled by the caller.
@@ -354,21 +360,15 @@ pub fn report_view(
         .most_unusual(REPORT_FLAGGED_ROWS)
         .into_iter()
         .map(|i| {
+            let row = &analysis.details[&i];
             let (t2_above, spe_above) = if diag.limits.is_empty() {
                 (false, false)
             } else {
-                diag.flags(i, 0)
+                diag.flags(row.t2, row.spe, 0)
             };
-            let parts = contributions(
-                &analysis.row_values[&i],
-                &d.loadings,
-                &analysis.scores,
-                &d.eigenvalues,
-                i,
-            );
+            let parts = contributions(&row.z, &d.loadings, &row.scores, &d.eigenvalues);
             let weight = |(t2, spe): &(f64, f64)| {
-                (t2.abs() / diag.t2[i].max(f64::MIN_POSITIVE))
-                    .max(spe / diag.spe[i].max(f64::MIN_POSITIVE))
+                (t2.abs() / row.t2.max(f64::MIN_POSITIVE)).max(spe / row.spe.max(f64::MIN_POSITIVE))
             };
             let mut order: Vec<usize> = (0..parts.len()).collect();
             order.sort_by(|&a, &b| {
@@ -377,9 +377,9 @@ pub fn report_view(
                     .then(a.cmp(&b))
             });
             FlaggedLine {
-                label: view.row_labels[i].to_string(),
-                t2: diag.t2[i],
-                spe: diag.spe[i],
+                label: row.label.clone(),
+                t2: row.t2,
+                spe: row.spe,
                 t2_above,
                 spe_above,
                 top: order
@@ -390,43 +390,22 @@ pub fn report_view(
             }
         })
         .collect();
-    let shown = rows_for_3d(view, diag);
-    let scores3d = (s.computed >= 3).then(|| Scores3d {
-        axis_titles: [view.axis_title(0), view.axis_title(1), view.axis_title(2)],
-        points: shown
-            .iter()
-            .map(|&i| {
-                [
-                    view.scores.row(i)[0],
-                    view.scores.row(i)[1],
-                    view.scores.row(i)[2],
-                ]
-            })
-            .collect(),
-        labels: shown
-            .iter()
-            .map(|&i| view.row_labels[i].to_string())
-            .collect(),
-        group: view.groups.first().map(|(name, values)| {
-            (
-                name.clone(),
-                shown.iter().map(|&i| values[i].to_string()).collect(),
-            )
-        }),
-    });
+    let n = analysis.rows.len();
+    let shown = rows_for_3d(n, diag);
+    let scores3d = (s.computed >= 3).then(|| scores_3d(view, &analysis.rows, &shown));
     let mut summary = summary(prepared, pre, analysis);
-    let all_flagged = diag.flagged_rows().len();
+    let all_flagged = diag.flagged;
     if all_flagged > REPORT_FLAGGED_ROWS {
         summary.push(format!(
             "The flagged-rows table lists the {REPORT_FLAGGED_ROWS} most unusual of the {all_flagged} flagged rows; scores.csv flags them all."
         ));
     }
-    if shown.len() < view.scores.len() {
+    if shown.len() < n {
         summary.push(format!(
             "The rotating view shows {} of the {} rows: every {}th row and the most unusual flagged rows.",
             shown.len(),
-            view.scores.len(),
-            view.scores.len().div_ceil(POINTS_3D)
+            n,
+            n.div_ceil(POINTS_3D)
         ));
     }
     ReportView {

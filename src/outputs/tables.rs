@@ -7,7 +7,8 @@
 //! writer keeps no state from one record to the next that changes the bytes, so
 //! the file is identical to a single serial writer's on any number of threads.
 
-use crate::linalg::Matrix;
+use crate::rows::RowResults;
+use crate::run::RowDetail;
 use crate::stages::decompose::Decomposition;
 use crate::stages::diagnose::Diagnostics;
 use crate::stages::missing::MissingReport;
@@ -15,6 +16,7 @@ use crate::stages::scale::ScaleReport;
 use crate::stages::select::{Selection, bartlett_rest};
 use rayon::prelude::*;
 use std::fmt::Write as _;
+use std::io;
 
 /// Rows per block when a long table is formatted in parallel. Fixed, so where the
 /// table is cut never depends on the number of threads (not that the bytes
@@ -136,9 +138,21 @@ fn header_and_rows_into<F>(header: &[String], n: usize, write_row: F, sink: &mut
 where
     F: Fn(&mut CsvOut, &mut Scratch, usize) + Sync,
 {
+    header_into(header, sink);
+    rows_into(n, write_row, sink);
+}
+
+fn header_into(header: &[String], sink: &mut dyn TableSink) {
     let mut head = CsvOut::new();
     head.row(header);
     sink.put(head.finish());
+}
+
+/// `n` rows written by `write_row`, in blocks as [`header_and_rows_into`] writes them.
+fn rows_into<F>(n: usize, write_row: F, sink: &mut dyn TableSink)
+where
+    F: Fn(&mut CsvOut, &mut Scratch, usize) + Sync,
+{
     let blocks = n.div_ceil(BLOCK_ROWS);
     for first in (0..blocks).step_by(BLOCKS_AT_ONCE) {
         let last = blocks.min(first + BLOCKS_AT_ONCE);
@@ -205,17 +219,25 @@ fn yes_no_str(flag: bool) -> &'static str {
     if flag { "yes" } else { "no" }
 }
 
-/// scores.csv: one line per analysed row: labels, scores, T², SPE and, per
-/// confidence level, whether each exceeds its limit.
-pub fn scores_csv(labels: &RowLabels, scores: &Matrix, diagnostics: &Diagnostics) -> Vec<u8> {
+/// The label columns' names of result rows: row, then id and groups.
+fn results_label_header(rows: &RowResults) -> Vec<String> {
+    let mut header = vec!["row".to_string()];
+    header.extend(rows.id.iter().cloned());
+    header.extend(rows.groups.iter().cloned());
+    header
+}
+
+/// scores.csv: one line per analysed row: labels, the `k` kept scores, T², SPE
+/// and, per confidence level, whether each exceeds its limit.
+pub fn scores_csv(rows: &RowResults, k: usize, diagnostics: &Diagnostics) -> io::Result<Vec<u8>> {
     let mut bytes = Vec::new();
-    scores_csv_into(labels, scores, diagnostics, &mut bytes);
-    bytes
+    scores_csv_into(rows, k, diagnostics, &mut bytes)?;
+    Ok(bytes)
 }
 
 /// The header of scores.csv: labels, PC1..PCk, T², SPE and a flag pair per level.
-fn scores_header(labels: &RowLabels, k: usize, diagnostics: &Diagnostics) -> Vec<String> {
-    let mut header = label_header(labels);
+fn scores_header(rows: &RowResults, k: usize, diagnostics: &Diagnostics) -> Vec<String> {
+    let mut header = results_label_header(rows);
     header.extend(component_names(k));
     header.extend(["T2".to_string(), "SPE".to_string()]);
     for l in &diagnostics.limits {
@@ -225,28 +247,38 @@ fn scores_header(labels: &RowLabels, k: usize, diagnostics: &Diagnostics) -> Vec
     header
 }
 
-/// [`scores_csv`] handed to `sink` a stretch at a time.
+/// [`scores_csv`] handed to `sink` a stretch at a time, as the rows are read.
 pub fn scores_csv_into(
-    labels: &RowLabels,
-    scores: &Matrix,
+    rows: &RowResults,
+    k: usize,
     diagnostics: &Diagnostics,
     sink: &mut dyn TableSink,
-) {
-    let header = scores_header(labels, scores.cols, diagnostics);
-    let write_row = |out: &mut CsvOut, scratch: &mut Scratch, i: usize| {
-        scratch.labels(out, labels, labels.rows[i]);
-        for &v in scores.row(i) {
-            scratch.number(out, v);
-        }
-        scratch.number(out, diagnostics.t2[i]);
-        scratch.number(out, diagnostics.spe[i]);
-        for level in 0..diagnostics.limits.len() {
-            let (t2, spe) = diagnostics.flags(i, level);
-            out.field(yes_no_str(t2));
-            out.field(yes_no_str(spe));
-        }
-    };
-    header_and_rows_into(&header, labels.rows.len(), write_row, sink);
+) -> io::Result<()> {
+    header_into(&scores_header(rows, k, diagnostics), sink);
+    let groups = rows.groups.len();
+    rows.each(|b| {
+        let write_row = |out: &mut CsvOut, scratch: &mut Scratch, i: usize| {
+            scratch.count(out, b.table_row(i) + 1);
+            if let Some(id) = b.id(i) {
+                out.field(id);
+            }
+            for g in 0..groups {
+                out.field(b.group(g, i));
+            }
+            for &v in &b.scores(i)[..k] {
+                scratch.number(out, v);
+            }
+            let (t2, spe) = (b.t2(i), b.spe(i));
+            scratch.number(out, t2);
+            scratch.number(out, spe);
+            for level in 0..diagnostics.limits.len() {
+                let (a, b) = diagnostics.flags(t2, spe, level);
+                out.field(yes_no_str(a));
+                out.field(yes_no_str(b));
+            }
+        };
+        rows_into(b.len(), write_row, sink);
+    })
 }
 
 /// imputed.csv: every filled cell: the row's labels, the feature and the value
@@ -276,31 +308,35 @@ pub fn imputed_csv_into(
 
 /// contributions.csv: for each flagged row, each feature's contribution to its T²
 /// and to its SPE (in scaled units; each sums over features to the row's value).
+/// `rows` names the label columns; `flagged` holds the rows, in row order.
 pub fn contributions_csv(
-    labels: &RowLabels,
+    rows: &RowResults,
     features: &[String],
-    flagged: &[(usize, Vec<(f64, f64)>)],
+    flagged: &[(&RowDetail, Vec<(f64, f64)>)],
 ) -> Vec<u8> {
     let mut bytes = Vec::new();
-    contributions_csv_into(labels, features, flagged, &mut bytes);
+    contributions_csv_into(rows, features, flagged, &mut bytes);
     bytes
 }
 
 /// [`contributions_csv`] handed to `sink` a stretch at a time: a line per
 /// flagged row and feature, formatted in parallel blocks like scores.csv.
 pub fn contributions_csv_into(
-    labels: &RowLabels,
+    rows: &RowResults,
     features: &[String],
-    flagged: &[(usize, Vec<(f64, f64)>)],
+    flagged: &[(&RowDetail, Vec<(f64, f64)>)],
     sink: &mut dyn TableSink,
 ) {
-    let mut header = label_header(labels);
+    let mut header = results_label_header(rows);
     header.extend(["feature", "T2_contribution", "SPE_contribution"].map(String::from));
     let p = features.len().max(1);
     let write_row = |out: &mut CsvOut, scratch: &mut Scratch, line: usize| {
-        let (i, parts) = &flagged[line / p];
+        let (row, parts) = &flagged[line / p];
         let j = line % p;
-        scratch.labels(out, labels, labels.rows[*i]);
+        scratch.count(out, row.table_row + 1);
+        for text in &row.texts {
+            out.field(text);
+        }
         out.field(features[j].as_bytes());
         let (t2, spe) = parts[j];
         scratch.number(out, t2);
@@ -440,8 +476,9 @@ pub fn preprocessing_csv(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::linalg::Matrix;
     use crate::recipe::raw::SpeLimit;
-    use crate::stages::diagnose::Limits;
+    use crate::stages::diagnose::{Limits, with_limits};
     use crate::stages::missing::FilledCell;
 
     #[test]
@@ -458,21 +495,76 @@ mod tests {
     fn scores_csv_serial(
         labels: &RowLabels,
         scores: &Matrix,
+        (t2, spe): (&[f64], &[f64]),
         diagnostics: &Diagnostics,
     ) -> Vec<u8> {
         let mut out = CsvOut::new();
-        out.row(scores_header(labels, scores.cols, diagnostics));
+        let mut header = label_header(labels);
+        header.extend(component_names(scores.cols));
+        header.extend(["T2".to_string(), "SPE".to_string()]);
+        for l in &diagnostics.limits {
+            let level = level_label(l.confidence);
+            header.extend([format!("T2_above_{level}"), format!("SPE_above_{level}")]);
+        }
+        out.row(header);
         for (i, &row) in labels.rows.iter().enumerate() {
             let mut fields = label_fields(labels, row);
             fields.extend(scores.row(i).iter().map(|&v| number(v)));
-            fields.extend([number(diagnostics.t2[i]), number(diagnostics.spe[i])]);
+            fields.extend([number(t2[i]), number(spe[i])]);
             for level in 0..diagnostics.limits.len() {
-                let (t2, spe) = diagnostics.flags(i, level);
+                let (t2, spe) = diagnostics.flags(t2[i], spe[i], level);
                 fields.extend([yes_no(t2), yes_no(spe)]);
             }
             out.row(&fields);
         }
         out.finish()
+    }
+
+    /// The rows' results for `labels`, with `extra` more scores per row than
+    /// `scores` holds (which scores.csv leaves out): in memory, or through a
+    /// store that spills at once, in runs of `run` rows.
+    fn results(
+        labels: &RowLabels,
+        scores: &Matrix,
+        (t2, spe): (&[f64], &[f64]),
+        spill_in_runs: Option<(usize, &std::path::Path)>,
+    ) -> RowResults {
+        let cols = scores.cols + 1;
+        let n = labels.rows.len();
+        let joined: Vec<f64> = (0..n)
+            .flat_map(|i| scores.row(i).iter().copied().chain([f64::NAN]))
+            .collect();
+        let texts = |v: &[String]| labels.rows.iter().map(|&r| v[r].clone()).collect();
+        let id = labels.id.map(|(name, v)| (name.to_string(), texts(v)));
+        let groups: Vec<(String, Vec<String>)> = labels
+            .groups
+            .iter()
+            .map(|(name, v)| (name.to_string(), texts(v)))
+            .collect();
+        let Some((run, dir)) = spill_in_runs else {
+            return RowResults::from_parts(cols, labels.rows, &joined, t2, spe, id, groups);
+        };
+        let names = groups.iter().map(|g| g.0.clone()).collect();
+        let mut out = RowResults::new(cols, id.as_ref().map(|i| i.0.clone()), names, 0, dir);
+        for first in (0..n).step_by(run.max(1)) {
+            let last = n.min(first + run);
+            out.push(crate::rows::RowsIn {
+                table_rows: &labels.rows[first..last],
+                scores: &joined[first * cols..last * cols],
+                t2: &t2[first..last],
+                spe: &spe[first..last],
+                texts: (first..last)
+                    .flat_map(|i| {
+                        id.iter()
+                            .map(move |(_, v)| v[i].clone())
+                            .chain(groups.iter().map(move |(_, v)| v[i].clone()))
+                    })
+                    .collect(),
+            })
+            .unwrap();
+        }
+        assert!(out.spilled());
+        out
     }
 
     fn imputed_csv_serial(labels: &RowLabels, filled: &[FilledCell]) -> Vec<u8> {
@@ -585,18 +677,19 @@ mod tests {
             t2_flagged: 0,
             spe_flagged: 0,
         };
-        let diagnostics = Diagnostics {
-            t2: (0..n).map(|i| value(i, 11).abs()).collect(),
-            spe: (0..n).map(|i| value(i, 12).abs()).collect(),
-            limits: vec![
+        let t2: Vec<f64> = (0..n).map(|i| value(i, 11).abs()).collect();
+        let spe: Vec<f64> = (0..n).map(|i| value(i, 12).abs()).collect();
+        let diagnostics = with_limits(
+            vec![
                 limit(0.95, Some(0.5), None),
                 limit(0.99, Some(2.0), Some(0.01)),
             ],
-            spe_method: SpeLimit::default(),
-            moments: None,
-            notes: Vec::new(),
-        };
-        let reference = scores_csv_serial(&labels, &scores, &diagnostics);
+            SpeLimit::default(),
+            None,
+            Vec::new(),
+            0,
+        );
+        let reference = scores_csv_serial(&labels, &scores, (&t2, &spe), &diagnostics);
         // The reference itself must hold quoted labels and both flags, or the
         // comparison proves little.
         let text = String::from_utf8(reference.clone()).unwrap();
@@ -614,9 +707,17 @@ mod tests {
         ] {
             assert!(text.contains(needle), "{needle:?} is not in the reference");
         }
+        let whole = results(&labels, &scores, (&t2, &spe), None);
+        let dir = tempfile::tempdir().unwrap();
         for threads in [1, 2, 8] {
-            let got = on_threads(threads, || scores_csv(&labels, &scores, &diagnostics));
+            let got = on_threads(threads, || scores_csv(&whole, k, &diagnostics).unwrap());
             assert!(got == reference, "scores.csv differs on {threads} threads");
+        }
+        // Rows read back from a scratch file, in runs that cut the blocks anywhere.
+        for run in [1, 999, BLOCK_ROWS + 1] {
+            let spilled = results(&labels, &scores, (&t2, &spe), Some((run, dir.path())));
+            let got = scores_csv(&spilled, k, &diagnostics).unwrap();
+            assert!(got == reference, "scores.csv differs in runs of {run}");
         }
         // Fewer rows than a block, and none at all.
         for m in [0, 1, 5] {
@@ -630,14 +731,11 @@ mod tests {
                 cols: k,
                 data: scores.data[..m * k].to_vec(),
             };
-            let diagnostics = Diagnostics {
-                t2: diagnostics.t2[..m].to_vec(),
-                spe: diagnostics.spe[..m].to_vec(),
-                ..diagnostics.clone()
-            };
-            let reference = scores_csv_serial(&labels, &scores, &diagnostics);
+            let parts = (&t2[..m], &spe[..m]);
+            let reference = scores_csv_serial(&labels, &scores, parts, &diagnostics);
+            let whole = results(&labels, &scores, parts, None);
             assert_eq!(
-                on_threads(2, || scores_csv(&labels, &scores, &diagnostics)),
+                on_threads(2, || scores_csv(&whole, k, &diagnostics).unwrap()),
                 reference,
                 "{m} rows"
             );
@@ -679,6 +777,7 @@ mod tests {
         features: &[String],
         flagged: &[(usize, Vec<(f64, f64)>)],
     ) -> Vec<u8> {
+        // (i: the row's index among the analysed rows)
         let mut out = CsvOut::new();
         let mut header = label_header(labels);
         header.extend(["feature", "T2_contribution", "SPE_contribution"].map(String::from));
@@ -713,15 +812,32 @@ mod tests {
             .collect();
         assert!(flagged.len() * features.len() > 2 * BLOCK_ROWS);
         let reference = contributions_csv_serial(&labels, &features, &flagged);
+        let no_scores = Matrix {
+            rows: n,
+            cols: 0,
+            data: Vec::new(),
+        };
+        let zeros = vec![0.0; n];
+        let whole = results(&labels, &no_scores, (&zeros, &zeros), None);
+        let details = crate::run::row_details(
+            &whole,
+            0,
+            flagged.iter().map(|(i, _)| (*i, Vec::new())).collect(),
+        )
+        .unwrap();
+        let parts: Vec<(&RowDetail, Vec<(f64, f64)>)> = flagged
+            .iter()
+            .map(|(i, parts)| (&details[i], parts.clone()))
+            .collect();
         for threads in [1, 2, 8] {
-            let got = on_threads(threads, || contributions_csv(&labels, &features, &flagged));
+            let got = on_threads(threads, || contributions_csv(&whole, &features, &parts));
             assert!(
                 got == reference,
                 "contributions.csv differs on {threads} threads"
             );
         }
         assert_eq!(
-            contributions_csv(&labels, &features, &[]),
+            contributions_csv(&whole, &features, &[]),
             contributions_csv_serial(&labels, &features, &[])
         );
     }
@@ -748,12 +864,12 @@ mod tests {
             cols: k,
             data: (0..n * k).map(|x| ((x as f64) * 0.7).sin() * 3.0).collect(),
         };
-        let diagnostics = Diagnostics {
-            t2: (0..n)
-                .map(|i| (i as f64 * 0.3).cos().abs() * 20.0)
-                .collect(),
-            spe: (0..n).map(|i| (i as f64 * 0.9).sin().abs()).collect(),
-            limits: vec![Limits {
+        let t2: Vec<f64> = (0..n)
+            .map(|i| (i as f64 * 0.3).cos().abs() * 20.0)
+            .collect();
+        let spe: Vec<f64> = (0..n).map(|i| (i as f64 * 0.9).sin().abs()).collect();
+        let diagnostics = with_limits(
+            vec![Limits {
                 confidence: 0.95,
                 t2: Some(12.0),
                 t2_new_rows: None,
@@ -761,10 +877,12 @@ mod tests {
                 t2_flagged: 0,
                 spe_flagged: 0,
             }],
-            spe_method: SpeLimit::default(),
-            moments: None,
-            notes: Vec::new(),
-        };
+            SpeLimit::default(),
+            None,
+            Vec::new(),
+            0,
+        );
+        let whole = results(&labels, &scores, (&t2, &spe), None);
         let time = |name: &str, f: &dyn Fn() -> Vec<u8>| {
             let mut best = f64::INFINITY;
             let mut bytes = Vec::new();
@@ -777,14 +895,14 @@ mod tests {
             bytes
         };
         let serial = time("serial", &|| {
-            scores_csv_serial(&labels, &scores, &diagnostics)
+            scores_csv_serial(&labels, &scores, (&t2, &spe), &diagnostics)
         });
         let one = time("blocks, 1 thread", &|| {
-            on_threads(1, || scores_csv(&labels, &scores, &diagnostics))
+            on_threads(1, || scores_csv(&whole, k, &diagnostics).unwrap())
         });
         let all = time(
             &format!("blocks, {} threads", rayon::current_num_threads()),
-            &|| scores_csv(&labels, &scores, &diagnostics),
+            &|| scores_csv(&whole, k, &diagnostics).unwrap(),
         );
         assert!(serial == one && one == all);
     }

@@ -34,62 +34,131 @@ pub struct Limits {
     pub spe_flagged: usize,
 }
 
-/// The diagnostics of every analysed row.
+/// The limits, and what the outputs need to know of all the rows beyond each
+/// row's own T² and SPE (which travel with its scores): how many rows each
+/// limit flags, and the most unusual flagged rows. It is filled a run of rows
+/// at a time ([`Diagnostics::count`]), so it never holds a value per row.
 #[derive(Debug, Clone)]
 pub struct Diagnostics {
-    pub t2: Vec<f64>,
-    pub spe: Vec<f64>,
     pub limits: Vec<Limits>,
     pub spe_method: SpeLimit,
     pub moments: Option<ResidualMoments>,
     /// Why a limit is missing, in plain words.
     pub notes: Vec<String>,
+    /// Rows counted so far.
+    pub rows: usize,
+    /// Rows flagged at any level.
+    pub flagged: usize,
+    /// The most unusual flagged rows, at most `keep` of them: after
+    /// [`Diagnostics::finish`], most unusual first (ties to the lower row).
+    unusual: Vec<Unusual>,
+    keep: usize,
+}
+
+/// A flagged row among the most unusual.
+#[derive(Debug, Clone, Copy)]
+pub struct Unusual {
+    /// The row's index among the analysed rows.
+    pub row: usize,
+    pub t2: f64,
+    pub spe: f64,
+    severity: f64,
 }
 
 impl Diagnostics {
-    /// Whether row `i` exceeds the T² or the SPE limit at level `level`.
-    pub fn flags(&self, i: usize, level: usize) -> (bool, bool) {
+    /// Whether a row with these T² and SPE exceeds the T² or the SPE limit at
+    /// level `level`.
+    pub fn flags(&self, t2: f64, spe: f64, level: usize) -> (bool, bool) {
         let l = &self.limits[level];
-        (
-            l.t2.is_some_and(|u| self.t2[i] > u),
-            l.spe.is_some_and(|u| self.spe[i] > u),
-        )
+        (l.t2.is_some_and(|u| t2 > u), l.spe.is_some_and(|u| spe > u))
     }
 
-    /// How far row `i` lies beyond the first level's limits: the larger of T²/limit
-    /// and SPE/limit (0 where neither limit is defined).
-    pub fn severity(&self, i: usize) -> f64 {
+    /// Whether a row is flagged at any level (the lowest confidence flags the most).
+    pub fn flagged_at_any(&self, t2: f64, spe: f64) -> bool {
+        (0..self.limits.len()).any(|l| {
+            let (a, b) = self.flags(t2, spe, l);
+            a || b
+        })
+    }
+
+    /// How far a row lies beyond the first level's limits: the larger of
+    /// T²/limit and SPE/limit (0 where neither limit is defined).
+    pub fn severity(&self, t2: f64, spe: f64) -> f64 {
         let Some(l) = self.limits.first() else {
             return 0.0;
         };
-        let t2 = l.t2.map_or(0.0, |u| self.t2[i] / u);
-        let spe = l.spe.map_or(0.0, |u| self.spe[i] / u);
+        let t2 = l.t2.map_or(0.0, |u| t2 / u);
+        let spe = l.spe.map_or(0.0, |u| spe / u);
         t2.max(spe)
     }
 
-    /// The flagged rows, most unusual first (ties to the lower row), at most `max`.
-    pub fn most_unusual(&self, max: usize) -> Vec<usize> {
-        let mut rows = self.flagged_rows();
-        rows.sort_by(|&a, &b| {
-            self.severity(b)
-                .total_cmp(&self.severity(a))
-                .then(a.cmp(&b))
-        });
-        rows.truncate(max);
-        rows
+    /// Counts the next rows (`first` is the index of the first of them among
+    /// the analysed rows): the flags of every limit, and the most unusual.
+    pub fn count(&mut self, first: usize, t2: &[f64], spe: &[f64]) {
+        for (i, (&a, &b)) in t2.iter().zip(spe).enumerate() {
+            self.rows += 1;
+            for l in &mut self.limits {
+                l.t2_flagged += usize::from(l.t2.is_some_and(|u| a > u));
+                l.spe_flagged += usize::from(l.spe.is_some_and(|u| b > u));
+            }
+            if self.flagged_at_any(a, b) {
+                self.flagged += 1;
+                self.unusual.push(Unusual {
+                    row: first + i,
+                    t2: a,
+                    spe: b,
+                    severity: self.severity(a, b),
+                });
+                if self.unusual.len() >= 2 * self.keep.max(1024) {
+                    self.trim();
+                }
+            }
+        }
     }
 
-    /// Rows flagged at any level (the lowest confidence flags the most).
-    pub fn flagged_rows(&self) -> Vec<usize> {
-        (0..self.t2.len())
-            .filter(|&i| {
-                (0..self.limits.len()).any(|l| {
-                    let (a, b) = self.flags(i, l);
-                    a || b
-                })
-            })
-            .collect()
+    /// The most unusual first, ties to the lower row; only `keep` stay. The
+    /// order is total, so trimming as rows come gives the same list as
+    /// sorting all flagged rows at the end.
+    fn trim(&mut self) {
+        self.unusual
+            .sort_by(|x, y| y.severity.total_cmp(&x.severity).then(x.row.cmp(&y.row)));
+        self.unusual.truncate(self.keep);
     }
+
+    /// Ends the counting.
+    pub fn finish(&mut self) {
+        self.trim();
+    }
+
+    /// The flagged rows (their index among the analysed rows), most unusual
+    /// first (ties to the lower row), at most `max`; `max` may not pass the
+    /// number kept.
+    pub fn most_unusual(&self, max: usize) -> Vec<usize> {
+        assert!(
+            max <= self.keep,
+            "at most {} unusual rows are kept",
+            self.keep
+        );
+        self.unusual.iter().take(max).map(|u| u.row).collect()
+    }
+
+    /// [`Diagnostics::most_unusual`] with their T² and SPE.
+    pub fn unusual(&self, max: usize) -> &[Unusual] {
+        assert!(
+            max <= self.keep,
+            "at most {} unusual rows are kept",
+            self.keep
+        );
+        &self.unusual[..max.min(self.unusual.len())]
+    }
+}
+
+/// Diagnostics of rows whose T² and SPE are all at hand (the most unusual
+/// `keep` rows listed).
+pub fn diagnose_all(mut limits: Diagnostics, t2: &[f64], spe: &[f64]) -> Diagnostics {
+    limits.count(0, t2, spe);
+    limits.finish();
+    limits
 }
 
 /// T² and SPE of each row, in one fixed order of summation (shared by the
@@ -163,36 +232,16 @@ fn residual(zj: f64, t: &[f64], loadings: &Matrix, j: usize) -> f64 {
     zj - fitted
 }
 
-/// Computes T², SPE and their limits.
-///
-/// `z` is the scaled data (n × p), `loadings` p × (≥ k), `scores` n × k,
-/// `eigenvalues` all p eigenvalues, `rank` the numerical rank.
-pub fn diagnose(
-    z: &Matrix,
-    loadings: &Matrix,
-    scores: &Matrix,
-    eigenvalues: &[f64],
-    rank: usize,
-    confidences: &[f64],
-    spe_method: SpeLimit,
-) -> Diagnostics {
-    let k = scores.cols;
-    let n = z.rows;
-    let (t2, spe) = row_statistics(z, loadings, scores, eigenvalues);
-    let moments = ResidualMoments::from_eigenvalues(&eigenvalues[k..rank]);
-    diagnose_rows(t2, spe, n, k, moments, confidences, spe_method)
-}
-
-/// The limits and flags for rows whose T² and SPE are known.
-#[allow(clippy::too_many_arguments)]
-pub fn diagnose_rows(
-    t2: Vec<f64>,
-    spe: Vec<f64>,
+/// The limits at each confidence level for `n` rows and `k` kept components,
+/// with nothing counted yet; up to `keep` of the most unusual rows will be
+/// listed.
+pub fn limits(
     n: usize,
     k: usize,
     moments: Result<ResidualMoments, crate::stats::limits::LimitError>,
     confidences: &[f64],
     spe_method: SpeLimit,
+    keep: usize,
 ) -> Diagnostics {
     let mut notes = Vec::new();
     let moments = match moments {
@@ -226,37 +275,49 @@ pub fn diagnose_rows(
             t2: t2_limit,
             t2_new_rows: t2_new,
             spe: spe_limit,
-            t2_flagged: t2_limit.map_or(0, |u| t2.iter().filter(|&&v| v > u).count()),
-            spe_flagged: spe_limit.map_or(0, |u| spe.iter().filter(|&&v| v > u).count()),
+            t2_flagged: 0,
+            spe_flagged: 0,
         });
     }
+    with_limits(limits, spe_method, moments, notes, keep)
+}
+
+/// Diagnostics with these limits and nothing counted yet.
+pub fn with_limits(
+    limits: Vec<Limits>,
+    spe_method: SpeLimit,
+    moments: Option<ResidualMoments>,
+    notes: Vec<String>,
+    keep: usize,
+) -> Diagnostics {
     Diagnostics {
-        t2,
-        spe,
         limits,
         spe_method,
         moments,
         notes,
+        rows: 0,
+        flagged: 0,
+        unusual: Vec::new(),
+        keep,
     }
 }
 
-/// The contributions of each feature to row `i`'s T² and SPE; `z` is that
-/// row's scaled values.
+/// The contributions of each feature to a row's T² and SPE; `z` is the row's
+/// scaled values and `scores` its kept scores.
 pub fn contributions(
     z: &[f64],
     loadings: &Matrix,
-    scores: &Matrix,
+    scores: &[f64],
     eigenvalues: &[f64],
-    i: usize,
 ) -> Vec<(f64, f64)> {
-    let k = scores.cols;
+    let k = scores.len();
     (0..z.len())
         .map(|j| {
             let t2: f64 = (0..k)
-                .map(|a| scores.get(i, a) / eigenvalues[a] * loadings.get(j, a))
+                .map(|a| scores[a] / eigenvalues[a] * loadings.get(j, a))
                 .sum::<f64>()
                 * z[j];
-            let e = residual(z[j], scores.row(i), loadings, j);
+            let e = residual(z[j], scores, loadings, j);
             (t2, e * e)
         })
         .collect()

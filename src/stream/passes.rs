@@ -14,14 +14,14 @@
 
 use super::store::{Chunk, Store};
 use crate::error::{Error, InputError};
+use crate::linalg::SUM_START;
 use crate::linalg::crossprod::{GramAccumulator, row_times};
-use crate::linalg::{Matrix, SUM_START};
 use crate::outputs::tables::number;
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::{ConstantPolicy, MissingMethod};
 use crate::run::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::stages::decompose::{add_squares, from_cross_products};
-use crate::stages::diagnose::{RowStatistics, diagnose_rows};
+use crate::stages::diagnose::RowStatistics;
 use crate::stages::missing::{FeatureMissing, FillModel, FilledCell, MissingReport};
 use crate::stages::scale::{FeatureScale, ScaleReport, Scaled, check_finite};
 use crate::stages::select::{Evidence, select};
@@ -140,20 +140,6 @@ impl Features {
             drop_incomplete,
         }
     }
-}
-
-/// `count` consecutive pieces of `size` values (the last may be shorter, and all
-/// are empty when `size` is 0), so that blocks of rows can be zipped with their
-/// share of an output whose width may be zero.
-fn pieces(data: &mut [f64], size: usize, count: usize) -> Vec<&mut [f64]> {
-    let mut out = Vec::with_capacity(count);
-    let mut rest = data;
-    for _ in 0..count {
-        let (piece, tail) = rest.split_at_mut(size.min(rest.len()));
-        out.push(piece);
-        rest = tail;
-    }
-    out
 }
 
 /// Runs `f` on runs of per-feature accumulators at the same time (with the index
@@ -626,59 +612,67 @@ pub fn analyse(
 
     // Pass 5.
     crate::progress::current().stage("pass 5 of 6: scores, T² and SPE");
-    let more = computed - kept;
     let v_kept = loadings.columns(0, kept).data;
     let v_more = loadings.columns(kept, computed).data;
     let statistics = RowStatistics::new(loadings, kept, &decomposition.eigenvalues);
-    let mut t_kept = Vec::with_capacity(n * kept);
-    let mut t_more = Vec::with_capacity(n * more);
-    let mut t2 = Vec::with_capacity(n);
-    let mut spe = Vec::with_capacity(n);
-    store.pass(|chunk: &Chunk| -> Result<(), Error> {
-        features.rows_of(chunk, width, true, &mut z, &mut local);
-        let m = z.len() / p;
-        let from = t2.len();
-        t_kept.resize((from + m) * kept, 0.0);
-        t_more.resize((from + m) * more, 0.0);
-        t2.resize(from + m, 0.0);
-        spe.resize(from + m, 0.0);
-        // Rows are independent: blocks of them in parallel, each row's numbers
-        // written in place (the same per-row arithmetic as the in-memory stages,
-        // without a copy of the block).
-        const ROWS: usize = 256;
-        let blocks = m.div_ceil(ROWS);
-        let jobs: Vec<_> = z
-            .chunks(ROWS * p)
-            .zip(pieces(&mut t_kept[from * kept..], ROWS * kept, blocks))
-            .zip(pieces(&mut t_more[from * more..], ROWS * more, blocks))
-            .zip(t2[from..].chunks_mut(ROWS))
-            .zip(spe[from..].chunks_mut(ROWS))
-            .collect();
-        jobs.into_par_iter()
-            .for_each(|((((zb, tb), mb), t2b), speb)| {
-                let mut fitted = vec![0.0; p];
-                for (r, zr) in zb.chunks_exact(p).enumerate() {
-                    let tr = &mut tb[r * kept..(r + 1) * kept];
-                    row_times(zr, &v_kept, tr);
-                    row_times(zr, &v_more, &mut mb[r * more..(r + 1) * more]);
-                    (t2b[r], speb[r]) = statistics.of_row(zr, tr, &mut fitted);
-                }
-            });
-        Ok(())
-    })?;
-    let t = crate::timing::lap("  pass 5: scores, T² and SPE", t);
     let moments = crate::stats::limits::ResidualMoments::from_eigenvalues(
         &decomposition.eigenvalues[kept..decomposition.rank],
     );
-    let diagnostics = diagnose_rows(
-        t2,
-        spe,
-        n,
-        kept,
-        moments,
-        &plan.diagnostics.confidence.0,
-        plan.diagnostics.spe_limit,
-    );
+    let mut diagnostics = crate::run::diagnostics_for(plan, n, kept, moments);
+    let mut results = results_for(prepared, computed, store.spilled());
+    let label_columns = label_columns(prepared);
+    // Per chunk: each row's scores (kept, then the others), T² and SPE.
+    let (mut scores, mut t2, mut spe) = (Vec::new(), Vec::new(), Vec::new());
+    let mut first = 0;
+    let mut table_rows = Vec::new();
+    let mut offset = 0;
+    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+        features.rows_of(chunk, width, true, &mut z, &mut local);
+        let m = z.len() / p;
+        scores.resize(m * computed, 0.0);
+        t2.resize(m, 0.0);
+        spe.resize(m, 0.0);
+        // Rows are independent: blocks of them in parallel, each row's numbers
+        // written in place (the same per-row arithmetic as the in-memory stages).
+        const ROWS: usize = 256;
+        let jobs: Vec<_> = z
+            .chunks(ROWS * p)
+            .zip(scores.chunks_mut(ROWS * computed.max(1)))
+            .zip(t2.chunks_mut(ROWS))
+            .zip(spe.chunks_mut(ROWS))
+            .collect();
+        jobs.into_par_iter().for_each(|(((zb, tb), t2b), speb)| {
+            let mut fitted = vec![0.0; p];
+            for (r, zr) in zb.chunks_exact(p).enumerate() {
+                let row = &mut tb[r * computed..(r + 1) * computed];
+                let (tr, mr) = row.split_at_mut(kept);
+                row_times(zr, &v_kept, tr);
+                row_times(zr, &v_more, mr);
+                (t2b[r], speb[r]) = statistics.of_row(zr, tr, &mut fitted);
+            }
+        });
+        diagnostics.count(first, &t2, &spe);
+        table_rows.clear();
+        table_rows.extend(local.iter().map(|r| offset + r));
+        let texts = table_rows
+            .iter()
+            .flat_map(|&r| label_columns.iter().map(move |c| c[r].clone()))
+            .collect();
+        results
+            .push(crate::rows::RowsIn {
+                table_rows: &table_rows,
+                scores: &scores,
+                t2: &t2,
+                spe: &spe,
+                texts,
+            })
+            .map_err(|e| scratch_error(prepared, e))?;
+        first += m;
+        offset += chunk.rows;
+        Ok(())
+    })?;
+    diagnostics.finish();
+    let t = crate::timing::lap("  pass 5: scores, T² and SPE", t);
 
     // Pass 6: only the wanted rows are brought to the analysis scale.
     crate::progress::current().stage("pass 6 of 6: rows for contributions");
@@ -704,22 +698,45 @@ pub fn analyse(
         })?;
     }
     crate::timing::lap("  pass 6: rows for contributions", t);
+    let details = crate::run::row_details(&results, kept, row_values)?;
     Ok(Analysis {
         decomposition,
-        scores: Matrix {
-            rows: n,
-            cols: kept,
-            data: t_kept,
-        },
-        more_scores: Matrix {
-            rows: n,
-            cols: computed - kept,
-            data: t_more,
-        },
         selection,
         diagnostics,
         column_squares,
-        row_values,
+        rows: std::sync::Arc::new(results),
+        details,
         randomized: None,
     })
+}
+
+/// Where the rows' results go: in memory, or all to a scratch file beside the
+/// results folder when the table's values did not fit the budget.
+fn results_for(prepared: &Prepared, computed: usize, spill: bool) -> crate::rows::RowResults {
+    let plan = &prepared.plan;
+    crate::rows::RowResults::new(
+        computed,
+        plan.input.id.clone(),
+        plan.input.groups.clone(),
+        if spill { 0 } else { u64::MAX },
+        &crate::run::scratch_dir(plan),
+    )
+}
+
+/// The table's id column (if any) and group columns, in that order.
+fn label_columns(prepared: &Prepared) -> Vec<std::sync::Arc<Vec<String>>> {
+    let plan = &prepared.plan;
+    plan.input
+        .id
+        .iter()
+        .chain(&plan.input.groups)
+        .map(|name| match prepared.table.column(name).map(|c| &c.data) {
+            Some(crate::table::ColumnData::Text(v)) => std::sync::Arc::clone(v),
+            _ => unreachable!("id and group columns are read as text"),
+        })
+        .collect()
+}
+
+fn scratch_error(prepared: &Prepared, e: std::io::Error) -> Error {
+    crate::error::OutputError::io(&crate::run::scratch_dir(&prepared.plan), e).into()
 }
