@@ -15,7 +15,7 @@ use crate::outputs::folder::{check_replaceable, write_folder};
 use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, RunInfo};
 use crate::outputs::model::{Fill, Model};
-use crate::outputs::tables::{self, RowLabels};
+use crate::outputs::tables;
 use crate::recipe::plan::Transform;
 use crate::rows::RowResults;
 use crate::stages::decompose::scores;
@@ -315,11 +315,15 @@ pub fn apply(
         Some(ColumnData::Text(v)) => v.as_slice(),
         _ => unreachable!("id and group columns are read as text"),
     };
-    let labels = RowLabels {
-        rows: &scored_rows,
-        id: id.as_deref().map(|n| (n, text_of(n))),
-        groups: groups.iter().map(|g| (g.as_str(), text_of(g))).collect(),
-    };
+    let group_texts: Vec<(&str, &[String])> =
+        groups.iter().map(|g| (g.as_str(), text_of(g))).collect();
+    let feature_names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
+    let filled = crate::rows::FilledCells::from_cells(
+        &filled,
+        &feature_names,
+        id.as_deref().map(|n| (n, text_of(n))),
+        &group_texts,
+    );
     let texts = |name: &str| -> Vec<String> {
         let values = text_of(name);
         scored_rows.iter().map(|&r| values[r].clone()).collect()
@@ -356,7 +360,11 @@ pub fn apply(
             "contributions.csv".into(),
             tables::contributions_csv(&rows, &names, &flagged),
         ),
-        ("imputed.csv".into(), tables::imputed_csv(&labels, &filled)),
+        (
+            "imputed.csv".into(),
+            tables::imputed_csv(&filled)
+                .map_err(|e| crate::error::OutputError::io(Path::new("a scratch file"), e))?,
+        ),
     ];
 
     let folder = options

@@ -258,6 +258,174 @@ impl<'a> Batch<'a> {
     }
 }
 
+/// Every filled cell: its row's table row, id and group values, its feature
+/// and the value filled in, in row order (features in order within a row).
+/// Like [`RowResults`], held in memory or in a scratch file.
+pub struct FilledCells {
+    /// Per cell: the table row, the feature's index and the value; then the
+    /// row's id (when the table has one) and group values as texts.
+    store: Store,
+    /// The features, by index.
+    pub features: Vec<String>,
+    pub id: Option<String>,
+    pub groups: Vec<String>,
+    scratch: PathBuf,
+}
+
+/// A filled cell for [`FilledCells::push`].
+pub struct CellIn {
+    pub table_row: usize,
+    pub feature: usize,
+    pub value: f64,
+}
+
+impl FilledCells {
+    /// No cells yet; up to `limit` bytes kept in memory, the rest in a scratch
+    /// file in `scratch`.
+    pub fn new(
+        features: Vec<String>,
+        id: Option<String>,
+        groups: Vec<String>,
+        limit: u64,
+        scratch: &Path,
+    ) -> FilledCells {
+        let texts = usize::from(id.is_some()) + groups.len();
+        FilledCells {
+            store: Store::new(3, limit).with_texts(texts),
+            features,
+            id,
+            groups,
+            scratch: scratch.to_path_buf(),
+        }
+    }
+
+    /// The cells of the in-memory stages, held in memory: `id` and each group
+    /// give the name and the text of every table row.
+    pub fn from_cells(
+        cells: &[crate::stages::missing::FilledCell],
+        features: &[String],
+        id: Option<(&str, &[String])>,
+        groups: &[(&str, &[String])],
+    ) -> FilledCells {
+        let mut out = FilledCells::new(
+            features.to_vec(),
+            id.map(|(name, _)| name.to_string()),
+            groups.iter().map(|(name, _)| name.to_string()).collect(),
+            u64::MAX,
+            Path::new("."),
+        );
+        let index: std::collections::BTreeMap<&str, usize> = features
+            .iter()
+            .enumerate()
+            .map(|(j, f)| (f.as_str(), j))
+            .collect();
+        for run in cells.chunks(CHUNK_ROWS) {
+            let mut texts = Vec::new();
+            let batch: Vec<CellIn> = run
+                .iter()
+                .map(|c| {
+                    texts.extend(id.iter().map(|(_, v)| v[c.row].clone()));
+                    texts.extend(groups.iter().map(|(_, v)| v[c.row].clone()));
+                    CellIn {
+                        table_row: c.row,
+                        feature: index[&*c.feature],
+                        value: c.value,
+                    }
+                })
+                .collect();
+            out.push(&batch, texts)
+                .expect("cells in memory are never written to a file");
+        }
+        out
+    }
+
+    /// Adds the next cells, with each cell's texts (id? and groups), in order.
+    pub fn push(&mut self, cells: &[CellIn], texts: Vec<String>) -> io::Result<()> {
+        if cells.is_empty() {
+            return Ok(());
+        }
+        let values = cells
+            .iter()
+            .flat_map(|c| [c.table_row as f64, c.feature as f64, c.value])
+            .collect();
+        let chunk = Chunk {
+            rows: cells.len(),
+            values,
+            texts,
+            lines: Vec::new(),
+        };
+        self.store.push(chunk, &self.scratch)
+    }
+
+    /// The number of cells.
+    pub fn len(&self) -> usize {
+        self.store.rows()
+    }
+
+    /// Every cell as (table row, feature, value), for checks on small tables.
+    pub fn list(&self) -> Vec<(usize, String, f64)> {
+        let mut out = Vec::with_capacity(self.len());
+        self.each(|b| {
+            out.extend((0..b.len()).map(|i| (b.table_row(i), b.feature(i).to_string(), b.value(i))))
+        })
+        .expect("the cells can be read back");
+        out
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Calls `f` with every run of cells, in order.
+    pub fn each(&self, mut f: impl FnMut(&CellBatch)) -> io::Result<()> {
+        self.store.pass(|chunk: &Chunk| -> io::Result<()> {
+            f(&CellBatch {
+                chunk,
+                texts: self.store.text_width(),
+                features: &self.features,
+            });
+            Ok(())
+        })
+    }
+}
+
+/// A run of consecutive cells of [`FilledCells`].
+pub struct CellBatch<'a> {
+    chunk: &'a Chunk,
+    texts: usize,
+    features: &'a [String],
+}
+
+impl<'a> CellBatch<'a> {
+    pub fn len(&self) -> usize {
+        self.chunk.rows
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// The table row (0-based) of cell `i`.
+    pub fn table_row(&self, i: usize) -> usize {
+        self.chunk.values[3 * i] as usize
+    }
+
+    /// The name of cell `i`'s feature.
+    pub fn feature(&self, i: usize) -> &'a str {
+        &self.features[self.chunk.values[3 * i + 1] as usize]
+    }
+
+    /// The value filled into cell `i`.
+    pub fn value(&self, i: usize) -> f64 {
+        self.chunk.values[3 * i + 2]
+    }
+
+    /// The id and group values of cell `i`'s row, in that order.
+    pub fn texts(&self, i: usize) -> &'a [String] {
+        &self.chunk.texts[i * self.texts..(i + 1) * self.texts]
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -6,7 +6,7 @@ use crate::linalg::Matrix;
 use crate::outputs::folder::{Staging, check_replaceable};
 use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, ManifestBody, RunInfo};
-use crate::outputs::tables::{self, RowLabels};
+use crate::outputs::tables;
 use crate::recipe::plan::MethodPlan;
 use crate::recipe::plan::{Plan, check_names, input_plan, make_plan};
 use crate::recipe::raw::DEFAULT_COMPUTE;
@@ -59,8 +59,8 @@ pub struct PassData {
 /// The data after every preprocessing stage, with the stages' reports.
 pub struct Preprocessed {
     pub scaled: Scaled,
-    /// Every filled cell, by table row.
-    pub filled: Vec<crate::stages::missing::FilledCell>,
+    /// Every filled cell, in row order.
+    pub filled: crate::rows::FilledCells,
     /// How new rows' missing cells are filled (one entry per feature kept by the
     /// missing stage, in order; constant features dropped later are still here).
     pub fill_model: crate::stages::missing::FillModel,
@@ -323,6 +323,22 @@ fn preprocess_in_memory(prepared: &Prepared) -> Result<Preprocessed, Error> {
     };
     let (data, missing, filled, fill_model) = handle_missing(data, &settings)?;
     let (scaled, scaling) = scale(data, plan.scaling, plan.constant_features)?;
+    let text = |name: &str| match prepared.table.column(name).map(|c| &c.data) {
+        Some(ColumnData::Text(v)) => v.as_slice(),
+        _ => unreachable!("id and group columns are read as text"),
+    };
+    let groups: Vec<(&str, &[String])> = plan
+        .input
+        .groups
+        .iter()
+        .map(|g| (g.as_str(), text(g)))
+        .collect();
+    let filled = crate::rows::FilledCells::from_cells(
+        &filled,
+        &plan.features,
+        plan.input.id.as_deref().map(|n| (n, text(n))),
+        &groups,
+    );
     Ok(Preprocessed {
         scaled,
         missing,
@@ -1053,22 +1069,7 @@ fn result_files(
     analysis: &Analysis,
     staging: Option<&Staging>,
 ) -> Result<Vec<(String, Content)>, Error> {
-    let table = &prepared.table;
     let plan = &prepared.plan;
-    let text = |name: &str| match table.column(name).map(|c| &c.data) {
-        Some(ColumnData::Text(v)) => v.as_slice(),
-        _ => unreachable!("id and group columns are read as text"),
-    };
-    let labels = RowLabels {
-        rows: &pre.scaled.rows,
-        id: plan.input.id.as_deref().map(|n| (n, text(n))),
-        groups: plan
-            .input
-            .groups
-            .iter()
-            .map(|g| (g.as_str(), text(g)))
-            .collect(),
-    };
     let d = &analysis.decomposition;
     let s = &analysis.selection;
     // The most unusual flagged rows, written in row order.
@@ -1115,8 +1116,7 @@ fn result_files(
         (
             "imputed.csv".into(),
             large_table(staging, "imputed.csv", |sink| {
-                tables::imputed_csv_into(&labels, &pre.filled, sink);
-                Ok(())
+                tables::imputed_csv_into(&pre.filled, sink)
             })?,
         ),
         (

@@ -63,11 +63,12 @@ fn filled(pre: &Preprocessed) -> BTreeMap<(usize, usize), f64> {
         .map(|v| v.as_str().unwrap().to_string())
         .collect();
     pre.filled
-        .iter()
-        .map(|c| {
+        .list()
+        .into_iter()
+        .map(|(row, feature, value)| {
             (
-                (c.row, names.iter().position(|n| **n == *c.feature).unwrap()),
-                c.value,
+                (row, names.iter().position(|n| **n == feature).unwrap()),
+                value,
             )
         })
         .collect()
@@ -264,8 +265,9 @@ fn low_rank_with_gaps(
 fn rmse(pre: &Preprocessed, truth: &[(usize, usize, f64)]) -> f64 {
     let by: BTreeMap<(usize, String), f64> = pre
         .filled
-        .iter()
-        .map(|c| ((c.row, c.feature.to_string()), c.value))
+        .list()
+        .into_iter()
+        .map(|(row, feature, value)| ((row, feature), value))
         .collect();
     let sum: f64 = truth
         .iter()

@@ -7,7 +7,7 @@
 //! writer keeps no state from one record to the next that changes the bytes, so
 //! the file is identical to a single serial writer's on any number of threads.
 
-use crate::rows::RowResults;
+use crate::rows::{FilledCells, RowResults};
 use crate::run::RowDetail;
 use crate::stages::decompose::Decomposition;
 use crate::stages::diagnose::Diagnostics;
@@ -95,14 +95,6 @@ impl Scratch {
         write!(self.int, "{n}").expect("writing to a string cannot fail");
         out.field(&self.int);
     }
-
-    /// The label fields of a row (see [`label_fields`]).
-    fn labels(&mut self, out: &mut CsvOut, labels: &RowLabels, row: usize) {
-        self.count(out, row + 1);
-        for (_, v) in labels.id.iter().chain(&labels.groups) {
-            out.field(&v[row]);
-        }
-    }
 }
 
 /// Where a table's bytes go: into memory, or on to a file a stretch at a time,
@@ -181,7 +173,8 @@ pub fn component_names(k: usize) -> Vec<String> {
     (1..=k).map(|a| format!("PC{a}")).collect()
 }
 
-/// Row labels carried into scores.csv.
+/// Row labels by table row, for the serial writers in the tests.
+#[cfg(test)]
 pub struct RowLabels<'a> {
     /// 1-based data row number in the input table.
     pub rows: &'a [usize],
@@ -204,6 +197,7 @@ fn label_fields(labels: &RowLabels, row: usize) -> Vec<String> {
     fields
 }
 
+#[cfg(test)]
 fn label_header(labels: &RowLabels) -> Vec<String> {
     let mut header = vec!["row".to_string()];
     header.extend(labels.id.iter().map(|(n, _)| n.to_string()));
@@ -283,27 +277,30 @@ pub fn scores_csv_into(
 
 /// imputed.csv: every filled cell: the row's labels, the feature and the value
 /// filled in (on the transformed scale when the feature is transformed).
-pub fn imputed_csv(labels: &RowLabels, filled: &[crate::stages::missing::FilledCell]) -> Vec<u8> {
+pub fn imputed_csv(cells: &FilledCells) -> io::Result<Vec<u8>> {
     let mut bytes = Vec::new();
-    imputed_csv_into(labels, filled, &mut bytes);
-    bytes
+    imputed_csv_into(cells, &mut bytes)?;
+    Ok(bytes)
 }
 
-/// [`imputed_csv`] handed to `sink` a stretch at a time.
-pub fn imputed_csv_into(
-    labels: &RowLabels,
-    filled: &[crate::stages::missing::FilledCell],
-    sink: &mut dyn TableSink,
-) {
-    let mut header = label_header(labels);
+/// [`imputed_csv`] handed to `sink` a stretch at a time, as the cells are read.
+pub fn imputed_csv_into(cells: &FilledCells, sink: &mut dyn TableSink) -> io::Result<()> {
+    let mut header = vec!["row".to_string()];
+    header.extend(cells.id.iter().cloned());
+    header.extend(cells.groups.iter().cloned());
     header.extend(["feature", "filled_value"].map(String::from));
-    let write_row = |out: &mut CsvOut, scratch: &mut Scratch, i: usize| {
-        let cell = &filled[i];
-        scratch.labels(out, labels, cell.row);
-        out.field(cell.feature.as_bytes());
-        scratch.number(out, cell.value);
-    };
-    header_and_rows_into(&header, filled.len(), write_row, sink);
+    header_into(&header, sink);
+    cells.each(|b| {
+        let write_row = |out: &mut CsvOut, scratch: &mut Scratch, i: usize| {
+            scratch.count(out, b.table_row(i) + 1);
+            for text in b.texts(i) {
+                out.field(text);
+            }
+            out.field(b.feature(i).as_bytes());
+            scratch.number(out, b.value(i));
+        };
+        rows_into(b.len(), write_row, sink);
+    })
 }
 
 /// contributions.csv: for each flagged row, each feature's contribution to its T²
@@ -478,6 +475,7 @@ mod tests {
     use super::*;
     use crate::linalg::Matrix;
     use crate::recipe::raw::SpeLimit;
+    use crate::rows::CellIn;
     use crate::stages::diagnose::{Limits, with_limits};
     use crate::stages::missing::FilledCell;
 
@@ -764,11 +762,42 @@ mod tests {
                 .unwrap()
                 .contains(",\"y,z\",")
         );
+        let features: Vec<String> = ["\"w\"", "x", "y,z"].map(String::from).to_vec();
+        let cells = |filled: &[FilledCell]| {
+            FilledCells::from_cells(filled, &features, labels.id, &labels.groups)
+        };
+        let whole = cells(&filled);
         for threads in [1, 2, 8] {
-            let got = on_threads(threads, || imputed_csv(&labels, &filled));
+            let got = on_threads(threads, || imputed_csv(&whole).unwrap());
             assert!(got == reference, "imputed.csv differs on {threads} threads");
         }
-        assert_eq!(imputed_csv(&labels, &[]), imputed_csv_serial(&labels, &[]));
+        assert_eq!(
+            imputed_csv(&cells(&[])).unwrap(),
+            imputed_csv_serial(&labels, &[])
+        );
+        // Read back from a scratch file, in runs of 1,000 cells.
+        let dir = tempfile::tempdir().unwrap();
+        let names = labels.groups.iter().map(|g| g.0.to_string()).collect();
+        let mut spilled =
+            FilledCells::new(features.clone(), Some("id".into()), names, 0, dir.path());
+        whole
+            .each(|b| {
+                for from in (0..b.len()).step_by(1000) {
+                    let to = b.len().min(from + 1000);
+                    let batch: Vec<CellIn> = (from..to)
+                        .map(|i| CellIn {
+                            table_row: b.table_row(i),
+                            feature: features.iter().position(|f| f == b.feature(i)).unwrap(),
+                            value: b.value(i),
+                        })
+                        .collect();
+                    let texts = (from..to).flat_map(|i| b.texts(i).to_vec()).collect();
+                    spilled.push(&batch, texts).unwrap();
+                }
+            })
+            .unwrap();
+        assert_eq!(spilled.len(), 3 * n);
+        assert!(imputed_csv(&spilled).unwrap() == reference);
     }
 
     /// The serial contributions writer the parallel one replaced.

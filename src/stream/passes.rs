@@ -22,7 +22,7 @@ use crate::recipe::raw::{ConstantPolicy, MissingMethod};
 use crate::run::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::stages::decompose::{add_squares, from_cross_products};
 use crate::stages::diagnose::RowStatistics;
-use crate::stages::missing::{FeatureMissing, FillModel, FilledCell, MissingReport};
+use crate::stages::missing::{FeatureMissing, FillModel, MissingReport};
 use crate::stages::scale::{FeatureScale, ScaleReport, Scaled, check_finite};
 use crate::stages::select::{Evidence, select};
 use crate::stages::transform::{Applied, domain_error, transform_value};
@@ -347,10 +347,17 @@ pub fn preprocess(
     crate::progress::current().stage("pass 2 of 6: filled values");
     // Per feature: the sum, lowest and highest of the filled values.
     let mut filled_stats = vec![(SUM_START, f64::INFINITY, f64::NEG_INFINITY); q];
-    let shared_names: Vec<std::sync::Arc<str>> =
-        features.names.iter().map(|n| n.as_str().into()).collect();
+    let mut filled = crate::rows::FilledCells::new(
+        plan.features.clone(),
+        plan.input.id.clone(),
+        plan.input.groups.clone(),
+        if store.spilled() { 0 } else { u64::MAX },
+        &crate::run::scratch_dir(plan),
+    );
+    // The plan's index of each analysed feature, for the filled cells.
+    let in_plan: Vec<usize> = kept.clone();
+    let label_columns = label_columns(prepared);
     let mut rows = Vec::new();
-    let mut filled = Vec::new();
     let mut offset = 0;
     let (mut values, mut local) = (Vec::new(), Vec::new());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
@@ -383,9 +390,9 @@ pub fn preprocess(
                             let raw = &chunk.values[r * width..(r + 1) * width];
                             for j in 0..q {
                                 if raw[features.column[j]].is_nan() {
-                                    cells.push(FilledCell {
-                                        row: offset + r,
-                                        feature: shared_names[j].clone(),
+                                    cells.push(crate::rows::CellIn {
+                                        table_row: offset + r,
+                                        feature: in_plan[j],
                                         value: row[j],
                                     });
                                 }
@@ -396,7 +403,14 @@ pub fn preprocess(
                     .collect::<Vec<_>>()
             },
         );
-        filled.extend(cells.into_iter().flatten());
+        let cells: Vec<crate::rows::CellIn> = cells.into_iter().flatten().collect();
+        let texts = cells
+            .iter()
+            .flat_map(|c| label_columns.iter().map(move |l| l[c.table_row].clone()))
+            .collect();
+        filled
+            .push(&cells, texts)
+            .map_err(|e| scratch_error(prepared, e))?;
         rows.extend(local.iter().map(|r| offset + r));
         offset += chunk.rows;
         Ok(())
