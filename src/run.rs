@@ -54,6 +54,16 @@ pub struct PassData {
     pub store: std::sync::Mutex<crate::stream::store::Store>,
     /// The table column of each store column.
     pub numeric: Vec<usize>,
+    /// The table column of each of the store's texts.
+    pub texts: Vec<usize>,
+}
+
+impl PassData {
+    /// Where the store keeps the texts of table column `column`, if it does.
+    pub fn text_index(&self, table: &Table, column: &str) -> Option<usize> {
+        let c = table.columns.iter().position(|c| c.name == column)?;
+        self.texts.iter().position(|&t| t == c)
+    }
 }
 
 /// The data after every preprocessing stage, with the stages' reports.
@@ -183,7 +193,9 @@ fn prepare_in_passes(
     let ingested = ingested?;
     let t = crate::timing::lap("read, hash and parse in chunks", t);
     let table = ingested.table;
-    check_ids(&table, input.id.as_deref())?;
+    if let Some(id) = input.id.as_deref() {
+        crate::stream::check_ids(&table, &ingested.store, &ingested.texts, id, &scratch)?;
+    }
     let record = InputRecord {
         path: input.display.clone(),
         bytes,
@@ -197,7 +209,12 @@ fn prepare_in_passes(
     if wide && engine == crate::stream::Engine::Auto && !ingested.store.spilled() {
         // Only the in-memory engine analyses such a table (its n × n route), and
         // its values fit the budget: they become the table's columns.
-        let table = crate::stream::table_with_values(table, &ingested.store, &ingested.numeric);
+        let table = crate::stream::table_with_values(
+            table,
+            &ingested.store,
+            &ingested.numeric,
+            &ingested.texts,
+        );
         return Ok(Prepared::in_memory(recipe, plan, table, record));
     }
     if wide {
@@ -220,6 +237,7 @@ fn prepare_in_passes(
         passes: Some(PassData {
             store: std::sync::Mutex::new(ingested.store),
             numeric: ingested.numeric,
+            texts: ingested.texts,
         }),
     })
 }

@@ -40,13 +40,16 @@ pub struct Scaled {
     /// The values, or `None` when the streaming engine analysed the table in
     /// passes without holding it (see [`crate::stream`]).
     pub matrix: Option<Matrix>,
-    /// Index in the table of each analysed row.
+    /// Index in the table of each analysed row (empty in passes, where each
+    /// row's table row travels with its results).
     pub rows: Vec<usize>,
+    /// The number of analysed rows.
+    pub analysed: usize,
 }
 
 impl Scaled {
     pub fn n_rows(&self) -> usize {
-        self.rows.len()
+        self.analysed
     }
 
     pub fn n_features(&self) -> usize {
@@ -115,6 +118,7 @@ pub fn scale(
         Scaled {
             names,
             matrix: Some(Matrix::from_columns(&columns)),
+            analysed: data.rows.len(),
             rows: data.rows,
         },
         report,

@@ -14,13 +14,16 @@ use std::path::Path;
 /// Bytes read per chunk (a record longer than this makes its chunk longer).
 const CHUNK_BYTES: usize = 32 << 20;
 
-/// The table read in passes: its text columns, the counts of its numeric
-/// columns, and their values in a store.
+/// The table read in passes: its columns' names and counts, and its cells in
+/// a store.
 pub struct Ingested {
-    /// Text columns in full; numeric columns with their counts but no values.
+    /// The columns with no cells (numeric columns with their counts): the
+    /// values, texts and line numbers are in the store.
     pub table: Table,
     /// Table column index of each of the store's columns.
     pub numeric: Vec<usize>,
+    /// Table column index of each of the store's texts.
+    pub texts: Vec<usize>,
     pub store: Store,
     pub sha256: String,
     pub bytes: u64,
@@ -47,9 +50,10 @@ pub fn ingest(
         scratch,
     );
     let (sha256, bytes) = reader.finish_hash();
-    let result = result.map(|(table, numeric, store)| Ingested {
+    let result = result.map(|(table, numeric, texts, store)| Ingested {
         table,
         numeric,
+        texts,
         store,
         sha256: sha256.clone(),
         bytes,
@@ -143,7 +147,7 @@ fn read_all(
     check_header: impl FnOnce(&Header) -> Result<(), Error>,
     keep_in_memory: u64,
     scratch: &Path,
-) -> Result<(Table, Vec<usize>, Store), Error> {
+) -> Result<(Table, Vec<usize>, Vec<usize>, Store), Error> {
     let delimiter = options.delimiter;
     let mut buf = Vec::new();
     // The header: read until its record ends (or the file does).
@@ -163,10 +167,10 @@ fn read_all(
     buf.drain(..body_start);
     let width = layout.names.len();
     let numeric: Vec<usize> = (0..width).filter(|&j| !layout.is_text[j]).collect();
-    let mut store = Store::new(numeric.len(), keep_in_memory);
-    let mut texts: Vec<Vec<String>> = vec![Vec::new(); width];
+    let text_columns: Vec<usize> = (0..width).filter(|&j| layout.is_text[j]).collect();
+    let mut store = Store::new(numeric.len(), keep_in_memory).with_texts(text_columns.len());
     let mut counts: Vec<NumericColumn> = vec![NumericColumn::default(); width];
-    let mut lines: Vec<u64> = Vec::new();
+    let mut rows_read = 0usize;
     let mut next_line = 1 + header_lines;
     let pieces = 4 * rayon::current_num_threads().max(1);
     // `buf[hashed..]` was read but not hashed yet: it is hashed while the
@@ -197,22 +201,40 @@ fn read_all(
         let chunk = chunk?;
         parsing += t.elapsed().as_secs_f64();
         next_line += chunk.newlines;
-        lines.extend(chunk.lines);
+        rows_read += chunk.lines.len();
         crate::progress::current().add_bytes(end as u64);
-        crate::progress::current().set_rows(lines.len() as u64);
-        for (j, (t, n)) in chunk.texts.into_iter().zip(chunk.counts).enumerate() {
-            if layout.is_text[j] {
-                texts[j].extend(t);
-            } else {
+        crate::progress::current().set_rows(rows_read as u64);
+        for (j, n) in chunk.counts.into_iter().enumerate() {
+            if !layout.is_text[j] {
                 counts[j].append(n);
             }
         }
+        // Each run of rows goes to the store with its text cells (row by row)
+        // and its line numbers.
+        let mut texts: Vec<std::vec::IntoIter<String>> = chunk
+            .texts
+            .into_iter()
+            .enumerate()
+            .filter(|(j, _)| layout.is_text[*j])
+            .map(|(_, t)| t.into_iter())
+            .collect();
+        let mut lines = chunk.lines.into_iter();
         for (rows, values) in chunk.runs {
             if rows == 0 {
                 continue;
             }
+            let mut row_texts = Vec::with_capacity(rows * texts.len());
+            for _ in 0..rows {
+                row_texts.extend(texts.iter_mut().map(|t| t.next().expect("a text per row")));
+            }
+            let chunk = Chunk {
+                rows,
+                values,
+                texts: row_texts,
+                lines: lines.by_ref().take(rows).collect(),
+            };
             store
-                .push(Chunk::numbers(rows, values), scratch)
+                .push(chunk, scratch)
                 .map_err(|source| InputError::Io {
                     path: format!("a scratch file in {}", scratch.display()),
                     source,
@@ -229,13 +251,14 @@ fn read_all(
     }
     crate::timing::total("parse and hash", parsing);
     crate::timing::total("read", reading);
-    let table = Table::from_parts(
+    let mut table = Table::from_parts(
         display,
         layout.names.clone(),
-        texts,
+        vec![Vec::new(); width],
         counts,
         &layout.is_text,
-        lines,
+        Vec::new(),
     );
-    Ok((table, numeric, store))
+    table.rows = rows_read;
+    Ok((table, numeric, text_columns, store))
 }

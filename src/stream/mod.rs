@@ -142,9 +142,13 @@ pub fn table_with_values(
     mut table: crate::table::Table,
     store: &store::Store,
     numeric: &[usize],
+    text_columns: &[usize],
 ) -> crate::table::Table {
     let width = store.width();
+    let texts = store.text_width();
     let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(store.rows()); width];
+    let mut cells: Vec<Vec<String>> = vec![Vec::with_capacity(store.rows()); texts];
+    let mut lines = Vec::with_capacity(store.rows());
     store
         .pass(|chunk: &store::Chunk| -> Result<(), std::io::Error> {
             for row in chunk.values.chunks_exact(width.max(1)) {
@@ -152,6 +156,12 @@ pub fn table_with_values(
                     column.push(v);
                 }
             }
+            for row in chunk.texts.chunks_exact(texts.max(1)) {
+                for (column, text) in cells.iter_mut().zip(row) {
+                    column.push(text.clone());
+                }
+            }
+            lines.extend_from_slice(&chunk.lines);
             Ok(())
         })
         .expect("a store held in memory has no file to fail");
@@ -160,7 +170,81 @@ pub fn table_with_values(
             column.values = values;
         }
     }
+    for (texts, &c) in cells.into_iter().zip(text_columns) {
+        table.columns[c].data = crate::table::ColumnData::Text(std::sync::Arc::new(texts));
+    }
+    table.lines = lines;
     table
+}
+
+/// Bytes of ids the check of the id column holds before it sorts them into a
+/// scratch file.
+const ID_RUN_BYTES: usize = 64 << 20;
+
+/// The check of `run::check_ids` (ids present and unique) on ids kept in the
+/// store, in memory bounded by [`ID_RUN_BYTES`] (an external merge sort,
+/// [`unique`]); the first problem in row order is reported with its lines.
+pub fn check_ids(
+    table: &crate::table::Table,
+    store: &store::Store,
+    text_columns: &[usize],
+    id: &str,
+    scratch: &std::path::Path,
+) -> Result<(), crate::error::Error> {
+    use crate::error::{InputError, OutputError};
+    let Some(c) = table.columns.iter().position(|c| c.name == id) else {
+        return Ok(());
+    };
+    let Some(at) = text_columns.iter().position(|&t| t == c) else {
+        return Ok(());
+    };
+    let texts = store.text_width();
+    let io = |e| OutputError::io(scratch, e);
+    let mut check = unique::IdCheck::new(scratch, ID_RUN_BYTES);
+    store
+        .pass(|chunk: &store::Chunk| {
+            check.push((0..chunk.rows).map(|r| chunk.texts[r * texts + at].as_str()))
+        })
+        .map_err(io)?;
+    let Some(problem) = check.finish().map_err(io)? else {
+        return Ok(());
+    };
+    // The lines (and the repeated id) of the rows the problem names.
+    let (row, first) = match problem {
+        unique::IdProblem::Empty { row } => (row, row),
+        unique::IdProblem::Repeat { row, first } => (row, first),
+    };
+    let (mut line, mut first_line, mut text) = (0, 0, String::new());
+    let mut start = 0;
+    store
+        .pass(|chunk: &store::Chunk| -> std::io::Result<()> {
+            if (start..start + chunk.rows).contains(&row) {
+                line = chunk.lines[row - start];
+                text = chunk.texts[(row - start) * texts + at].clone();
+            }
+            if (start..start + chunk.rows).contains(&first) {
+                first_line = chunk.lines[first - start];
+            }
+            start += chunk.rows;
+            Ok(())
+        })
+        .map_err(io)?;
+    let path = table.display.clone();
+    Err(match problem {
+        unique::IdProblem::Empty { .. } => InputError::MissingId {
+            path,
+            line,
+            column: id.into(),
+        },
+        unique::IdProblem::Repeat { .. } => InputError::DuplicateId {
+            path,
+            line,
+            column: id.into(),
+            id: text,
+            first_line,
+        },
+    }
+    .into())
 }
 
 /// Reads a size such as `512MB`, `2GB`, `1.5GiB`, `64KB` or a count of bytes

@@ -175,8 +175,8 @@ struct FirstPass {
     observed: usize,
     low: f64,
     high: f64,
-    /// The first value outside the transform's domain: its row and value.
-    bad: Option<(usize, f64)>,
+    /// The first value outside the transform's domain: its line and value.
+    bad: Option<(u64, f64)>,
 }
 
 /// Runs the missing, transform and scaling stages in passes 1–3.
@@ -238,7 +238,7 @@ pub fn preprocess(
                         Some(t) => match transform_value(t, v) {
                             Some(out) => out,
                             None => {
-                                f.bad.get_or_insert((offset + r, v));
+                                f.bad.get_or_insert((chunk.lines[r], v));
                                 continue;
                             }
                         },
@@ -256,8 +256,8 @@ pub fn preprocess(
     })?;
     // Transform errors in feature order, as the transform stage reports them.
     for (j, f) in first.iter().enumerate() {
-        if let (Some((row, v)), Some(t)) = (f.bad, pending[j]) {
-            return Err(domain_error(&source, table.lines[row], &plan.features[j], v, t).into());
+        if let (Some((line, v)), Some(t)) = (f.bad, pending[j]) {
+            return Err(domain_error(&source, line, &plan.features[j], v, t).into());
         }
     }
     // Every value is in its transform's domain: transform the store once, so
@@ -356,8 +356,9 @@ pub fn preprocess(
     );
     // The plan's index of each analysed feature, for the filled cells.
     let in_plan: Vec<usize> = kept.clone();
-    let label_columns = label_columns(prepared);
-    let mut rows = Vec::new();
+    let labels = label_texts(prepared);
+    let texts = store.text_width();
+    let mut analysed = 0;
     let mut offset = 0;
     let (mut values, mut local) = (Vec::new(), Vec::new());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
@@ -390,11 +391,14 @@ pub fn preprocess(
                             let raw = &chunk.values[r * width..(r + 1) * width];
                             for j in 0..q {
                                 if raw[features.column[j]].is_nan() {
-                                    cells.push(crate::rows::CellIn {
-                                        table_row: offset + r,
-                                        feature: in_plan[j],
-                                        value: row[j],
-                                    });
+                                    cells.push((
+                                        r,
+                                        crate::rows::CellIn {
+                                            table_row: offset + r,
+                                            feature: in_plan[j],
+                                            value: row[j],
+                                        },
+                                    ));
                                 }
                             }
                         }
@@ -403,22 +407,22 @@ pub fn preprocess(
                     .collect::<Vec<_>>()
             },
         );
-        let cells: Vec<crate::rows::CellIn> = cells.into_iter().flatten().collect();
-        let texts = cells
+        let (at, cells): (Vec<usize>, Vec<crate::rows::CellIn>) =
+            cells.into_iter().flatten().unzip();
+        let cell_texts = at
             .iter()
-            .flat_map(|c| label_columns.iter().map(move |l| l[c.table_row].clone()))
+            .flat_map(|&r| row_labels(chunk, texts, &labels, r))
             .collect();
         filled
-            .push(&cells, texts)
+            .push(&cells, cell_texts)
             .map_err(|e| scratch_error(prepared, e))?;
-        rows.extend(local.iter().map(|r| offset + r));
+        analysed += local.len();
         offset += chunk.rows;
         Ok(())
     })?;
     let sums: Vec<f64> = filled_stats.iter().map(|s| s.0).collect();
     let lows: Vec<f64> = filled_stats.iter().map(|s| s.1).collect();
     let highs: Vec<f64> = filled_stats.iter().map(|s| s.2).collect();
-    let analysed = rows.len();
     let rows_dropped = n - analysed;
     let mut warnings = Vec::new();
     if !drop_incomplete {
@@ -537,12 +541,14 @@ pub fn preprocess(
     }
     let pre = Preprocessed {
         scaled: Scaled {
+            analysed,
             names: keep_scaled
                 .iter()
                 .map(|&j| features.names[j].clone())
                 .collect(),
             matrix: None,
-            rows,
+            // Each row's table row travels with its results instead.
+            rows: Vec::new(),
         },
         filled,
         fill_model,
@@ -634,7 +640,8 @@ pub fn analyse(
     );
     let mut diagnostics = crate::run::diagnostics_for(plan, n, kept, moments);
     let mut results = results_for(prepared, computed, store.spilled());
-    let label_columns = label_columns(prepared);
+    let labels = label_texts(prepared);
+    let texts = store.text_width();
     // Per chunk: each row's scores (kept, then the others), T² and SPE.
     let (mut scores, mut t2, mut spe) = (Vec::new(), Vec::new(), Vec::new());
     let mut first = 0;
@@ -668,9 +675,9 @@ pub fn analyse(
         diagnostics.count(first, &t2, &spe);
         table_rows.clear();
         table_rows.extend(local.iter().map(|r| offset + r));
-        let texts = table_rows
+        let row_texts = local
             .iter()
-            .flat_map(|&r| label_columns.iter().map(move |c| c[r].clone()))
+            .flat_map(|&r| row_labels(chunk, texts, &labels, r))
             .collect();
         results
             .push(crate::rows::RowsIn {
@@ -678,7 +685,7 @@ pub fn analyse(
                 scores: &scores,
                 t2: &t2,
                 spe: &spe,
-                texts,
+                texts: row_texts,
             })
             .map_err(|e| scratch_error(prepared, e))?;
         first += m;
@@ -691,10 +698,17 @@ pub fn analyse(
     // Pass 6: only the wanted rows are brought to the analysis scale.
     crate::progress::current().stage("pass 6 of 6: rows for contributions");
     // The wanted rows by their table row, with their index among the analysed rows.
-    let wanted: std::collections::BTreeMap<usize, usize> = rows_needing_values(&diagnostics, plan)
-        .into_iter()
-        .map(|i| (pre.scaled.rows[i], i))
-        .collect();
+    let needed = rows_needing_values(&diagnostics, plan);
+    let mut wanted = std::collections::BTreeMap::new();
+    results
+        .each(|b| {
+            let from = needed.partition_point(|&i| i < b.first);
+            let to = needed.partition_point(|&i| i < b.first + b.len());
+            for &i in &needed[from..to] {
+                wanted.insert(b.table_row(i - b.first), i);
+            }
+        })
+        .map_err(|e| scratch_error(prepared, e))?;
     let mut row_values = std::collections::BTreeMap::new();
     if !wanted.is_empty() {
         let mut first = 0;
@@ -737,18 +751,30 @@ fn results_for(prepared: &Prepared, computed: usize, spill: bool) -> crate::rows
     )
 }
 
-/// The table's id column (if any) and group columns, in that order.
-fn label_columns(prepared: &Prepared) -> Vec<std::sync::Arc<Vec<String>>> {
+/// Where the store keeps the texts of the id column (if any) and of the group
+/// columns, in that order.
+fn label_texts(prepared: &Prepared) -> Vec<usize> {
     let plan = &prepared.plan;
+    let data = prepared.passes.as_ref().expect("analysed in passes");
     plan.input
         .id
         .iter()
         .chain(&plan.input.groups)
-        .map(|name| match prepared.table.column(name).map(|c| &c.data) {
-            Some(crate::table::ColumnData::Text(v)) => std::sync::Arc::clone(v),
-            _ => unreachable!("id and group columns are read as text"),
+        .map(|name| {
+            data.text_index(&prepared.table, name)
+                .expect("id and group columns are read as text")
         })
         .collect()
+}
+
+/// The label texts (`at` in the store's texts) of row `r` of a chunk.
+fn row_labels<'a>(
+    chunk: &'a Chunk,
+    texts: usize,
+    at: &'a [usize],
+    r: usize,
+) -> impl Iterator<Item = String> + 'a {
+    at.iter().map(move |&t| chunk.texts[r * texts + t].clone())
 }
 
 fn scratch_error(prepared: &Prepared, e: std::io::Error) -> Error {

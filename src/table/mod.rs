@@ -22,7 +22,11 @@ pub struct Table {
     /// The path as shown in messages (relative to the recipe, as written there).
     pub display: String,
     pub columns: Vec<Column>,
+    /// Empty, with the columns' cells, when the passes engine keeps the rows
+    /// in its store.
     pub lines: Vec<u64>,
+    /// The number of rows.
+    pub rows: usize,
 }
 
 impl Table {
@@ -52,12 +56,13 @@ impl Table {
         Table {
             display: display.to_string(),
             columns,
+            rows: lines.len(),
             lines,
         }
     }
 
     pub fn n_rows(&self) -> usize {
-        self.lines.len()
+        self.rows
     }
 
     pub fn column(&self, name: &str) -> Option<&Column> {
