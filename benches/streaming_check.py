@@ -11,8 +11,14 @@ With ``--compare`` it also runs the in-memory engine on the same table (this
 needs about 4 x the file size of memory) and checks that every result file is
 the same bytes.
 
+With ``--flat`` it runs the same recipe on a table of half the size too, and
+checks that the peak does not grow with the rows: doubling the rows may add at
+most 5 % of the smaller peak plus 16 MB (allocator noise), i.e. a few bytes per
+row at most, where holding anything per row would add tens.
+
     python3 benches/streaming_check.py                     # 2 GB table, 1.5 GB budget
     python3 benches/streaming_check.py --gb 2 --budget 2GB --compare
+    python3 benches/streaming_check.py --gb 2 --budget 256MB --flat
 """
 import argparse
 import json
@@ -90,6 +96,7 @@ def main():
     ap.add_argument("--data", default=os.path.join(ROOT, "target", "bench-data"))
     ap.add_argument("--sextant", default=os.path.join(ROOT, "target", "release", "sextant"))
     ap.add_argument("--compare", action="store_true", help="also run in memory and compare the results")
+    ap.add_argument("--flat", action="store_true", help="also run a table of half the size and compare the peaks")
     a = ap.parse_args()
 
     os.makedirs(a.data, exist_ok=True)
@@ -100,14 +107,7 @@ def main():
     print(f"building {table} ({a.gb:g} GB) from L.csv", file=sys.stderr)
     build_table(source, table, int(a.gb * 1e9))
     size = os.path.getsize(table)
-    with open(os.path.join(a.data, "XL.toml"), "w") as f:
-        f.write(
-            "# Written by benches/streaming_check.py: a table larger than the memory budget.\n"
-            'format = 1\ntitle = "streaming check"\n\n[input]\nfile = "XL.csv"\nid = "sample_id"\n'
-            'groups = ["group"]\n\n[missing]\nmethod = "mean"\n\n[scaling]\nmethod = "unit-variance"\n\n'
-            '[components]\nkeep = 10\n\n[[plot]]\nkind = "scree"\n\n[[plot]]\nkind = "scores"\nx = 1\ny = 2\n'
-            'color = "group"\n\n[output]\nfolder = "out/XL-sextant"\n'
-        )
+    write_recipe(a.data, "XL")
     budget = size_arg(a.budget)
     wall, peak, code, stderr = run(
         [a.sextant, "run", "--replace", "XL.toml", "--memory-budget", a.budget], a.data
@@ -131,8 +131,43 @@ def main():
               f"results {'identical' if same else 'DIFFERENT'} ({len(memory)} files)")
         subprocess.run(["rm", "-rf", os.path.join(a.data, "out", "XL-passes")])
         ok = ok and same
+    if a.flat and code == 0:
+        half = os.path.join(a.data, "XL-half.csv")
+        build_table(source, half, int(a.gb * 1e9 / 2))
+        write_recipe(a.data, "XL-half")
+        wall3, peak3, code3, stderr3 = run(
+            [a.sextant, "run", "--replace", "XL-half.toml", "--memory-budget", a.budget], a.data
+        )
+        if code3 != 0:
+            print(stderr3, file=sys.stderr)
+        rows, rows_half = count_rows(table), count_rows(half)
+        per_row = (peak - peak3) / max(rows - rows_half, 1)
+        flat = code3 == 0 and peak - peak3 <= 0.05 * peak3 + 16e6
+        print(f"half size  {os.path.getsize(half) / 1e9:.2f} GB, {rows_half} rows: {wall3:.1f} s, peak {peak3 / 1e9:.3f} GB")
+        print(f"full size  {rows} rows: peak {peak / 1e9:.3f} GB; {per_row:+.1f} bytes per extra row "
+              f"({'flat' if flat else 'GROWS with the rows'})")
+        ok = ok and flat
     print("PASS: the run stayed within its budget" if ok else "FAIL")
     return 0 if ok else 1
+
+
+def write_recipe(data, name):
+    """The benchmark's recipe for table `name`.csv, results in out/`name`-sextant."""
+    with open(os.path.join(data, f"{name}.toml"), "w") as f:
+        f.write(
+            "# Written by benches/streaming_check.py: a table larger than the memory budget.\n"
+            f'format = 1\ntitle = "streaming check"\n\n[input]\nfile = "{name}.csv"\nid = "sample_id"\n'
+            'groups = ["group"]\n\n[missing]\nmethod = "mean"\n\n[scaling]\nmethod = "unit-variance"\n\n'
+            '[components]\nkeep = 10\n\n[[plot]]\nkind = "scree"\n\n[[plot]]\nkind = "scores"\nx = 1\ny = 2\n'
+            'color = "group"\n\n[[plot]]\nkind = "biplot"\nx = 1\ny = 2\n\n[[plot]]\nkind = "outlier-map"\n\n'
+            f'[output]\nfolder = "out/{name}-sextant"\n'
+        )
+
+
+def count_rows(path):
+    """Data rows of a CSV with one record per line (the benchmark's tables)."""
+    with open(path, "rb") as f:
+        return sum(chunk.count(b"\n") for chunk in iter(lambda: f.read(1 << 24), b"")) - 1
 
 
 if __name__ == "__main__":

@@ -177,12 +177,14 @@ pub fn table_with_values(
     table
 }
 
-/// Bytes of ids the check of the id column holds before it sorts them into a
-/// scratch file.
-const ID_RUN_BYTES: usize = 64 << 20;
+/// Bytes of ids the check of the id column holds at most before it sorts them
+/// into a scratch file: an eighth of the memory budget, between 1 and 64 MB.
+fn id_run_bytes(store: &store::Store) -> usize {
+    (store.limit() / 8).clamp(1 << 20, 64 << 20) as usize
+}
 
 /// The check of `run::check_ids` (ids present and unique) on ids kept in the
-/// store, in memory bounded by [`ID_RUN_BYTES`] (an external merge sort,
+/// store, in memory bounded by [`id_run_bytes`] (an external merge sort,
 /// [`unique`]); the first problem in row order is reported with its lines.
 pub fn check_ids(
     table: &crate::table::Table,
@@ -200,7 +202,7 @@ pub fn check_ids(
     };
     let texts = store.text_width();
     let io = |e| OutputError::io(scratch, e);
-    let mut check = unique::IdCheck::new(scratch, ID_RUN_BYTES);
+    let mut check = unique::IdCheck::new(scratch, id_run_bytes(store));
     store
         .pass(|chunk: &store::Chunk| {
             check.push((0..chunk.rows).map(|r| chunk.texts[r * texts + at].as_str()))

@@ -92,6 +92,11 @@ impl Store {
         self.text_width
     }
 
+    /// Bytes the store may keep in memory.
+    pub fn limit(&self) -> u64 {
+        self.limit
+    }
+
     pub fn rows(&self) -> usize {
         self.rows
     }
