@@ -1,15 +1,14 @@
 //! Builds the plain views that figures and the report are drawn from, and the
 //! report's summary sentences and cautions.
 
-use super::view::{
-    Evidence, FlaggedLine, PlotView, ReportView, RowTexts, ScoreRows, Scores3d, VarianceLine,
-};
+use super::view::{Evidence, FlaggedLine, PlotView, ReportView, Scores3d, VarianceLine};
 use crate::recipe::raw::Keep;
 use crate::run::{Analysis, Prepared, Preprocessed};
 use crate::stages::diagnose::contributions;
 use crate::stages::select::pct;
 use crate::table::ColumnData;
 use rayon::prelude::*;
+use std::collections::BTreeMap;
 use std::sync::Arc;
 
 /// A text column of the table, shared (id and group columns are read as text).
@@ -17,18 +16,6 @@ fn text_column(prepared: &Prepared, name: &str) -> Arc<Vec<String>> {
     match prepared.table.column(name).map(|c| &c.data) {
         Some(ColumnData::Text(v)) => Arc::clone(v),
         _ => unreachable!("id and group columns are read as text"),
-    }
-}
-
-/// The label of each analysed row: its id, or its row number.
-fn row_labels(prepared: &Prepared, rows: &Arc<Vec<usize>>) -> RowTexts {
-    match &prepared.plan.input.id {
-        Some(id) => RowTexts::of_rows(text_column(prepared, id), Arc::clone(rows)),
-        None => RowTexts::from(
-            rows.iter()
-                .map(|r| format!("row {}", r + 1))
-                .collect::<Vec<_>>(),
-        ),
     }
 }
 
@@ -88,7 +75,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         row.extend_from_slice(analysis.more_scores.row(i));
         row
     };
-    let scores = {
+    let (cols, scores) = {
         let (kept, more) = (analysis.scores.cols, analysis.more_scores.cols);
         let cols = kept + more;
         let mut data = vec![0.0; n * cols];
@@ -98,13 +85,13 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
                 row[..kept].copy_from_slice(analysis.scores.row(i));
                 row[kept..kept + more].copy_from_slice(analysis.more_scores.row(i));
             });
-        ScoreRows { cols, data }
+        (cols, data)
     };
     let loadings = (0..p)
         .map(|j| (0..computed).map(|a| d.loadings.get(j, a)).collect())
         .collect();
-    // The table row of each analysed row, shared by the label and group columns.
-    let rows = Arc::new(pre.scaled.rows.clone());
+    // The table row of each analysed row, for the label and group columns.
+    let rows = &pre.scaled.rows;
     let correlations = if prepared.plan.scaling.centers() {
         correlations_of_centred(&analysis.column_squares, n, d, computed)
     } else {
@@ -154,9 +141,9 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         loadings,
         correlations,
         rows: Arc::new(crate::rows::RowResults::from_parts(
-            scores.cols,
-            &pre.scaled.rows,
-            &scores.data,
+            cols,
+            rows,
+            &scores,
             &diag.t2,
             &diag.spe,
             plan.input.id.as_ref().map(|id| {
@@ -175,32 +162,9 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
                 })
                 .collect(),
         )),
-        scores,
-        row_labels: row_labels(prepared, &rows),
-        groups: plan
-            .input
-            .groups
-            .iter()
-            .map(|g| {
-                let values = RowTexts::of_rows(text_column(prepared, g), Arc::clone(&rows));
-                (g.clone(), values)
-            })
-            .collect(),
-        t2: diag.t2.clone(),
-        spe: diag.spe.clone(),
         confidence: first.map_or(0.95, |l| l.confidence),
         t2_limit: first.and_then(|l| l.t2),
         spe_limit: first.and_then(|l| l.spe),
-        flagged: (0..n)
-            .map(|i| {
-                let (a, b) = if diag.limits.is_empty() {
-                    (false, false)
-                } else {
-                    diag.flags(i, 0)
-                };
-                a || b
-            })
-            .collect(),
         scaling: plan.scaling.name().to_string(),
     }
 }
@@ -301,7 +265,7 @@ pub const POINTS_3D: usize = 5_000;
 /// The rows the rotating view shows: all of a small table; of a large one, every
 /// k-th row and up to 500 of the most unusual flagged rows, in row order.
 fn rows_for_3d(view: &PlotView, diag: &crate::stages::diagnose::Diagnostics) -> Vec<usize> {
-    let n = view.scores.len();
+    let n = view.rows.len();
     if n <= POINTS_3D {
         return (0..n).collect();
     }
@@ -311,6 +275,37 @@ fn rows_for_3d(view: &PlotView, diag: &crate::stages::diagnose::Diagnostics) -> 
     rows.sort_unstable();
     rows.dedup();
     rows
+}
+
+/// What the report shows of one row: its label, its first three scores and
+/// its value in the first group column.
+struct RowShown {
+    label: String,
+    scores: Vec<f64>,
+    group: Option<String>,
+}
+
+/// The rows `wanted` (ascending), read from the view's rows in one pass.
+fn rows_shown(view: &PlotView, wanted: &[usize]) -> BTreeMap<usize, RowShown> {
+    let mut out = BTreeMap::new();
+    let has_group = !view.rows.groups.is_empty();
+    view.rows.scan(|batch| {
+        let from = wanted.partition_point(|&r| r < batch.first);
+        let to = wanted.partition_point(|&r| r < batch.first + batch.len());
+        for &r in &wanted[from..to] {
+            let i = r - batch.first;
+            let scores = batch.scores(i);
+            out.insert(
+                r,
+                RowShown {
+                    label: batch.label(i).into_owned(),
+                    scores: scores[..scores.len().min(3)].to_vec(),
+                    group: has_group.then(|| batch.group(0, i).to_string()),
+                },
+            );
+        }
+    });
+    out
 }
 
 /// The report view; `figures` and `provenance` are filled by the caller.
@@ -350,8 +345,13 @@ pub fn report_view(
         })
         .collect();
     let diag = &analysis.diagnostics;
-    let flagged = diag
-        .most_unusual(REPORT_FLAGGED_ROWS)
+    let unusual = diag.most_unusual(REPORT_FLAGGED_ROWS);
+    let shown = rows_for_3d(view, diag);
+    let mut wanted: Vec<usize> = unusual.iter().chain(&shown).copied().collect();
+    wanted.sort_unstable();
+    wanted.dedup();
+    let picked = rows_shown(view, &wanted);
+    let flagged = unusual
         .into_iter()
         .map(|i| {
             let (t2_above, spe_above) = if diag.limits.is_empty() {
@@ -377,7 +377,7 @@ pub fn report_view(
                     .then(a.cmp(&b))
             });
             FlaggedLine {
-                label: view.row_labels[i].to_string(),
+                label: picked[&i].label.clone(),
                 t2: diag.t2[i],
                 spe: diag.spe[i],
                 t2_above,
@@ -390,27 +390,23 @@ pub fn report_view(
             }
         })
         .collect();
-    let shown = rows_for_3d(view, diag);
     let scores3d = (s.computed >= 3).then(|| Scores3d {
         axis_titles: [view.axis_title(0), view.axis_title(1), view.axis_title(2)],
         points: shown
             .iter()
             .map(|&i| {
-                [
-                    view.scores.row(i)[0],
-                    view.scores.row(i)[1],
-                    view.scores.row(i)[2],
-                ]
+                let t = &picked[&i].scores;
+                [t[0], t[1], t[2]]
             })
             .collect(),
-        labels: shown
-            .iter()
-            .map(|&i| view.row_labels[i].to_string())
-            .collect(),
-        group: view.groups.first().map(|(name, values)| {
+        labels: shown.iter().map(|&i| picked[&i].label.clone()).collect(),
+        group: view.rows.groups.first().map(|name| {
             (
                 name.clone(),
-                shown.iter().map(|&i| values[i].to_string()).collect(),
+                shown
+                    .iter()
+                    .map(|&i| picked[&i].group.clone().unwrap_or_default())
+                    .collect(),
             )
         }),
     });
@@ -421,12 +417,12 @@ pub fn report_view(
             "The flagged-rows table lists the {REPORT_FLAGGED_ROWS} most unusual of the {all_flagged} flagged rows; scores.csv flags them all."
         ));
     }
-    if shown.len() < view.scores.len() {
+    if shown.len() < view.rows.len() {
         summary.push(format!(
             "The rotating view shows {} of the {} rows: every {}th row and the most unusual flagged rows.",
             shown.len(),
-            view.scores.len(),
-            view.scores.len().div_ceil(POINTS_3D)
+            view.rows.len(),
+            view.rows.len().div_ceil(POINTS_3D)
         ));
     }
     ReportView {
