@@ -864,6 +864,132 @@ fn rows_in_a_scratch_file_draw_the_same_bytes() {
     }
 }
 
+/// Rows for the pinned figures: `n` rows on 3 components; every
+/// `flag_every`-th row above the T² limit with one of five T² values (ties in
+/// severity), every 13th above the SPE limit; `far` puts row 1 far beyond the
+/// T² limit (bit 1) and row 2 far beyond the SPE limit (bit 2); `odd` puts
+/// non-finite values, a zero T² and a negative zero among the rows. The group
+/// "site" has an empty value and names with digit runs; table rows are 1, 3, 5, …
+fn pinned_view(n: usize, flag_every: usize, far: u32, odd: bool, seed: u64, ids: bool) -> PlotView {
+    let mut rng = Lcg(seed);
+    let mut scores = Vec::with_capacity(3 * n);
+    for _ in 0..n {
+        for l in EIGENVALUES {
+            let u = rng.next() + rng.next() + rng.next() + rng.next();
+            scores.push(u * 1.732 * l.sqrt());
+        }
+    }
+    let mut t2: Vec<f64> = (0..n)
+        .map(|i| {
+            let s = &scores[3 * i..3 * i + 3];
+            if i % flag_every == 3 {
+                12.0 + (i % 5) as f64
+            } else {
+                s[0] * s[0] / 2.0 + s[1] * s[1] / 1.25
+            }
+        })
+        .collect();
+    let mut spe: Vec<f64> = (0..n)
+        .map(|i| {
+            if i % 13 == 5 {
+                0.9 + (i % 3) as f64 * 0.1
+            } else {
+                0.2 + (i % 7) as f64 * 0.07
+            }
+        })
+        .collect();
+    if far & 1 != 0 {
+        t2[1] = 900.0;
+    }
+    if far & 2 != 0 {
+        spe[2] = 80.0;
+    }
+    if odd {
+        scores[3 * 4] = f64::NAN;
+        scores[3 * 7 + 1] = f64::INFINITY;
+        scores[3 * 9 + 2] = f64::NEG_INFINITY;
+        t2[11] = f64::INFINITY;
+        spe[17] = f64::NAN;
+        t2[13] = 0.0;
+        scores[3 * 13] = -0.0;
+    }
+    let sites = ["south", "north", "east", "west", "", "site 10", "site 2"];
+    let mut v = view(0, 1);
+    v.n_rows = n;
+    v.correlations = v.loadings.clone();
+    v.rows = Arc::new(RowResults::from_parts(
+        3,
+        &(0..n).map(|i| 2 * i + 1).collect::<Vec<_>>(),
+        &scores,
+        &t2,
+        &spe,
+        ids.then(|| ("id".to_string(), (0..n).map(|i| format!("r{i}")).collect())),
+        vec![(
+            "site".into(),
+            (0..n)
+                .map(|i| sites[(i * 7 + i / 3) % 7].to_string())
+                .collect(),
+        )],
+    ));
+    v
+}
+
+#[test]
+fn pinned_figures_keep_their_bytes() {
+    // Regression pin (tests/data/plot_digests.txt): figures drawn from whole
+    // per-row vectors, before the rows were read in passes, in point mode
+    // (300 rows) and density mode (30,000 rows, more than 2,000 flagged), with
+    // and without ids, groups, labels, root scales and non-finite values.
+    let pinned = fs::read_to_string(
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/plot_digests.txt"),
+    )
+    .unwrap();
+    let expected: Vec<(&str, &str)> = pinned
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .map(|l| (&l[66..], &l[..64]))
+        .collect();
+    let views = [
+        ("small", pinned_view(300, 10, 0, true, 7, true)),
+        ("small-far-noid", pinned_view(300, 10, 3, true, 8, false)),
+        ("big", pinned_view(30_000, 10, 0, true, 11, true)),
+        ("big-far", pinned_view(30_000, 25, 3, true, 12, true)),
+    ];
+    let mut drawn = Vec::new();
+    for (name, v) in &views {
+        for (kind, x, y) in [
+            (PlotKind::Scores, 1, 2),
+            (PlotKind::Biplot, 1, 3),
+            (PlotKind::OutlierMap, 0, 0),
+        ] {
+            for labels in [PointLabels::Flagged, PointLabels::All] {
+                for colour in [None, Some("site")] {
+                    if kind == PlotKind::OutlierMap && colour.is_some() {
+                        continue;
+                    }
+                    let mut p = plan(kind, x, y);
+                    p.labels = labels;
+                    p.color = colour.map(String::from);
+                    if kind == PlotKind::Scores {
+                        p.ellipse = Some(0.95);
+                    }
+                    let key = format!(
+                        "{name}--{}-{x}{y}-{labels:?}-{}",
+                        kind.name(),
+                        colour.unwrap_or("none")
+                    );
+                    let svg = plots::render(&p, v);
+                    drawn.push((key, sextant::outputs::hashing::sha256_hex(svg.as_bytes())));
+                }
+            }
+        }
+    }
+    assert_eq!(drawn.len(), expected.len());
+    for ((key, digest), (want_key, want)) in drawn.iter().zip(&expected) {
+        assert_eq!((key.as_str(), digest.as_str()), (*want_key, *want));
+    }
+}
+
 // ------------------------------------------------------------ real runs ----
 
 fn copy_dir(from: &Path, to: &Path) {
