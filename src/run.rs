@@ -792,6 +792,11 @@ pub fn render(
     let draw = || -> Result<_, Error> {
         let figures = figures(prepared, &view)?;
         let report_view = report_view_of(prepared, pre, analysis, &view, &figures);
+        // The figures read the rows without stopping for an error; one is
+        // reported here, before anything drawn from partial rows is kept.
+        if let Some(e) = view.rows.take_error() {
+            return Err(crate::error::OutputError::io(&scratch_dir(&prepared.plan), e).into());
+        }
         Ok((figures, report_view))
     };
     let tables = || result_files(prepared, pre, analysis, staging);

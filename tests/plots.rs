@@ -6,12 +6,14 @@
 
 use sextant::error::Position;
 use sextant::outputs::plots::{self, MAX_INDIVIDUAL};
-use sextant::outputs::view::{Evidence, PlotView, ScoreRows};
+use sextant::outputs::view::{Evidence, PlotView};
 use sextant::recipe::plots::PlotPlan;
 use sextant::recipe::raw::{PlotKind, PointLabels};
+use sextant::rows::{RowResults, RowsIn};
 use std::fs;
 use std::path::Path;
 use std::process::Command;
+use std::sync::Arc;
 use std::time::Instant;
 
 const BIN: &str = env!("CARGO_BIN_EXE_sextant");
@@ -33,16 +35,27 @@ impl Lcg {
 
 const FEATURES: [&str; 5] = ["alpha", "beta", "gamma", "delta", "epsilon"];
 
-/// A view of `n` rows, 5 features, 3 computed and 2 kept components, a
-/// group column "site" with values given in scrambled order, and every
-/// `flag_every`-th row above a limit.
-fn view(n: usize, flag_every: usize) -> PlotView {
-    let eigenvalues = vec![2.0, 1.25, 0.75];
-    let total = 5.0;
+/// The rows of a test view, kept apart from it so a test can change them and
+/// build the view again.
+#[derive(Clone)]
+struct Rows {
+    scores: Vec<Vec<f64>>,
+    ids: Vec<String>,
+    sites: Vec<String>,
+    t2: Vec<f64>,
+    spe: Vec<f64>,
+}
+
+const EIGENVALUES: [f64; 3] = [2.0, 1.25, 0.75];
+
+/// `n` rows on 3 components, a group column "site" with values given in
+/// scrambled order, and every `flag_every`-th row above the T² limit of 9; the
+/// other rows stay within both limits (T² at most 8.5, SPE at most 0.68 < 0.75).
+fn rows(n: usize, flag_every: usize) -> Rows {
     let mut rng = Lcg(7);
     let scores: Vec<Vec<f64>> = (0..n)
         .map(|_| {
-            eigenvalues
+            EIGENVALUES
                 .iter()
                 // A sum of four uniforms: bell-shaped, with variance λ.
                 .map(|l: &f64| {
@@ -52,6 +65,67 @@ fn view(n: usize, flag_every: usize) -> PlotView {
                 .collect()
         })
         .collect();
+    let sites = ["south", "north", "east", "west"];
+    let t2: Vec<f64> = scores
+        .iter()
+        .enumerate()
+        .map(|(i, s)| {
+            let t = s[0] * s[0] / 2.0 + s[1] * s[1] / 1.25;
+            if i % flag_every == 3 {
+                t + 12.0
+            } else {
+                t.min(8.5)
+            }
+        })
+        .collect();
+    Rows {
+        ids: (0..n).map(|i| format!("row-{i:04}")).collect(),
+        sites: (0..n)
+            .map(|i| sites[(i * 7 + i / 3) % 4].to_string())
+            .collect(),
+        spe: (0..n).map(|i| 0.2 + (i % 7) as f64 * 0.08).collect(),
+        scores,
+        t2,
+    }
+}
+
+impl Rows {
+    /// The rows in the opposite order.
+    fn reverse(&mut self) {
+        self.scores.reverse();
+        self.ids.reverse();
+        self.sites.reverse();
+        self.t2.reverse();
+        self.spe.reverse();
+    }
+
+    /// The rows' results held in memory.
+    fn results(&self) -> RowResults {
+        let n = self.t2.len();
+        RowResults::from_parts(
+            EIGENVALUES.len(),
+            &(0..n).collect::<Vec<_>>(),
+            &self.scores.concat(),
+            &self.t2,
+            &self.spe,
+            Some(("id".into(), self.ids.clone())),
+            vec![("site".into(), self.sites.clone())],
+        )
+    }
+}
+
+/// The view `v` drawn from these rows.
+fn with_rows(mut v: PlotView, rows: &Rows) -> PlotView {
+    v.n_rows = rows.t2.len();
+    v.rows = Arc::new(rows.results());
+    v
+}
+
+/// A view of `n` rows (see [`rows`]), 5 features, 3 computed and 2 kept
+/// components.
+fn view(n: usize, flag_every: usize) -> PlotView {
+    let eigenvalues = EIGENVALUES.to_vec();
+    let total = 5.0;
     let loadings = vec![
         vec![0.6, 0.1, 0.2],
         vec![0.5, -0.4, 0.1],
@@ -68,16 +142,7 @@ fn view(n: usize, flag_every: usize) -> PlotView {
                 .collect()
         })
         .collect();
-    let sites = ["south", "north", "east", "west"];
-    let flagged: Vec<bool> = (0..n).map(|i| i % flag_every == 3).collect();
-    let t2: Vec<f64> = scores
-        .iter()
-        .zip(&flagged)
-        .map(|(s, f)| s[0] * s[0] / 2.0 + s[1] * s[1] / 1.25 + if *f { 12.0 } else { 0.0 })
-        .collect();
-    let spe: Vec<f64> = (0..n).map(|i| 0.2 + (i % 7) as f64 * 0.1).collect();
-    PlotView {
-        rows: Default::default(),
+    let v = PlotView {
         features: FEATURES.iter().map(|s| s.to_string()).collect(),
         n_rows: n,
         eigenvalues: eigenvalues.clone(),
@@ -96,22 +161,34 @@ fn view(n: usize, flag_every: usize) -> PlotView {
         },
         loadings,
         correlations,
-        scores: ScoreRows::from_rows(&scores),
-        row_labels: (0..n).map(|i| format!("row-{i:04}")).collect(),
-        groups: vec![(
-            "site".into(),
-            (0..n)
-                .map(|i| sites[(i * 7 + i / 3) % 4].to_string())
-                .collect(),
-        )],
-        t2,
-        spe,
+        rows: Arc::default(),
         confidence: 0.95,
         t2_limit: Some(9.0),
         spe_limit: Some(0.75),
-        flagged,
         scaling: "unit-variance".into(),
-    }
+    };
+    with_rows(v, &rows(n, flag_every))
+}
+
+/// Each row of the view: its scores, label and whether it is flagged.
+fn rows_of(v: &PlotView) -> Vec<(Vec<f64>, String, bool)> {
+    let mut out = Vec::new();
+    v.rows.scan(|b| {
+        for i in 0..b.len() {
+            out.push((
+                b.scores(i).to_vec(),
+                b.label(i).into_owned(),
+                v.is_flagged(b.t2(i), b.spe(i)),
+            ));
+        }
+    });
+    assert!(v.rows.take_error().is_none());
+    out
+}
+
+/// Whether each row of the view is flagged.
+fn flags(v: &PlotView) -> Vec<bool> {
+    rows_of(v).into_iter().map(|r| r.2).collect()
 }
 
 fn plan(kind: PlotKind, x: usize, y: usize) -> PlotPlan {
@@ -317,13 +394,13 @@ fn scores_show_every_row_with_groups_labels_and_ellipse() {
     let svg = plots::render(&p, &v);
     let doc = parse(&svg);
     assert_eq!(marks(&doc, "points"), 60);
-    let flagged = v.flagged.iter().filter(|&&f| f).count();
+    let flagged = flags(&v).iter().filter(|&&f| f).count();
     assert_eq!(flagged, 6);
     assert_eq!(with_class(&doc, "flagged").len(), flagged);
     let labels = texts(&doc, "labels");
     assert_eq!(labels.len(), flagged);
-    for (i, _) in v.flagged.iter().enumerate().filter(|(_, f)| **f) {
-        assert!(labels.contains(&v.row_labels[i].to_string()));
+    for (_, label, _) in rows_of(&v).iter().filter(|r| r.2) {
+        assert!(labels.contains(label));
     }
     // Axis titles with the shares: 2/5 and 1.25/5.
     assert_eq!(v.axis_title(0), "PC1 (40.0 %)");
@@ -389,11 +466,12 @@ fn scores_use_equal_scaling() {
         .collect();
     // Without a colour all rows are grey circles drawn in row order.
     assert_eq!(pts.len(), 50);
-    let unflagged: Vec<usize> = (0..50).filter(|&i| !v.flagged[i]).collect();
+    let rows = rows_of(&v);
+    let unflagged: Vec<usize> = (0..50).filter(|&i| !rows[i].2).collect();
     let (i, j) = (unflagged[0], unflagged[1]);
     let (a, b) = (pts[0], pts[1]);
-    let sx = (a.0 - b.0) / (v.scores[i][0] - v.scores[j][0]);
-    let sy = -(a.1 - b.1) / (v.scores[i][1] - v.scores[j][1]);
+    let sx = (a.0 - b.0) / (rows[i].0[0] - rows[j].0[0]);
+    let sy = -(a.1 - b.1) / (rows[i].0[1] - rows[j].0[1]);
     assert!(
         (sx - sy).abs() / sx < 0.02,
         "x {sx} px/unit, y {sy} px/unit"
@@ -405,13 +483,9 @@ fn scores_use_equal_scaling() {
 #[test]
 fn legend_does_not_depend_on_row_order() {
     let v = view(40, 10);
-    let mut reversed = v.clone();
-    reversed.scores.reverse_rows();
-    reversed.row_labels.reverse();
-    reversed.groups[0].1.reverse();
-    reversed.t2.reverse();
-    reversed.spe.reverse();
-    reversed.flagged.reverse();
+    let mut r = rows(40, 10);
+    r.reverse();
+    let reversed = with_rows(v.clone(), &r);
     let mut p = plan(PlotKind::Scores, 1, 2);
     p.color = Some("site".into());
     let a = plots::render(&p, &v);
@@ -421,8 +495,9 @@ fn legend_does_not_depend_on_row_order() {
 
 #[test]
 fn many_groups_cycle_colours_and_shapes() {
-    let mut v = view(120, 1000);
-    v.groups[0].1 = (0..120).map(|i| format!("g{}", i % 12)).collect();
+    let mut r = rows(120, 1000);
+    r.sites = (0..120).map(|i| format!("g{}", i % 12)).collect();
+    let v = with_rows(view(120, 1000), &r);
     let mut p = plan(PlotKind::Scores, 1, 2);
     p.color = Some("site".into());
     let svg = plots::render(&p, &v);
@@ -500,9 +575,9 @@ fn biplot_states_its_scaling_and_draws_it() {
     // The stretch, worked out independently: the largest of 1, 2, 2.5, 5 × 10ᵉ
     // that is at most 0.9 × (largest |unit-variance score|) / (longest arrow).
     let (l1, l2) = (v.eigenvalues[0].sqrt(), v.eigenvalues[1].sqrt());
-    let reach = v
-        .scores
+    let reach = rows_of(&v)
         .iter()
+        .map(|r| &r.0)
         .flat_map(|s| [(s[0] / l1).abs(), (s[1] / l2).abs()])
         .fold(0.0, f64::max);
     let longest = v
@@ -593,8 +668,9 @@ fn outlier_map_has_limits_or_says_why_not() {
     );
 
     // A row far beyond the T² limit puts that axis on a square-root scale.
-    let mut far = v.clone();
-    far.t2[0] = 100.0 * 9.0;
+    let mut r = rows(50, 10);
+    r.t2[0] = 100.0 * 9.0;
+    let far = with_rows(v.clone(), &r);
     let svg = plots::render(&p, &far);
     let doc = parse(&svg);
     assert!(
@@ -636,7 +712,7 @@ fn outlier_map_has_limits_or_says_why_not() {
 #[test]
 fn density_replaces_points_above_the_threshold() {
     let v = view(5_000, 50);
-    let flagged = v.flagged.iter().filter(|&&f| f).count();
+    let flagged = flags(&v).iter().filter(|&&f| f).count();
     for kind in [PlotKind::Scores, PlotKind::Biplot, PlotKind::OutlierMap] {
         let (x, y) = if kind == PlotKind::OutlierMap {
             (0, 0)
@@ -664,7 +740,7 @@ fn density_replaces_points_above_the_threshold() {
 #[test]
 fn a_million_rows_render_small_and_fast() {
     let v = view(1_000_000, 37);
-    let flagged = v.flagged.iter().filter(|&&f| f).count();
+    let flagged = flags(&v).iter().filter(|&&f| f).count();
     assert!(flagged > MAX_INDIVIDUAL);
     for kind in [PlotKind::Scores, PlotKind::Biplot, PlotKind::OutlierMap] {
         let (x, y) = if kind == PlotKind::OutlierMap {
@@ -700,20 +776,22 @@ fn a_million_rows_render_small_and_fast() {
 #[test]
 fn degenerate_views_give_no_nan_or_inf() {
     // All scores zero, one eigenvalue zero, non-finite values in places.
-    let mut v = view(6, 2);
-    v.scores.data.iter_mut().for_each(|s| *s = 0.0);
+    let mut r = rows(6, 2);
+    r.scores.iter_mut().flatten().for_each(|s| *s = 0.0);
+    r.t2 = vec![0.0; 6];
+    r.spe = vec![0.0; 6];
+    let mut v = with_rows(view(6, 2), &r);
     v.eigenvalues[2] = 0.0;
-    v.t2 = vec![0.0; 6];
-    v.spe = vec![0.0; 6];
     for p in all_plans() {
         let svg = plots::render(&p, &v);
         parse(&svg);
         check_clean(&svg, &p.file);
     }
-    let mut w = view(10, 3);
-    w.scores[1][0] = f64::NAN;
-    w.scores[2][1] = f64::INFINITY;
-    w.t2[4] = f64::INFINITY;
+    let mut r = rows(10, 3);
+    r.scores[1][0] = f64::NAN;
+    r.scores[2][1] = f64::INFINITY;
+    r.t2[4] = f64::INFINITY;
+    let mut w = with_rows(view(10, 3), &r);
     w.loadings[1][0] = f64::NAN;
     w.correlations[2][1] = f64::NAN;
     for p in all_plans() {
@@ -737,6 +815,178 @@ fn degenerate_views_give_no_nan_or_inf() {
         let svg = plots::render(&p, &empty);
         parse(&svg);
         check_clean(&svg, &p.file);
+    }
+}
+
+#[test]
+fn rows_in_a_scratch_file_draw_the_same_bytes() {
+    // Invariant: where the rows are kept (memory or a scratch file, one run or
+    // many) must not change a figure. A 64-byte budget spills every run; runs
+    // of 7 rows put run edges everywhere, and 3,000 flagged rows of 6,000 make
+    // the density mode prune its candidates (more than 2 × MAX_INDIVIDUAL).
+    let dir = tempfile::tempdir().unwrap();
+    for (n, flag_every, density_above) in [(300, 7, 20_000), (6_000, 2, 1_000)] {
+        let r = rows(n, flag_every);
+        let held = view(n, flag_every);
+        let mut spilled =
+            RowResults::new(3, Some("id".into()), vec!["site".into()], 64, dir.path());
+        for first in (0..n).step_by(7) {
+            let last = n.min(first + 7);
+            let table_rows: Vec<usize> = (first..last).collect();
+            spilled
+                .push(RowsIn {
+                    table_rows: &table_rows,
+                    scores: &r.scores[first..last].concat(),
+                    t2: &r.t2[first..last],
+                    spe: &r.spe[first..last],
+                    texts: (first..last)
+                        .flat_map(|i| [r.ids[i].clone(), r.sites[i].clone()])
+                        .collect(),
+                })
+                .unwrap();
+        }
+        assert!(spilled.spilled() && !held.rows.spilled());
+        let mut from_file = held.clone();
+        from_file.rows = Arc::new(spilled);
+        for mut p in all_plans() {
+            p.density_above = density_above;
+            for labels in [PointLabels::Flagged, PointLabels::All] {
+                p.labels = labels;
+                let svg = plots::render(&p, &held);
+                if n > density_above && p.kind == PlotKind::Scores {
+                    assert!(svg.contains("density-class"), "density mode");
+                }
+                assert_eq!(svg, plots::render(&p, &from_file), "{} {n}", p.file);
+                assert_eq!(plots::caption(&p, &held), plots::caption(&p, &from_file));
+            }
+        }
+        assert!(from_file.rows.take_error().is_none());
+    }
+}
+
+/// Rows for the pinned figures: `n` rows on 3 components; every
+/// `flag_every`-th row above the T² limit with one of five T² values (ties in
+/// severity), every 13th above the SPE limit; `far` puts row 1 far beyond the
+/// T² limit (bit 1) and row 2 far beyond the SPE limit (bit 2); `odd` puts
+/// non-finite values, a zero T² and a negative zero among the rows. The group
+/// "site" has an empty value and names with digit runs; table rows are 1, 3, 5, …
+fn pinned_view(n: usize, flag_every: usize, far: u32, odd: bool, seed: u64, ids: bool) -> PlotView {
+    let mut rng = Lcg(seed);
+    let mut scores = Vec::with_capacity(3 * n);
+    for _ in 0..n {
+        for l in EIGENVALUES {
+            let u = rng.next() + rng.next() + rng.next() + rng.next();
+            scores.push(u * 1.732 * l.sqrt());
+        }
+    }
+    let mut t2: Vec<f64> = (0..n)
+        .map(|i| {
+            let s = &scores[3 * i..3 * i + 3];
+            if i % flag_every == 3 {
+                12.0 + (i % 5) as f64
+            } else {
+                s[0] * s[0] / 2.0 + s[1] * s[1] / 1.25
+            }
+        })
+        .collect();
+    let mut spe: Vec<f64> = (0..n)
+        .map(|i| {
+            if i % 13 == 5 {
+                0.9 + (i % 3) as f64 * 0.1
+            } else {
+                0.2 + (i % 7) as f64 * 0.07
+            }
+        })
+        .collect();
+    if far & 1 != 0 {
+        t2[1] = 900.0;
+    }
+    if far & 2 != 0 {
+        spe[2] = 80.0;
+    }
+    if odd {
+        scores[3 * 4] = f64::NAN;
+        scores[3 * 7 + 1] = f64::INFINITY;
+        scores[3 * 9 + 2] = f64::NEG_INFINITY;
+        t2[11] = f64::INFINITY;
+        spe[17] = f64::NAN;
+        t2[13] = 0.0;
+        scores[3 * 13] = -0.0;
+    }
+    let sites = ["south", "north", "east", "west", "", "site 10", "site 2"];
+    let mut v = view(0, 1);
+    v.n_rows = n;
+    v.correlations = v.loadings.clone();
+    v.rows = Arc::new(RowResults::from_parts(
+        3,
+        &(0..n).map(|i| 2 * i + 1).collect::<Vec<_>>(),
+        &scores,
+        &t2,
+        &spe,
+        ids.then(|| ("id".to_string(), (0..n).map(|i| format!("r{i}")).collect())),
+        vec![(
+            "site".into(),
+            (0..n)
+                .map(|i| sites[(i * 7 + i / 3) % 7].to_string())
+                .collect(),
+        )],
+    ));
+    v
+}
+
+#[test]
+fn pinned_figures_keep_their_bytes() {
+    // Regression pin (tests/data/plot_digests.txt): figures drawn from whole
+    // per-row vectors, before the rows were read in passes, in point mode
+    // (300 rows) and density mode (30,000 rows, more than 2,000 flagged), with
+    // and without ids, groups, labels, root scales and non-finite values.
+    let pinned = fs::read_to_string(
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/plot_digests.txt"),
+    )
+    .unwrap();
+    let expected: Vec<(&str, &str)> = pinned
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .map(|l| (&l[66..], &l[..64]))
+        .collect();
+    let views = [
+        ("small", pinned_view(300, 10, 0, true, 7, true)),
+        ("small-far-noid", pinned_view(300, 10, 3, true, 8, false)),
+        ("big", pinned_view(30_000, 10, 0, true, 11, true)),
+        ("big-far", pinned_view(30_000, 25, 3, true, 12, true)),
+    ];
+    let mut drawn = Vec::new();
+    for (name, v) in &views {
+        for (kind, x, y) in [
+            (PlotKind::Scores, 1, 2),
+            (PlotKind::Biplot, 1, 3),
+            (PlotKind::OutlierMap, 0, 0),
+        ] {
+            for labels in [PointLabels::Flagged, PointLabels::All] {
+                for colour in [None, Some("site")] {
+                    if kind == PlotKind::OutlierMap && colour.is_some() {
+                        continue;
+                    }
+                    let mut p = plan(kind, x, y);
+                    p.labels = labels;
+                    p.color = colour.map(String::from);
+                    if kind == PlotKind::Scores {
+                        p.ellipse = Some(0.95);
+                    }
+                    let key = format!(
+                        "{name}--{}-{x}{y}-{labels:?}-{}",
+                        kind.name(),
+                        colour.unwrap_or("none")
+                    );
+                    let svg = plots::render(&p, v);
+                    drawn.push((key, sextant::outputs::hashing::sha256_hex(svg.as_bytes())));
+                }
+            }
+        }
+    }
+    assert_eq!(drawn.len(), expected.len());
+    for ((key, digest), (want_key, want)) in drawn.iter().zip(&expected) {
+        assert_eq!((key.as_str(), digest.as_str()), (*want_key, *want));
     }
 }
 

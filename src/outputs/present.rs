@@ -1,36 +1,13 @@
 //! Builds the plain views that figures and the report are drawn from, and the
 //! report's summary sentences and cautions.
 
-use super::view::{
-    Evidence, FlaggedLine, PlotView, ReportView, RowTexts, ScoreRows, Scores3d, VarianceLine,
-};
+use super::view::{Evidence, FlaggedLine, PlotView, ReportView, Scores3d, VarianceLine};
 use crate::recipe::raw::Keep;
 use crate::run::{Analysis, Prepared, Preprocessed};
 use crate::stages::diagnose::contributions;
 use crate::stages::select::pct;
-use crate::table::ColumnData;
 use rayon::prelude::*;
 use std::sync::Arc;
-
-/// A text column of the table, shared (id and group columns are read as text).
-fn text_column(prepared: &Prepared, name: &str) -> Arc<Vec<String>> {
-    match prepared.table.column(name).map(|c| &c.data) {
-        Some(ColumnData::Text(v)) => Arc::clone(v),
-        _ => unreachable!("id and group columns are read as text"),
-    }
-}
-
-/// The label of each analysed row: its id, or its row number.
-fn row_labels(prepared: &Prepared, rows: &Arc<Vec<usize>>) -> RowTexts {
-    match &prepared.plan.input.id {
-        Some(id) => RowTexts::of_rows(text_column(prepared, id), Arc::clone(rows)),
-        None => RowTexts::from(
-            rows.iter()
-                .map(|r| format!("row {}", r + 1))
-                .collect::<Vec<_>>(),
-        ),
-    }
-}
 
 /// Pearson correlation of two equally long columns.
 fn correlation(a: &[f64], b: &[f64]) -> f64 {
@@ -83,35 +60,23 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
     let s = &analysis.selection;
     let computed = s.computed;
     let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
-    // The plots read the rows through `rows`; these whole-table copies are
-    // what the plots read before and go once none of them does.
-    let (scores, t2, spe) = {
-        let cols = analysis.rows.cols();
-        let mut data = Vec::with_capacity(n * cols);
-        let (mut t2, mut spe) = (Vec::with_capacity(n), Vec::with_capacity(n));
-        analysis.rows.scan(|b| {
-            for i in 0..b.len() {
-                data.extend_from_slice(b.scores(i));
-                t2.push(b.t2(i));
-                spe.push(b.spe(i));
-            }
-        });
-        (ScoreRows { cols, data }, t2, spe)
-    };
     let loadings = (0..p)
         .map(|j| (0..computed).map(|a| d.loadings.get(j, a)).collect())
         .collect();
-    // The table row of each analysed row, shared by the label and group columns.
-    let rows = Arc::new(pre.scaled.rows.clone());
     let correlations = if prepared.plan.scaling.centers() {
         correlations_of_centred(&analysis.column_squares, n, d, computed)
     } else {
         // Uncentred data: the closed form does not hold; correlate directly (only
         // the in-memory engine analyses uncentred data).
         let z = pre.scaled.data();
-        let score_columns: Vec<Vec<f64>> = (0..computed)
-            .map(|a| (0..n).map(|i| scores.row(i)[a]).collect())
-            .collect();
+        let mut score_columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); computed];
+        analysis.rows.scan(|b| {
+            for i in 0..b.len() {
+                for (column, &t) in score_columns.iter_mut().zip(b.scores(i)) {
+                    column.push(t);
+                }
+            }
+        });
         (0..p)
             .into_par_iter()
             .map(|j| {
@@ -152,29 +117,6 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         loadings,
         correlations,
         rows: Arc::clone(&analysis.rows),
-        scores,
-        row_labels: row_labels(prepared, &rows),
-        groups: plan
-            .input
-            .groups
-            .iter()
-            .map(|g| {
-                let values = RowTexts::of_rows(text_column(prepared, g), Arc::clone(&rows));
-                (g.clone(), values)
-            })
-            .collect(),
-        flagged: t2
-            .iter()
-            .zip(&spe)
-            .map(|(&a, &b)| {
-                !diag.limits.is_empty() && {
-                    let (x, y) = diag.flags(a, b, 0);
-                    x || y
-                }
-            })
-            .collect(),
-        t2,
-        spe,
         confidence: first.map_or(0.95, |l| l.confidence),
         t2_limit: first.and_then(|l| l.t2),
         spe_limit: first.and_then(|l| l.spe),

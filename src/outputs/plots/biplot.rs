@@ -7,20 +7,22 @@
 //! the components), and angles between arrows approximate correlations.
 
 use super::circle::draw_arrows;
-use super::frame::{self, Frame, Step, padded_range};
-use super::scatter::{self, Groups, Legend, Selection};
+use super::frame::{self, Extent, Frame, Step};
+use super::scatter::{self, Colour, Groups, Legend, Selection};
 use super::svg::{self, NEUTRAL};
 use super::{LEGEND_X, equal_axes, scatter_layout, title, words_number};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
+use crate::rows::Batch;
 use std::fmt::Write;
 
 /// Arrow colour.
 pub const ARROW: &str = "#3D3D3D";
 
 struct Prepared {
-    xs: Vec<f64>,
-    ys: Vec<f64>,
+    /// The extents of the points' coordinates over every row.
+    x: Extent,
+    y: Extent,
     /// Divisors of the scores (√λ), or 1 where λ is not positive.
     root: (f64, f64),
     /// Arrow tips before stretching.
@@ -31,8 +33,9 @@ struct Prepared {
     sel: Selection,
 }
 
-fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
-    let (a, b) = (plan.x - 1, plan.y - 1);
+/// The divisors of the two components' scores: √λ, or 1 where λ is not
+/// positive.
+fn roots(plan: &PlotPlan, view: &PlotView) -> (f64, f64) {
     let root = |l: f64| {
         if l > 0.0 && l.is_finite() {
             l.sqrt()
@@ -40,20 +43,41 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
             1.0
         }
     };
-    let (ra, rb) = (root(view.eigenvalues[a]), root(view.eigenvalues[b]));
-    let xs: Vec<f64> = view.scores.iter().map(|r| r[a] / ra).collect();
-    let ys: Vec<f64> = view.scores.iter().map(|r| r[b] / rb).collect();
+    (
+        root(view.eigenvalues[plan.x - 1]),
+        root(view.eigenvalues[plan.y - 1]),
+    )
+}
+
+/// A row's point: its scores on the two components divided by √λ.
+fn coords(plan: &PlotPlan, view: &PlotView) -> impl Fn(&Batch, usize) -> (f64, f64) {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let (ra, rb) = roots(plan, view);
+    move |batch: &Batch, i: usize| {
+        let s = batch.scores(i);
+        (s[a] / ra, s[b] / rb)
+    }
+}
+
+fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let (ra, rb) = roots(plan, view);
+    let colour = Colour::of(view, plan.color.as_deref());
+    let g = scatter::gather(
+        view,
+        colour,
+        plan.labels,
+        plan.density_above,
+        coords(plan, view),
+        |_, _| {},
+    );
     let tips: Vec<(f64, f64)> = view
         .loadings
         .iter()
         .take(view.features.len())
         .map(|l| (l[a] * ra, l[b] * rb))
         .collect();
-    let reach = xs
-        .iter()
-        .chain(&ys)
-        .filter(|v| v.is_finite())
-        .fold(0.0f64, |m, v| m.max(v.abs()));
+    let reach = g.x.reach().max(g.y.reach());
     let longest = tips
         .iter()
         .filter(|t| t.0.is_finite() && t.1.is_finite())
@@ -63,16 +87,14 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     } else {
         1.0
     };
-    let groups = Groups::new(view, plan.color.as_deref());
-    let sel = scatter::select(view, &xs, &ys, &groups, plan.labels, plan.density_above);
     Prepared {
-        xs,
-        ys,
+        x: g.x,
+        y: g.y,
         root: (ra, rb),
         tips,
         stretch,
-        groups,
-        sel,
+        groups: g.groups,
+        sel: g.sel,
     }
 }
 
@@ -91,8 +113,8 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     include_x.push(0.0);
     let mut include_y = ty.clone();
     include_y.push(0.0);
-    let xr = padded_range(p.xs.iter().copied(), &include_x, 0.08);
-    let yr = padded_range(p.ys.iter().copied(), &include_y, 0.08);
+    let xr = p.x.padded(&include_x, 0.08);
+    let yr = p.y.padded(&include_y, 0.08);
     let (xa, ya) = equal_axes(&layout, xr, yr);
     let panel = layout.panel(xa, ya);
     let t = title(plan, view);
@@ -104,10 +126,14 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let mut density = None;
     if p.sel.density {
         density = Some(scatter::draw_density(
-            &mut body, &panel, &p.xs, &p.ys, &p.sel,
+            &mut body,
+            &panel,
+            view,
+            &p.sel,
+            coords(plan, view),
         ));
     }
-    scatter::draw_points(&mut body, &panel, &p.xs, &p.ys, &p.sel, &p.groups, view);
+    scatter::draw_points(&mut body, &panel, &p.sel, &p.groups);
     let names = draw_arrows(
         &mut body,
         &panel,
@@ -117,7 +143,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         (panel.left, panel.top, panel.right, panel.bottom),
         true,
     );
-    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view, &names);
+    scatter::label_rows(&mut body, &panel, &p.sel, &names);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
     legend.groups(&p.groups, 5 + if p.sel.density { 9 } else { 0 });

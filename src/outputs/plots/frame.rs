@@ -257,20 +257,59 @@ pub fn sane_range(lo: f64, hi: f64) -> (f64, f64) {
 
 /// A padded range around the finite values, with `include` forced in.
 pub fn padded_range(values: impl Iterator<Item = f64>, include: &[f64], pad: f64) -> (f64, f64) {
-    let mut lo = f64::INFINITY;
-    let mut hi = f64::NEG_INFINITY;
-    for v in values.chain(include.iter().copied()) {
-        if v.is_finite() {
-            lo = lo.min(v);
-            hi = hi.max(v);
+    let mut extent = Extent::default();
+    values.for_each(|v| extent.add(v));
+    extent.padded(include, pad)
+}
+
+/// The smallest and largest finite value seen so far, folded in the order the
+/// values come (so a range built while reading rows run by run is the range
+/// [`padded_range`] gives over all of them at once, bit for bit).
+#[derive(Clone, Copy, Debug)]
+pub struct Extent {
+    pub lo: f64,
+    pub hi: f64,
+}
+
+impl Default for Extent {
+    fn default() -> Extent {
+        Extent {
+            lo: f64::INFINITY,
+            hi: f64::NEG_INFINITY,
         }
     }
-    if !lo.is_finite() {
-        return (-1.0, 1.0);
+}
+
+impl Extent {
+    /// Takes in a value (ignored when not finite).
+    pub fn add(&mut self, v: f64) {
+        if v.is_finite() {
+            self.lo = self.lo.min(v);
+            self.hi = self.hi.max(v);
+        }
     }
-    let (lo, hi) = sane_range(lo, hi);
-    let p = (hi - lo) * pad;
-    (lo - p, hi + p)
+
+    /// The range with `include` forced in, padded by `pad` of its width on
+    /// each side; (-1, 1) when nothing finite was seen.
+    pub fn padded(mut self, include: &[f64], pad: f64) -> (f64, f64) {
+        include.iter().for_each(|&v| self.add(v));
+        let (lo, hi) = (self.lo, self.hi);
+        if !lo.is_finite() {
+            return (-1.0, 1.0);
+        }
+        let (lo, hi) = sane_range(lo, hi);
+        let p = (hi - lo) * pad;
+        (lo - p, hi + p)
+    }
+
+    /// The largest absolute value seen, at least 0.
+    pub fn reach(&self) -> f64 {
+        if self.lo.is_finite() {
+            0.0f64.max(self.lo.abs()).max(self.hi.abs())
+        } else {
+            0.0
+        }
+    }
 }
 
 impl Ranged for Axis {

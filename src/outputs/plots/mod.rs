@@ -90,15 +90,6 @@ pub fn title(plan: &PlotPlan, _view: &PlotView) -> String {
     }
 }
 
-/// Rows in the view (the scores' count; `n_rows` when scores are absent).
-pub(crate) fn view_rows(view: &PlotView) -> usize {
-    if view.scores.is_empty() {
-        view.t2.len().max(view.spe.len())
-    } else {
-        view.scores.len()
-    }
-}
-
 /// Why a plot cannot be drawn from this view, if it cannot.
 fn missing_data(plan: &PlotPlan, view: &PlotView) -> Option<String> {
     let needed = plan.x.max(plan.y);
@@ -112,7 +103,7 @@ fn missing_data(plan: &PlotPlan, view: &PlotView) -> Option<String> {
         ));
     }
     let needs_scores = matches!(plan.kind, PlotKind::Scores | PlotKind::Biplot);
-    if needs_scores && view.scores.iter().any(|r| r.len() < needed) {
+    if needs_scores && !view.rows.is_empty() && view.rows.cols() < needed {
         return Some("some rows lack the scores of the components asked for.".into());
     }
     let needs_features = matches!(

@@ -7,13 +7,14 @@
 //! square-root scale (ticks still in the statistic's own units), and the
 //! caption says so.
 
-use super::frame::{self, Axis, Frame, padded_range};
-use super::scatter::{self, Groups, Legend, Selection};
+use super::frame::{self, Axis, Extent, Frame};
+use super::scatter::{self, Colour, Groups, Legend, Selection};
 use super::svg::{self, MUTED, NEUTRAL, Shape};
 use super::{LEGEND_X, scatter_layout, title, words_number};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
 use crate::recipe::raw::PointLabels;
+use crate::rows::Batch;
 use std::fmt::Write;
 
 /// Colours and shapes of the four kinds of rows (Okabe & Ito colours).
@@ -27,9 +28,10 @@ const BOTH: (&str, Shape) = ("#CC79A7", Shape::Diamond);
 pub const ROOT_ABOVE: f64 = 6.0;
 
 struct Prepared {
-    /// Plotted coordinates (square roots where the axis has a root scale).
-    xs: Vec<f64>,
-    ys: Vec<f64>,
+    /// The extents of the plotted coordinates over every row (of the square
+    /// roots where the axis has a root scale).
+    x: Extent,
+    y: Extent,
     root_x: bool,
     root_y: bool,
     /// Rows by kind: 0 within, 1 above T² only, 2 above SPE only, 3 above both.
@@ -44,54 +46,72 @@ const KIND_NAMES: [&str; 4] = [
     "above both limits",
 ];
 
-fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
-    let n = view.t2.len().min(view.spe.len());
-    let xs = view.t2[..n].to_vec();
-    let ys = view.spe[..n].to_vec();
-    let above = |v: f64, l: Option<f64>| l.is_some_and(|l| v > l);
-    let of_row: Vec<u32> = (0..n)
-        .map(|i| {
-            let a = above(xs[i], view.t2_limit);
-            let b = above(ys[i], view.spe_limit);
-            match (a, b) {
-                (false, false) => 0,
-                (true, false) => 1,
-                (false, true) => 2,
-                (true, true) => 3,
-            }
-        })
-        .collect();
-    let mut counts = vec![0; 4];
-    for &k in &of_row {
-        counts[k as usize] += 1;
+/// A row's plotted coordinates: its T² and SPE, or their square roots on an
+/// axis with a root scale.
+fn coords(root_x: bool, root_y: bool) -> impl Fn(&Batch, usize) -> (f64, f64) {
+    move |batch: &Batch, i: usize| {
+        let (x, y) = (batch.t2(i), batch.spe(i));
+        (
+            if root_x { root(x) } else { x },
+            if root_y { root(y) } else { y },
+        )
     }
-    let groups = Groups {
-        column: Some("rows".into()),
-        names: KIND_NAMES.iter().map(|s| s.to_string()).collect(),
-        counts,
-        of_row,
-        missing: None,
+}
+
+fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+    let above = |v: f64, l: Option<f64>| l.is_some_and(|l| v > l);
+    let kind = |batch: &Batch, i: usize| -> u32 {
+        let a = above(batch.t2(i), view.t2_limit);
+        let b = above(batch.spe(i), view.spe_limit);
+        match (a, b) {
+            (false, false) => 0,
+            (true, false) => 1,
+            (false, true) => 2,
+            (true, true) => 3,
+        }
     };
-    let root_x = wants_root(&xs, view.t2_limit);
-    let root_y = wants_root(&ys, view.spe_limit);
-    let xs = if root_x {
-        xs.iter().map(|&v| root(v)).collect()
-    } else {
-        xs
+    // Whether an axis gets a root scale is known only once every row is read,
+    // so the same reading also folds the extents of the square roots.
+    let (mut top_x, mut top_y) = (0.0f64, 0.0f64);
+    let (mut rooted_x, mut rooted_y) = (Extent::default(), Extent::default());
+    let watch = |x: f64, y: f64| {
+        if x.is_finite() {
+            top_x = top_x.max(x);
+        }
+        if y.is_finite() {
+            top_y = top_y.max(y);
+        }
+        rooted_x.add(root(x));
+        rooted_y.add(root(y));
     };
-    let ys = if root_y {
-        ys.iter().map(|&v| root(v)).collect()
-    } else {
-        ys
+    let colour = Colour::Kinds {
+        column: "rows",
+        names: &KIND_NAMES,
+        of: &kind,
     };
-    let sel = scatter::select(view, &xs, &ys, &groups, plan.labels, plan.density_above);
+    let mut g = scatter::gather(
+        view,
+        colour,
+        plan.labels,
+        plan.density_above,
+        coords(false, false),
+        watch,
+    );
+    let root_x = wants_root(top_x, view.t2_limit);
+    let root_y = wants_root(top_y, view.spe_limit);
+    g.sel.map_points(|x, y| {
+        (
+            if root_x { root(x) } else { x },
+            if root_y { root(y) } else { y },
+        )
+    });
     Prepared {
-        xs,
-        ys,
+        x: if root_x { rooted_x } else { g.x },
+        y: if root_y { rooted_y } else { g.y },
         root_x,
         root_y,
-        groups,
-        sel,
+        groups: g.groups,
+        sel: g.sel,
     }
 }
 
@@ -101,14 +121,11 @@ fn root(v: f64) -> f64 {
     if v.is_finite() { v.max(0.0).sqrt() } else { v }
 }
 
-fn wants_root(values: &[f64], limit: Option<f64>) -> bool {
+/// Whether an axis whose largest finite value (or 0) is `top` gets a root scale.
+fn wants_root(top: f64, limit: Option<f64>) -> bool {
     let Some(limit) = limit.filter(|l| l.is_finite() && *l > 0.0) else {
         return false;
     };
-    let top = values
-        .iter()
-        .filter(|v| v.is_finite())
-        .fold(0.0f64, |a, v| a.max(*v));
     top > ROOT_ABOVE * limit
 }
 
@@ -164,8 +181,8 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let ly = ly.map(|l| if p.root_y { root(l) } else { l });
     let include_x: Vec<f64> = lx.into_iter().chain([0.0]).collect();
     let include_y: Vec<f64> = ly.into_iter().chain([0.0]).collect();
-    let (_, xhi) = padded_range(p.xs.iter().copied(), &include_x, 0.05);
-    let (_, yhi) = padded_range(p.ys.iter().copied(), &include_y, 0.05);
+    let (_, xhi) = p.x.padded(&include_x, 0.05);
+    let (_, yhi) = p.y.padded(&include_y, 0.05);
     let xa = stat_axis(xhi, p.root_x, layout.plot_width(), 80.0);
     let ya = stat_axis(yhi, p.root_y, layout.plot_height(), 55.0);
     let panel = layout.panel(xa, ya);
@@ -191,7 +208,11 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let mut density = None;
     if p.sel.density {
         density = Some(scatter::draw_density(
-            &mut body, &panel, &p.xs, &p.ys, &p.sel,
+            &mut body,
+            &panel,
+            view,
+            &p.sel,
+            coords(p.root_x, p.root_y),
         ));
     }
     // The limits.
@@ -223,8 +244,8 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     body.push_str("</g>\n");
 
     // Points: coloured by which limits they exceed (not by a group column).
-    draw_kinds(&mut body, &panel, &p, view);
-    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view, &[]);
+    draw_kinds(&mut body, &panel, &p);
+    scatter::label_rows(&mut body, &panel, &p.sel, &[]);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
     legend.heading("rows");
@@ -263,11 +284,11 @@ fn short(kind: usize) -> &'static str {
     ][kind.min(3)]
 }
 
-fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared, view: &PlotView) {
+fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared) {
     out.push_str("<g class=\"points\">\n");
     let mut current: Option<usize> = None;
-    for &i in &p.sel.drawn {
-        let k = p.groups.of_row[i] as usize;
+    for point in &p.sel.points {
+        let k = point.group as usize;
         if current != Some(k) {
             if current.is_some() {
                 out.push_str("</g>\n");
@@ -281,13 +302,16 @@ fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared, view: &PlotV
             current = Some(k);
         }
         let (_, shape) = style(k);
-        let flagged = view.flagged.get(i).copied().unwrap_or(false);
-        let extra = if flagged { "class=\"flagged\"" } else { "" };
+        let extra = if point.flagged {
+            "class=\"flagged\""
+        } else {
+            ""
+        };
         svg::marker(
             out,
             shape,
-            panel.px(p.xs[i]),
-            panel.py(p.ys[i]),
+            panel.px(point.x),
+            panel.py(point.y),
             scatter::MARK,
             extra,
         );

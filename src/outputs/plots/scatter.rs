@@ -1,14 +1,21 @@
 //! What the scatter plots (scores, biplot, outlier map) share: groups with their
 //! colours and shapes, the choice of which rows are drawn one by one and which
 //! are binned into a density, point labels, and the legend column.
+//!
+//! The rows are read only through [`crate::rows::RowResults::scan`] (they may
+//! be in a scratch file): one reading ([`gather`]) counts the groups, folds the
+//! axis ranges and keeps the rows drawn one by one; a second
+//! ([`draw_density`]) bins the others into a grid of fixed size. Neither holds
+//! anything per row beyond the drawn points, so memory does not grow with the
+//! number of rows.
 
-use super::frame::{LABEL_SIZE, Panel};
+use super::frame::{Extent, LABEL_SIZE, Panel};
 use super::svg::{
     self, Anchor, INK, MUTED, N, NEUTRAL, OKABE_ITO, SHAPES, Shape, blend, esc, text, text_width,
 };
-use super::view_rows;
 use crate::outputs::view::PlotView;
 use crate::recipe::raw::PointLabels;
+use crate::rows::Batch;
 use std::cmp::Ordering;
 use std::collections::BTreeMap;
 use std::fmt::Write;
@@ -30,9 +37,8 @@ pub struct Groups {
     /// The column's name, `None` when points are not coloured.
     pub column: Option<String>,
     pub names: Vec<String>,
+    /// Rows in each group (all rows, drawn or not).
     pub counts: Vec<usize>,
-    /// Group index of each row.
-    pub of_row: Vec<u32>,
     /// Index of the group of rows with an empty value, if any (drawn grey).
     pub missing: Option<usize>,
 }
@@ -40,59 +46,139 @@ pub struct Groups {
 /// Name shown for rows whose group cell is empty.
 pub const MISSING_GROUP: &str = "(empty)";
 
-impl Groups {
-    pub fn new(view: &PlotView, color: Option<&str>) -> Groups {
-        let n = view_rows(view);
-        let column = color.and_then(|c| view.groups.iter().find(|(name, _)| name == c));
-        let Some((name, values)) = column else {
-            return Groups {
-                column: None,
-                names: vec!["all rows".into()],
-                counts: vec![n],
-                of_row: vec![0; n],
-                missing: None,
-            };
+/// Where the rows' groups come from.
+pub enum Colour<'a> {
+    /// No colour: one anonymous group of all rows.
+    None,
+    /// The values of the rows' group column `g`, called `name`.
+    Column { g: usize, name: String },
+    /// Fixed groups named in order (shown under the heading `column`), and the
+    /// group of each row.
+    Kinds {
+        column: &'a str,
+        names: &'a [&'a str],
+        of: &'a dyn Fn(&Batch, usize) -> u32,
+    },
+}
+
+impl Colour<'_> {
+    /// The group column `color` of the view's rows; no colour when there is
+    /// none or the rows have no such column.
+    pub fn of(view: &PlotView, color: Option<&str>) -> Colour<'static> {
+        match color.and_then(|c| view.rows.group_index(c).map(|g| (g, c))) {
+            Some((g, name)) => Colour::Column {
+                g,
+                name: name.to_string(),
+            },
+            None => Colour::None,
+        }
+    }
+}
+
+/// Counts the groups while the rows are read: a column's distinct values get
+/// a provisional number in the order they are first met, renumbered in natural
+/// order of their names at the end (the number of rows never matters).
+struct GroupCount<'a> {
+    colour: Colour<'a>,
+    /// Column values: (rows, provisional number).
+    seen: BTreeMap<String, (usize, u32)>,
+    /// Rows per group for no colour (one) and for fixed kinds.
+    counts: Vec<usize>,
+}
+
+impl<'a> GroupCount<'a> {
+    fn new(colour: Colour<'a>) -> GroupCount<'a> {
+        let counts = match &colour {
+            Colour::Kinds { names, .. } => vec![0; names.len()],
+            _ => vec![0],
         };
-        let mut seen: BTreeMap<&str, usize> = BTreeMap::new();
-        for v in values.iter().take(n) {
-            *seen.entry(v).or_insert(0) += 1;
-        }
-        let mut names: Vec<&str> = seen.keys().copied().filter(|s| !s.is_empty()).collect();
-        names.sort_by(|a, b| natural_cmp(a, b));
-        let has_missing = seen.contains_key("") || values.len() < n;
-        let mut index: BTreeMap<&str, u32> = BTreeMap::new();
-        for (i, s) in names.iter().enumerate() {
-            index.insert(s, i as u32);
-        }
-        let missing_index = names.len() as u32;
-        let of_row: Vec<u32> = (0..n)
-            .map(|i| {
-                values
-                    .get(i)
-                    .and_then(|v| index.get(v).copied())
-                    .unwrap_or(missing_index)
-            })
-            .collect();
-        let mut out_names: Vec<String> = names.iter().map(|s| s.to_string()).collect();
-        let missing = if has_missing {
-            out_names.push(MISSING_GROUP.into());
-            Some(out_names.len() - 1)
-        } else {
-            None
-        };
-        let mut counts = vec![0; out_names.len()];
-        for &g in &of_row {
-            counts[g as usize] += 1;
-        }
-        Groups {
-            column: Some(name.clone()),
-            names: out_names,
+        GroupCount {
+            colour,
+            seen: BTreeMap::new(),
             counts,
-            of_row,
-            missing,
         }
     }
 
+    /// Counts row `i` of the batch and gives its (provisional) group.
+    fn add(&mut self, batch: &Batch, i: usize) -> u32 {
+        match &self.colour {
+            Colour::None => {
+                self.counts[0] += 1;
+                0
+            }
+            Colour::Kinds { of, .. } => {
+                let k = of(batch, i);
+                self.counts[k as usize] += 1;
+                k
+            }
+            Colour::Column { g, .. } => {
+                let value = batch.group(*g, i);
+                let next = self.seen.len() as u32;
+                if let Some((count, id)) = self.seen.get_mut(value) {
+                    *count += 1;
+                    return *id;
+                }
+                self.seen.insert(value.to_string(), (1, next));
+                next
+            }
+        }
+    }
+
+    /// The groups, and for each provisional number its final group.
+    fn finish(self) -> (Groups, Vec<u32>) {
+        let (name, seen) = match self.colour {
+            Colour::None => {
+                let groups = Groups {
+                    column: None,
+                    names: vec!["all rows".into()],
+                    counts: self.counts,
+                    missing: None,
+                };
+                return (groups, vec![0]);
+            }
+            Colour::Kinds { column, names, .. } => {
+                let groups = Groups {
+                    column: Some(column.to_string()),
+                    names: names.iter().map(|s| s.to_string()).collect(),
+                    counts: self.counts,
+                    missing: None,
+                };
+                let same = (0..names.len() as u32).collect();
+                return (groups, same);
+            }
+            Colour::Column { name, .. } => (name, self.seen),
+        };
+        let mut names: Vec<&str> = seen
+            .keys()
+            .map(String::as_str)
+            .filter(|s| !s.is_empty())
+            .collect();
+        names.sort_by(|a, b| natural_cmp(a, b));
+        let missing_index = names.len() as u32;
+        let mut remap = vec![missing_index; seen.len()];
+        let mut counts = vec![0; names.len()];
+        for (g, s) in names.iter().enumerate() {
+            let (count, id) = seen[*s];
+            remap[id as usize] = g as u32;
+            counts[g] = count;
+        }
+        let mut out_names: Vec<String> = names.iter().map(|s| s.to_string()).collect();
+        let missing = seen.get("").map(|&(count, _)| {
+            out_names.push(MISSING_GROUP.into());
+            counts.push(count);
+            out_names.len() - 1
+        });
+        let groups = Groups {
+            column: Some(name),
+            names: out_names,
+            counts,
+            missing,
+        };
+        (groups, remap)
+    }
+}
+
+impl Groups {
     /// Colour and shape of group `g`: Okabe & Ito colours in turn, shapes in
     /// turn, so beyond eight groups the shape still tells them apart (56
     /// distinct pairs before any repeats).
@@ -138,12 +224,10 @@ pub fn natural_cmp(a: &str, b: &str) -> Ordering {
     }
 }
 
-/// How far beyond its limits a row is: the larger of T²/limit and SPE/limit
-/// (the raw T² when neither limit is defined). Used to pick the most extreme
-/// flagged rows when not all can be drawn or labelled.
-pub fn severity(view: &PlotView, i: usize) -> f64 {
-    let t2 = view.t2.get(i).copied().unwrap_or(0.0);
-    let spe = view.spe.get(i).copied().unwrap_or(0.0);
+/// How far beyond its limits a row with this T² and SPE is: the larger of
+/// T²/limit and SPE/limit (the raw T² when neither limit is defined). Used to
+/// pick the most extreme flagged rows when not all can be drawn or labelled.
+pub fn severity(view: &PlotView, t2: f64, spe: f64) -> f64 {
     let a = view.t2_limit.filter(|l| *l > 0.0).map(|l| t2 / l);
     let b = view.spe_limit.filter(|l| *l > 0.0).map(|l| spe / l);
     let s = match (a, b) {
@@ -155,6 +239,31 @@ pub fn severity(view: &PlotView, i: usize) -> f64 {
     if s.is_finite() { s } else { f64::MAX }
 }
 
+/// A row drawn one by one.
+pub struct Point {
+    /// The row's index among all rows.
+    pub row: usize,
+    /// Data coordinates (both finite).
+    pub x: f64,
+    pub y: f64,
+    pub flagged: bool,
+    pub group: u32,
+    severity: f64,
+    /// The row's label, kept only when it may be written.
+    pub label: String,
+}
+
+/// Orders rows the most severe first, ties to the lower row.
+fn by_severity(a: &Point, b: &Point) -> Ordering {
+    b.severity.total_cmp(&a.severity).then(a.row.cmp(&b.row))
+}
+
+/// Keeps the `keep` most severe points (sorted the most severe first).
+fn most_severe(points: &mut Vec<Point>, keep: usize) {
+    points.sort_by(by_severity);
+    points.truncate(keep);
+}
+
 /// Which rows are drawn one by one, which are binned, which are labelled.
 pub struct Selection {
     /// Rows with finite coordinates.
@@ -164,91 +273,170 @@ pub struct Selection {
     /// Whether the plot shows a density instead of every point.
     pub density: bool,
     /// Rows drawn individually, in drawing order (unflagged first).
-    pub drawn: Vec<usize>,
-    /// Per row: drawn individually.
-    pub is_drawn: Vec<bool>,
+    pub points: Vec<Point>,
+    /// The rows of `points`, ascending (to tell the binned rows).
+    drawn_rows: Vec<usize>,
     /// Rows flagged in all, and flagged rows drawn individually.
     pub flagged_total: usize,
     pub flagged_drawn: usize,
-    /// Rows whose label is written.
+    /// The points whose label is written (indices into `points`).
     pub labelled: Vec<usize>,
     /// Flagged rows that would be labelled but are not, for the cap.
     pub labels_capped: usize,
 }
 
-/// Chooses what to draw. `xs`/`ys` are the data coordinates of every row.
-pub fn select(
+/// What one reading of every row gives a scatter plot.
+pub struct Gathered {
+    pub groups: Groups,
+    pub sel: Selection,
+    /// The finite coordinates' extents over every row, folded in row order.
+    pub x: Extent,
+    pub y: Extent,
+    /// Rows in all.
+    pub rows: usize,
+}
+
+/// Reads every row once and chooses what to draw: `coords` gives a row's data
+/// coordinates, `watch` sees them for every row in row order (for what a plot
+/// folds besides). Memory stays bounded whatever the number of rows: at most
+/// `density_above` points while every finite row may still be drawn, then only
+/// the flagged rows, pruned to the [`MAX_INDIVIDUAL`] most severe whenever
+/// twice as many are held (a row pruned then has that many more severe rows
+/// ahead of it, so it could not be among the drawn).
+pub fn gather(
     view: &PlotView,
-    xs: &[f64],
-    ys: &[f64],
-    groups: &Groups,
+    colour: Colour,
     labels: PointLabels,
     density_above: usize,
-) -> Selection {
-    let n = xs.len().min(ys.len());
-    let finite: Vec<bool> = (0..n)
-        .map(|i| xs[i].is_finite() && ys[i].is_finite())
-        .collect();
-    let n_finite = finite.iter().filter(|&&f| f).count();
-    let flagged = |i: usize| view.flagged.get(i).copied().unwrap_or(false);
-    let flagged_rows: Vec<usize> = (0..n).filter(|&i| finite[i] && flagged(i)).collect();
-    let by_severity = |rows: &mut Vec<usize>| {
-        let sev: Vec<f64> = rows.iter().map(|&i| severity(view, i)).collect();
-        let mut order: Vec<usize> = (0..rows.len()).collect();
-        order.sort_by(|&a, &b| sev[b].total_cmp(&sev[a]).then(rows[a].cmp(&rows[b])));
-        *rows = order.into_iter().map(|o| rows[o]).collect();
-    };
-    let density = n_finite > density_above;
-    let mut is_drawn = vec![false; n];
-    if density {
-        let mut chosen = flagged_rows.clone();
-        if chosen.len() > MAX_INDIVIDUAL {
-            by_severity(&mut chosen);
-            chosen.truncate(MAX_INDIVIDUAL);
-        }
-        for i in chosen {
-            is_drawn[i] = true;
-        }
-    } else {
-        is_drawn.copy_from_slice(&finite);
-    }
-    // Drawing order: unflagged, then flagged on top; by group, then row.
-    let mut drawn: Vec<usize> = (0..n).filter(|&i| is_drawn[i]).collect();
-    drawn.sort_by_key(|&i| (flagged(i), groups.of_row.get(i).copied().unwrap_or(0), i));
-    let flagged_drawn = drawn.iter().filter(|&&i| flagged(i)).count();
-    let (labelled, labels_capped) = match labels {
-        PointLabels::None => (Vec::new(), 0),
-        PointLabels::All => (drawn.clone(), 0),
-        PointLabels::Flagged => {
-            let mut rows: Vec<usize> = drawn.iter().copied().filter(|&i| flagged(i)).collect();
-            let capped = rows.len().saturating_sub(MAX_FLAGGED_LABELS);
-            if capped > 0 {
-                by_severity(&mut rows);
-                rows.truncate(MAX_FLAGGED_LABELS);
-                rows.sort_unstable();
+    coords: impl Fn(&Batch, usize) -> (f64, f64),
+    mut watch: impl FnMut(f64, f64),
+) -> Gathered {
+    let mut groups = GroupCount::new(colour);
+    let (mut x, mut y) = (Extent::default(), Extent::default());
+    let (mut rows, mut n_finite, mut flagged_total) = (0, 0, 0);
+    let mut density = false;
+    let mut kept: Vec<Point> = Vec::new();
+    view.rows.scan(|batch| {
+        for i in 0..batch.len() {
+            let (px, py) = coords(batch, i);
+            watch(px, py);
+            x.add(px);
+            y.add(py);
+            rows += 1;
+            let group = groups.add(batch, i);
+            if !(px.is_finite() && py.is_finite()) {
+                continue;
             }
-            (rows, capped)
+            n_finite += 1;
+            let (t2, spe) = (batch.t2(i), batch.spe(i));
+            let flagged = view.is_flagged(t2, spe);
+            flagged_total += usize::from(flagged);
+            if !density && n_finite > density_above {
+                density = true;
+                kept.retain(|p| p.flagged);
+            }
+            if density && !flagged {
+                continue;
+            }
+            let named = match labels {
+                PointLabels::All => true,
+                PointLabels::Flagged => flagged,
+                PointLabels::None => false,
+            };
+            kept.push(Point {
+                row: batch.first + i,
+                x: px,
+                y: py,
+                flagged,
+                group,
+                severity: severity(view, t2, spe),
+                label: if named {
+                    batch.label(i).into_owned()
+                } else {
+                    String::new()
+                },
+            });
+            if density && kept.len() > 2 * MAX_INDIVIDUAL {
+                most_severe(&mut kept, MAX_INDIVIDUAL);
+            }
         }
-    };
-    Selection {
-        n_finite,
-        n_nonfinite: n - n_finite,
-        density,
-        drawn,
-        is_drawn,
-        flagged_total: flagged_rows.len(),
-        flagged_drawn,
-        labelled,
-        labels_capped,
+    });
+    if density && kept.len() > MAX_INDIVIDUAL {
+        most_severe(&mut kept, MAX_INDIVIDUAL);
+    }
+    let (groups, remap) = groups.finish();
+    for p in &mut kept {
+        p.group = remap[p.group as usize];
+    }
+    let sel = Selection::new(kept, labels, density, n_finite, rows, flagged_total);
+    Gathered {
+        groups,
+        sel,
+        x,
+        y,
+        rows,
     }
 }
 
 impl Selection {
+    /// Orders the drawn points and chooses the labelled ones.
+    fn new(
+        mut points: Vec<Point>,
+        labels: PointLabels,
+        density: bool,
+        n_finite: usize,
+        rows: usize,
+        flagged_total: usize,
+    ) -> Selection {
+        // Drawing order: unflagged, then flagged on top; by group, then row.
+        points.sort_by_key(|p| (p.flagged, p.group, p.row));
+        let mut drawn_rows: Vec<usize> = points.iter().map(|p| p.row).collect();
+        drawn_rows.sort_unstable();
+        let flagged_drawn = points.iter().filter(|p| p.flagged).count();
+        let (labelled, labels_capped) = match labels {
+            PointLabels::None => (Vec::new(), 0),
+            PointLabels::All => ((0..points.len()).collect(), 0),
+            PointLabels::Flagged => {
+                let mut chosen: Vec<usize> =
+                    (0..points.len()).filter(|&k| points[k].flagged).collect();
+                let capped = chosen.len().saturating_sub(MAX_FLAGGED_LABELS);
+                if capped > 0 {
+                    chosen.sort_by(|&a, &b| by_severity(&points[a], &points[b]));
+                    chosen.truncate(MAX_FLAGGED_LABELS);
+                    chosen.sort_unstable_by_key(|&k| points[k].row);
+                }
+                (chosen, capped)
+            }
+        };
+        Selection {
+            n_finite,
+            n_nonfinite: rows - n_finite,
+            density,
+            points,
+            drawn_rows,
+            flagged_total,
+            flagged_drawn,
+            labelled,
+            labels_capped,
+        }
+    }
+
+    /// Whether the row is drawn one by one.
+    fn is_drawn(&self, row: usize) -> bool {
+        self.drawn_rows.binary_search(&row).is_ok()
+    }
+
+    /// Changes the drawn points' coordinates (as when an axis gets another scale).
+    pub fn map_points(&mut self, f: impl Fn(f64, f64) -> (f64, f64)) {
+        for p in &mut self.points {
+            (p.x, p.y) = f(p.x, p.y);
+        }
+    }
     /// Plain words about what the points are, for a caption.
     pub fn describe(&self, what: &str, density_above: usize, labels: PointLabels) -> String {
         let mut s = String::new();
         if self.density {
-            let binned = self.n_finite - self.drawn.len();
+            let binned = self.n_finite - self.points.len();
             let _ = write!(
                 s,
                 "With {} {what} (more than {}), the plot shows how many fall in each {}-pixel square (shade, counts in the legend) instead of every point; ",
@@ -351,28 +539,32 @@ pub fn density_classes(max_count: usize) -> Vec<usize> {
 }
 
 /// The density of the rows not drawn individually, binned in CELL-pixel squares
-/// of the plotting area; returns (class lower bounds, colours) for the legend.
+/// of the plotting area while the rows are read again (`coords` gives a row's
+/// plotted coordinates); returns (class lower bounds, colours) for the legend.
 pub fn draw_density(
     out: &mut String,
     panel: &Panel,
-    xs: &[f64],
-    ys: &[f64],
+    view: &PlotView,
     sel: &Selection,
+    coords: impl Fn(&Batch, usize) -> (f64, f64),
 ) -> (Vec<usize>, Vec<String>) {
     let nx = (panel.width() / CELL).ceil().max(1.0) as usize;
     let ny = (panel.height() / CELL).ceil().max(1.0) as usize;
     let mut counts = vec![0usize; nx * ny];
     let (sx, sy) = (panel.x_scale(), panel.y_scale());
-    for i in 0..xs.len().min(ys.len()) {
-        if sel.is_drawn[i] || !xs[i].is_finite() || !ys[i].is_finite() {
-            continue;
+    view.rows.scan(|batch| {
+        for i in 0..batch.len() {
+            let (x, y) = coords(batch, i);
+            if !x.is_finite() || !y.is_finite() || sel.is_drawn(batch.first + i) {
+                continue;
+            }
+            let cx = ((x - panel.x.lo) * sx / CELL).floor();
+            let cy = ((panel.y.hi - y) * sy / CELL).floor();
+            let cx = (cx.max(0.0) as usize).min(nx - 1);
+            let cy = (cy.max(0.0) as usize).min(ny - 1);
+            counts[cy * nx + cx] += 1;
         }
-        let cx = ((xs[i] - panel.x.lo) * sx / CELL).floor();
-        let cy = ((panel.y.hi - ys[i]) * sy / CELL).floor();
-        let cx = (cx.max(0.0) as usize).min(nx - 1);
-        let cy = (cy.max(0.0) as usize).min(ny - 1);
-        counts[cy * nx + cx] += 1;
-    }
+    });
     let max = counts.iter().copied().max().unwrap_or(0);
     let classes = density_classes(max.max(1));
     let colours: Vec<String> = (0..classes.len())
@@ -419,21 +611,13 @@ pub fn draw_density(
 }
 
 /// Draws the individually drawn rows as markers, grouped by group.
-pub fn draw_points(
-    out: &mut String,
-    panel: &Panel,
-    xs: &[f64],
-    ys: &[f64],
-    sel: &Selection,
-    groups: &Groups,
-    view: &PlotView,
-) {
+pub fn draw_points(out: &mut String, panel: &Panel, sel: &Selection, groups: &Groups) {
     out.push_str("<g class=\"points\">\n");
     // Group the drawing order into runs of one group (unflagged and flagged
     // runs of the same group are separate <g>, so flagged stay on top).
     let mut current: Option<usize> = None;
-    for &i in &sel.drawn {
-        let g = groups.of_row.get(i).copied().unwrap_or(0) as usize;
+    for p in &sel.points {
+        let g = p.group as usize;
         if current != Some(g) {
             if current.is_some() {
                 out.push_str("</g>\n");
@@ -447,14 +631,13 @@ pub fn draw_points(
             current = Some(g);
         }
         let (_, shape) = groups.style(g);
-        let flagged = view.flagged.get(i).copied().unwrap_or(false);
-        let extra = if flagged {
+        let extra = if p.flagged {
             "class=\"flagged\" stroke=\"#000000\" stroke-width=\"1.4\""
         } else {
             ""
         };
-        let r = if flagged { MARK * 1.15 } else { MARK };
-        svg::marker(out, shape, panel.px(xs[i]), panel.py(ys[i]), r, extra);
+        let r = if p.flagged { MARK * 1.15 } else { MARK };
+        svg::marker(out, shape, panel.px(p.x), panel.py(p.y), r, extra);
     }
     if current.is_some() {
         out.push_str("</g>\n");
@@ -652,28 +835,20 @@ pub fn draw_labels(
 }
 
 /// Writes the ids of the selected rows beside their markers.
-pub fn label_rows(
-    out: &mut String,
-    panel: &Panel,
-    xs: &[f64],
-    ys: &[f64],
-    sel: &Selection,
-    view: &PlotView,
-    taken: &[Box2],
-) {
+pub fn label_rows(out: &mut String, panel: &Panel, sel: &Selection, taken: &[Box2]) {
     if sel.labelled.is_empty() {
         return;
     }
-    let at = |i: usize| (panel.px(xs[i]), panel.py(ys[i]));
+    let at = |p: &Point| (panel.px(p.x), panel.py(p.y));
     let labelled: Vec<(f64, f64, String)> = sel
         .labelled
         .iter()
-        .map(|&i| {
-            let (x, y) = at(i);
-            (x, y, view.row_labels.get(i).unwrap_or_default().to_string())
+        .map(|&k| {
+            let (x, y) = at(&sel.points[k]);
+            (x, y, sel.points[k].label.clone())
         })
         .collect();
-    let marks: Vec<(f64, f64)> = sel.drawn.iter().map(|&i| at(i)).collect();
+    let marks: Vec<(f64, f64)> = sel.points.iter().map(at).collect();
     draw_labels(
         out,
         &labelled,

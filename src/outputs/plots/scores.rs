@@ -1,12 +1,13 @@
 //! Scores of two components, coloured by a group column, with an optional
 //! Hotelling T² ellipse.
 
-use super::frame::{self, Frame, padded_range};
-use super::scatter::{self, Groups, Legend, Selection};
+use super::frame::{self, Extent, Frame};
+use super::scatter::{self, Colour, Groups, Legend, Selection};
 use super::svg::{self, MUTED, N, NEUTRAL};
 use super::{LEGEND_X, equal_axes, scatter_layout, title, words_number};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
+use crate::rows::Batch;
 use crate::stats::limits::t2_limit_phase1;
 use std::fmt::Write;
 
@@ -14,21 +15,38 @@ use std::fmt::Write;
 type Ellipse = Result<(f64, f64, f64), String>;
 
 struct Prepared {
-    xs: Vec<f64>,
-    ys: Vec<f64>,
+    /// The extents of the two components' scores over every row.
+    x: Extent,
+    y: Extent,
+    /// Rows in all.
+    n: usize,
     groups: Groups,
     sel: Selection,
     ellipse: Option<Ellipse>,
 }
 
+/// A row's plotted coordinates: its scores on the two components.
+fn coords(plan: &PlotPlan) -> impl Fn(&Batch, usize) -> (f64, f64) {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    move |batch: &Batch, i: usize| {
+        let s = batch.scores(i);
+        (s[a], s[b])
+    }
+}
+
 fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     let (a, b) = (plan.x - 1, plan.y - 1);
-    let xs: Vec<f64> = view.scores.iter().map(|r| r[a]).collect();
-    let ys: Vec<f64> = view.scores.iter().map(|r| r[b]).collect();
-    let groups = Groups::new(view, plan.color.as_deref());
-    let sel = scatter::select(view, &xs, &ys, &groups, plan.labels, plan.density_above);
+    let colour = Colour::of(view, plan.color.as_deref());
+    let g = scatter::gather(
+        view,
+        colour,
+        plan.labels,
+        plan.density_above,
+        coords(plan),
+        |_, _| {},
+    );
+    let n = g.rows;
     let ellipse = plan.ellipse.map(|conf| {
-        let n = xs.len();
         let (la, lb) = (view.eigenvalues[a], view.eigenvalues[b]);
         if !(la > 0.0 && lb > 0.0 && la.is_finite() && lb.is_finite()) {
             return Err("an eigenvalue of the plotted components is not positive".to_string());
@@ -37,10 +55,11 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
         Ok((l, (l * la).sqrt(), (l * lb).sqrt()))
     });
     Prepared {
-        xs,
-        ys,
-        groups,
-        sel,
+        x: g.x,
+        y: g.y,
+        n,
+        groups: g.groups,
+        sel: g.sel,
         ellipse,
     }
 }
@@ -53,8 +72,8 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         Some(Ok((_, ex, ey))) => (*ex, *ey),
         _ => (0.0, 0.0),
     };
-    let xr = padded_range(p.xs.iter().copied(), &[-ex, ex, 0.0], 0.05);
-    let yr = padded_range(p.ys.iter().copied(), &[-ey, ey, 0.0], 0.05);
+    let xr = p.x.padded(&[-ex, ex, 0.0], 0.05);
+    let yr = p.y.padded(&[-ey, ey, 0.0], 0.05);
     let (xa, ya) = equal_axes(&layout, xr, yr);
     let panel = layout.panel(xa, ya);
     let t = title(plan, view);
@@ -75,7 +94,11 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let mut density = None;
     if p.sel.density {
         density = Some(scatter::draw_density(
-            &mut body, &panel, &p.xs, &p.ys, &p.sel,
+            &mut body,
+            &panel,
+            view,
+            &p.sel,
+            coords(plan),
         ));
     }
     if let Some(Ok((_, ex, ey))) = &p.ellipse {
@@ -88,8 +111,8 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
             N(ey * panel.y_scale())
         );
     }
-    scatter::draw_points(&mut body, &panel, &p.xs, &p.ys, &p.sel, &p.groups, view);
-    scatter::label_rows(&mut body, &panel, &p.xs, &p.ys, &p.sel, view, &[]);
+    scatter::draw_points(&mut body, &panel, &p.sel, &p.groups);
+    scatter::label_rows(&mut body, &panel, &p.sel, &[]);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
     let reserve = 3 + if p.sel.density { 9 } else { 0 } + usize::from(p.ellipse.is_some()) * 2;
@@ -150,7 +173,7 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
                 plan.y,
                 plan.y,
                 words_number(*l, 4),
-                p.xs.len(),
+                p.n,
                 view.kept
             );
         }
