@@ -315,15 +315,8 @@ pub fn apply(
         Some(ColumnData::Text(v)) => v.as_slice(),
         _ => unreachable!("id and group columns are read as text"),
     };
-    let group_texts: Vec<(&str, &[String])> =
-        groups.iter().map(|g| (g.as_str(), text_of(g))).collect();
     let feature_names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
-    let filled = crate::rows::FilledCells::from_cells(
-        &filled,
-        &feature_names,
-        id.as_deref().map(|n| (n, text_of(n))),
-        &group_texts,
-    );
+    let filled = crate::rows::FilledCells::from_cells(&filled, &feature_names);
     let texts = |name: &str| -> Vec<String> {
         let values = text_of(name);
         scored_rows.iter().map(|&r| values[r].clone()).collect()
@@ -362,7 +355,7 @@ pub fn apply(
         ),
         (
             "imputed.csv".into(),
-            tables::imputed_csv(&filled)
+            tables::imputed_csv(&filled, &rows)
                 .map_err(|e| crate::error::OutputError::io(Path::new("a scratch file"), e))?,
         ),
     ];

@@ -258,17 +258,15 @@ impl<'a> Batch<'a> {
     }
 }
 
-/// Every filled cell: its row's table row, id and group values, its feature
-/// and the value filled in, in row order (features in order within a row).
-/// Like [`RowResults`], held in memory or in a scratch file.
+/// Every filled cell: its table row, its feature and the value filled in, in
+/// row order (features in order within a row). Like [`RowResults`], held in
+/// memory or in a scratch file. The row's id and groups are not repeated here:
+/// imputed.csv takes them from the rows' results ([`RowResults::labels`]).
 pub struct FilledCells {
-    /// Per cell: the table row, the feature's index and the value; then the
-    /// row's id (when the table has one) and group values as texts.
+    /// Per cell: the table row, the feature's index and the value.
     store: Store,
     /// The features, by index.
     pub features: Vec<String>,
-    pub id: Option<String>,
-    pub groups: Vec<String>,
     scratch: PathBuf,
 }
 
@@ -282,65 +280,42 @@ pub struct CellIn {
 impl FilledCells {
     /// No cells yet; up to `limit` bytes kept in memory, the rest in a scratch
     /// file in `scratch`.
-    pub fn new(
-        features: Vec<String>,
-        id: Option<String>,
-        groups: Vec<String>,
-        limit: u64,
-        scratch: &Path,
-    ) -> FilledCells {
-        let texts = usize::from(id.is_some()) + groups.len();
+    pub fn new(features: Vec<String>, limit: u64, scratch: &Path) -> FilledCells {
         FilledCells {
-            store: Store::new(3, limit).with_texts(texts),
+            store: Store::new(3, limit),
             features,
-            id,
-            groups,
             scratch: scratch.to_path_buf(),
         }
     }
 
-    /// The cells of the in-memory stages, held in memory: `id` and each group
-    /// give the name and the text of every table row.
+    /// The cells of the in-memory stages, held in memory.
     pub fn from_cells(
         cells: &[crate::stages::missing::FilledCell],
         features: &[String],
-        id: Option<(&str, &[String])>,
-        groups: &[(&str, &[String])],
     ) -> FilledCells {
-        let mut out = FilledCells::new(
-            features.to_vec(),
-            id.map(|(name, _)| name.to_string()),
-            groups.iter().map(|(name, _)| name.to_string()).collect(),
-            u64::MAX,
-            Path::new("."),
-        );
+        let mut out = FilledCells::new(features.to_vec(), u64::MAX, Path::new("."));
         let index: std::collections::BTreeMap<&str, usize> = features
             .iter()
             .enumerate()
             .map(|(j, f)| (f.as_str(), j))
             .collect();
         for run in cells.chunks(CHUNK_ROWS) {
-            let mut texts = Vec::new();
             let batch: Vec<CellIn> = run
                 .iter()
-                .map(|c| {
-                    texts.extend(id.iter().map(|(_, v)| v[c.row].clone()));
-                    texts.extend(groups.iter().map(|(_, v)| v[c.row].clone()));
-                    CellIn {
-                        table_row: c.row,
-                        feature: index[&*c.feature],
-                        value: c.value,
-                    }
+                .map(|c| CellIn {
+                    table_row: c.row,
+                    feature: index[&*c.feature],
+                    value: c.value,
                 })
                 .collect();
-            out.push(&batch, texts)
+            out.push(&batch)
                 .expect("cells in memory are never written to a file");
         }
         out
     }
 
-    /// Adds the next cells, with each cell's texts (id? and groups), in order.
-    pub fn push(&mut self, cells: &[CellIn], texts: Vec<String>) -> io::Result<()> {
+    /// Adds the next cells, in order.
+    pub fn push(&mut self, cells: &[CellIn]) -> io::Result<()> {
         if cells.is_empty() {
             return Ok(());
         }
@@ -348,18 +323,17 @@ impl FilledCells {
             .iter()
             .flat_map(|c| [c.table_row as f64, c.feature as f64, c.value])
             .collect();
-        let chunk = Chunk {
-            rows: cells.len(),
-            values,
-            texts,
-            lines: Vec::new(),
-        };
-        self.store.push(chunk, &self.scratch)
+        self.store
+            .push(Chunk::numbers(cells.len(), values), &self.scratch)
     }
 
     /// The number of cells.
     pub fn len(&self) -> usize {
         self.store.rows()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
     }
 
     /// Every cell as (table row, feature, value), for checks on small tables.
@@ -372,16 +346,11 @@ impl FilledCells {
         out
     }
 
-    pub fn is_empty(&self) -> bool {
-        self.len() == 0
-    }
-
     /// Calls `f` with every run of cells, in order.
     pub fn each(&self, mut f: impl FnMut(&CellBatch)) -> io::Result<()> {
         self.store.pass(|chunk: &Chunk| -> io::Result<()> {
             f(&CellBatch {
                 chunk,
-                texts: self.store.text_width(),
                 features: &self.features,
             });
             Ok(())
@@ -392,7 +361,6 @@ impl FilledCells {
 /// A run of consecutive cells of [`FilledCells`].
 pub struct CellBatch<'a> {
     chunk: &'a Chunk,
-    texts: usize,
     features: &'a [String],
 }
 
@@ -419,10 +387,66 @@ impl<'a> CellBatch<'a> {
     pub fn value(&self, i: usize) -> f64 {
         self.chunk.values[3 * i + 2]
     }
+}
 
-    /// The id and group values of cell `i`'s row, in that order.
-    pub fn texts(&self, i: usize) -> &'a [String] {
-        &self.chunk.texts[i * self.texts..(i + 1) * self.texts]
+/// The id and group texts of the rows, looked up by table row in increasing
+/// order while the rows are read one chunk at a time ([`RowResults::labels`]).
+pub struct Labels<'a> {
+    cursor: crate::stream::store::Cursor<'a>,
+    chunk: Option<std::borrow::Cow<'a, Chunk>>,
+    /// The next row of `chunk` to look at.
+    at: usize,
+    width: usize,
+    texts: usize,
+}
+
+impl Labels<'_> {
+    /// The texts (id?, groups) of the row from table row `table_row`; rows must
+    /// be asked for in increasing order, and must be among the rows.
+    pub fn of(&mut self, table_row: usize) -> io::Result<&[String]> {
+        loop {
+            if let Some(chunk) = &self.chunk {
+                while self.at < chunk.rows {
+                    let here = chunk.values[self.at * self.width] as usize;
+                    if here == table_row {
+                        let from = self.at * self.texts;
+                        let chunk = self.chunk.as_ref().expect("looked at above");
+                        return Ok(&chunk.texts[from..from + self.texts]);
+                    }
+                    if here > table_row {
+                        break;
+                    }
+                    self.at += 1;
+                }
+                if self.at < chunk.rows {
+                    return Err(io::Error::new(
+                        io::ErrorKind::InvalidData,
+                        format!("table row {} is not among the analysed rows", table_row + 1),
+                    ));
+                }
+            }
+            self.chunk = self.cursor.next_chunk()?;
+            self.at = 0;
+            if self.chunk.is_none() {
+                return Err(io::Error::new(
+                    io::ErrorKind::InvalidData,
+                    format!("table row {} is past the analysed rows", table_row + 1),
+                ));
+            }
+        }
+    }
+}
+
+impl RowResults {
+    /// A reader of the rows' texts by table row (see [`Labels`]).
+    pub fn labels(&self) -> io::Result<Labels<'_>> {
+        Ok(Labels {
+            cursor: self.store.cursor()?,
+            chunk: None,
+            at: 0,
+            width: self.cols + 3,
+            texts: self.store.text_width(),
+        })
     }
 }
 

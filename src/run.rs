@@ -341,22 +341,7 @@ fn preprocess_in_memory(prepared: &Prepared) -> Result<Preprocessed, Error> {
     };
     let (data, missing, filled, fill_model) = handle_missing(data, &settings)?;
     let (scaled, scaling) = scale(data, plan.scaling, plan.constant_features)?;
-    let text = |name: &str| match prepared.table.column(name).map(|c| &c.data) {
-        Some(ColumnData::Text(v)) => v.as_slice(),
-        _ => unreachable!("id and group columns are read as text"),
-    };
-    let groups: Vec<(&str, &[String])> = plan
-        .input
-        .groups
-        .iter()
-        .map(|g| (g.as_str(), text(g)))
-        .collect();
-    let filled = crate::rows::FilledCells::from_cells(
-        &filled,
-        &plan.features,
-        plan.input.id.as_deref().map(|n| (n, text(n))),
-        &groups,
-    );
+    let filled = crate::rows::FilledCells::from_cells(&filled, &plan.features);
     Ok(Preprocessed {
         scaled,
         missing,
@@ -509,7 +494,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         return crate::stream::passes::analyse(
             prepared,
             pre,
-            &data.store.lock().expect("no pass panicked"),
+            &mut data.store.lock().expect("no pass panicked"),
             &data.numeric,
         );
     }
@@ -1139,7 +1124,7 @@ fn result_files(
         (
             "imputed.csv".into(),
             large_table(staging, "imputed.csv", |sink| {
-                tables::imputed_csv_into(&pre.filled, sink)
+                tables::imputed_csv_into(&pre.filled, &analysis.rows, sink)
             })?,
         ),
         (

@@ -275,32 +275,53 @@ pub fn scores_csv_into(
     })
 }
 
-/// imputed.csv: every filled cell: the row's labels, the feature and the value
-/// filled in (on the transformed scale when the feature is transformed).
-pub fn imputed_csv(cells: &FilledCells) -> io::Result<Vec<u8>> {
+/// imputed.csv: every filled cell: the row's labels (from `rows`, whose rows
+/// hold every row a cell was filled in), the feature and the value filled in
+/// (on the transformed scale when the feature is transformed).
+pub fn imputed_csv(cells: &FilledCells, rows: &RowResults) -> io::Result<Vec<u8>> {
     let mut bytes = Vec::new();
-    imputed_csv_into(cells, &mut bytes)?;
+    imputed_csv_into(cells, rows, &mut bytes)?;
     Ok(bytes)
 }
 
 /// [`imputed_csv`] handed to `sink` a stretch at a time, as the cells are read.
-pub fn imputed_csv_into(cells: &FilledCells, sink: &mut dyn TableSink) -> io::Result<()> {
-    let mut header = vec!["row".to_string()];
-    header.extend(cells.id.iter().cloned());
-    header.extend(cells.groups.iter().cloned());
+pub fn imputed_csv_into(
+    cells: &FilledCells,
+    rows: &RowResults,
+    sink: &mut dyn TableSink,
+) -> io::Result<()> {
+    let mut header = results_label_header(rows);
     header.extend(["feature", "filled_value"].map(String::from));
     header_into(&header, sink);
+    let mut labels = rows.labels()?;
+    let mut failed = None;
+    let width = usize::from(rows.id.is_some()) + rows.groups.len();
     cells.each(|b| {
+        if failed.is_some() {
+            return;
+        }
+        // The labels of this run's cells, read ahead of the parallel formatting.
+        let mut texts = Vec::with_capacity(b.len() * width);
+        for i in 0..b.len() {
+            match labels.of(b.table_row(i)) {
+                Ok(t) => texts.extend_from_slice(t),
+                Err(e) => {
+                    failed = Some(e);
+                    return;
+                }
+            }
+        }
         let write_row = |out: &mut CsvOut, scratch: &mut Scratch, i: usize| {
             scratch.count(out, b.table_row(i) + 1);
-            for text in b.texts(i) {
+            for text in &texts[i * width..(i + 1) * width] {
                 out.field(text);
             }
             out.field(b.feature(i).as_bytes());
             scratch.number(out, b.value(i));
         };
         rows_into(b.len(), write_row, sink);
-    })
+    })?;
+    failed.map_or(Ok(()), Err)
 }
 
 /// contributions.csv: for each flagged row, each feature's contribution to its T²
@@ -763,23 +784,32 @@ mod tests {
                 .contains(",\"y,z\",")
         );
         let features: Vec<String> = ["\"w\"", "x", "y,z"].map(String::from).to_vec();
-        let cells = |filled: &[FilledCell]| {
-            FilledCells::from_cells(filled, &features, labels.id, &labels.groups)
+        let no_scores = Matrix {
+            rows: n,
+            cols: 0,
+            data: Vec::new(),
         };
-        let whole = cells(&filled);
+        let zeros = vec![0.0; n];
+        let rows_whole = results(&labels, &no_scores, (&zeros, &zeros), None);
+        let whole = FilledCells::from_cells(&filled, &features);
         for threads in [1, 2, 8] {
-            let got = on_threads(threads, || imputed_csv(&whole).unwrap());
+            let got = on_threads(threads, || imputed_csv(&whole, &rows_whole).unwrap());
             assert!(got == reference, "imputed.csv differs on {threads} threads");
         }
         assert_eq!(
-            imputed_csv(&cells(&[])).unwrap(),
+            imputed_csv(&FilledCells::from_cells(&[], &features), &rows_whole).unwrap(),
             imputed_csv_serial(&labels, &[])
         );
-        // Read back from a scratch file, in runs of 1,000 cells.
+        // Cells and rows read back from scratch files, in runs of 1,000 cells
+        // and of 999 rows (so the labels come from another chunk now and then).
         let dir = tempfile::tempdir().unwrap();
-        let names = labels.groups.iter().map(|g| g.0.to_string()).collect();
-        let mut spilled =
-            FilledCells::new(features.clone(), Some("id".into()), names, 0, dir.path());
+        let rows_spilled = results(
+            &labels,
+            &no_scores,
+            (&zeros, &zeros),
+            Some((999, dir.path())),
+        );
+        let mut spilled = FilledCells::new(features.clone(), 0, dir.path());
         whole
             .each(|b| {
                 for from in (0..b.len()).step_by(1000) {
@@ -791,13 +821,23 @@ mod tests {
                             value: b.value(i),
                         })
                         .collect();
-                    let texts = (from..to).flat_map(|i| b.texts(i).to_vec()).collect();
-                    spilled.push(&batch, texts).unwrap();
+                    spilled.push(&batch).unwrap();
                 }
             })
             .unwrap();
         assert_eq!(spilled.len(), 3 * n);
-        assert!(imputed_csv(&spilled).unwrap() == reference);
+        assert!(imputed_csv(&spilled, &rows_spilled).unwrap() == reference);
+        // A cell of a row that is not among the rows is an error, not a guess.
+        let stray = FilledCells::from_cells(
+            &[FilledCell {
+                row: 50,
+                feature: "x".into(),
+                value: 1.0,
+            }],
+            &features,
+        );
+        assert!(!rows.contains(&50), "table row 50 is skipped");
+        assert!(imputed_csv(&stray, &rows_whole).is_err());
     }
 
     /// The serial contributions writer the parallel one replaced.

@@ -349,15 +349,11 @@ pub fn preprocess(
     let mut filled_stats = vec![(SUM_START, f64::INFINITY, f64::NEG_INFINITY); q];
     let mut filled = crate::rows::FilledCells::new(
         plan.features.clone(),
-        plan.input.id.clone(),
-        plan.input.groups.clone(),
         if store.spilled() { 0 } else { u64::MAX },
         &crate::run::scratch_dir(plan),
     );
     // The plan's index of each analysed feature, for the filled cells.
     let in_plan: Vec<usize> = kept.clone();
-    let labels = label_texts(prepared);
-    let texts = store.text_width();
     let mut analysed = 0;
     let mut offset = 0;
     let (mut values, mut local) = (Vec::new(), Vec::new());
@@ -391,14 +387,11 @@ pub fn preprocess(
                             let raw = &chunk.values[r * width..(r + 1) * width];
                             for j in 0..q {
                                 if raw[features.column[j]].is_nan() {
-                                    cells.push((
-                                        r,
-                                        crate::rows::CellIn {
-                                            table_row: offset + r,
-                                            feature: in_plan[j],
-                                            value: row[j],
-                                        },
-                                    ));
+                                    cells.push(crate::rows::CellIn {
+                                        table_row: offset + r,
+                                        feature: in_plan[j],
+                                        value: row[j],
+                                    });
                                 }
                             }
                         }
@@ -407,14 +400,9 @@ pub fn preprocess(
                     .collect::<Vec<_>>()
             },
         );
-        let (at, cells): (Vec<usize>, Vec<crate::rows::CellIn>) =
-            cells.into_iter().flatten().unzip();
-        let cell_texts = at
-            .iter()
-            .flat_map(|&r| row_labels(chunk, texts, &labels, r))
-            .collect();
+        let cells: Vec<crate::rows::CellIn> = cells.into_iter().flatten().collect();
         filled
-            .push(&cells, cell_texts)
+            .push(&cells)
             .map_err(|e| scratch_error(prepared, e))?;
         analysed += local.len();
         offset += chunk.rows;
@@ -563,10 +551,14 @@ pub fn preprocess(
 pub fn analyse(
     prepared: &Prepared,
     pre: &Preprocessed,
-    store: &Store,
+    store: &mut Store,
     numeric: &[usize],
 ) -> Result<Analysis, Error> {
     let plan = &prepared.plan;
+    assert!(
+        !store.texts_taken,
+        "pass 5 moves the labels to the results: a store is analysed once"
+    );
     let features = &Features::of(prepared, pre, numeric);
     let width = store.width();
     let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
@@ -647,7 +639,9 @@ pub fn analyse(
     let mut first = 0;
     let mut table_rows = Vec::new();
     let mut offset = 0;
-    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+    // The chunks' texts move on to the results (nothing reads them after this
+    // pass): the labels are never copied.
+    store.pass_taking(|chunk: &mut Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, true, &mut z, &mut local);
         let m = z.len() / p;
         scores.resize(m * computed, 0.0);
@@ -675,10 +669,13 @@ pub fn analyse(
         diagnostics.count(first, &t2, &spe);
         table_rows.clear();
         table_rows.extend(local.iter().map(|r| offset + r));
-        let row_texts = local
-            .iter()
-            .flat_map(|&r| row_labels(chunk, texts, &labels, r))
-            .collect();
+        let mut own = std::mem::take(&mut chunk.texts);
+        let mut row_texts = Vec::with_capacity(local.len() * labels.len());
+        for &r in &local {
+            for &t in &labels {
+                row_texts.push(std::mem::take(&mut own[r * texts + t]));
+            }
+        }
         results
             .push(crate::rows::RowsIn {
                 table_rows: &table_rows,
@@ -692,6 +689,7 @@ pub fn analyse(
         offset += chunk.rows;
         Ok(())
     })?;
+    store.texts_taken = true;
     diagnostics.finish();
     let t = crate::timing::lap("  pass 5: scores, T² and SPE", t);
 
@@ -765,16 +763,6 @@ fn label_texts(prepared: &Prepared) -> Vec<usize> {
                 .expect("id and group columns are read as text")
         })
         .collect()
-}
-
-/// The label texts (`at` in the store's texts) of row `r` of a chunk.
-fn row_labels<'a>(
-    chunk: &'a Chunk,
-    texts: usize,
-    at: &'a [usize],
-    r: usize,
-) -> impl Iterator<Item = String> + 'a {
-    at.iter().map(move |&t| chunk.texts[r * texts + t].clone())
 }
 
 fn scratch_error(prepared: &Prepared, e: std::io::Error) -> Error {

@@ -50,6 +50,8 @@ pub struct Store {
     /// Whether the recipe's transforms have been applied to the values (after
     /// the first pass checked them), so later passes read them as they are.
     pub transformed: bool,
+    /// Whether a pass took the held chunks' texts away ([`Store::pass_taking`]).
+    pub texts_taken: bool,
 }
 
 /// The scratch file: chunks written one after the other, removed when dropped.
@@ -75,6 +77,7 @@ impl Store {
             spill: None,
             rows: 0,
             transformed: false,
+            texts_taken: false,
         }
     }
 
@@ -160,6 +163,46 @@ impl Store {
         }
     }
 
+    /// A pass in which `f` may take things out of each chunk (the texts, to
+    /// move them on instead of copying them): held chunks keep only what `f`
+    /// leaves; a spilled store's file keeps everything.
+    pub fn pass_taking<E: From<io::Error>>(
+        &mut self,
+        mut f: impl FnMut(&mut Chunk) -> Result<(), E>,
+    ) -> Result<(), E> {
+        if self.spill.is_none() {
+            self.held_bytes = 0;
+            for chunk in &mut self.held {
+                f(chunk)?;
+                self.held_bytes += chunk.bytes();
+            }
+            return Ok(());
+        }
+        let mut cursor = self.cursor()?;
+        while let Some(chunk) = cursor.next_chunk()? {
+            f(&mut chunk.into_owned())?;
+        }
+        Ok(())
+    }
+
+    /// Reads the chunks one at a time, when the caller asks for the next one.
+    pub fn cursor(&self) -> io::Result<Cursor<'_>> {
+        let reader = match &self.spill {
+            None => None,
+            Some(spill) => {
+                let mut file: &File = spill.file.as_file();
+                file.seek(SeekFrom::Start(0))?;
+                Some(io::BufReader::with_capacity(1 << 20, file))
+            }
+        };
+        Ok(Cursor {
+            store: self,
+            next: 0,
+            reader,
+            bytes: Vec::new(),
+        })
+    }
+
     /// Changes the numbers of every chunk in place with `f`, which must leave
     /// the texts and lines as they are (in the scratch file, each chunk's
     /// numbers are read, changed and written back where they were; `f` then
@@ -187,6 +230,36 @@ impl Store {
                 }
                 Ok(())
             }
+        }
+    }
+}
+
+/// The chunks of a store read one at a time ([`Store::cursor`]); a separate
+/// reader, so it may run alongside a pass over another store.
+pub struct Cursor<'a> {
+    store: &'a Store,
+    next: usize,
+    reader: Option<io::BufReader<&'a File>>,
+    bytes: Vec<u8>,
+}
+
+impl<'a> Cursor<'a> {
+    /// The next chunk, or `None` after the last.
+    pub fn next_chunk(&mut self) -> io::Result<Option<std::borrow::Cow<'a, Chunk>>> {
+        let store = self.store;
+        let at = self.next;
+        self.next += 1;
+        match (&store.spill, &mut self.reader) {
+            (Some(spill), Some(reader)) => {
+                let Some(&(rows, _, length)) = spill.chunks.get(at) else {
+                    return Ok(None);
+                };
+                self.bytes.resize(length, 0);
+                reader.read_exact(&mut self.bytes)?;
+                let chunk = decode(&self.bytes, rows, store.width, store.text_width)?;
+                Ok(Some(std::borrow::Cow::Owned(chunk)))
+            }
+            _ => Ok(store.held.get(at).map(std::borrow::Cow::Borrowed)),
         }
     }
 }
