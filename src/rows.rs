@@ -3,7 +3,8 @@
 //! chunks, so every table, figure and list that reads all rows does it in one
 //! way; a table larger than the memory budget keeps them in a scratch file
 //! (the same [`Store`] the table's numbers use), so that no output holds a
-//! copy of every row.
+//! copy of every row. Each pass reads the file through a handle of its own, so
+//! several may run at once.
 
 use crate::stream::store::{Chunk, Store};
 use std::borrow::Cow;

@@ -773,7 +773,8 @@ pub fn render(
     let view = crate::outputs::present::plot_view(prepared, pre, analysis);
     let t = crate::timing::lap("  the plots' view", t);
     // The figures and the tables at the same time, unless the table was over
-    // the memory budget: then the plots' copy of every row is dropped first.
+    // the memory budget: then one reads the rows' scratch files after the
+    // other, so only one chunk of them is in memory at a time.
     let draw = || -> Result<_, Error> {
         let figures = figures(prepared, &view)?;
         let report_view = report_view_of(prepared, pre, analysis, &view, &figures);

@@ -149,9 +149,9 @@ impl Store {
         match &self.spill {
             None => self.held.iter().try_for_each(f),
             Some(spill) => {
-                let mut file: &File = spill.file.as_file();
-                file.seek(SeekFrom::Start(0))?;
-                let mut reader = io::BufReader::with_capacity(1 << 20, file);
+                // A handle of its own, so passes over one store may run at the
+                // same time (the figures and the tables read the rows together).
+                let mut reader = io::BufReader::with_capacity(1 << 20, spill.file.reopen()?);
                 let mut bytes = Vec::new();
                 for &(rows, _, length) in &spill.chunks {
                     bytes.resize(length, 0);
@@ -189,11 +189,7 @@ impl Store {
     pub fn cursor(&self) -> io::Result<Cursor<'_>> {
         let reader = match &self.spill {
             None => None,
-            Some(spill) => {
-                let mut file: &File = spill.file.as_file();
-                file.seek(SeekFrom::Start(0))?;
-                Some(io::BufReader::with_capacity(1 << 20, file))
-            }
+            Some(spill) => Some(io::BufReader::with_capacity(1 << 20, spill.file.reopen()?)),
         };
         Ok(Cursor {
             store: self,
@@ -234,12 +230,12 @@ impl Store {
     }
 }
 
-/// The chunks of a store read one at a time ([`Store::cursor`]); a separate
-/// reader, so it may run alongside a pass over another store.
+/// The chunks of a store read one at a time ([`Store::cursor`]), through a
+/// file handle of its own.
 pub struct Cursor<'a> {
     store: &'a Store,
     next: usize,
-    reader: Option<io::BufReader<&'a File>>,
+    reader: Option<io::BufReader<File>>,
     bytes: Vec<u8>,
 }
 
