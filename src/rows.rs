@@ -56,7 +56,7 @@ impl RowResults {
     ) -> RowResults {
         let texts = usize::from(id.is_some()) + groups.len();
         RowResults {
-            store: Store::new(cols + 3, limit).with_texts(texts),
+            store: Store::new(RowResults::row_width(cols), limit).with_texts(texts),
             cols,
             id,
             groups,
@@ -107,16 +107,31 @@ impl RowResults {
     /// Adds the next rows.
     pub fn push(&mut self, rows: RowsIn) -> io::Result<()> {
         let m = rows.t2.len();
-        let mut values = Vec::with_capacity(m * (self.cols + 3));
+        let mut values = Vec::with_capacity(m * RowResults::row_width(self.cols));
         for i in 0..m {
             values.push(rows.table_rows[i] as f64);
             values.extend_from_slice(&rows.scores[i * self.cols..(i + 1) * self.cols]);
             values.extend([rows.t2[i], rows.spe[i]]);
         }
+        self.push_rows(values, rows.texts)
+    }
+
+    /// The numbers kept per row with `cols` scores: the table row, the
+    /// scores, T² and SPE.
+    pub fn row_width(cols: usize) -> usize {
+        cols + 3
+    }
+
+    /// Adds the next rows already laid out as the results keep them: per row,
+    /// [`RowResults::row_width`] numbers (the table row as a number, the
+    /// scores, T², SPE) and the texts (id?, groups).
+    pub fn push_rows(&mut self, values: Vec<f64>, texts: Vec<String>) -> io::Result<()> {
+        let width = RowResults::row_width(self.cols);
+        debug_assert_eq!(values.len() % width, 0);
         let chunk = Chunk {
-            rows: m,
+            rows: values.len() / width,
             values,
-            texts: rows.texts,
+            texts,
             lines: Vec::new(),
         };
         self.store.push(chunk, &self.scratch)

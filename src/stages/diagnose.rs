@@ -96,22 +96,28 @@ impl Diagnostics {
     /// the analysed rows): the flags of every limit, and the most unusual.
     pub fn count(&mut self, first: usize, t2: &[f64], spe: &[f64]) {
         for (i, (&a, &b)) in t2.iter().zip(spe).enumerate() {
-            self.rows += 1;
-            for l in &mut self.limits {
-                l.t2_flagged += usize::from(l.t2.is_some_and(|u| a > u));
-                l.spe_flagged += usize::from(l.spe.is_some_and(|u| b > u));
-            }
-            if self.flagged_at_any(a, b) {
-                self.flagged += 1;
-                self.unusual.push(Unusual {
-                    row: first + i,
-                    t2: a,
-                    spe: b,
-                    severity: self.severity(a, b),
-                });
-                if self.unusual.len() >= 2 * self.keep.max(1024) {
-                    self.trim();
-                }
+            self.count_row(first + i, a, b);
+        }
+    }
+
+    /// Counts one row (`row` its index among the analysed rows); rows must be
+    /// counted in order.
+    pub fn count_row(&mut self, row: usize, t2: f64, spe: f64) {
+        self.rows += 1;
+        for l in &mut self.limits {
+            l.t2_flagged += usize::from(l.t2.is_some_and(|u| t2 > u));
+            l.spe_flagged += usize::from(l.spe.is_some_and(|u| spe > u));
+        }
+        if self.flagged_at_any(t2, spe) {
+            self.flagged += 1;
+            self.unusual.push(Unusual {
+                row,
+                t2,
+                spe,
+                severity: self.severity(t2, spe),
+            });
+            if self.unusual.len() >= 2 * self.keep.max(1024) {
+                self.trim();
             }
         }
     }

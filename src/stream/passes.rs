@@ -634,41 +634,39 @@ pub fn analyse(
     let mut results = results_for(prepared, computed, store.spilled());
     let labels = label_texts(prepared);
     let texts = store.text_width();
-    // Per chunk: each row's scores (kept, then the others), T² and SPE.
-    let (mut scores, mut t2, mut spe) = (Vec::new(), Vec::new(), Vec::new());
+    // Per row of the results: its table row, scores (kept, then the others),
+    // T² and SPE, computed straight into the layout the results keep.
+    let w = crate::rows::RowResults::row_width(computed);
     let mut first = 0;
-    let mut table_rows = Vec::new();
     let mut offset = 0;
     // The chunks' texts move on to the results (nothing reads them after this
     // pass): the labels are never copied.
     store.pass_taking(|chunk: &mut Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, true, &mut z, &mut local);
         let m = z.len() / p;
-        scores.resize(m * computed, 0.0);
-        t2.resize(m, 0.0);
-        spe.resize(m, 0.0);
+        let mut laid = vec![0.0; m * w];
         // Rows are independent: blocks of them in parallel, each row's numbers
         // written in place (the same per-row arithmetic as the in-memory stages).
         const ROWS: usize = 256;
         let jobs: Vec<_> = z
             .chunks(ROWS * p)
-            .zip(scores.chunks_mut(ROWS * computed.max(1)))
-            .zip(t2.chunks_mut(ROWS))
-            .zip(spe.chunks_mut(ROWS))
+            .zip(laid.chunks_mut(ROWS * w))
+            .zip(local.chunks(ROWS))
             .collect();
-        jobs.into_par_iter().for_each(|(((zb, tb), t2b), speb)| {
+        jobs.into_par_iter().for_each(|((zb, lb), rows)| {
             let mut fitted = vec![0.0; p];
-            for (r, zr) in zb.chunks_exact(p).enumerate() {
-                let row = &mut tb[r * computed..(r + 1) * computed];
-                let (tr, mr) = row.split_at_mut(kept);
+            for ((zr, out), &r) in zb.chunks_exact(p).zip(lb.chunks_exact_mut(w)).zip(rows) {
+                let (head, tail) = out.split_at_mut(1 + computed);
+                head[0] = (offset + r) as f64;
+                let (tr, mr) = head[1..].split_at_mut(kept);
                 row_times(zr, &v_kept, tr);
                 row_times(zr, &v_more, mr);
-                (t2b[r], speb[r]) = statistics.of_row(zr, tr, &mut fitted);
+                (tail[0], tail[1]) = statistics.of_row(zr, tr, &mut fitted);
             }
         });
-        diagnostics.count(first, &t2, &spe);
-        table_rows.clear();
-        table_rows.extend(local.iter().map(|r| offset + r));
+        for (i, row) in laid.chunks_exact(w).enumerate() {
+            diagnostics.count_row(first + i, row[w - 2], row[w - 1]);
+        }
         let mut own = std::mem::take(&mut chunk.texts);
         let mut row_texts = Vec::with_capacity(local.len() * labels.len());
         for &r in &local {
@@ -677,13 +675,7 @@ pub fn analyse(
             }
         }
         results
-            .push(crate::rows::RowsIn {
-                table_rows: &table_rows,
-                scores: &scores,
-                t2: &t2,
-                spe: &spe,
-                texts: row_texts,
-            })
+            .push_rows(laid, row_texts)
             .map_err(|e| scratch_error(prepared, e))?;
         first += m;
         offset += chunk.rows;
