@@ -328,3 +328,83 @@ pub fn contributions(
         })
         .collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Rows with many ties in severity: T² and SPE on a coarse grid.
+    fn rows(n: usize) -> (Vec<f64>, Vec<f64>) {
+        let mut state: u64 = 12345;
+        let mut next = || {
+            state = state
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            (state >> 40) % 16
+        };
+        (0..n)
+            .map(|_| (next() as f64, next() as f64 * 0.25))
+            .unzip()
+    }
+
+    fn limit(confidence: f64, t2: Option<f64>, spe: Option<f64>) -> Limits {
+        Limits {
+            confidence,
+            t2,
+            t2_new_rows: t2,
+            spe,
+            t2_flagged: 0,
+            spe_flagged: 0,
+        }
+    }
+
+    #[test]
+    fn counting_in_runs_lists_what_a_full_sort_lists() {
+        let (t2, spe) = rows(20_000);
+        // Two levels: the second flags rows the first does not.
+        let limits = vec![
+            limit(0.99, Some(12.0), Some(3.0)),
+            limit(0.95, Some(9.0), None),
+        ];
+        for keep in [1, 7, 1000, 5000] {
+            let mut d = with_limits(limits.clone(), SpeLimit::default(), None, Vec::new(), keep);
+            // In runs of uneven length, as chunks come.
+            let mut first = 0;
+            for run in [1, 999, 4096, 3, 20_000] {
+                let last = t2.len().min(first + run);
+                d.count(first, &t2[first..last], &spe[first..last]);
+                first = last;
+            }
+            d.finish();
+            // The reference: every row flagged at some level, sorted at once.
+            let first_level = |i: usize| (t2[i] / 12.0).max(spe[i] / 3.0);
+            let mut all: Vec<usize> = (0..t2.len())
+                .filter(|&i| t2[i] > 12.0 || spe[i] > 3.0 || t2[i] > 9.0)
+                .collect();
+            assert!(
+                all.len() > 2 * 1024,
+                "enough rows to trim the list while counting"
+            );
+            assert_eq!(d.flagged, all.len());
+            all.sort_by(|&a, &b| first_level(b).total_cmp(&first_level(a)).then(a.cmp(&b)));
+            all.truncate(keep);
+            assert_eq!(d.most_unusual(keep), all, "keep {keep}");
+            assert_eq!(d.unusual(keep)[0].t2, t2[all[0]]);
+            // The counts of each limit.
+            assert_eq!(
+                d.limits[0].t2_flagged,
+                t2.iter().filter(|&&v| v > 12.0).count()
+            );
+            assert_eq!(
+                d.limits[0].spe_flagged,
+                spe.iter().filter(|&&v| v > 3.0).count()
+            );
+            assert_eq!(
+                d.limits[1].t2_flagged,
+                t2.iter().filter(|&&v| v > 9.0).count()
+            );
+            assert_eq!(d.limits[1].spe_flagged, 0);
+            assert_eq!(d.rows, t2.len());
+        }
+    }
+}

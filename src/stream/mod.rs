@@ -184,7 +184,7 @@ fn id_run_bytes(store: &store::Store) -> usize {
 }
 
 /// The check of `run::check_ids` (ids present and unique) on ids kept in the
-/// store, in memory bounded by [`id_run_bytes`] (an external merge sort,
+/// store, in memory bounded by an eighth of the budget (an external merge sort,
 /// [`unique`]); the first problem in row order is reported with its lines.
 pub fn check_ids(
     table: &crate::table::Table,
