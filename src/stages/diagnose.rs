@@ -45,8 +45,6 @@ pub struct Diagnostics {
     pub moments: Option<ResidualMoments>,
     /// Why a limit is missing, in plain words.
     pub notes: Vec<String>,
-    /// Rows counted so far.
-    pub rows: usize,
     /// Rows flagged at any level.
     pub flagged: usize,
     /// The most unusual flagged rows, at most `keep` of them: after
@@ -57,11 +55,9 @@ pub struct Diagnostics {
 
 /// A flagged row among the most unusual.
 #[derive(Debug, Clone, Copy)]
-pub struct Unusual {
+struct Unusual {
     /// The row's index among the analysed rows.
-    pub row: usize,
-    pub t2: f64,
-    pub spe: f64,
+    row: usize,
     severity: f64,
 }
 
@@ -103,7 +99,6 @@ impl Diagnostics {
     /// Counts one row (`row` its index among the analysed rows); rows must be
     /// counted in order.
     pub fn count_row(&mut self, row: usize, t2: f64, spe: f64) {
-        self.rows += 1;
         for l in &mut self.limits {
             l.t2_flagged += usize::from(l.t2.is_some_and(|u| t2 > u));
             l.spe_flagged += usize::from(l.spe.is_some_and(|u| spe > u));
@@ -112,8 +107,6 @@ impl Diagnostics {
             self.flagged += 1;
             self.unusual.push(Unusual {
                 row,
-                t2,
-                spe,
                 severity: self.severity(t2, spe),
             });
             if self.unusual.len() >= 2 * self.keep.max(1024) {
@@ -146,16 +139,6 @@ impl Diagnostics {
             self.keep
         );
         self.unusual.iter().take(max).map(|u| u.row).collect()
-    }
-
-    /// [`Diagnostics::most_unusual`] with their T² and SPE.
-    pub fn unusual(&self, max: usize) -> &[Unusual] {
-        assert!(
-            max <= self.keep,
-            "at most {} unusual rows are kept",
-            self.keep
-        );
-        &self.unusual[..max.min(self.unusual.len())]
     }
 }
 
@@ -301,7 +284,6 @@ pub fn with_limits(
         spe_method,
         moments,
         notes,
-        rows: 0,
         flagged: 0,
         unusual: Vec::new(),
         keep,
@@ -389,7 +371,6 @@ mod tests {
             all.sort_by(|&a, &b| first_level(b).total_cmp(&first_level(a)).then(a.cmp(&b)));
             all.truncate(keep);
             assert_eq!(d.most_unusual(keep), all, "keep {keep}");
-            assert_eq!(d.unusual(keep)[0].t2, t2[all[0]]);
             // The counts of each limit.
             assert_eq!(
                 d.limits[0].t2_flagged,
@@ -404,7 +385,6 @@ mod tests {
                 t2.iter().filter(|&&v| v > 9.0).count()
             );
             assert_eq!(d.limits[1].spe_flagged, 0);
-            assert_eq!(d.rows, t2.len());
         }
     }
 }

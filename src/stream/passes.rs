@@ -352,8 +352,6 @@ pub fn preprocess(
         if store.spilled() { 0 } else { u64::MAX },
         &crate::run::scratch_dir(plan),
     );
-    // The plan's index of each analysed feature, for the filled cells.
-    let in_plan: Vec<usize> = kept.clone();
     let mut analysed = 0;
     let mut offset = 0;
     let (mut values, mut local) = (Vec::new(), Vec::new());
@@ -389,7 +387,8 @@ pub fn preprocess(
                                 if raw[features.column[j]].is_nan() {
                                     cells.push(crate::rows::CellIn {
                                         table_row: offset + r,
-                                        feature: in_plan[j],
+                                        // The plan's index of the feature.
+                                        feature: kept[j],
                                         value: row[j],
                                     });
                                 }
