@@ -42,10 +42,6 @@ pub struct Prepared {
     pub input: InputRecord,
     /// The table's numbers when the passes engine analyses it.
     pub passes: Option<PassData>,
-    /// Whether those numbers went to a scratch file, the table being larger
-    /// than the memory budget: then the outputs are made one after another,
-    /// never two large ones at once.
-    pub over_budget: bool,
 }
 
 /// The numbers of a table read for the passes engine.
@@ -159,7 +155,6 @@ impl Prepared {
             table,
             input,
             passes: None,
-            over_budget: false,
         }
     }
 }
@@ -233,7 +228,6 @@ fn prepare_in_passes(
         plan,
         table,
         input: record,
-        over_budget: ingested.store.spilled(),
         passes: Some(PassData {
             store: std::sync::Mutex::new(ingested.store),
             numeric: ingested.numeric,
@@ -772,9 +766,9 @@ pub fn render(
     let fingerprint = fingerprint(prepared);
     let view = crate::outputs::present::plot_view(prepared, pre, analysis);
     let t = crate::timing::lap("  the plots' view", t);
-    // The figures and the tables at the same time, unless the table was over
-    // the memory budget: then one reads the rows' scratch files after the
-    // other, so only one chunk of them is in memory at a time.
+    // The figures and the tables at the same time: each reads the rows a
+    // chunk at a time (through a file handle of its own when they are in a
+    // scratch file), so neither holds every row.
     let draw = || -> Result<_, Error> {
         let figures = figures(prepared, &view)?;
         let report_view = report_view_of(prepared, pre, analysis, &view, &figures);
@@ -786,15 +780,8 @@ pub fn render(
         Ok((figures, report_view))
     };
     let tables = || result_files(prepared, pre, analysis, staging);
-    let (drawn, tables) = if prepared.over_budget {
-        let drawn = draw();
-        drop(view);
-        (drawn, tables())
-    } else {
-        let both = rayon::join(draw, tables);
-        drop(view);
-        both
-    };
+    let (drawn, tables) = rayon::join(draw, tables);
+    drop(view);
     let (figures, report_view) = drawn?;
     let mut files = tables?;
     let model = crate::outputs::model::build(prepared, pre, analysis, &resolved_sha);
