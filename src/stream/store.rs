@@ -146,21 +146,14 @@ impl Store {
         &self,
         mut f: impl FnMut(&Chunk) -> Result<(), E>,
     ) -> Result<(), E> {
-        match &self.spill {
-            None => self.held.iter().try_for_each(f),
-            Some(spill) => {
-                // A handle of its own, so passes over one store may run at the
-                // same time (the figures and the tables read the rows together).
-                let mut reader = io::BufReader::with_capacity(1 << 20, spill.file.reopen()?);
-                let mut bytes = Vec::new();
-                for &(rows, _, length) in &spill.chunks {
-                    bytes.resize(length, 0);
-                    reader.read_exact(&mut bytes)?;
-                    f(&decode(&bytes, rows, self.width, self.text_width)?)?;
-                }
-                Ok(())
-            }
+        // Through a cursor: a spilled store is read with a file handle of its
+        // own, so passes over one store may run at the same time (the figures
+        // and the tables read the rows together).
+        let mut cursor = self.cursor()?;
+        while let Some(chunk) = cursor.next_chunk()? {
+            f(&chunk)?;
         }
+        Ok(())
     }
 
     /// A pass in which `f` may take things out of each chunk (the texts, to
@@ -230,8 +223,8 @@ impl Store {
     }
 }
 
-/// The chunks of a store read one at a time ([`Store::cursor`]), through a
-/// file handle of its own.
+/// The chunks of a store read one at a time ([`Store::cursor`]), a spilled
+/// store's through a file handle of its own.
 pub struct Cursor<'a> {
     store: &'a Store,
     next: usize,
