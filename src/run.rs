@@ -790,7 +790,7 @@ pub fn render(
         Content::Bytes(crate::outputs::model::to_json(&model)),
     ));
     let t = crate::timing::lap("result tables", t);
-    files.extend(figures.into_iter().map(|(n, b)| (n, Content::Bytes(b))));
+    files.extend(figures.into_iter().map(|(n, b, _)| (n, Content::Bytes(b))));
     // Each file is hashed once, files in parallel, while they are written.
     let (written, mut outputs) = rayon::join(|| write_all(staging, &files), || records(&files));
     written?;
@@ -1125,11 +1125,11 @@ fn result_files(
     ])
 }
 
-/// The plots, in the recipe's order.
+/// The plots, in the recipe's order: each file's name, bytes and caption.
 fn figures(
     prepared: &Prepared,
     view: &crate::outputs::view::PlotView,
-) -> Result<Vec<(String, Vec<u8>)>, Error> {
+) -> Result<Vec<(String, Vec<u8>, String)>, Error> {
     let mut t = std::time::Instant::now();
     let mut files = Vec::new();
     for plan in &prepared.plan.plots {
@@ -1144,9 +1144,9 @@ fn figures(
             }
             .into());
         }
-        let svg = crate::outputs::plots::render(plan, view);
+        let (svg, caption) = crate::outputs::plots::draw(plan, view);
         t = crate::timing::lap(&format!("  plot {}", plan.file), t);
-        files.push((format!("plots/{}", plan.file), svg.into_bytes()));
+        files.push((format!("plots/{}", plan.file), svg.into_bytes(), caption));
     }
     Ok(files)
 }
@@ -1157,18 +1157,18 @@ fn report_view_of(
     pre: &Preprocessed,
     analysis: &Analysis,
     view: &crate::outputs::view::PlotView,
-    figures: &[(String, Vec<u8>)],
+    figures: &[(String, Vec<u8>, String)],
 ) -> crate::outputs::view::ReportView {
-    use crate::outputs::{plots, present, view::Figure};
+    use crate::outputs::{present, view::Figure};
     let mut report_view = present::report_view(prepared, pre, analysis, view);
     report_view.figures = prepared
         .plan
         .plots
         .iter()
         .zip(figures)
-        .map(|(plan, (_, svg))| Figure {
+        .map(|(plan, (_, svg, caption))| Figure {
             file: plan.file.clone(),
-            caption: plots::caption(plan, view),
+            caption: caption.clone(),
             svg: String::from_utf8_lossy(svg).into_owned(),
         })
         .collect();

@@ -98,8 +98,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     }
 }
 
-pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
-    let p = prepare(plan, view);
+fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let layout = scatter_layout();
     let tips: Vec<(f64, f64)> = p
@@ -160,11 +159,10 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         legend.density(classes, colours);
     }
     body.push_str(&legend.finish());
-    frame::finish(back, &t, &caption(plan, view), &body)
+    frame::finish(back, &t, caption, &body)
 }
 
-pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
-    let p = prepare(plan, view);
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let mut s = format!(
         "{}. A biplot (Gabriel 1971) of PC{} ({}) and PC{} ({}) in the covariance form: each point is a row's scores divided by √λ of the component (so both axes have unit variance), and each arrow is a feature's loadings multiplied by √λ",
@@ -201,4 +199,19 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
     s.push(' ');
     s.push_str(&p.sel.describe("rows", plan.density_above, plan.labels));
     s
+}
+
+/// The figure and its caption from one reading of the rows.
+pub fn draw(plan: &PlotPlan, view: &PlotView) -> (String, String) {
+    let p = prepare(plan, view);
+    let caption = caption_prepared(plan, view, &p);
+    (render_prepared(plan, view, &p, &caption), caption)
+}
+
+pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+    draw(plan, view).0
+}
+
+pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
+    caption_prepared(plan, view, &prepare(plan, view))
 }

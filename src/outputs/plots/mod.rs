@@ -58,6 +58,20 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     }
 }
 
+/// The plot and its caption ([`render`] and [`caption`] together); the
+/// scatter plots read the rows once for both.
+pub fn draw(plan: &PlotPlan, view: &PlotView) -> (String, String) {
+    if missing_data(plan, view).is_some() {
+        return (render(plan, view), caption(plan, view));
+    }
+    match plan.kind {
+        PlotKind::Scores => scores::draw(plan, view),
+        PlotKind::Biplot => biplot::draw(plan, view),
+        PlotKind::OutlierMap => outliers::draw(plan, view),
+        _ => (render(plan, view), caption(plan, view)),
+    }
+}
+
 /// A caption in plain words for the report: what is drawn and how to read it.
 pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
     if let Some(problem) = missing_data(plan, view) {

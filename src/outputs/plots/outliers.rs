@@ -172,8 +172,7 @@ fn style(kind: usize) -> (&'static str, Shape) {
     [WITHIN, T2_ONLY, SPE_ONLY, BOTH][kind.min(3)]
 }
 
-pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
-    let p = prepare(plan, view);
+fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str) -> String {
     let layout = scatter_layout();
     let lx = view.t2_limit.filter(|l| l.is_finite());
     let ly = view.spe_limit.filter(|l| l.is_finite());
@@ -244,7 +243,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     body.push_str("</g>\n");
 
     // Points: coloured by which limits they exceed (not by a group column).
-    draw_kinds(&mut body, &panel, &p);
+    draw_kinds(&mut body, &panel, p);
     scatter::label_rows(&mut body, &panel, &p.sel, &[]);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
@@ -272,7 +271,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         legend.density(classes, colours);
     }
     body.push_str(&legend.finish());
-    frame::finish(back, &t, &caption(plan, view), &body)
+    frame::finish(back, &t, caption, &body)
 }
 
 fn short(kind: usize) -> &'static str {
@@ -322,8 +321,7 @@ fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared) {
     out.push_str("</g>\n");
 }
 
-pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
-    let p = prepare(plan, view);
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
     let level = super::percent(view.confidence);
     let mut s = format!(
         "{}. Each row's Hotelling T² (distance within the model of {} kept components, horizontal) against its squared prediction error SPE (distance from the model, vertical).",
@@ -386,4 +384,19 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
         s.push_str(" No rows are labelled.");
     }
     s
+}
+
+/// The figure and its caption from one reading of the rows.
+pub fn draw(plan: &PlotPlan, view: &PlotView) -> (String, String) {
+    let p = prepare(plan, view);
+    let caption = caption_prepared(plan, view, &p);
+    (render_prepared(plan, view, &p, &caption), caption)
+}
+
+pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+    draw(plan, view).0
+}
+
+pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
+    caption_prepared(plan, view, &prepare(plan, view))
 }

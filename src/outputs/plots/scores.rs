@@ -64,8 +64,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     }
 }
 
-pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
-    let p = prepare(plan, view);
+fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let layout = scatter_layout();
     let (ex, ey) = match &p.ellipse {
@@ -137,11 +136,10 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         legend.density(classes, colours);
     }
     body.push_str(&legend.finish());
-    frame::finish(back, &t, &caption(plan, view), &body)
+    frame::finish(back, &t, caption, &body)
 }
 
-pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
-    let p = prepare(plan, view);
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let mut s = format!(
         "{}. Scores of the rows on PC{} ({} of the variance, horizontal) and PC{} ({}, vertical), with one score unit the same length on both axes.",
@@ -182,4 +180,19 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
         }
     }
     s
+}
+
+/// The figure and its caption from one reading of the rows.
+pub fn draw(plan: &PlotPlan, view: &PlotView) -> (String, String) {
+    let p = prepare(plan, view);
+    let caption = caption_prepared(plan, view, &p);
+    (render_prepared(plan, view, &p, &caption), caption)
+}
+
+pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+    draw(plan, view).0
+}
+
+pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
+    caption_prepared(plan, view, &prepare(plan, view))
 }
