@@ -330,9 +330,12 @@ pub fn apply(
         id.as_deref().map(|n| (n.to_string(), texts(n))),
         groups.iter().map(|g| (g.clone(), texts(g))).collect(),
     );
-    let chosen = diagnostics.most_unusual(max_rows);
-    let values = chosen.iter().map(|&i| (i, z.row(i).to_vec())).collect();
-    let details = crate::run::row_details(&rows, k, values)?;
+    let mut chosen = diagnostics.most_unusual(max_rows);
+    chosen.sort_unstable();
+    let mut details = crate::run::row_details(&rows, k, &chosen)?;
+    for (&i, row) in &mut details {
+        row.z = z.row(i).to_vec();
+    }
     let flagged: Vec<(&crate::run::RowDetail, Vec<(f64, f64)>)> = details
         .values()
         .map(|d| {

@@ -568,10 +568,6 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         }
     };
     let diagnostics = diagnose_all(diagnostics_for(plan, z.rows, kept, moments), &t2, &spe);
-    let row_values = rows_needing_values(&diagnostics, plan)
-        .into_iter()
-        .map(|i| (i, z.row(i).to_vec()))
-        .collect();
     let joined: Vec<f64> = (0..z.rows)
         .flat_map(|i| scores.row(i).iter().chain(more_scores.row(i)).copied())
         .collect();
@@ -591,7 +587,10 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
             .map(|g| (g.clone(), texts_of(prepared, g, &pre.scaled.rows)))
             .collect(),
     );
-    let details = row_details(&rows, kept, row_values)?;
+    let mut details = row_details(&rows, kept, &rows_needing_values(&diagnostics, plan))?;
+    for (&i, row) in &mut details {
+        row.z = z.row(i).to_vec();
+    }
     Ok(Analysis {
         decomposition,
         selection,
@@ -665,21 +664,20 @@ pub struct RowDetail {
     pub texts: Vec<String>,
 }
 
-/// The details of the rows in `values` (scaled values by row index), read from
-/// the rows' results in one pass.
+/// The details of the rows `wanted` (indices among the analysed rows, in
+/// increasing order), read from the rows' results in one pass; their scaled
+/// values `z` are left empty for the engine to fill.
 pub fn row_details(
     rows: &RowResults,
     kept: usize,
-    mut values: BTreeMap<usize, Vec<f64>>,
+    wanted: &[usize],
 ) -> Result<BTreeMap<usize, RowDetail>, Error> {
     let mut details = BTreeMap::new();
     let texts = usize::from(rows.id.is_some()) + rows.groups.len();
     rows.each(|b| {
-        let wanted: Vec<usize> = values
-            .range(b.first..b.first + b.len())
-            .map(|(&i, _)| i)
-            .collect();
-        for i in wanted {
+        let from = wanted.partition_point(|&i| i < b.first);
+        let to = wanted.partition_point(|&i| i < b.first + b.len());
+        for &i in &wanted[from..to] {
             let r = i - b.first;
             let mut own = Vec::with_capacity(texts);
             own.extend(b.id(r).map(String::from));
@@ -687,7 +685,7 @@ pub fn row_details(
             details.insert(
                 i,
                 RowDetail {
-                    z: values.remove(&i).expect("listed above"),
+                    z: Vec::new(),
                     scores: b.scores(r)[..kept].to_vec(),
                     t2: b.t2(r),
                     spe: b.spe(r),

@@ -888,12 +888,8 @@ mod tests {
         };
         let zeros = vec![0.0; n];
         let whole = results(&labels, &no_scores, (&zeros, &zeros), None);
-        let details = crate::run::row_details(
-            &whole,
-            0,
-            flagged.iter().map(|(i, _)| (*i, Vec::new())).collect(),
-        )
-        .unwrap();
+        let rows_flagged: Vec<usize> = flagged.iter().map(|(i, _)| *i).collect();
+        let details = crate::run::row_details(&whole, 0, &rows_flagged).unwrap();
         let parts: Vec<(&RowDetail, Vec<(f64, f64)>)> = flagged
             .iter()
             .map(|(i, parts)| (&details[i], parts.clone()))

@@ -686,36 +686,28 @@ pub fn analyse(
 
     // Pass 6: only the wanted rows are brought to the analysis scale.
     crate::progress::current().stage("pass 6 of 6: rows for contributions");
-    // The wanted rows by their table row, with their index among the analysed rows.
-    let needed = rows_needing_values(&diagnostics, plan);
-    let mut wanted = std::collections::BTreeMap::new();
-    results
-        .each(|b| {
-            let from = needed.partition_point(|&i| i < b.first);
-            let to = needed.partition_point(|&i| i < b.first + b.len());
-            for &i in &needed[from..to] {
-                wanted.insert(b.table_row(i - b.first), i);
-            }
-        })
-        .map_err(|e| scratch_error(prepared, e))?;
-    let mut row_values = std::collections::BTreeMap::new();
+    // The wanted rows' details from the results (one reading of them), then
+    // their scaled values from the store, found by table row.
+    let mut details =
+        crate::run::row_details(&results, kept, &rows_needing_values(&diagnostics, plan))?;
+    let wanted: std::collections::BTreeMap<usize, usize> =
+        details.iter().map(|(&i, row)| (row.table_row, i)).collect();
     if !wanted.is_empty() {
         let mut first = 0;
         store.pass(|chunk: &Chunk| -> Result<(), Error> {
-            for (&t, &i) in wanted.range(first..first + chunk.rows) {
+            for (&t, i) in wanted.range(first..first + chunk.rows) {
                 let raw = &chunk.values[(t - first) * width..(t - first + 1) * width];
                 let mut out = vec![0.0; p];
                 let complete = features.filled_row(raw, &mut out);
                 debug_assert!(complete, "an analysed row is complete");
                 features.scale_row(&mut out);
-                row_values.insert(i, out);
+                details.get_mut(i).expect("listed above").z = out;
             }
             first += chunk.rows;
             Ok(())
         })?;
     }
     crate::timing::lap("  pass 6: rows for contributions", t);
-    let details = crate::run::row_details(&results, kept, row_values)?;
     Ok(Analysis {
         decomposition,
         selection,
