@@ -285,15 +285,8 @@ pub fn apply(
     let limits: Vec<Limits> = model
         .limits
         .iter()
-        .map(|l| Limits {
-            confidence: l.confidence,
-            t2: l.t2_new_rows,
-            t2_new_rows: l.t2_new_rows,
-            spe: l.spe,
-            // Counted with the rows below.
-            t2_flagged: 0,
-            spe_flagged: 0,
-        })
+        // New rows are flagged by the new-row T² limit; counted with the rows below.
+        .map(|l| Limits::uncounted(l.confidence, l.t2_new_rows, l.t2_new_rows, l.spe))
         .collect();
     let spe_method = if model.spe_limit == "box" {
         crate::recipe::raw::SpeLimit::Box

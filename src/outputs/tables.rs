@@ -688,14 +688,7 @@ mod tests {
             cols: k,
             data: (0..n * k).map(|x| value(x / k, x % k)).collect(),
         };
-        let limit = |confidence, t2, spe| Limits {
-            confidence,
-            t2,
-            t2_new_rows: t2,
-            spe,
-            t2_flagged: 0,
-            spe_flagged: 0,
-        };
+        let limit = |confidence, t2, spe| Limits::uncounted(confidence, t2, t2, spe);
         let t2: Vec<f64> = (0..n).map(|i| value(i, 11).abs()).collect();
         let spe: Vec<f64> = (0..n).map(|i| value(i, 12).abs()).collect();
         let diagnostics = with_limits(
@@ -934,14 +927,7 @@ mod tests {
             .collect();
         let spe: Vec<f64> = (0..n).map(|i| (i as f64 * 0.9).sin().abs()).collect();
         let diagnostics = with_limits(
-            vec![Limits {
-                confidence: 0.95,
-                t2: Some(12.0),
-                t2_new_rows: None,
-                spe: Some(0.8),
-                t2_flagged: 0,
-                spe_flagged: 0,
-            }],
+            vec![Limits::uncounted(0.95, Some(12.0), None, Some(0.8))],
             SpeLimit::default(),
             None,
             Vec::new(),

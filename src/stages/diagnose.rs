@@ -34,6 +34,26 @@ pub struct Limits {
     pub spe_flagged: usize,
 }
 
+impl Limits {
+    /// Limits at `confidence` with no row counted yet ([`Diagnostics::count`]
+    /// counts the flags).
+    pub fn uncounted(
+        confidence: f64,
+        t2: Option<f64>,
+        t2_new_rows: Option<f64>,
+        spe: Option<f64>,
+    ) -> Limits {
+        Limits {
+            confidence,
+            t2,
+            t2_new_rows,
+            spe,
+            t2_flagged: 0,
+            spe_flagged: 0,
+        }
+    }
+}
+
 /// The limits, and what the outputs need to know of all the rows beyond each
 /// row's own T² and SPE (which travel with its scores): how many rows each
 /// limit flags, and the most unusual flagged rows. It is filled a run of rows
@@ -259,14 +279,7 @@ pub fn limits(
             };
             r.map_err(|e| note("SPE", e)).ok()
         });
-        limits.push(Limits {
-            confidence: c,
-            t2: t2_limit,
-            t2_new_rows: t2_new,
-            spe: spe_limit,
-            t2_flagged: 0,
-            spe_flagged: 0,
-        });
+        limits.push(Limits::uncounted(c, t2_limit, t2_new, spe_limit));
     }
     with_limits(limits, spe_method, moments, notes, keep)
 }
@@ -330,14 +343,7 @@ mod tests {
     }
 
     fn limit(confidence: f64, t2: Option<f64>, spe: Option<f64>) -> Limits {
-        Limits {
-            confidence,
-            t2,
-            t2_new_rows: t2,
-            spe,
-            t2_flagged: 0,
-            spe_flagged: 0,
-        }
+        Limits::uncounted(confidence, t2, t2, spe)
     }
 
     #[test]
