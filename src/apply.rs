@@ -11,10 +11,11 @@
 
 use crate::error::{Error, InputError, OutputError};
 use crate::linalg::Matrix;
-use crate::outputs::folder::{check_replaceable, write_folder};
+use crate::outputs::folder::write_folder;
 use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, RunInfo};
 use crate::outputs::model::{Fill, Model};
+use crate::outputs::replace::check_replaceable;
 use crate::outputs::tables;
 use crate::recipe::plan::Transform;
 use crate::rows::RowResults;

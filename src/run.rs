@@ -3,9 +3,10 @@
 
 use crate::error::{AnalysisError, Error, InputError, RecipeError, RecipeProblem};
 use crate::linalg::Matrix;
-use crate::outputs::folder::{Staging, check_replaceable};
+use crate::outputs::folder::Staging;
 use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, ManifestBody, RunInfo};
+use crate::outputs::replace::check_replaceable;
 use crate::outputs::tables;
 use crate::recipe::plan::MethodPlan;
 use crate::recipe::plan::{Plan, check_names, input_plan, make_plan};

@@ -2,60 +2,12 @@
 //!
 //! Files go into a hidden temporary folder beside the target; only when every file
 //! is written is the folder moved into place. A failed run therefore leaves no
-//! partial results and never touches an earlier run's folder. An existing folder
-//! is replaced only if it holds sextant results of the same recipe and inputs, or
-//! when the caller says `replace`.
+//! partial results and never touches an earlier run's folder. Whether an existing
+//! folder may be replaced at all is decided in [`super::replace`].
 
-use super::manifest::fingerprint;
 use crate::error::OutputError;
-use serde_json::Value;
 use std::fs;
 use std::path::{Path, PathBuf};
-
-/// Decides whether `target` may be replaced by results with `new_fingerprint`.
-pub fn check_replaceable(
-    target: &Path,
-    new_fingerprint: &(String, Vec<String>),
-    replace: bool,
-) -> Result<(), OutputError> {
-    if !target.exists() {
-        return Ok(());
-    }
-    let refuse = |reason: String| OutputError::Refused {
-        path: target.display().to_string(),
-        reason,
-    };
-    if !target.is_dir() {
-        return Err(refuse(
-            "exists and is not a folder; choose another output.folder".into(),
-        ));
-    }
-    let manifest = target.join("manifest.json");
-    let old: Option<Value> = fs::read(&manifest)
-        .ok()
-        .and_then(|b| serde_json::from_slice(&b).ok());
-    let old = match old {
-        Some(v) if v.pointer("/tool/name").and_then(Value::as_str) == Some("sextant") => v,
-        _ => {
-            let empty = fs::read_dir(target)
-                .map(|mut d| d.next().is_none())
-                .unwrap_or(false);
-            if empty {
-                return Ok(());
-            }
-            return Err(refuse(
-                "exists and is not a sextant results folder (no manifest.json); sextant will not replace it".into(),
-            ));
-        }
-    };
-    if replace || fingerprint(&old).as_ref() == Some(new_fingerprint) {
-        return Ok(());
-    }
-    Err(refuse(
-        "holds results of a different recipe or input; pass --replace to replace them, or choose another output.folder"
-            .into(),
-    ))
-}
 
 /// Writes `files` (relative path, bytes) into a new folder and moves it to `target`.
 pub fn write_folder(target: &Path, files: &[(String, Vec<u8>)]) -> Result<(), OutputError> {
