@@ -92,6 +92,13 @@ pub fn apply(
 ) -> Result<ApplySummary, Error> {
     let start = Instant::now();
     let started_utc = manifest::utc_now();
+    // Refused before anything is read or computed: a replacement must never
+    // delete what this command reads.
+    let folder = options
+        .out
+        .clone()
+        .unwrap_or_else(|| default_folder(results, table_path));
+    guard_folder(&folder, results, table_path)?;
     let (model, model_sha, source) = load_model(results)?;
     let shown = table_path.display().to_string();
     let bytes = std::fs::read(table_path).map_err(|source| InputError::Io {
@@ -357,11 +364,6 @@ pub fn apply(
         ),
     ];
 
-    let folder = options
-        .out
-        .clone()
-        .unwrap_or_else(|| default_folder(results, table_path));
-    guard_folder(&folder, results, table_path)?;
     let lock = crate::outputs::lock::lock(&folder)?;
     let fingerprint = (model_sha.clone(), vec![table_sha.clone()]);
     check_replaceable(&folder, &fingerprint, options.replace)?;
@@ -476,18 +478,19 @@ fn default_folder(results: &Path, table: &Path) -> PathBuf {
 
 /// The scores folder may not hold the results it reads or the table it scores.
 fn guard_folder(folder: &Path, results: &Path, table: &Path) -> Result<(), OutputError> {
-    let f = crate::paths::normalize(folder);
-    for (what, path) in [("the results folder", results), ("the table", table)] {
-        let p = crate::paths::normalize(path);
-        if p.starts_with(&f) || f.starts_with(&p) && what == "the results folder" {
-            return Err(OutputError::Refused {
-                path: folder.display().to_string(),
-                reason: format!(
-                    "the output folder would overlap {what} {}; choose another --out",
-                    path.display()
-                ),
-            });
-        }
+    use crate::paths::inside;
+    let overlap = |what: &str, path: &Path| OutputError::Refused {
+        path: folder.display().to_string(),
+        reason: format!(
+            "the output folder would overlap {what} {} (links followed); choose another --out",
+            path.display()
+        ),
+    };
+    if inside(table, folder) {
+        return Err(overlap("the table", table));
+    }
+    if inside(results, folder) || inside(folder, results) {
+        return Err(overlap("the results folder", results));
     }
     Ok(())
 }

@@ -322,6 +322,9 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
             let how = match method {
                 crate::recipe::raw::MissingMethod::Median => "with the feature median".to_string(),
                 crate::recipe::raw::MissingMethod::IterativePca => match &m.iterative_pca {
+                    Some(r) if r.iterations == 0 => {
+                        format!("by iterative PCA ({} components)", r.components)
+                    }
                     Some(r) => format!(
                         "by iterative PCA ({} components, {} iterations, {})",
                         r.components,
@@ -339,10 +342,17 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
                 }
                 _ => "with the feature mean".to_string(),
             };
-            writeln!(
-                out,
-                "missing    {missing_cells} cells in used features filled {how}"
-            )
+            if missing_cells == 0 {
+                writeln!(
+                    out,
+                    "missing    none in the used features, so nothing was filled (missing cells of new rows given to `apply` are filled {how})"
+                )
+            } else {
+                writeln!(
+                    out,
+                    "missing    {missing_cells} cells in used features filled {how}"
+                )
+            }
         }
     };
     for f in m

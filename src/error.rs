@@ -199,6 +199,8 @@ pub enum RecipeProblem {
         what: &'static str,
         path: String,
     },
+    #[error("cannot add the pin: {reason}")]
+    CannotPin { reason: String },
     #[error(
         "input.sha256 pins {path} to {expected}, but the file now hashes to {found}; if the change is intended, update the pin"
     )]

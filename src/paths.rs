@@ -1,4 +1,5 @@
-//! Path helpers: lexical normalisation and relative paths between folders.
+//! Path helpers: lexical normalisation, relative paths between folders, and
+//! whether one path lies inside a folder once links are followed.
 
 use std::path::{Component, Path, PathBuf};
 
@@ -60,6 +61,70 @@ pub fn relative(from: &Path, to: &Path) -> String {
     }
 }
 
+/// Whether `path` is `folder` or lies inside it. Three views must all say no:
+/// the paths as written (lexically), the paths with every symbolic link
+/// resolved, and, where the platform has them, device and inode numbers (the
+/// folder against each resolved ancestor of `path`), which also see a second
+/// mount or a case-insensitive spelling of the same folder. Used before a
+/// folder is replaced, so no link can make a replacement delete an input.
+pub fn inside(path: &Path, folder: &Path) -> bool {
+    if normalize(path).starts_with(normalize(folder)) {
+        return true;
+    }
+    let (path, folder) = (resolve(path), resolve(folder));
+    if path.starts_with(&folder) {
+        return true;
+    }
+    match file_id(&folder) {
+        Some(id) => path.ancestors().any(|a| file_id(a) == Some(id)),
+        None => false,
+    }
+}
+
+/// The absolute path with every link resolved: the longest part that exists is
+/// canonicalised, and the rest (which cannot hold a link) is appended with
+/// `.` and `..` removed lexically.
+pub fn resolve(path: &Path) -> PathBuf {
+    let absolute = std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf());
+    let mut rest = Vec::new();
+    let mut existing = absolute.as_path();
+    loop {
+        if let Ok(found) = std::fs::canonicalize(existing) {
+            let mut out = found;
+            for part in rest.iter().rev() {
+                match part {
+                    Component::CurDir => {}
+                    Component::ParentDir => {
+                        out.pop();
+                    }
+                    other => out.push(other.as_os_str()),
+                }
+            }
+            return out;
+        }
+        match (existing.parent(), existing.components().next_back()) {
+            (Some(parent), Some(last)) => {
+                rest.push(last);
+                existing = parent;
+            }
+            _ => return normalize(&absolute),
+        }
+    }
+}
+
+/// The device and inode of an existing file or folder (links followed).
+#[cfg(unix)]
+fn file_id(path: &Path) -> Option<(u64, u64)> {
+    use std::os::unix::fs::MetadataExt;
+    std::fs::metadata(path).ok().map(|m| (m.dev(), m.ino()))
+}
+
+/// Elsewhere only the resolved paths are compared.
+#[cfg(not(unix))]
+fn file_id(_path: &Path) -> Option<(u64, u64)> {
+    None
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -76,5 +141,31 @@ mod tests {
             PathBuf::from("data/x.csv")
         );
         assert_eq!(tidy(Path::new("../a/./b")), PathBuf::from("../a/b"));
+    }
+
+    /// A table reached through a link into the results folder once let
+    /// `run --replace` delete it: the written paths did not overlap.
+    #[cfg(unix)]
+    #[test]
+    fn a_link_into_the_folder_is_inside_it() {
+        let dir = tempfile::tempdir().unwrap();
+        let results = dir.path().join("results");
+        std::fs::create_dir(&results).unwrap();
+        std::fs::write(results.join("data.csv"), "a\n1\n").unwrap();
+        std::os::unix::fs::symlink(results.join("data.csv"), dir.path().join("data.csv")).unwrap();
+        std::os::unix::fs::symlink(&results, dir.path().join("alias")).unwrap();
+        assert!(inside(&dir.path().join("data.csv"), &results));
+        assert!(inside(&results.join("data.csv"), &dir.path().join("alias")));
+        assert!(inside(&dir.path().join("alias/x/../data.csv"), &results));
+        assert!(!inside(
+            &dir.path().join("data.csv"),
+            &dir.path().join("other")
+        ));
+        // A folder that does not exist yet, below a link.
+        assert!(inside(
+            &results.join("new/x.csv"),
+            &dir.path().join("alias/new")
+        ));
+        assert!(!inside(&dir.path().join("resultsx/a"), &results));
     }
 }

@@ -1,11 +1,14 @@
 //! `sextant pin`: write the input table's SHA-256 into the recipe as
 //! `input.sha256`, keeping every comment and the layout (via `toml_edit`), so that
-//! later runs refuse a changed file.
+//! later runs refuse a changed file. The edit changes nothing else about the
+//! file: a link is written through to its target, the target keeps its mode
+//! (and, where allowed, its owner), and a file the user may not write, or has
+//! made read-only, is refused rather than replaced.
 
 use crate::error::{Error, OutputError, RecipeError, RecipeProblem};
 use crate::outputs::hashing::sha256_hex;
 use crate::recipe::{self, plan::input_plan};
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 /// What `pin` did.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -38,8 +41,9 @@ pub fn pin(recipe_path: &Path) -> Result<(String, Pinned), Error> {
                 at: None,
                 problem: RecipeProblem::Syntax(e.to_string()),
             })?;
+    let target = editable_target(recipe_path)?;
     doc["input"]["sha256"] = toml_edit::value(hash.clone());
-    write_atomically(recipe_path, doc.to_string().as_bytes())?;
+    write_atomically(&target, doc.to_string().as_bytes())?;
     let pinned = match old {
         Some(old) => Pinned::Updated { old, hash },
         None => Pinned::Added { hash },
@@ -47,7 +51,54 @@ pub fn pin(recipe_path: &Path) -> Result<(String, Pinned), Error> {
     Ok((shown, pinned))
 }
 
-/// Replaces a file by writing a temporary file beside it and renaming it.
+/// The file `pin` will rewrite: the recipe itself, or the file its link leads
+/// to. Refused (exit 2) when the user could not edit it by hand: read-only, not
+/// writable by this user, or one of several hard links (a new file would split
+/// them).
+fn editable_target(recipe_path: &Path) -> Result<PathBuf, Error> {
+    let refuse = |reason: String| -> Error {
+        RecipeError {
+            file: recipe_path.to_path_buf(),
+            at: None,
+            problem: RecipeProblem::CannotPin { reason },
+        }
+        .into()
+    };
+    let target = std::fs::canonicalize(recipe_path)
+        .map_err(|e| refuse(format!("its path cannot be resolved ({e})")))?;
+    let meta = std::fs::metadata(&target)
+        .map_err(|e| refuse(format!("{} cannot be read ({e})", target.display())))?;
+    if meta.permissions().readonly() {
+        return Err(refuse(format!(
+            "{} is read-only; make it writable first if the pin should be added",
+            target.display()
+        )));
+    }
+    // Opening for writing (without truncating) asks the system whether this
+    // user may change the file; replacing it by rename would not ask.
+    if let Err(e) = std::fs::OpenOptions::new().write(true).open(&target) {
+        return Err(refuse(format!(
+            "{} cannot be written by this user ({e})",
+            target.display()
+        )));
+    }
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::MetadataExt;
+        if meta.nlink() > 1 {
+            return Err(refuse(format!(
+                "{} has {} hard links, and rewriting it would leave the others unpinned; pin a copy or edit input.sha256 by hand",
+                target.display(),
+                meta.nlink()
+            )));
+        }
+    }
+    Ok(target)
+}
+
+/// Replaces a file by writing a temporary file beside it, with the old file's
+/// permissions, flushing it to disk and renaming it over the old one; the
+/// folder is flushed too, so a power cut leaves the old or the new file.
 pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), OutputError> {
     let dir = match path.parent() {
         Some(p) if !p.as_os_str().is_empty() => p,
@@ -56,7 +107,31 @@ pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), OutputError> {
     let mut tmp = tempfile::NamedTempFile::new_in(dir).map_err(|e| OutputError::io(dir, e))?;
     let _on_signal = crate::cleanup::register(tmp.path());
     std::io::Write::write_all(&mut tmp, bytes).map_err(|e| OutputError::io(path, e))?;
+    if let Ok(old) = std::fs::metadata(path) {
+        keep_owner(tmp.path(), &old);
+        std::fs::set_permissions(tmp.path(), old.permissions())
+            .map_err(|e| OutputError::io(path, e))?;
+    }
+    tmp.as_file()
+        .sync_all()
+        .map_err(|e| OutputError::io(path, e))?;
     tmp.persist(path)
         .map_err(|e| OutputError::io(path, e.error))?;
+    // Not every system can flush a folder; the rename itself is done.
+    if let Ok(folder) = std::fs::File::open(dir) {
+        let _ = folder.sync_all();
+    }
     Ok(())
 }
+
+/// Gives the new file the old one's owner and group where this user may (an
+/// administrator editing a colleague's recipe); elsewhere the new file is
+/// the user's own, as an edit in a text editor would make it.
+#[cfg(unix)]
+fn keep_owner(new: &Path, old: &std::fs::Metadata) {
+    use std::os::unix::fs::MetadataExt;
+    let _ = std::os::unix::fs::chown(new, Some(old.uid()), Some(old.gid()));
+}
+
+#[cfg(not(unix))]
+fn keep_owner(_new: &Path, _old: &std::fs::Metadata) {}

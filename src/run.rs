@@ -877,14 +877,15 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
     let started_utc = manifest::utc_now();
     let mut prepared = prepare_with(recipe_path, &options.engine)?;
     let lock = crate::outputs::lock::lock(&prepared.plan.output)?;
-    let (pre, analysis) = analyse_all(&prepared)?;
-    // The table's values are not needed for the outputs: free them first.
-    prepared.passes = None;
+    // A folder that may not be replaced is refused before the long part.
     check_replaceable(
         &prepared.plan.output,
         &fingerprint(&prepared),
         options.replace,
     )?;
+    let (pre, analysis) = analyse_all(&prepared)?;
+    // The table's values are not needed for the outputs: free them first.
+    prepared.passes = None;
     let staging = Staging::new(&prepared.plan.output)?;
     let computed = render(&prepared, &pre, &analysis, Some(&staging))?;
     let seconds = start.elapsed().as_secs_f64();

@@ -156,16 +156,7 @@ pub fn summary(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> 
     if !dropped.is_empty() {
         out.push(format!("Dropped features: {}.", dropped.join(", ")));
     }
-    out.push(match m.method {
-        crate::recipe::raw::MissingMethod::DropRows => {
-            format!("{} rows with a missing cell were dropped.", m.rows_dropped)
-        }
-        method => format!(
-            "{} missing cells were filled with their feature's {}; filling shrinks the variance, so small components deserve less trust.",
-            m.cells_filled,
-            if method == crate::recipe::raw::MissingMethod::Median { "median" } else { "mean" }
-        ),
-    });
+    out.push(missing_sentence(m));
     if !pre.transforms.is_empty() {
         let names: Vec<String> = pre
             .transforms
@@ -196,6 +187,30 @@ pub fn summary(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> 
         ));
     }
     out
+}
+
+/// What the missing stage did, in one sentence; a complete table says so.
+fn missing_sentence(m: &crate::stages::missing::MissingReport) -> String {
+    use crate::recipe::raw::MissingMethod;
+    let how = match m.method {
+        MissingMethod::DropRows if m.rows_dropped == 0 => {
+            return "No row had a missing cell in the used features, so none was dropped.".into();
+        }
+        MissingMethod::DropRows => {
+            return format!("{} rows with a missing cell were dropped.", m.rows_dropped);
+        }
+        MissingMethod::Mean => "with their feature's mean",
+        MissingMethod::Median => "with their feature's median",
+        MissingMethod::IterativePca => "by iterative PCA",
+        MissingMethod::Knn => "from the nearest rows that observe them",
+    };
+    if m.cells_filled == 0 {
+        return "The used features had no missing cells, so nothing was filled.".into();
+    }
+    format!(
+        "{} missing cells were filled {how}; filling shrinks the variance, so small components deserve less trust.",
+        m.cells_filled
+    )
 }
 
 /// The cautions printed in every report.

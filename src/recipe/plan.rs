@@ -596,7 +596,7 @@ pub fn output_folder(
         ("the input table", &input.file),
     ];
     for (what, path) in guarded {
-        if normalize(path).starts_with(&folder_abs) {
+        if crate::paths::inside(path, &folder) {
             return Err(recipe.error_at(
                 recipe.raw.output.folder.span(),
                 RecipeProblem::OutputContains {

@@ -125,10 +125,13 @@ pub fn iterative_pca(
         final_change: 0.0,
         converged: missing.is_empty(),
     };
-    let mut model = ImputationModel::default();
     if missing.is_empty() {
+        // Nothing to fill, but new rows scored by `apply` may have missing
+        // cells: the complete table's model is fitted once for them.
+        let (_, model) = fit(columns, s, scaling, settings.variant)?;
         return Ok((report, model));
     }
+    let mut model = ImputationModel::default();
     while report.iterations < report.max_iterations {
         report.iterations += 1;
         let (fitted, last) = fit(columns, s, scaling, settings.variant)?;
