@@ -101,7 +101,7 @@ pub fn apply(
     guard_folder(&folder, results, table_path)?;
     let (model, model_sha, source) = load_model(results)?;
     let shown = table_path.display().to_string();
-    let bytes = std::fs::read(table_path).map_err(|source| InputError::Io {
+    let bytes = crate::paths::read_regular(table_path).map_err(|source| InputError::Io {
         path: shown.clone(),
         source,
     })?;

@@ -61,6 +61,31 @@ pub fn relative(from: &Path, to: &Path) -> String {
     }
 }
 
+/// The metadata of `path` (links followed) if it is a regular file; a folder,
+/// device, pipe or socket is an error of kind `InvalidInput`, so a recipe or
+/// table named `/dev/zero` or a named pipe is refused instead of read forever.
+pub fn regular_file(path: &Path) -> std::io::Result<std::fs::Metadata> {
+    let meta = std::fs::metadata(path)?;
+    if meta.is_file() {
+        return Ok(meta);
+    }
+    let kind = if meta.is_dir() {
+        "a folder"
+    } else {
+        "a device, pipe or socket"
+    };
+    Err(std::io::Error::new(
+        std::io::ErrorKind::InvalidInput,
+        format!("it is {kind}, not a regular file"),
+    ))
+}
+
+/// Reads a whole file that must be a regular file (see [`regular_file`]).
+pub fn read_regular(path: &Path) -> std::io::Result<Vec<u8>> {
+    regular_file(path)?;
+    std::fs::read(path)
+}
+
 /// Whether `path` is `folder` or lies inside it. Three views must all say no:
 /// the paths as written (lexically), the paths with every symbolic link
 /// resolved, and, where the platform has them, device and inode numbers (the

@@ -23,10 +23,11 @@ pub fn pin(recipe_path: &Path) -> Result<(String, Pinned), Error> {
     let loaded = recipe::load(recipe_path)?;
     let input = input_plan(&loaded);
     let shown = input.file.display().to_string();
-    let bytes = std::fs::read(&input.file).map_err(|source| crate::error::InputError::Io {
-        path: shown.clone(),
-        source,
-    })?;
+    let bytes =
+        crate::paths::read_regular(&input.file).map_err(|source| crate::error::InputError::Io {
+            path: shown.clone(),
+            source,
+        })?;
     let hash = sha256_hex(&bytes);
     let old = input.pin.as_ref().map(|(h, _)| h.clone());
     if old.as_deref() == Some(hash.as_str()) {

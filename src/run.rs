@@ -98,7 +98,7 @@ pub fn prepare_recipe_with(
 ) -> Result<Prepared, Error> {
     let input = input_plan(&recipe);
     let shown = input.file.display().to_string();
-    let size = std::fs::metadata(&input.file)
+    let size = crate::paths::regular_file(&input.file)
         .map_err(|source| InputError::Io {
             path: shown.clone(),
             source,
@@ -116,7 +116,7 @@ pub fn prepare_recipe_with(
         return prepare_in_passes(recipe, keep_in_memory, options.engine);
     }
     let t = std::time::Instant::now();
-    let bytes = std::fs::read(&input.file).map_err(|source| InputError::Io {
+    let bytes = crate::paths::read_regular(&input.file).map_err(|source| InputError::Io {
         path: shown.clone(),
         source,
     })?;

@@ -212,7 +212,7 @@ fn extension_delimiter(path: &Path) -> u8 {
 
 fn read(data: &Path) -> Result<Loaded, Error> {
     let display = data.display().to_string();
-    let bytes = std::fs::read(data).map_err(|source| InputError::Io {
+    let bytes = crate::paths::read_regular(data).map_err(|source| InputError::Io {
         path: display.clone(),
         source,
     })?;

@@ -317,3 +317,48 @@ fn pin_refuses_a_read_only_recipe() {
     assert_eq!(fs::read(&recipe).unwrap(), before);
     assert_eq!(mode(&recipe), 0o444);
 }
+
+/// A recipe or table named `/dev/zero` was read until memory ran out, and a
+/// named pipe blocked forever; both are refused as not regular files.
+#[cfg(unix)]
+#[test]
+fn devices_pipes_and_folders_are_not_read_as_files() {
+    let ws = iris_workspace("mean", "");
+    let fifo = ws.path().join("data/pipe.csv");
+    assert!(
+        std::process::Command::new("mkfifo")
+            .arg(&fifo)
+            .status()
+            .unwrap()
+            .success()
+    );
+    let recipe = fs::read_to_string(ws.path().join("r.toml")).unwrap();
+    for (file, kind) in [
+        ("/dev/zero", "a device, pipe or socket"),
+        ("data/pipe.csv", "a device, pipe or socket"),
+        ("data", "a folder"),
+    ] {
+        fs::write(
+            ws.path().join("odd.toml"),
+            recipe.replace("data/iris.csv", file),
+        )
+        .unwrap();
+        for command in ["check", "run", "pin"] {
+            let out = sextant(ws.path(), &[command, "odd.toml"]);
+            assert_eq!(out.code, 2, "{command} {file}: {}", out.stderr);
+            assert!(
+                out.stderr.contains(&format!("{kind}, not a regular file")),
+                "{}",
+                out.stderr
+            );
+        }
+    }
+    let out = sextant(ws.path(), &["check", "/dev/zero"]);
+    assert_eq!(out.code, 2, "{}", out.stderr);
+    assert!(
+        out.stderr.contains("cannot read the recipe"),
+        "{}",
+        out.stderr
+    );
+    assert!(!ws.path().join("out").exists());
+}

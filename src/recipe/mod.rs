@@ -41,10 +41,22 @@ impl LoadedRecipe {
 /// Reads and parses a recipe; a syntax error, an unknown key, a wrong type or an
 /// out-of-range value comes back with its line and column.
 pub fn load(path: &Path) -> Result<LoadedRecipe, RecipeError> {
-    let text = std::fs::read_to_string(path).map_err(|e| RecipeError {
+    let bytes = crate::paths::read_regular(path).map_err(|e| RecipeError {
         file: path.to_path_buf(),
         at: None,
         problem: RecipeProblem::Read(e),
+    })?;
+    let text = String::from_utf8(bytes).map_err(|e| {
+        let valid = e.utf8_error().valid_up_to();
+        let lossy = String::from_utf8_lossy(e.as_bytes()).into_owned();
+        let offset = lossy.len().min(valid);
+        RecipeError {
+            file: path.to_path_buf(),
+            at: Some(Position::locate(&lossy, offset)),
+            problem: RecipeProblem::Syntax(
+                "the recipe is not UTF-8 text: this byte is not a valid character; save the file as UTF-8".into(),
+            ),
+        }
     })?;
     parse(path, text)
 }
