@@ -363,6 +363,7 @@ pub fn apply(
         .unwrap_or_else(|| default_folder(results, table_path));
     guard_folder(&folder, results, table_path)?;
     let lock = crate::outputs::lock::lock(&folder)?;
+    notes.extend(lock.notes.iter().cloned());
     let fingerprint = (model_sha.clone(), vec![table_sha.clone()]);
     check_replaceable(&folder, &fingerprint, options.replace)?;
     let outputs: Vec<FileRecord> = files
