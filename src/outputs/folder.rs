@@ -200,11 +200,15 @@ fn replace(
     let old = unused_name(target, parent, Kind::Old);
     faults.step()?;
     fs::rename(target, &old).map_err(|e| failed(target, e))?;
-    faults.step()?;
-    if let Err(e) = fs::rename(staged, target) {
-        // Best effort: if this fails too, the next lock holder puts them back.
-        let _ = fs::rename(&old, target);
-        return Err(failed(target, e));
+    let moved_in = faults
+        .step()
+        .and_then(|()| fs::rename(staged, target).map_err(|e| failed(target, e)));
+    if let Err(stop) = moved_in {
+        if let Stop::Failed(_) = stop {
+            // Best effort: if this fails too, the next lock holder puts them back.
+            let _ = fs::rename(&old, target);
+        }
+        return Err(stop);
     }
     Ok(old)
 }
