@@ -513,7 +513,13 @@ mod tests {
         );
         // The same rows in runs of 7 through a store that spills at once, with
         // every table row shifted by 10 (as when rows were dropped).
-        let mut spilled = RowResults::new(2, Some("id".into()), vec!["g".into()], 64, &dir.path().join("out"));
+        let mut spilled = RowResults::new(
+            2,
+            Some("id".into()),
+            vec!["g".into()],
+            64,
+            &dir.path().join("out"),
+        );
         for first in (0..n).step_by(7) {
             let last = n.min(first + 7);
             let table_rows: Vec<usize> = (first + 10..last + 10).collect();

@@ -165,7 +165,10 @@ fn commit_with_fault_at(k: usize, existing: bool, exchange: bool, abort: bool) -
     if now.is_none() && existing {
         assert_eq!(repaired, old, "{case}: the earlier results are put back");
         assert!(
-            again.notes.iter().any(|n| n.contains("put the earlier results back")),
+            again
+                .notes
+                .iter()
+                .any(|n| n.contains("put the earlier results back")),
             "{case}: {:?}",
             again.notes
         );

@@ -206,7 +206,10 @@ fn after_kill_9_the_next_run_removes_what_was_left_and_says_so() {
     child.wait().unwrap();
     let left = hidden_leftovers(dir);
     let scratch: Vec<&String> = left.iter().filter(|n| n.contains("-scratch-")).collect();
-    assert!(!scratch.is_empty(), "a killed run leaves its scratch file: {left:?}");
+    assert!(
+        !scratch.is_empty(),
+        "a killed run leaves its scratch file: {left:?}"
+    );
     assert_eq!(
         fs::read(dir.join("out/manifest.json")).unwrap(),
         before,
@@ -260,7 +263,10 @@ fn a_second_run_is_refused_while_the_first_holds_the_lock() {
         .any(|n| n.starts_with(".out.sextant-scratch-"))
     {
         assert!(Instant::now() < deadline, "no scratch file appeared");
-        assert!(first.try_wait().unwrap().is_none(), "the first run ended early");
+        assert!(
+            first.try_wait().unwrap().is_none(),
+            "the first run ended early"
+        );
         std::thread::sleep(Duration::from_millis(1));
     }
     let second = sextant(dir, &PASSES);

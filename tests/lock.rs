@@ -43,7 +43,11 @@ fn hidden(dir: &Path) -> Vec<String> {
 fn a_lock_file_with_empty_or_garbled_text_does_not_block() {
     let dir = demo_copy();
     let lock = dir.path().join(".out.sextant-lock");
-    for text in [&b""[..], b"\xff\xfe not a process \x00", b"1 some-other-host\n"] {
+    for text in [
+        &b""[..],
+        b"\xff\xfe not a process \x00",
+        b"1 some-other-host\n",
+    ] {
         fs::write(&lock, text).unwrap();
         let out = sextant(dir.path(), &["run", "r.toml"]);
         assert_eq!(out.code, 0, "{:?}: {}", text, out.stderr);

@@ -97,9 +97,7 @@ pub fn scratch_file(owner: &Path, kind: Kind) -> io::Result<tempfile::NamedTempF
     let dir = parent_of(owner);
     let prefix = prefix(owner, kind);
     loop {
-        let file = tempfile::Builder::new()
-            .prefix(&prefix)
-            .tempfile_in(&dir)?;
+        let file = tempfile::Builder::new().prefix(&prefix).tempfile_in(&dir)?;
         if lock_own(&file)? {
             return Ok(file);
         }

@@ -188,9 +188,10 @@ mod tests {
             busy_reason("\u{0}\u{1}garbage"),
             "another sextant run is writing this folder; wait for it to finish"
         );
-        assert!(busy_reason("12 box 2024-01-02T03:04:05Z\n").contains(
-            "(process 12 on host `box`, started 2024-01-02T03:04:05Z)"
-        ));
+        assert!(
+            busy_reason("12 box 2024-01-02T03:04:05Z\n")
+                .contains("(process 12 on host `box`, started 2024-01-02T03:04:05Z)")
+        );
     }
 
     #[test]

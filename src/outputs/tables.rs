@@ -727,7 +727,12 @@ mod tests {
         }
         // Rows read back from a scratch file, in runs that cut the blocks anywhere.
         for run in [1, 999, BLOCK_ROWS + 1] {
-            let spilled = results(&labels, &scores, (&t2, &spe), Some((run, &dir.path().join("out"))));
+            let spilled = results(
+                &labels,
+                &scores,
+                (&t2, &spe),
+                Some((run, &dir.path().join("out"))),
+            );
             let got = scores_csv(&spilled, k, &diagnostics).unwrap();
             assert!(got == reference, "scores.csv differs in runs of {run}");
         }

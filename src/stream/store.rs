@@ -124,10 +124,8 @@ impl Store {
             return Ok(());
         }
         if self.spill.is_none() {
-            let file = crate::outputs::debris::scratch_file(
-                owner,
-                crate::outputs::debris::Kind::Scratch,
-            )?;
+            let file =
+                crate::outputs::debris::scratch_file(owner, crate::outputs::debris::Kind::Scratch)?;
             let mut spill = Spill {
                 _registered: crate::cleanup::register(file.path()),
                 file,
@@ -373,8 +371,11 @@ mod tests {
         let mut spilled = Store::new(3, 100).with_texts(2);
         let mut first = 0;
         for rows in [2, 5, 1, 7] {
-            held.push(chunk(first, rows, 3), &dir.path().join("out")).unwrap();
-            spilled.push(chunk(first, rows, 3), &dir.path().join("out")).unwrap();
+            held.push(chunk(first, rows, 3), &dir.path().join("out"))
+                .unwrap();
+            spilled
+                .push(chunk(first, rows, 3), &dir.path().join("out"))
+                .unwrap();
             first += rows;
         }
         assert!(!held.spilled());
