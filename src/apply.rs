@@ -365,6 +365,7 @@ pub fn apply(
     ];
 
     let lock = crate::outputs::lock::lock(&folder)?;
+    notes.extend(lock.notes.iter().cloned());
     let fingerprint = (model_sha.clone(), vec![table_sha.clone()]);
     check_replaceable(&folder, &fingerprint, options.replace)?;
     let outputs: Vec<FileRecord> = files

@@ -9,6 +9,11 @@
 //! 128 + SIGINT). Moving finished results into place holds the registry
 //! ([`hold`]), so an interruption either comes before the move (and the previous
 //! results stay as they were) or after it (and the new ones are complete).
+//!
+//! A signal that cannot be caught (`SIGKILL`, the out-of-memory killer) or a
+//! power loss skips all of this; what it leaves is named after the results
+//! folder and removed by the next run that takes the folder's lock
+//! ([`crate::outputs::debris`]).
 
 use std::path::{Path, PathBuf};
 use std::sync::{Mutex, MutexGuard};

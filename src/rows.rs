@@ -26,7 +26,7 @@ pub struct RowResults {
     pub id: Option<String>,
     /// The group columns' names.
     pub groups: Vec<String>,
-    /// Where a spilled store's scratch file goes.
+    /// The results folder a spilled store's scratch file goes beside.
     scratch: PathBuf,
     /// The first error reading the scratch file back, for [`RowResults::scan`].
     failed: Mutex<Option<io::Error>>,
@@ -46,7 +46,8 @@ pub struct RowsIn<'a> {
 
 impl RowResults {
     /// Empty results with `cols` scores per row, keeping up to `limit` bytes in
-    /// memory and the rest in a scratch file in `scratch`.
+    /// memory and the rest in a scratch file beside the results folder
+    /// `scratch` (named after it).
     pub fn new(
         cols: usize,
         id: Option<String>,
@@ -295,7 +296,7 @@ pub struct CellIn {
 
 impl FilledCells {
     /// No cells yet; up to `limit` bytes kept in memory, the rest in a scratch
-    /// file in `scratch`.
+    /// file beside the results folder `scratch` (named after it).
     pub fn new(features: Vec<String>, limit: u64, scratch: &Path) -> FilledCells {
         FilledCells {
             store: Store::new(3, limit),
@@ -512,7 +513,13 @@ mod tests {
         );
         // The same rows in runs of 7 through a store that spills at once, with
         // every table row shifted by 10 (as when rows were dropped).
-        let mut spilled = RowResults::new(2, Some("id".into()), vec!["g".into()], 64, dir.path());
+        let mut spilled = RowResults::new(
+            2,
+            Some("id".into()),
+            vec!["g".into()],
+            64,
+            &dir.path().join("out"),
+        );
         for first in (0..n).step_by(7) {
             let last = n.min(first + 7);
             let table_rows: Vec<usize> = (first + 10..last + 10).collect();

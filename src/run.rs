@@ -169,13 +169,11 @@ fn prepare_in_passes(
 ) -> Result<Prepared, Error> {
     let input = input_plan(&recipe);
     let shown = input.file.display().to_string();
-    // Scratch files go beside the results folder, like its staging folder.
-    let (output, _) = crate::recipe::plan::output_folder(&recipe, &input)?;
-    let scratch = output
-        .parent()
-        .map(Path::to_path_buf)
-        .unwrap_or_else(|| ".".into());
-    std::fs::create_dir_all(&scratch).map_err(|e| crate::error::OutputError::io(&scratch, e))?;
+    // Scratch files go beside the results folder, named after it, like its
+    // staging folder.
+    let (scratch, _) = crate::recipe::plan::output_folder(&recipe, &input)?;
+    let dir = scratch_dir_of(&scratch);
+    std::fs::create_dir_all(&dir).map_err(|e| crate::error::OutputError::io(&dir, e))?;
     let t = std::time::Instant::now();
     let (sha256, bytes, ingested) = crate::stream::ingest::ingest(
         &input.file,
@@ -613,10 +611,11 @@ pub fn texts_of(prepared: &Prepared, column: &str, rows: &[usize]) -> Vec<String
 
 /// Where scratch files go: beside the results folder, like its staging folder.
 pub fn scratch_dir(plan: &Plan) -> std::path::PathBuf {
-    plan.output
-        .parent()
-        .map(Path::to_path_buf)
-        .unwrap_or_else(|| ".".into())
+    scratch_dir_of(&plan.output)
+}
+
+fn scratch_dir_of(output: &Path) -> std::path::PathBuf {
+    crate::outputs::debris::parent_of(output)
 }
 
 /// How many of the most unusual rows the outputs list: contributions.csv's
@@ -711,7 +710,8 @@ pub struct RunOptions {
 
 /// What a finished run reports to the user.
 pub struct RunSummary {
-    /// Things the user should know that are not results (e.g. a stale lock removed).
+    /// Things the user should know that are not results (e.g. what a killed
+    /// run left beside the folder, removed).
     pub notes: Vec<String>,
     pub prepared: Prepared,
     pub pre: Preprocessed,
@@ -875,8 +875,11 @@ fn records(files: &[(String, Content)]) -> Vec<FileRecord> {
 pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error> {
     let start = Instant::now();
     let started_utc = manifest::utc_now();
-    let mut prepared = prepare_with(recipe_path, &options.engine)?;
-    let lock = crate::outputs::lock::lock(&prepared.plan.output)?;
+    // The lock is held for the whole run, from before the first scratch file.
+    let recipe = recipe::load(recipe_path)?;
+    let (output, _) = crate::recipe::plan::output_folder(&recipe, &input_plan(&recipe))?;
+    let lock = crate::outputs::lock::lock(&output)?;
+    let mut prepared = prepare_recipe_with(recipe, &options.engine)?;
     // A folder that may not be replaced is refused before the long part.
     check_replaceable(
         &prepared.plan.output,
@@ -904,7 +907,7 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
     staging.commit()?;
     crate::timing::lap("write the folder", t);
     crate::progress::current().finish();
-    let notes = lock.stale_note.clone().into_iter().collect();
+    let notes = lock.notes.clone();
     drop(lock);
     Ok(RunSummary {
         notes,

@@ -98,8 +98,12 @@ fn check_file(role: &'static str, shown: String, path: &Path, expected: &str) ->
 
 /// Verifies a results folder.
 pub fn verify(folder: &Path, rerun: bool) -> Result<Verification, Error> {
+    // First what a killed run left beside the folder (it may put the earlier
+    // results back into place).
+    let tidied = crate::outputs::debris::tidy(folder);
     let manifest = read_manifest(folder)?;
     let mut report = Verification::default();
+    report.notes.extend(tidied);
     let text = |v: &Value, key: &str| {
         v.get(key)
             .and_then(Value::as_str)

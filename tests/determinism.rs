@@ -1,9 +1,8 @@
 //! Same recipe, same data, same bytes: whatever the thread count, and whether
-//! the table is tall (p × p route) or wide (n × n route). Also the folder lock:
-//! a concurrent run is refused and a stale lock is detected.
+//! the table is tall (p × p route) or wide (n × n route). (The folder lock is
+//! tested in `tests/lock.rs`.)
 
 use std::fs;
-use std::path::Path;
 use std::process::Command;
 
 const BIN: &str = env!("CARGO_BIN_EXE_sextant");
@@ -108,82 +107,4 @@ fn tall_table_is_identical_on_1_2_and_8_threads() {
 fn wide_table_is_identical_on_1_2_and_8_threads() {
     // More features than rows: the n × n route.
     assert_same_bytes((40, 150));
-}
-
-fn demo_copy() -> tempfile::TempDir {
-    let dir = tempfile::tempdir().unwrap();
-    let repo = Path::new(env!("CARGO_MANIFEST_DIR"));
-    fs::copy(
-        repo.join("demo-data/dairy-lab-2026-03.csv"),
-        dir.path().join("data.csv"),
-    )
-    .unwrap();
-    fs::write(
-        dir.path().join("r.toml"),
-        "format = 1\n[input]\nfile = \"data.csv\"\nid = \"sample\"\ngroups = [\"farm\"]\nexclude = [\"season\", \"collected\"]\n[output]\nfolder = \"out\"\n",
-    )
-    .unwrap();
-    dir
-}
-
-fn run(dir: &Path) -> std::process::Output {
-    Command::new(BIN)
-        .args(["run", "r.toml"])
-        .current_dir(dir)
-        .output()
-        .unwrap()
-}
-
-#[test]
-fn a_run_in_progress_holds_the_folder() {
-    let dir = demo_copy();
-    assert!(run(dir.path()).status.success());
-    let before = fs::read(dir.path().join("out/scores.csv")).unwrap();
-    // This test process is alive, so a lock naming it is not stale.
-    let host = fs::read_to_string("/proc/sys/kernel/hostname").unwrap_or_default();
-    let lock = dir.path().join(".out.sextant-lock");
-    fs::write(&lock, format!("{} {}\n", std::process::id(), host.trim())).unwrap();
-    let out = run(dir.path());
-    assert_eq!(out.status.code(), Some(2));
-    let err = String::from_utf8_lossy(&out.stderr);
-    assert!(
-        err.contains("another sextant run") && err.contains(&std::process::id().to_string()),
-        "{err}"
-    );
-    assert_eq!(
-        fs::read(dir.path().join("out/scores.csv")).unwrap(),
-        before,
-        "earlier results intact"
-    );
-    assert!(lock.exists(), "someone else's lock is left alone");
-}
-
-#[test]
-fn a_stale_lock_is_detected_and_explained() {
-    let dir = demo_copy();
-    // A process that has ended: its id names no running process.
-    let mut child = Command::new("true").spawn().unwrap();
-    let pid = child.id();
-    child.wait().unwrap();
-    let host = fs::read_to_string("/proc/sys/kernel/hostname").unwrap_or_default();
-    fs::write(
-        dir.path().join(".out.sextant-lock"),
-        format!("{pid} {}\n", host.trim()),
-    )
-    .unwrap();
-    let out = run(dir.path());
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let text = String::from_utf8_lossy(&out.stdout);
-    assert!(
-        text.contains("removed a stale lock") && text.contains(&pid.to_string()),
-        "{text}"
-    );
-    assert!(
-        !dir.path().join(".out.sextant-lock").exists(),
-        "the lock is released after the run"
-    );
 }

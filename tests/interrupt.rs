@@ -1,7 +1,9 @@
 //! An interrupted run leaves nothing behind: Ctrl-C (SIGINT) in the middle of a
 //! run removes its scratch file, staging folder and lock, exits with 130, and
 //! leaves the previous results exactly as they were; an interrupted `new`
-//! leaves no half-made recipe.
+//! leaves no half-made recipe. A run killed outright (SIGKILL) cannot clean up:
+//! the next run (or `verify`) removes what it left and says so. A running
+//! run's lock refuses a second run, naming the first.
 
 #![cfg(unix)]
 
@@ -45,7 +47,7 @@ fn hidden_leftovers(dir: &Path) -> Vec<String> {
     let mut names: Vec<String> = fs::read_dir(dir)
         .unwrap()
         .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .filter(|n| n.starts_with(".sextant-") || n.ends_with(".sextant-lock"))
+        .filter(|n| n.contains(".sextant-"))
         .collect();
     names.sort();
     names
@@ -65,6 +67,12 @@ fn start(dir: &Path, args: &[&str]) -> Child {
 /// Waits until an entry whose name starts with `prefix` appears in `dir`, then
 /// sends SIGINT; returns false if the run ended first.
 fn interrupt_when(child: &mut Child, dir: &Path, prefix: &str) -> bool {
+    signal_when(child, dir, prefix, "-INT")
+}
+
+/// Waits until an entry whose name starts with `prefix` appears in `dir`, then
+/// sends `signal`; returns false if the run ended first.
+fn signal_when(child: &mut Child, dir: &Path, prefix: &str, signal: &str) -> bool {
     let deadline = Instant::now() + Duration::from_secs(60);
     while Instant::now() < deadline {
         if child.try_wait().unwrap().is_some() {
@@ -75,10 +83,10 @@ fn interrupt_when(child: &mut Child, dir: &Path, prefix: &str) -> bool {
             .any(|e| e.unwrap().file_name().to_string_lossy().starts_with(prefix));
         if seen {
             let status = Command::new("kill")
-                .args(["-INT", &child.id().to_string()])
+                .args([signal, &child.id().to_string()])
                 .status()
                 .unwrap();
-            assert!(status.success(), "kill -INT failed");
+            assert!(status.success(), "kill {signal} failed");
             return true;
         }
         std::thread::sleep(Duration::from_millis(1));
@@ -108,7 +116,7 @@ fn ctrl_c_removes_the_scratch_file_staging_folder_and_lock() {
     ];
     let mut child = start(dir, &args);
     assert!(
-        interrupt_when(&mut child, dir, ".sextant-scratch-"),
+        interrupt_when(&mut child, dir, ".out.sextant-scratch-"),
         "the run ended before its scratch file was seen"
     );
     let out = child.wait_with_output().unwrap();
@@ -126,7 +134,7 @@ fn ctrl_c_removes_the_scratch_file_staging_folder_and_lock() {
     let before = fs::read(dir.join("out/manifest.json")).unwrap();
     let mut child = start(dir, &[&args[..], &["--replace"]].concat());
     assert!(
-        interrupt_when(&mut child, dir, ".sextant-new-"),
+        interrupt_when(&mut child, dir, ".out.sextant-new-"),
         "the run ended before its staging folder was seen"
     );
     let out = child.wait_with_output().unwrap();
@@ -157,4 +165,130 @@ fn ctrl_c_during_new_leaves_no_recipe_behind() {
     assert_eq!(out.status.code(), Some(130), "{:?}", out);
     assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
     assert!(!dir.join("starter.toml").exists());
+}
+
+fn passes_recipe(dir: &Path) {
+    write_table(&dir.join("t.csv"));
+    fs::write(
+        dir.join("r.toml"),
+        "format = 1\n[input]\nfile = \"t.csv\"\nid = \"id\"\ngroups = [\"site\"]\n[components]\nkeep = 3\n[output]\nfolder = \"out\"\n",
+    )
+    .unwrap();
+}
+
+const PASSES: [&str; 7] = [
+    "run",
+    "r.toml",
+    "--engine",
+    "passes",
+    "--memory-budget",
+    "1MB",
+    "--replace",
+];
+
+/// Regression: after `kill -9` the hidden scratch files and staging folder
+/// stayed forever beside the results folder.
+#[test]
+fn after_kill_9_the_next_run_removes_what_was_left_and_says_so() {
+    let ws = tempfile::tempdir().unwrap();
+    let dir = ws.path();
+    passes_recipe(dir);
+    let done = sextant(dir, &PASSES);
+    assert_eq!(done.code, 0, "{}", done.stderr);
+    let before = fs::read(dir.join("out/manifest.json")).unwrap();
+
+    // Killed during the passes: a scratch file and the lock file stay.
+    let mut child = start(dir, &PASSES);
+    assert!(
+        signal_when(&mut child, dir, ".out.sextant-scratch-", "-KILL"),
+        "the run ended before its scratch file was seen"
+    );
+    child.wait().unwrap();
+    let left = hidden_leftovers(dir);
+    let scratch: Vec<&String> = left.iter().filter(|n| n.contains("-scratch-")).collect();
+    assert!(
+        !scratch.is_empty(),
+        "a killed run leaves its scratch file: {left:?}"
+    );
+    assert_eq!(
+        fs::read(dir.join("out/manifest.json")).unwrap(),
+        before,
+        "the earlier results are untouched"
+    );
+    let next = sextant(dir, &PASSES);
+    assert_eq!(next.code, 0, "{}", next.stderr);
+    assert!(
+        next.stdout.contains("removed") && next.stdout.contains(scratch[0].as_str()),
+        "{}",
+        next.stdout
+    );
+    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+
+    // Killed while writing the results: the staging folder stays; `verify`
+    // removes it and the results still verify.
+    let mut child = start(dir, &PASSES);
+    assert!(
+        signal_when(&mut child, dir, ".out.sextant-new-", "-KILL"),
+        "the run ended before its staging folder was seen"
+    );
+    child.wait().unwrap();
+    let left = hidden_leftovers(dir);
+    assert!(
+        left.iter().any(|n| n.starts_with(".out.sextant-new-")),
+        "{left:?}"
+    );
+    let verify = sextant(dir, &["verify", "out"]);
+    assert_eq!(verify.code, 0, "{}{}", verify.stdout, verify.stderr);
+    assert!(
+        verify.stdout.contains("removed") && verify.stdout.contains(".out.sextant-new-"),
+        "{}",
+        verify.stdout
+    );
+    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    let next = sextant(dir, &PASSES);
+    assert_eq!(next.code, 0, "{}", next.stderr);
+    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+}
+
+#[test]
+fn a_second_run_is_refused_while_the_first_holds_the_lock() {
+    let ws = tempfile::tempdir().unwrap();
+    let dir = ws.path();
+    passes_recipe(dir);
+    let mut first = start(dir, &PASSES);
+    // The lock is taken before the first scratch file is made.
+    let deadline = Instant::now() + Duration::from_secs(60);
+    while !hidden_leftovers(dir)
+        .iter()
+        .any(|n| n.starts_with(".out.sextant-scratch-"))
+    {
+        assert!(Instant::now() < deadline, "no scratch file appeared");
+        assert!(
+            first.try_wait().unwrap().is_none(),
+            "the first run ended early"
+        );
+        std::thread::sleep(Duration::from_millis(1));
+    }
+    let second = sextant(dir, &PASSES);
+    assert_eq!(second.code, 2, "{}{}", second.stdout, second.stderr);
+    let host = fs::read_to_string("/proc/sys/kernel/hostname").unwrap_or_default();
+    assert!(
+        second.stderr.contains(&format!(
+            "another sextant run (process {} on host `{}`, started ",
+            first.id(),
+            host.trim()
+        )) && second.stderr.contains("is writing this folder"),
+        "{}",
+        second.stderr
+    );
+    // The refused run removed nothing of the first's.
+    assert!(
+        hidden_leftovers(dir)
+            .iter()
+            .any(|n| n.starts_with(".out.sextant-scratch-"))
+            || first.try_wait().unwrap().is_some()
+    );
+    let out = first.wait_with_output().unwrap();
+    assert_eq!(out.status.code(), Some(0), "{:?}", out);
+    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
 }

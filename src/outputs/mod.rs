@@ -1,6 +1,7 @@
 //! Everything written to the results folder: tables, the manifest, hashes, and the
 //! all-or-nothing move of a finished folder into place.
 
+pub mod debris;
 pub mod folder;
 pub mod hashing;
 pub mod lock;

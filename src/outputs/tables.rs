@@ -727,7 +727,12 @@ mod tests {
         }
         // Rows read back from a scratch file, in runs that cut the blocks anywhere.
         for run in [1, 999, BLOCK_ROWS + 1] {
-            let spilled = results(&labels, &scores, (&t2, &spe), Some((run, dir.path())));
+            let spilled = results(
+                &labels,
+                &scores,
+                (&t2, &spe),
+                Some((run, &dir.path().join("out"))),
+            );
             let got = scores_csv(&spilled, k, &diagnostics).unwrap();
             assert!(got == reference, "scores.csv differs in runs of {run}");
         }
@@ -800,9 +805,9 @@ mod tests {
             &labels,
             &no_scores,
             (&zeros, &zeros),
-            Some((999, dir.path())),
+            Some((999, &dir.path().join("out"))),
         );
-        let mut spilled = FilledCells::new(features.clone(), 0, dir.path());
+        let mut spilled = FilledCells::new(features.clone(), 0, &dir.path().join("out"));
         whole
             .each(|b| {
                 for from in (0..b.len()).step_by(1000) {

@@ -236,7 +236,7 @@ fn read_all(
             store
                 .push(chunk, scratch)
                 .map_err(|source| InputError::Io {
-                    path: format!("a scratch file in {}", scratch.display()),
+                    path: format!("a scratch file beside {}", scratch.display()),
                     source,
                 })?;
         }

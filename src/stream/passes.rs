@@ -350,7 +350,7 @@ pub fn preprocess(
     let mut filled = crate::rows::FilledCells::new(
         plan.features.clone(),
         if store.spilled() { 0 } else { u64::MAX },
-        &crate::run::scratch_dir(plan),
+        &plan.output,
     );
     let mut analysed = 0;
     let mut offset = 0;
@@ -728,7 +728,7 @@ fn results_for(prepared: &Prepared, computed: usize, spill: bool) -> crate::rows
         plan.input.id.clone(),
         plan.input.groups.clone(),
         if spill { 0 } else { u64::MAX },
-        &crate::run::scratch_dir(plan),
+        &plan.output,
     )
 }
 

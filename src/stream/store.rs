@@ -109,9 +109,10 @@ impl Store {
         self.spill.is_some()
     }
 
-    /// Adds the next rows; moves everything to a scratch file in `dir` once the
-    /// bytes held would pass the limit.
-    pub fn push(&mut self, chunk: Chunk, dir: &Path) -> io::Result<()> {
+    /// Adds the next rows; moves everything to a scratch file beside the
+    /// results folder `owner` (named after it) once the bytes held would pass
+    /// the limit.
+    pub fn push(&mut self, chunk: Chunk, owner: &Path) -> io::Result<()> {
         debug_assert_eq!(chunk.values.len(), chunk.rows * self.width);
         debug_assert_eq!(chunk.texts.len(), chunk.rows * self.text_width);
         debug_assert!(chunk.lines.is_empty() || chunk.lines.len() == chunk.rows);
@@ -123,9 +124,8 @@ impl Store {
             return Ok(());
         }
         if self.spill.is_none() {
-            let file = tempfile::Builder::new()
-                .prefix(".sextant-scratch-")
-                .tempfile_in(dir)?;
+            let file =
+                crate::outputs::debris::scratch_file(owner, crate::outputs::debris::Kind::Scratch)?;
             let mut spill = Spill {
                 _registered: crate::cleanup::register(file.path()),
                 file,
@@ -371,8 +371,11 @@ mod tests {
         let mut spilled = Store::new(3, 100).with_texts(2);
         let mut first = 0;
         for rows in [2, 5, 1, 7] {
-            held.push(chunk(first, rows, 3), dir.path()).unwrap();
-            spilled.push(chunk(first, rows, 3), dir.path()).unwrap();
+            held.push(chunk(first, rows, 3), &dir.path().join("out"))
+                .unwrap();
+            spilled
+                .push(chunk(first, rows, 3), &dir.path().join("out"))
+                .unwrap();
             first += rows;
         }
         assert!(!held.spilled());

@@ -75,8 +75,9 @@ struct Spill {
 impl IdCheck {
     /// Ids are kept in memory up to about `run_bytes` bytes (their bytes plus a
     /// small fixed cost each, so many short or empty ids are bounded too);
-    /// beyond that, sorted runs go to a scratch file made in `scratch` (removed
-    /// when done or dropped, and removed by an interruption too).
+    /// beyond that, sorted runs go to a scratch file made beside the results
+    /// folder `scratch`, named after it (removed when done or dropped, and
+    /// removed by an interruption too).
     pub fn new(scratch: &Path, run_bytes: usize) -> IdCheck {
         IdCheck {
             scratch: scratch.to_path_buf(),
@@ -145,9 +146,10 @@ impl IdCheck {
         }
         self.sort();
         if self.spill.is_none() {
-            let file = tempfile::Builder::new()
-                .prefix(".sextant-ids-")
-                .tempfile_in(&self.scratch)?;
+            let file = crate::outputs::debris::scratch_file(
+                &self.scratch,
+                crate::outputs::debris::Kind::Ids,
+            )?;
             self.spill = Some(Spill {
                 _registered: crate::cleanup::register(file.path()),
                 file,
@@ -411,7 +413,7 @@ mod tests {
             assert_eq!(reference(&ids), want, "reference on {ids:?}");
             for budget in BUDGETS {
                 for batch in [1, 2, 5] {
-                    let (got, runs) = check(dir.path(), &ids, budget, &[batch]);
+                    let (got, runs) = check(&dir.path().join("out"), &ids, budget, &[batch]);
                     assert_eq!(got, want, "{ids:?}, budget {budget}, batch {batch}");
                     if budget == 1 {
                         assert_eq!(runs, ids.len(), "one run per id");
@@ -433,8 +435,8 @@ mod tests {
         let want = Some(IdProblem::Repeat { row: 3, first: 1 });
         assert_eq!(reference(&ids), want);
         for budget in BUDGETS {
-            assert_eq!(check(dir.path(), &ids, budget, &[1]).0, want);
-            assert_eq!(check(dir.path(), &ids, budget, &[6]).0, want);
+            assert_eq!(check(&dir.path().join("out"), &ids, budget, &[1]).0, want);
+            assert_eq!(check(&dir.path().join("out"), &ids, budget, &[6]).0, want);
         }
     }
 
@@ -482,7 +484,7 @@ mod tests {
             }] += 1;
             let batches: Vec<usize> = (0..4).map(|_| rng.below(6)).chain([1]).collect();
             for budget in BUDGETS {
-                let (got, runs) = check(dir.path(), &ids, budget, &batches);
+                let (got, runs) = check(&dir.path().join("out"), &ids, budget, &batches);
                 assert_eq!(got, want, "case {case}, budget {budget}: {ids:?}");
                 if budget == 1 {
                     assert_eq!(runs, rows);
@@ -512,7 +514,7 @@ mod tests {
         assert_eq!(reference(&ids), want);
         let dir = tempfile::tempdir().unwrap();
         for budget in [1, 5000, 20_000, usize::MAX] {
-            let (got, runs) = check(dir.path(), &ids, budget, &[3, 1, 4]);
+            let (got, runs) = check(&dir.path().join("out"), &ids, budget, &[3, 1, 4]);
             assert_eq!(got, want, "budget {budget}");
             assert_eq!(
                 runs > 1,
@@ -528,7 +530,7 @@ mod tests {
         let count = || std::fs::read_dir(dir.path()).unwrap().count();
         let ids = strings(&["q", "r", "s", "t", "q"]);
         for finish in [true, false] {
-            let mut check = IdCheck::new(dir.path(), 1);
+            let mut check = IdCheck::new(&dir.path().join("out"), 1);
             check.push(ids.iter().map(String::as_str)).unwrap();
             assert_eq!(check.runs(), 5);
             assert_eq!(count(), 1, "the runs are in one scratch file");
@@ -541,7 +543,7 @@ mod tests {
             assert_eq!(count(), 0, "finish: {finish}");
         }
         // Nothing is written while the ids fit the budget.
-        let mut check = IdCheck::new(dir.path(), 1 << 20);
+        let mut check = IdCheck::new(&dir.path().join("out"), 1 << 20);
         check.push(ids.iter().map(String::as_str)).unwrap();
         assert_eq!(count(), 0);
         assert!(check.finish().unwrap().is_some());
