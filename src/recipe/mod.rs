@@ -1,5 +1,6 @@
 //! Recipes: reading the TOML file ([`raw`]) and checking it against the data ([`plan`]).
 
+pub mod applies;
 pub mod explain;
 pub mod plan;
 pub mod plots;
@@ -70,6 +71,7 @@ pub fn parse(path: &Path, text: String) -> Result<LoadedRecipe, RecipeError> {
             },
         ));
     }
+    applies::check_applicable(&loaded)?;
     Ok(loaded)
 }
 
