@@ -106,8 +106,16 @@ impl fmt::Display for RecipeError {
 pub enum RecipeProblem {
     #[error("cannot read the recipe: {0}")]
     Read(std::io::Error),
+    #[error(
+        "the recipe is not UTF-8 text (byte 0x{byte:02x} here); save it as UTF-8, as TOML requires"
+    )]
+    NotUtf8 { byte: u8 },
     #[error("{0}")]
     Syntax(String),
+    #[error(
+        "`[[{name}]]` starts an array of tables, but [{name}] is a single table: write [{name}] (only [[plot]] repeats)"
+    )]
+    ArrayOfTables { name: String },
     #[error("recipe format {found} is not supported; this version of sextant reads format = 1")]
     Format { found: i64 },
     #[error("`{key}` does not apply to a `{kind}` plot")]
@@ -255,6 +263,14 @@ pub enum InputError {
     NotResults { path: String, reason: String },
     #[error("{path}: the file is empty; expected a header row and data rows")]
     Empty { path: String },
+    #[error(
+        "{path}:1: the file is UTF-16 text (it starts with a UTF-16 byte-order mark); save it as UTF-8 (a CSV export \"UTF-8\" option), which is what sextant reads"
+    )]
+    Utf16 { path: String },
+    #[error(
+        "{path}: the lines end with a carriage return alone (old Mac style), so the whole file reads as one line; save it with LF or CRLF line ends"
+    )]
+    CarriageReturnsOnly { path: String },
     #[error("{path}:{line}: {message}")]
     Csv {
         path: String,
@@ -285,6 +301,15 @@ pub enum InputError {
     },
     #[error("{path}:{line}: column `{column}` has {}", describe_cell(.text))]
     NotNumeric {
+        path: String,
+        line: u64,
+        column: String,
+        text: String,
+    },
+    #[error(
+        "{path}:{line}: column `{column}` has `{text}`, a number beyond the range of double precision (about ±1.8e308); rescale the column (a change of unit) or fix the cell"
+    )]
+    OutOfRange {
         path: String,
         line: u64,
         column: String,
@@ -350,7 +375,16 @@ impl InputError {
     /// `NonFinite` for texts such as "inf", `NotNumeric` otherwise.
     pub fn bad_cell(path: &str, line: u64, column: &str, text: String) -> InputError {
         let (path, column) = (path.to_string(), column.to_string());
-        if text.parse::<f64>().is_ok() {
+        let spelt = text.trim_start_matches(['+', '-']).to_ascii_lowercase();
+        let named = spelt.starts_with("inf") || spelt.starts_with("nan");
+        if text.parse::<f64>().is_ok() && !named {
+            InputError::OutOfRange {
+                path,
+                line,
+                column,
+                text,
+            }
+        } else if text.parse::<f64>().is_ok() {
             InputError::NonFinite {
                 path,
                 line,
@@ -371,6 +405,12 @@ impl InputError {
 fn describe_cell(text: &str) -> String {
     if text.is_empty() {
         "an empty cell; add \"\" to input.missing if empty cells mean missing".into()
+    } else if text.chars().any(|c| c.is_numeric() && !c.is_ascii_digit())
+        && text.chars().all(|c| c.is_numeric() || ".,+-".contains(c))
+    {
+        format!(
+            "a non-numeric cell `{text}`: its digits are not the ASCII digits 0–9, the only ones sextant reads; convert the column"
+        )
     } else if text.contains(',') && text.replace(',', ".").parse::<f64>().is_ok() {
         format!(
             "a non-numeric cell `{text}` (it looks like a decimal comma: sextant reads a point as the decimal mark)"

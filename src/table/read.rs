@@ -50,6 +50,16 @@ pub fn read_header(bytes: &[u8], display: &str, delimiter: u8) -> Result<Header,
     if bytes.iter().all(|b| b.is_ascii_whitespace()) || bytes == b"\xef\xbb\xbf" {
         return Err(empty());
     }
+    if bytes.starts_with(b"\xff\xfe") || bytes.starts_with(b"\xfe\xff") {
+        return Err(InputError::Utf16 {
+            path: display.to_string(),
+        });
+    }
+    if memchr::memchr(b'\n', bytes).is_none() && memchr::memchr(b'\r', bytes).is_some() {
+        return Err(InputError::CarriageReturnsOnly {
+            path: display.to_string(),
+        });
+    }
     let start = if bytes.starts_with(b"\xef\xbb\xbf") {
         3
     } else {
