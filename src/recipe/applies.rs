@@ -171,3 +171,39 @@ pub fn drop_inapplicable(resolved: &mut serde_json::Value) {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::super::{parse, plan::input_plan, resolved};
+    use std::path::Path;
+
+    /// The resolved recipe of `text`, rebuilt as recipe text and read again.
+    fn round_trip(text: &str) -> Result<String, String> {
+        let recipe = parse(Path::new("r.toml"), text.to_string()).map_err(|e| e.to_string())?;
+        let value = resolved::resolved_recipe(&recipe, &input_plan(&recipe));
+        let rebuilt = resolved::recipe_text(&value)?;
+        parse(Path::new("r.toml"), rebuilt.clone()).map_err(|e| format!("{e}\n{rebuilt}"))?;
+        Ok(rebuilt)
+    }
+
+    const BASE: &str = "format = 1\n[input]\nfile = \"d.csv\"\n[output]\nfolder = \"out\"\n";
+
+    #[test]
+    fn a_resolved_recipe_reads_back_without_settings_that_do_not_apply() {
+        // The manifest records every default; the rebuilt recipe must not
+        // carry the ones the recipe itself would refuse.
+        let plain = round_trip(BASE).unwrap();
+        assert!(!plain.contains("knn"), "{plain}");
+        assert!(!plain.contains("parallel_analysis"), "{plain}");
+        assert!(plain.contains("constant_features"), "{plain}");
+        let centred = round_trip(&format!("{BASE}[scaling]\nmethod = \"center\"\n")).unwrap();
+        assert!(!centred.contains("constant_features"), "{centred}");
+        let knn = round_trip(&format!(
+            "{BASE}[missing]\nmethod = \"knn\"\n[missing.knn]\nneighbours = 3\n[components]\nkeep = \"parallel-analysis\"\n"
+        ))
+        .unwrap();
+        assert!(knn.contains("neighbours = 3"), "{knn}");
+        assert!(knn.contains("[components.parallel_analysis]"), "{knn}");
+        assert!(!knn.contains("iterative_pca"), "{knn}");
+    }
+}
