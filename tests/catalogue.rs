@@ -298,14 +298,18 @@ const CASES: &[Case] = &[
         name: "float for a count",
         recipe: Section("[components]\ncompute = 1e3"),
         at: "recipe.toml:12:11:",
-        says: &["whole number", "without a decimal point or exponent"],
+        says: &[
+            "written as a decimal number",
+            "a positive whole number",
+            "write it as 1000",
+        ],
         ..BAD
     },
     Case {
         name: "whole float for a count",
         recipe: Section("[components]\ncompute = 10.0"),
         at: "recipe.toml:12:11:",
-        says: &["whole number", "without a decimal point"],
+        says: &["written as a decimal number", "write it as 10"],
         ..BAD
     },
     Case {

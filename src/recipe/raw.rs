@@ -962,10 +962,15 @@ impl<'de, T> serde::de::Visitor<'de> for WholeVisitor<T> {
     }
 
     fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<T, E> {
-        Err(E::custom(format!(
-            "expected {}, found the decimal number {v:?}: write a count without a decimal point or exponent",
-            self.0
-        )))
+        let expected = self.0;
+        Err(E::custom(if v.fract() == 0.0 && v.abs() < 1e15 {
+            format!(
+                "{v:?} is written as a decimal number (with a point or an exponent) and is not {expected}: write it as {}",
+                v as i64
+            )
+        } else {
+            format!("{v} is not {expected}; write a count without a decimal point or exponent")
+        }))
     }
 }
 
