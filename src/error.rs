@@ -564,6 +564,21 @@ fn needs_escape(c: char) -> bool {
         )
 }
 
+/// Only the scratch store's passes convert an I/O error with `?` (their
+/// closures are generic over the error): reading back or writing our own
+/// scratch file failed, which is a failure of the run (exit 1), not a bad
+/// input. A user's file that cannot be read is [`InputError::Io`], always
+/// built explicitly with its path.
+impl From<std::io::Error> for Error {
+    fn from(source: std::io::Error) -> Error {
+        OutputError::Io {
+            path: "the scratch file of the table's values".into(),
+            source,
+        }
+        .into()
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -592,20 +607,5 @@ mod tests {
         let caret = lines[3].find('^').unwrap();
         assert_eq!(&lines[2][caret..caret + 1], "=", "{text}");
         assert!(caret > code);
-    }
-}
-
-/// Only the scratch store's passes convert an I/O error with `?` (their
-/// closures are generic over the error): reading back or writing our own
-/// scratch file failed, which is a failure of the run (exit 1), not a bad
-/// input. A user's file that cannot be read is [`InputError::Io`], always
-/// built explicitly with its path.
-impl From<std::io::Error> for Error {
-    fn from(source: std::io::Error) -> Error {
-        OutputError::Io {
-            path: "the scratch file of the table's values".into(),
-            source,
-        }
-        .into()
     }
 }

@@ -242,9 +242,10 @@ fn scan_record_ends(bytes: &[u8], delimiter: u8, mut at_end: impl FnMut(usize, u
     }
 }
 
-/// The offset of a quote that opens a field and is never closed, with the
-/// rules of [`scan_record_ends`]; with `first_record_only`, only the record
-/// at the start of `bytes` is looked at.
+/// The offset of a quote that opens a field and is never closed, by the rules
+/// that cut records (a quote opens a field only at its start; `""` inside one
+/// is a quote). With `first_record_only`, only the record at the start of
+/// `bytes` is looked at.
 pub fn unclosed_quote(bytes: &[u8], delimiter: u8, first_record_only: bool) -> Option<usize> {
     memchr::memchr(b'"', bytes)?;
     let mut quoted = false;
