@@ -24,6 +24,8 @@ pub enum Error {
     Analysis(#[from] AnalysisError),
     #[error(transparent)]
     Output(#[from] OutputError),
+    #[error(transparent)]
+    Engine(#[from] EngineError),
 }
 
 impl Error {
@@ -31,7 +33,7 @@ impl Error {
     /// output folder), 1 when the computation or writing failed.
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Recipe(_) | Error::Input(_) => EXIT_INVALID,
+            Error::Recipe(_) | Error::Input(_) | Error::Engine(_) => EXIT_INVALID,
             Error::Output(OutputError::Refused { .. }) => EXIT_INVALID,
             Error::Analysis(_) | Error::Output(_) => EXIT_FAILED,
         }
@@ -85,9 +87,14 @@ impl fmt::Display for RecipeError {
             Some(at) => {
                 writeln!(f, "{file}:{}:{}: {}", at.line, at.column, self.problem)?;
                 let gutter = at.line.to_string().len();
+                // The quoted line is shown as the terminal will show it, and
+                // the caret counted on that text, so an escaped control
+                // character before the column does not shift it.
+                let before: String = at.line_text.chars().take(at.column - 1).collect();
+                let col = terminal_safe(&before).chars().count() + 1;
                 writeln!(f, "{:gutter$} |", "")?;
-                writeln!(f, "{} | {}", at.line, at.line_text)?;
-                write!(f, "{:gutter$} | {:>col$}", "", "^", col = at.column)
+                writeln!(f, "{} | {}", at.line, terminal_safe(&at.line_text))?;
+                write!(f, "{:gutter$} | {:>col$}", "", "^")
             }
             None => write!(f, "{file}: {}", self.problem),
         }
@@ -99,8 +106,16 @@ impl fmt::Display for RecipeError {
 pub enum RecipeProblem {
     #[error("cannot read the recipe: {0}")]
     Read(std::io::Error),
+    #[error(
+        "the recipe is not UTF-8 text (byte 0x{byte:02x} here); save it as UTF-8, as TOML requires"
+    )]
+    NotUtf8 { byte: u8 },
     #[error("{0}")]
     Syntax(String),
+    #[error(
+        "`[[{name}]]` starts an array of tables, but [{name}] is a single table: write [{name}] (only [[plot]] repeats)"
+    )]
+    ArrayOfTables { name: String },
     #[error("recipe format {found} is not supported; this version of sextant reads format = 1")]
     Format { found: i64 },
     #[error("`{key}` does not apply to a `{kind}` plot")]
@@ -178,9 +193,25 @@ pub enum RecipeProblem {
     )]
     RandomizedNeedsBox,
     #[error(
-        "[components.randomized] applies only with components.method = \"randomized\"; set the method or remove the table"
+        "{setting} has no effect because {key} is {value}{}: {setting} applies only with {key} = {needed}; set {key} accordingly or remove the {what}",
+        if *.default { " (the default)" } else { "" }
     )]
-    RandomizedSettingsUnused,
+    SettingHasNoEffect {
+        setting: String,
+        key: String,
+        value: String,
+        default: bool,
+        needed: String,
+        what: &'static str,
+    },
+    #[error(
+        "output folder `{folder}` cannot be created: `{link}` is a symbolic link to `{target}`, which does not exist; create the link's target or point output.folder elsewhere"
+    )]
+    OutputDanglingLink {
+        folder: String,
+        link: String,
+        target: String,
+    },
     #[error(
         "keep = {keep}{} asks for more components than the data can give: at most {available} ({reason}); set components.keep",
         if *.default { " (the default)" } else { "" }
@@ -234,12 +265,24 @@ pub enum InputError {
     NotResults { path: String, reason: String },
     #[error("{path}: the file is empty; expected a header row and data rows")]
     Empty { path: String },
+    #[error(
+        "{path}:1: the file is UTF-16 text (it starts with a UTF-16 byte-order mark); save it as UTF-8 (a CSV export \"UTF-8\" option), which is what sextant reads"
+    )]
+    Utf16 { path: String },
+    #[error(
+        "{path}: the lines end with a carriage return alone (old Mac style), so the whole file reads as one line; save it with LF or CRLF line ends"
+    )]
+    CarriageReturnsOnly { path: String },
     #[error("{path}:{line}: {message}")]
     Csv {
         path: String,
         line: u64,
         message: String,
     },
+    #[error(
+        "{path}:{line}: a quote opened at line {line} is never closed, so the rest of the file would be one field; close the quote (write a quote inside a quoted field as \"\")"
+    )]
+    UnclosedQuote { path: String, line: u64 },
     #[error("{path}:{line}: the row has {found} fields but the header has {expected}")]
     Ragged {
         path: String,
@@ -260,6 +303,15 @@ pub enum InputError {
     },
     #[error("{path}:{line}: column `{column}` has {}", describe_cell(.text))]
     NotNumeric {
+        path: String,
+        line: u64,
+        column: String,
+        text: String,
+    },
+    #[error(
+        "{path}:{line}: column `{column}` has `{text}`, a number beyond the range of double precision (about ±1.8e308); rescale the column (a change of unit) or fix the cell"
+    )]
+    OutOfRange {
         path: String,
         line: u64,
         column: String,
@@ -325,7 +377,16 @@ impl InputError {
     /// `NonFinite` for texts such as "inf", `NotNumeric` otherwise.
     pub fn bad_cell(path: &str, line: u64, column: &str, text: String) -> InputError {
         let (path, column) = (path.to_string(), column.to_string());
-        if text.parse::<f64>().is_ok() {
+        let spelt = text.trim_start_matches(['+', '-']).to_ascii_lowercase();
+        let named = spelt.starts_with("inf") || spelt.starts_with("nan");
+        if text.parse::<f64>().is_ok() && !named {
+            InputError::OutOfRange {
+                path,
+                line,
+                column,
+                text,
+            }
+        } else if text.parse::<f64>().is_ok() {
             InputError::NonFinite {
                 path,
                 line,
@@ -346,6 +407,12 @@ impl InputError {
 fn describe_cell(text: &str) -> String {
     if text.is_empty() {
         "an empty cell; add \"\" to input.missing if empty cells mean missing".into()
+    } else if text.chars().any(|c| c.is_numeric() && !c.is_ascii_digit())
+        && text.chars().all(|c| c.is_numeric() || ".,+-".contains(c))
+    {
+        format!(
+            "a non-numeric cell `{text}`: its digits are not the ASCII digits 0–9, the only ones sextant reads; convert the column"
+        )
     } else if text.contains(',') && text.replace(',', ".").parse::<f64>().is_ok() {
         format!(
             "a non-numeric cell `{text}` (it looks like a decimal comma: sextant reads a point as the decimal mark)"
@@ -365,12 +432,26 @@ pub enum AnalysisError {
     #[error("cross-validation cannot run: {reason}")]
     CrossValidation { reason: String },
     #[error(
-        "{path}: feature `{column}` has values too large for double precision: {what} overflows; rescale it (a change of unit) or use unit-variance scaling"
+        "{path}: feature `{column}` has values too large for double precision: {} overflows; {}",
+        .what.words(),
+        overflow_hint(*.what, .scaling)
     )]
     Overflow {
         path: String,
         column: String,
-        what: &'static str,
+        what: OverflowPart,
+        /// The scaling in effect (its recipe name), which decides the hint.
+        scaling: &'static str,
+    },
+    #[error(
+        "{path}: feature `{column}` varies too little for double precision: its values run from {min} to {max}, and the squares of their deviations underflow to zero, so its {spread} cannot be computed; rescale it (a change of unit, such as multiplying it by 1e200)"
+    )]
+    Underflow {
+        path: String,
+        column: String,
+        min: String,
+        max: String,
+        spread: &'static str,
     },
     #[error(
         "the eigendecomposition did not produce finite values; the scaled data may be degenerate"
@@ -380,6 +461,55 @@ pub enum AnalysisError {
         "the eigenvalues did not converge within {sweeps} QL sweeps per eigenvalue; the scaled data may be degenerate"
     )]
     NoConvergence { sweeps: usize },
+}
+
+/// What overflowed in [`AnalysisError::Overflow`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum OverflowPart {
+    Sum,
+    Spread,
+    ScaledSquares,
+}
+
+impl OverflowPart {
+    fn words(self) -> &'static str {
+        match self {
+            OverflowPart::Sum => "the sum of its values",
+            OverflowPart::Spread => "its spread",
+            OverflowPart::ScaledSquares => "the sum of squares of its scaled values",
+        }
+    }
+}
+
+/// Dividing by the standard deviation bounds the scaled values, so it helps
+/// only when their squares overflowed under a scaling that does not already
+/// divide by a spread; the sum and the spread overflow whatever the scaling.
+fn overflow_hint(what: OverflowPart, scaling: &str) -> String {
+    let rescale = "rescale it (a change of unit)";
+    if what == OverflowPart::ScaledSquares && matches!(scaling, "none" | "center" | "pareto") {
+        format!("{rescale}, or use scaling.method = \"unit-variance\" instead of \"{scaling}\"")
+    } else {
+        format!("{rescale}; the scaling (\"{scaling}\") cannot help here")
+    }
+}
+
+/// The engine options of the command line cannot analyse this recipe or table.
+#[derive(Debug, thiserror::Error)]
+pub enum EngineError {
+    #[error(
+        "{path}: --engine passes cannot analyse this recipe: {reason}; use --engine auto or --engine in-memory, or change the recipe"
+    )]
+    PassesNeedMemory { path: String, reason: String },
+    #[error(
+        "{path}: the table has fewer rows ({rows}) than features ({features}); such tables are analysed in memory (their n × n matrix of row products){}",
+        if *.forced { ": use --engine auto or --engine in-memory" } else { ", and its values do not fit the memory budget: use --engine in-memory or a larger --memory-budget" }
+    )]
+    TooWideForPasses {
+        path: String,
+        rows: usize,
+        features: usize,
+        forced: bool,
+    },
     #[error("{path}: {reason}")]
     OverBudget { path: String, reason: String },
 }
@@ -405,13 +535,79 @@ impl OutputError {
     }
 }
 
-/// A scratch file of the passes engine failed (its values are read back once per pass).
+/// Text from the user (a cell, a column name, a recipe line) as it may be
+/// shown on a terminal: control characters (C0, DEL, C1) and the invisible
+/// characters that reorder or hide text (bidirectional overrides and
+/// isolates, line and paragraph separators) become `\u{…}` escapes, so an
+/// error message can neither drive the terminal nor show text in another
+/// order than it has. Newlines and tabs stay: our own messages use them, and
+/// they cannot change what the rest of a message looks like.
+pub fn terminal_safe(text: &str) -> std::borrow::Cow<'_, str> {
+    if !text.chars().any(needs_escape) {
+        return std::borrow::Cow::Borrowed(text);
+    }
+    let mut out = String::with_capacity(text.len() + 8);
+    for c in text.chars() {
+        if needs_escape(c) {
+            out.push_str(&format!("\\u{{{:x}}}", c as u32));
+        } else {
+            out.push(c);
+        }
+    }
+    std::borrow::Cow::Owned(out)
+}
+
+fn needs_escape(c: char) -> bool {
+    (c.is_control() && c != '\n' && c != '\t')
+        || matches!(
+            c,
+            '\u{061c}' | '\u{200e}' | '\u{200f}' | '\u{2028}' | '\u{2029}' | '\u{202a}'
+                ..='\u{202e}' | '\u{2066}'..='\u{2069}' | '\u{feff}'
+        )
+}
+
+/// Only the scratch store's passes convert an I/O error with `?` (their
+/// closures are generic over the error): reading back or writing our own
+/// scratch file failed, which is a failure of the run (exit 1), not a bad
+/// input. A user's file that cannot be read is [`InputError::Io`], always
+/// built explicitly with its path.
 impl From<std::io::Error> for Error {
     fn from(source: std::io::Error) -> Error {
-        InputError::Io {
+        OutputError::Io {
             path: "the scratch file of the table's values".into(),
             source,
         }
         .into()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn control_and_reordering_characters_are_escaped() {
+        assert_eq!(terminal_safe("plain, ok\n\tnext"), "plain, ok\n\tnext");
+        assert_eq!(terminal_safe("a\u{1b}[31mb"), "a\\u{1b}[31mb");
+        assert_eq!(terminal_safe("x\ry\u{7f}\u{9b}"), "x\\u{d}y\\u{7f}\\u{9b}");
+        assert_eq!(terminal_safe("abc\u{202e}fed"), "abc\\u{202e}fed");
+        // Escaping twice changes nothing more.
+        let once = terminal_safe("\u{1b}\u{2066}").into_owned();
+        assert_eq!(terminal_safe(&once), once);
+    }
+
+    #[test]
+    fn the_caret_stays_under_the_column_after_escapes() {
+        let err = RecipeError {
+            file: "r.toml".into(),
+            at: Some(Position::locate("id = \"\u{1b}x\" = 3\n", 10)),
+            problem: RecipeProblem::Syntax("bad".into()),
+        };
+        let text = err.to_string();
+        let lines: Vec<&str> = text.lines().collect();
+        let code = lines[2].find("| ").unwrap() + 2;
+        let caret = lines[3].find('^').unwrap();
+        assert_eq!(&lines[2][caret..caret + 1], "=", "{text}");
+        assert!(caret > code);
     }
 }

@@ -1,5 +1,6 @@
 use clap::Parser;
 use sextant::cli::{Cli, execute};
+use sextant::error::terminal_safe;
 
 fn main() {
     sextant::cleanup::install();
@@ -9,11 +10,13 @@ fn main() {
     sextant::progress::current().finish();
     match result {
         Ok(outcome) => {
-            print!("{}", outcome.text);
+            // Column names, cells and recipe text reach the terminal only
+            // through `terminal_safe`, here, so no message can forget it.
+            print!("{}", terminal_safe(&outcome.text));
             std::process::exit(outcome.code);
         }
         Err(e) => {
-            eprintln!("error: {e}");
+            eprintln!("error: {}", terminal_safe(&e.to_string()));
             std::process::exit(e.exit_code());
         }
     }

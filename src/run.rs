@@ -1,7 +1,7 @@
 //! The one orchestrator: it reads the recipe and the input, runs the stages in
 //! order, and writes the results folder. All file I/O of a run happens here.
 
-use crate::error::{AnalysisError, Error, InputError, RecipeError, RecipeProblem};
+use crate::error::{Error, InputError, RecipeError, RecipeProblem};
 use crate::linalg::Matrix;
 use crate::outputs::folder::Staging;
 use crate::outputs::hashing::sha256_hex;
@@ -106,12 +106,8 @@ pub fn prepare_recipe_with(
         .len();
     crate::progress::start(size);
     crate::progress::current().stage("reading the table");
-    let choice = crate::stream::choose(&recipe.raw, size, options).map_err(|reason| {
-        AnalysisError::OverBudget {
-            path: shown.clone(),
-            reason,
-        }
-    })?;
+    let choice = crate::stream::choose(&recipe.raw, size, options)
+        .map_err(|refusal| refusal.at(shown.clone()))?;
     if let Choice::Passes { keep_in_memory } = choice {
         return prepare_in_passes(recipe, keep_in_memory, options.engine);
     }
@@ -212,13 +208,11 @@ fn prepare_in_passes(
         return Ok(Prepared::in_memory(recipe, plan, table, record));
     }
     if wide {
-        return Err(AnalysisError::OverBudget {
+        return Err(crate::error::EngineError::TooWideForPasses {
             path: shown,
-            reason: format!(
-                "the table has fewer rows ({}) than features ({}); such tables are analysed in memory (their n × n matrix of row products): use --engine in-memory or a larger --memory-budget",
-                table.n_rows(),
-                plan.features.len()
-            ),
+            rows: table.n_rows(),
+            features: plan.features.len(),
+            forced: engine == crate::stream::Engine::Passes,
         }
         .into());
     }

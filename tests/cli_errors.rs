@@ -1207,3 +1207,126 @@ fn unwritable_output_folder_is_named() {
     .only(Mode::Run)
     .err(&["blocker/out", "output"])]);
 }
+
+// ---------------------------------------------------------------------------
+// Writing failures are failures of the run (exit 1), not bad inputs
+// ---------------------------------------------------------------------------
+
+/// Runs `sextant ARGS` in `dir` with files limited to `blocks` × 512 bytes, so
+/// any larger write fails (EFBIG) as it would on a full disk. The limit binds
+/// root too, unlike a read-only folder; SIGXFSZ is ignored so the write returns
+/// an error instead of killing the process.
+fn sextant_with_file_limit(dir: &Path, blocks: u32, args: &[&str]) -> Outcome {
+    let script = format!("trap '' XFSZ; ulimit -f {blocks} && exec \"$0\" \"$@\"",);
+    let out = Command::new("sh")
+        .arg("-c")
+        .arg(script)
+        .arg(env!("CARGO_BIN_EXE_sextant"))
+        .args(args)
+        .current_dir(dir)
+        .env("SEXTANT_NO_PROGRESS", "1")
+        .output()
+        .expect("sh starts");
+    Outcome {
+        code: out.status.code(),
+        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
+        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
+    }
+}
+
+/// A table of `rows` rows for the write-failure tests.
+fn rows_table(rows: usize) -> String {
+    let mut csv = String::from("sample,group,a,b,c\n");
+    for i in 0..rows {
+        let t = i as f64;
+        let _ = writeln!(
+            csv,
+            "s{i},g{},{:.6},{:.6},{:.6}",
+            i % 3,
+            (t * 0.37).sin(),
+            (t * 0.11).cos() + t * 1e-4,
+            (t * 0.73).sin() * (t * 0.05).cos()
+        );
+    }
+    csv
+}
+
+#[test]
+fn results_that_cannot_be_written_fail_the_run_with_exit_1() {
+    // Every write error used to be reported like a bad input file would be;
+    // a results folder that cannot be written is a failed run (exit 1).
+    let tmp = tempfile::tempdir().unwrap();
+    let root = tmp.path();
+    write_file(root, "recipe.toml", BASE.as_bytes());
+    write_file(root, "data.csv", rows_table(400).as_bytes());
+    let before = snapshot(root);
+    // 16 KB: the table and small files fit, the report does not.
+    let got = sextant_with_file_limit(root, 32, &["run", "recipe.toml"]);
+    let mut wrong = Vec::new();
+    if got.code != Some(1) {
+        wrong.push(format!("exit code {:?}, expected 1", got.code));
+    }
+    if !got.stderr.starts_with("error: ") || got.stderr.contains("panicked") {
+        wrong.push("not a plain error message".into());
+    }
+    wrong.extend(snapshot_diff(&before, &snapshot(root)));
+    assert!(wrong.is_empty(), "{wrong:#?}\nstderr:\n{}", got.stderr);
+}
+
+#[test]
+fn scratch_file_that_cannot_be_written_fails_the_run_not_the_input() {
+    // The passes engine's scratch file failing to grow was reported as
+    // "invalid input" (exit 2) naming the scratch file as if it were the table.
+    let tmp = tempfile::tempdir().unwrap();
+    let root = tmp.path();
+    write_file(root, "recipe.toml", BASE.as_bytes());
+    write_file(root, "data.csv", rows_table(60_000).as_bytes());
+    let before = snapshot(root);
+    let args = [
+        "check",
+        "--engine",
+        "passes",
+        "--memory-budget",
+        "1MB",
+        "recipe.toml",
+    ];
+    // 512 KB: below the table (read, not written) and the scratch file.
+    let got = sextant_with_file_limit(root, 1024, &args);
+    let mut wrong = Vec::new();
+    if got.code != Some(1) {
+        wrong.push(format!("exit code {:?}, expected 1", got.code));
+    }
+    if !got.stderr.contains("scratch file") {
+        wrong.push("stderr does not name the scratch file".into());
+    }
+    wrong.extend(snapshot_diff(&before, &snapshot(root)));
+    assert!(wrong.is_empty(), "{wrong:#?}\nstderr:\n{}", got.stderr);
+}
+
+#[test]
+fn over_the_memory_budget_is_a_refusal_before_reading() {
+    // An auto-chosen engine that cannot fit the budget was exit 1 ("the
+    // analysis failed"), though nothing was computed and the fix is an option
+    // or the recipe.
+    let tmp = tempfile::tempdir().unwrap();
+    let root = tmp.path();
+    write_file(
+        root,
+        "recipe.toml",
+        with_section("[missing]\nmethod = \"median\"").as_bytes(),
+    );
+    write_file(root, "data.csv", rows_table(200).as_bytes());
+    let before = snapshot(root);
+    for command in ["check", "run"] {
+        let got = sextant(root, &[command, "--memory-budget", "1KB", "recipe.toml"]);
+        assert_eq!(got.code, Some(2), "{command}: {}", got.stderr);
+        for part in [
+            "data.csv:",
+            "above the memory budget",
+            "raise --memory-budget",
+        ] {
+            assert!(got.stderr.contains(part), "{command}: {}", got.stderr);
+        }
+        assert!(snapshot_diff(&before, &snapshot(root)).is_empty());
+    }
+}

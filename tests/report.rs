@@ -627,3 +627,123 @@ fn two_components_give_no_3d_view_and_no_script() {
     assert!(!html.contains("script-src"));
     assert!(html.contains("<section id=\"provenance\">"));
 }
+
+/// Markup that would run or load something if it reached the page or a
+/// figure as markup: in a feature's name, in ids and in group values.
+const IMG: &str = "\"><img src=x onerror=alert(3)>";
+
+#[test]
+fn image_and_script_markup_from_the_data_stays_text_in_the_report_and_every_figure() {
+    let dir = tempfile::tempdir().unwrap();
+    let quoted = |s: &str| format!("\"{}\"", s.replace('"', "\"\""));
+    let mut csv = format!(
+        "id,grp,{},{},b,c,d\n",
+        quoted(IMG),
+        quoted("<script>alert(1)</script>")
+    );
+    for i in 0..24 {
+        let id = match i {
+            0 => quoted(IMG),
+            1 => quoted("<script>alert(2)</script>"),
+            2 => "a&amp;b".to_string(),
+            _ => format!("r{i}"),
+        };
+        let group = quoted(
+            [
+                "<img src=y onerror=alert(4)>",
+                "&amp;",
+                "<script>x</script>",
+            ][i % 3],
+        );
+        let t = i as f64;
+        let row = [
+            (t * 0.37).sin() * 3.0,
+            (t * 0.91).cos() * 2.0,
+            t * 0.1 + (t * 1.7).sin(),
+            (t * 0.23).cos() - t * 0.05,
+            if i == 0 { 40.0 } else { (t * 2.3).sin() },
+        ];
+        let cells: Vec<String> = row.iter().map(|v| format!("{v:.4}")).collect();
+        csv.push_str(&format!("{id},{group},{}\n", cells.join(",")));
+    }
+    fs::write(dir.path().join("data.csv"), csv).unwrap();
+    let plots = "[[plot]]\nkind = \"scree\"\n\
+                 [[plot]]\nkind = \"scores\"\ncolor = \"grp\"\nlabels = \"all\"\n\
+                 [[plot]]\nkind = \"loadings\"\ncomponent = 1\n\
+                 [[plot]]\nkind = \"loadings\"\nx = 1\ny = 2\n\
+                 [[plot]]\nkind = \"biplot\"\ncolor = \"grp\"\nlabels = \"all\"\n\
+                 [[plot]]\nkind = \"correlation-circle\"\n\
+                 [[plot]]\nkind = \"outlier-map\"\nlabels = \"all\"\n";
+    let recipe = format!(
+        "format = 1\ntitle = \"{}\"\n[input]\nfile = \"data.csv\"\nid = \"id\"\ngroups = [\"grp\"]\n\
+         [components]\nkeep = 2\ncompute = 4\n[output]\nfolder = \"out\"\n{plots}",
+        IMG.replace('"', "\\\"")
+    );
+    fs::write(dir.path().join("r.toml"), recipe).unwrap();
+    run(&["run", "r.toml"], dir.path());
+    let out = dir.path().join("out");
+
+    let html = report(&out);
+    let mut wrong = Vec::new();
+    if html.contains("<img") {
+        wrong.push("report.html has an <img element".to_string());
+    }
+    // Only the report's own two script elements.
+    if html.matches("<script").count() != 2 {
+        wrong.push(format!(
+            "report.html has {} <script elements, expected the report's own 2",
+            html.matches("<script").count()
+        ));
+    }
+    for escaped in [
+        "&lt;img src=x onerror=alert(3)&gt;",
+        "&lt;script&gt;alert(1)&lt;/script&gt;",
+        "a&amp;amp;b",
+    ] {
+        if !html.contains(escaped) {
+            wrong.push(format!("report.html does not show {escaped:?}"));
+        }
+    }
+
+    // Every figure is well-formed XML, holds no element or handler from the
+    // data, and shows the hostile texts as text (in a label or a tooltip's
+    // attribute; labels may be shortened).
+    let mut svgs: Vec<PathBuf> = fs::read_dir(out.join("plots"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .collect();
+    svgs.sort();
+    if svgs.len() != 7 {
+        wrong.push(format!("{} figures, expected 7", svgs.len()));
+    }
+    let mut texts = String::new();
+    for svg in &svgs {
+        let text = fs::read_to_string(svg).unwrap();
+        match roxmltree::Document::parse(&text) {
+            Err(e) => wrong.push(format!("{} does not parse: {e}", svg.display())),
+            Ok(doc) => {
+                for node in doc.descendants() {
+                    let name = node.tag_name().name();
+                    if matches!(name, "img" | "script" | "foreignObject" | "image") {
+                        wrong.push(format!("{} has a <{name}> element", svg.display()));
+                    }
+                    if let Some(t) = node.text() {
+                        texts.push_str(t);
+                    }
+                    for a in node.attributes() {
+                        texts.push_str(a.value());
+                        if a.name().starts_with("on") {
+                            wrong.push(format!("{} has an {} attribute", svg.display(), a.name()));
+                        }
+                    }
+                }
+            }
+        }
+    }
+    for shown in ["<img src=x onerror=alert(3)>", "<script>alert(1)</script>"] {
+        if !texts.contains(shown) {
+            wrong.push(format!("no figure shows {shown:?} as text"));
+        }
+    }
+    assert!(wrong.is_empty(), "{}", wrong.join("\n"));
+}

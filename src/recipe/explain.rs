@@ -113,7 +113,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         MissingMethod::Mean => "Then fill each remaining missing cell with the mean of its feature's observed cells (filling shrinks the variance).".into(),
         MissingMethod::Median => "Then fill each remaining missing cell with the median of its feature's observed cells (filling shrinks the variance).".into(),
         MissingMethod::IterativePca => {
-            let it = &m.iterative_pca;
+            let it = &m.iterative();
             format!(
                 "Then fill the remaining missing cells by {} iterative PCA with {} component(s) (Josse & Husson 2012), starting from the feature {}s, until the filled cells change by less than {:e} (relative), at most {} iterations{}.",
                 match it.variant {
@@ -132,7 +132,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         }
         MissingMethod::Knn => format!(
             "Then fill each remaining missing cell with the mean of the {} nearest rows that observe it (distance over the standardised features both rows observe).",
-            m.knn.neighbours.0
+            m.knn().neighbours.0
         ),
     });
 
@@ -145,7 +145,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         ScalingMethod::Range => "Centre each feature on its mean and divide it by its range (max − min).".into(),
     });
     if sc.method.divides() {
-        s.push(match sc.constant_features {
+        s.push(match sc.constant_policy() {
             ConstantPolicy::Error => "A feature with no spread stops the run.".into(),
             ConstantPolicy::Drop => "Drop and report any feature with no spread.".into(),
         });
@@ -184,7 +184,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         Some(Keep::Kaiser) => "Keep the components whose eigenvalue exceeds the mean eigenvalue (Kaiser's rule; the mean is 1 for a correlation matrix).".into(),
         Some(Keep::BrokenStick) => "Keep the leading components that each explain more than the broken-stick expectation.".into(),
         Some(Keep::ParallelAnalysis) => {
-            let pa = &c.parallel_analysis;
+            let pa = &c.parallel();
             format!(
                 "Keep the leading components whose eigenvalues exceed the {}th percentile of those of {} random tables of the same shape ({}), drawn from seed {} (Horn's parallel analysis).",
                 pa.percentile.0,
@@ -197,7 +197,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
             )
         }
         Some(Keep::CrossValidation) => {
-            let cv = &c.cross_validation;
+            let cv = &c.cross_validation();
             format!(
                 "Keep the number of components that best predicts held-out cells from the rest of their row, over {} {} folds of rows ({}).",
                 cv.folds.0,

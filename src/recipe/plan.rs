@@ -238,12 +238,12 @@ pub fn make_plan(recipe: &LoadedRecipe, input: InputPlan, table: &Table) -> Resu
         unused,
         missing_method: raw.missing.method,
         max_feature_missing: raw.missing.max_feature_missing.0,
-        iterative_pca: raw.missing.iterative_pca.clone(),
-        knn: raw.missing.knn.clone(),
+        iterative_pca: raw.missing.iterative(),
+        knn: raw.missing.knn(),
         imputation_components: imputation_components(recipe),
         transforms,
         scaling: raw.scaling.method,
-        constant_features: raw.scaling.constant_features,
+        constant_features: raw.scaling.constant_policy(),
         components,
         method,
         diagnostics: raw.diagnostics.clone(),
@@ -460,7 +460,7 @@ fn assign_transforms(
 pub fn imputation_components(recipe: &LoadedRecipe) -> usize {
     let raw = &recipe.raw;
     match (
-        raw.missing.iterative_pca.components,
+        raw.missing.iterative().components,
         raw.components.keep.as_ref().map(|k| *k.get_ref()),
     ) {
         (Some(c), _) => c.0.get(),
@@ -490,8 +490,8 @@ fn components_plan(recipe: &LoadedRecipe) -> Result<ComponentsPlan, RecipeError>
     }
     Ok(ComponentsPlan {
         keep,
-        parallel_analysis: c.parallel_analysis.clone(),
-        cross_validation: c.cross_validation.clone(),
+        parallel_analysis: c.parallel(),
+        cross_validation: c.cross_validation(),
         keep_written: c
             .keep
             .as_ref()
@@ -513,14 +513,9 @@ pub fn method_plan(recipe: &LoadedRecipe) -> Result<MethodPlan, RecipeError> {
         .as_ref()
         .map_or(DecompositionMethod::Exact, |m| *m.get_ref());
     match method {
-        DecompositionMethod::Exact => {
-            if let Some(settings) = &c.randomized {
-                return Err(
-                    recipe.error_at(settings.span(), RecipeProblem::RandomizedSettingsUnused)
-                );
-            }
-            Ok(MethodPlan::Exact)
-        }
+        // `[components.randomized]` under the exact method is refused when the
+        // recipe is read (`super::applies`).
+        DecompositionMethod::Exact => Ok(MethodPlan::Exact),
         DecompositionMethod::Randomized => {
             if let Some(keep) = &c.keep {
                 if let Some((rule, why)) = whole_spectrum_rule(*keep.get_ref()) {
@@ -591,6 +586,18 @@ pub fn output_folder(
             },
         ));
     }
+    // A link to nothing fails only when the finished results are moved into
+    // place, after the whole computation.
+    if let Some((link, target)) = dangling_link(&folder_abs) {
+        return Err(recipe.error_at(
+            span,
+            RecipeProblem::OutputDanglingLink {
+                folder: written.clone(),
+                link: link.display().to_string(),
+                target: target.display().to_string(),
+            },
+        ));
+    }
     let guarded = [
         ("the recipe", &recipe.path),
         ("the input table", &input.file),
@@ -608,6 +615,19 @@ pub fn output_folder(
         }
     }
     Ok((folder, written.clone()))
+}
+
+/// The first of `folder` and its ancestors that is a symbolic link whose
+/// target does not exist (or does not resolve), with that target.
+fn dangling_link(folder: &Path) -> Option<(PathBuf, PathBuf)> {
+    folder.ancestors().find_map(|a| {
+        let is_link = std::fs::symlink_metadata(a).is_ok_and(|m| m.file_type().is_symlink());
+        if is_link && std::fs::metadata(a).is_err() {
+            Some((a.to_path_buf(), std::fs::read_link(a).unwrap_or_default()))
+        } else {
+            None
+        }
+    })
 }
 
 #[cfg(test)]

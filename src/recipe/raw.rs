@@ -144,10 +144,10 @@ pub struct RawMissing {
     pub method: MissingMethod,
     #[serde(default = "default_max_feature_missing")]
     pub max_feature_missing: Share,
-    #[serde(default)]
-    pub iterative_pca: RawIterative,
-    #[serde(default)]
-    pub knn: RawKnn,
+    /// Only with `method = "iterative-pca"` (see [`super::applies`]).
+    pub iterative_pca: Option<Spanned<RawIterative>>,
+    /// Only with `method = "knn"` (see [`super::applies`]).
+    pub knn: Option<Spanned<RawKnn>>,
 }
 
 impl Default for RawMissing {
@@ -155,9 +155,27 @@ impl Default for RawMissing {
         RawMissing {
             method: MissingMethod::default(),
             max_feature_missing: default_max_feature_missing(),
-            iterative_pca: RawIterative::default(),
-            knn: RawKnn::default(),
+            iterative_pca: None,
+            knn: None,
         }
+    }
+}
+
+impl RawMissing {
+    /// The iterative PCA settings, defaults filled in.
+    pub fn iterative(&self) -> RawIterative {
+        self.iterative_pca
+            .as_ref()
+            .map(|s| s.get_ref().clone())
+            .unwrap_or_default()
+    }
+
+    /// The nearest-neighbour settings, defaults filled in.
+    pub fn knn(&self) -> RawKnn {
+        self.knn
+            .as_ref()
+            .map(|s| s.get_ref().clone())
+            .unwrap_or_default()
     }
 }
 
@@ -310,8 +328,17 @@ pub struct RawTransform {
 pub struct RawScaling {
     #[serde(default)]
     pub method: ScalingMethod,
-    #[serde(default)]
-    pub constant_features: ConstantPolicy,
+    /// Only with a dividing method (see [`super::applies`]).
+    pub constant_features: Option<Spanned<ConstantPolicy>>,
+}
+
+impl RawScaling {
+    /// What happens to a constant feature, the default filled in.
+    pub fn constant_policy(&self) -> ConstantPolicy {
+        self.constant_features
+            .as_ref()
+            .map_or(ConstantPolicy::default(), |c| *c.get_ref())
+    }
 }
 
 /// How features are centred and scaled before the decomposition.
@@ -376,10 +403,28 @@ pub struct RawComponents {
     pub method: Option<Spanned<DecompositionMethod>>,
     /// Settings of the randomized method; only allowed with `method = "randomized"`.
     pub randomized: Option<Spanned<RawRandomized>>,
-    #[serde(default)]
-    pub parallel_analysis: RawParallel,
-    #[serde(default)]
-    pub cross_validation: RawCrossValidation,
+    /// Only with `keep = "parallel-analysis"` (see [`super::applies`]).
+    pub parallel_analysis: Option<Spanned<RawParallel>>,
+    /// Only with `keep = "cross-validation"` (see [`super::applies`]).
+    pub cross_validation: Option<Spanned<RawCrossValidation>>,
+}
+
+impl RawComponents {
+    /// The parallel-analysis settings, defaults filled in.
+    pub fn parallel(&self) -> RawParallel {
+        self.parallel_analysis
+            .as_ref()
+            .map(|s| s.get_ref().clone())
+            .unwrap_or_default()
+    }
+
+    /// The cross-validation settings, defaults filled in.
+    pub fn cross_validation(&self) -> RawCrossValidation {
+        self.cross_validation
+            .as_ref()
+            .map(|s| s.get_ref().clone())
+            .unwrap_or_default()
+    }
 }
 
 /// How the eigenvalues and loadings are computed.
@@ -418,7 +463,7 @@ pub struct RawRandomized {
     #[serde(default = "default_power_iterations")]
     pub power_iterations: Steps,
     /// Seed of the random stream; the same seed gives the same bits.
-    #[serde(default = "default_seed")]
+    #[serde(default = "default_seed", deserialize_with = "seed")]
     pub seed: u64,
 }
 
@@ -451,9 +496,11 @@ impl Steps {
 
 impl<'de> Deserialize<'de> for Steps {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
-        deserializer.deserialize_any(NumberVisitor("a whole number from 0 to 1000", |v| {
-            (v.fract() == 0.0 && (0.0..=Steps::MAX as f64).contains(&v))
-                .then_some(Steps(v as usize))
+        deserializer.deserialize_any(WholeVisitor("a whole number from 0 to 1000", |v| {
+            usize::try_from(v)
+                .ok()
+                .filter(|&s| s <= Steps::MAX)
+                .map(Steps)
                 .ok_or_else(|| format!("{v} is not a whole number from 0 to 1000"))
         }))
     }
@@ -470,7 +517,7 @@ pub struct RawParallel {
     #[serde(default = "default_percentile")]
     pub percentile: Percent,
     /// Seed of the random stream; the same seed gives the same thresholds.
-    #[serde(default = "default_seed")]
+    #[serde(default = "default_seed", deserialize_with = "seed")]
     pub seed: u64,
     #[serde(default)]
     pub random_data: RandomData,
@@ -499,6 +546,18 @@ fn default_seed() -> u64 {
     20_260_101
 }
 
+/// Reads the seed of a random stream: a whole number from 0 to 2⁶⁴ − 1.
+fn seed<'de, D: Deserializer<'de>>(deserializer: D) -> Result<u64, D::Error> {
+    deserializer.deserialize_any(WholeVisitor(
+        "a seed: a whole number from 0 to 18446744073709551615, such as 20260101",
+        |v| {
+            u64::try_from(v).map_err(|_| {
+                format!("{v} is not a seed; expected a whole number from 0 to 18446744073709551615")
+            })
+        },
+    ))
+}
+
 /// What random tables parallel analysis compares against.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize)]
 #[serde(rename_all = "kebab-case")]
@@ -515,7 +574,7 @@ pub enum RandomData {
 #[serde(deny_unknown_fields)]
 pub struct RawCrossValidation {
     #[serde(default = "default_folds")]
-    pub folds: Count,
+    pub folds: Folds,
     #[serde(default)]
     pub folds_by: FoldsBy,
     #[serde(default)]
@@ -532,8 +591,30 @@ impl Default for RawCrossValidation {
     }
 }
 
-fn default_folds() -> Count {
-    Count(NonZeroUsize::new(7).expect("non-zero"))
+fn default_folds() -> Folds {
+    Folds(7)
+}
+
+/// The number of cross-validation folds: at least 2 (one fold would hold out
+/// every row at once and fit the model to nothing).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(transparent)]
+pub struct Folds(pub usize);
+
+impl<'de> Deserialize<'de> for Folds {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        deserializer.deserialize_any(WholeVisitor("a whole number of folds from 2 up, such as 7", |v| {
+            usize::try_from(v)
+                .ok()
+                .filter(|&f| f >= 2)
+                .map(Folds)
+                .ok_or_else(|| {
+                    format!(
+                        "folds = {v} cannot cross-validate: each fold is held out while the others fit the model, so at least 2 are needed (such as 7)"
+                    )
+                })
+        }))
+    }
 }
 
 /// How rows are dealt into cross-validation folds.
@@ -749,7 +830,16 @@ impl<'de> serde::de::Visitor<'de> for KeepVisitor {
         let mut share = None;
         while let Some(key) = map.next_key::<String>()? {
             match key.as_str() {
-                "variance" => share = Some(map.next_value::<Share>()?),
+                "variance" => {
+                    let s = map.next_value::<Share>()?;
+                    if s.0 <= 0.0 {
+                        return Err(A::Error::custom(format!(
+                            "keep = {{ variance = {} }} would keep no component; expected a share above 0 and at most 1, such as {{ variance = 0.9 }}",
+                            s.0
+                        )));
+                    }
+                    share = Some(s)
+                }
                 other => {
                     return Err(A::Error::custom(format!(
                         "unknown key `{other}` in keep; expected {KEEP_EXPECTED}"
@@ -800,10 +890,10 @@ pub struct Whole(pub i64);
 
 impl<'de> Deserialize<'de> for Whole {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
-        deserializer.deserialize_any(NumberVisitor("a whole number such as 1", |v| {
-            (v.fract() == 0.0 && v.abs() < 1e15)
-                .then_some(Whole(v as i64))
-                .ok_or_else(|| format!("{v} is not a whole number"))
+        deserializer.deserialize_any(WholeVisitor("a whole number such as 1", |v| {
+            i64::try_from(v)
+                .map(Whole)
+                .map_err(|_| format!("{v} is not a whole number such as 1"))
         }))
     }
 }
@@ -814,10 +904,14 @@ pub struct Count(pub NonZeroUsize);
 
 impl<'de> Deserialize<'de> for Count {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
-        deserializer.deserialize_any(NumberVisitor("a positive whole number", |v| {
-            (v.fract() == 0.0 && (1.0..1e15).contains(&v))
-                .then(|| Count(NonZeroUsize::new(v as usize).expect("at least 1")))
-                .ok_or_else(|| format!("{v} is not a positive whole number"))
+        deserializer.deserialize_any(WholeVisitor("a positive whole number such as 10", |v| {
+            usize::try_from(v)
+                .ok()
+                .and_then(NonZeroUsize::new)
+                .map(Count)
+                .ok_or_else(|| {
+                    format!("{v} is not a positive whole number; expected a count such as 10")
+                })
         }))
     }
 }
@@ -844,6 +938,39 @@ impl<'de, T> serde::de::Visitor<'de> for NumberVisitor<T> {
 
     fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<T, E> {
         (self.1)(v).map_err(E::custom)
+    }
+}
+
+/// Reads a TOML integer and checks it. A float is refused even when it is
+/// whole (`1e3`, `10.0`): a count is written as an integer, and accepting a
+/// float would hide a value that was meant as a share or a typo of one.
+struct WholeVisitor<T>(&'static str, fn(i128) -> Result<T, String>);
+
+impl<'de, T> serde::de::Visitor<'de> for WholeVisitor<T> {
+    type Value = T;
+
+    fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+        f.write_str(self.0)
+    }
+
+    fn visit_i64<E: serde::de::Error>(self, v: i64) -> Result<T, E> {
+        (self.1)(i128::from(v)).map_err(E::custom)
+    }
+
+    fn visit_u64<E: serde::de::Error>(self, v: u64) -> Result<T, E> {
+        (self.1)(i128::from(v)).map_err(E::custom)
+    }
+
+    fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<T, E> {
+        let expected = self.0;
+        Err(E::custom(if v.fract() == 0.0 && v.abs() < 1e15 {
+            format!(
+                "{v:?} is written as a decimal number (with a point or an exponent) and is not {expected}: write it as {}",
+                v as i64
+            )
+        } else {
+            format!("{v} is not {expected}; write a count without a decimal point or exponent")
+        }))
     }
 }
 

@@ -31,6 +31,7 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
         Some(list) => json!(names(list)),
         None => json!("every numeric column that is not the id, a group or excluded"),
     };
+    let iterative = raw.missing.iterative();
     json!({
         "format": 1,
         "title": raw.title,
@@ -50,13 +51,13 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
             "max_feature_missing": raw.missing.max_feature_missing.0,
             "iterative_pca": {
                 "components": super::plan::imputation_components(recipe),
-                "variant": raw.missing.iterative_pca.variant,
-                "tolerance": raw.missing.iterative_pca.tolerance,
-                "max_iterations": raw.missing.iterative_pca.max_iterations,
-                "start": raw.missing.iterative_pca.start,
-                "allow_unconverged": raw.missing.iterative_pca.allow_unconverged,
+                "variant": iterative.variant,
+                "tolerance": iterative.tolerance,
+                "max_iterations": iterative.max_iterations,
+                "start": iterative.start,
+                "allow_unconverged": iterative.allow_unconverged,
             },
-            "knn": raw.missing.knn,
+            "knn": raw.missing.knn(),
         },
         "transform": {
             "log10": names(&raw.transform.log10),
@@ -65,7 +66,7 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
         },
         "scaling": {
             "method": raw.scaling.method,
-            "constant_features": raw.scaling.constant_features,
+            "constant_features": raw.scaling.constant_policy(),
         },
         "components": components_value(recipe),
         "diagnostics": {
@@ -91,8 +92,8 @@ fn components_value(recipe: &LoadedRecipe) -> Value {
         "keep": keep_value(c.keep.as_ref().map(|k| *k.get_ref())),
         "compute": c.compute.as_ref().map_or(DEFAULT_COMPUTE, |n| n.get_ref().0.get()),
         "method": method,
-        "parallel_analysis": c.parallel_analysis,
-        "cross_validation": c.cross_validation,
+        "parallel_analysis": c.parallel(),
+        "cross_validation": c.cross_validation(),
     });
     if method == DecompositionMethod::Randomized {
         let settings = c
@@ -143,9 +144,12 @@ fn plots_value(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
 }
 
 /// Turns a resolved recipe (as stored in a manifest) back into recipe text that
-/// describes the same analysis: nulls and the default feature rule are left out.
+/// describes the same analysis: nulls, the default feature rule and the
+/// settings that do not apply under the recipe's choices are left out (the
+/// manifest records them all; a recipe refuses the ones without effect).
 pub fn recipe_text(resolved: &Value) -> Result<String, String> {
     let mut value = resolved.clone();
+    super::applies::drop_inapplicable(&mut value);
     if let Some(input) = value.get_mut("input").and_then(Value::as_object_mut) {
         if input.get("features").is_some_and(Value::is_string) {
             input.remove("features");

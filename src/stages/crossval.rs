@@ -48,7 +48,7 @@ pub fn cross_validate(
     settings: &RawCrossValidation,
 ) -> Result<CvEvidence, AnalysisError> {
     let (n, p) = (z.rows, z.cols);
-    let folds = settings.folds.0.get().min(n);
+    let folds = settings.folds.0.min(n);
     if folds < 2 || n < 3 {
         return Err(AnalysisError::CrossValidation {
             reason: format!("it needs at least 2 folds and 3 rows; the table has {n} rows"),

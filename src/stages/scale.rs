@@ -102,7 +102,7 @@ pub fn scale(
             *v = (*v - stats.centre) / stats.scale;
         }
         let squares: f64 = feature.values.iter().map(|z| z * z).sum();
-        check_finite(&data.source, &feature.name, &stats, squares)?;
+        check_finite(&data.source, &feature.name, &stats, squares, method)?;
         columns.push(feature.values);
         names.push(feature.name);
         report.features.push(stats);
@@ -127,26 +127,44 @@ pub fn scale(
 
 /// Refuses values whose mean, spread or squares overflow double precision: the
 /// decomposition sums squares of the scaled values, and an infinity there would
-/// silently turn into a zero loading or a meaningless total.
+/// silently turn into a zero loading or a meaningless total. Also refuses a
+/// dividing scaling whose divisor underflowed to zero although the values
+/// differ (deviations below about 1e-162 have squares that round to zero): the
+/// scaled values would be infinite, which is not an overflow of the data.
 pub fn check_finite(
     source: &str,
     name: &str,
     stats: &FeatureScale,
     squares: f64,
+    method: ScalingMethod,
 ) -> Result<(), AnalysisError> {
+    use crate::error::OverflowPart;
     let overflow = |what| AnalysisError::Overflow {
         path: source.to_string(),
         column: name.to_string(),
         what,
+        scaling: method.name(),
     };
     if !stats.mean.is_finite() {
-        return Err(overflow("the sum of its values"));
+        return Err(overflow(OverflowPart::Sum));
     }
     if !stats.sd.is_finite() || !stats.scale.is_finite() {
-        return Err(overflow("its spread"));
+        return Err(overflow(OverflowPart::Spread));
+    }
+    if method.divides() && stats.scale == 0.0 && stats.min != stats.max {
+        return Err(AnalysisError::Underflow {
+            path: source.to_string(),
+            column: name.to_string(),
+            min: crate::outputs::tables::number(stats.min),
+            max: crate::outputs::tables::number(stats.max),
+            spread: match method {
+                ScalingMethod::Range => "range",
+                _ => "standard deviation",
+            },
+        });
     }
     if !squares.is_finite() {
-        return Err(overflow("the sum of squares of its scaled values"));
+        return Err(overflow(OverflowPart::ScaledSquares));
     }
     Ok(())
 }

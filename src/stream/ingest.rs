@@ -235,8 +235,10 @@ fn read_all(
             };
             store
                 .push(chunk, scratch)
-                .map_err(|source| InputError::Io {
-                    path: format!("a scratch file beside {}", scratch.display()),
+                // Writing our own scratch file failed (a full disk, say): a
+                // failure of the run, not a bad input.
+                .map_err(|source| crate::error::OutputError::Io {
+                    path: format!("a scratch file in {}", shown_folder(scratch).display()),
                     source,
                 })?;
         }
@@ -261,4 +263,13 @@ fn read_all(
     );
     table.rows = rows_read;
     Ok((table, numeric, text_columns, store))
+}
+
+/// A folder as shown in a message: `.` rather than nothing for the current one.
+fn shown_folder(folder: &Path) -> &Path {
+    if folder.as_os_str().is_empty() {
+        Path::new(".")
+    } else {
+        folder
+    }
 }

@@ -113,9 +113,31 @@ pub fn cannot_stream(raw: &RawRecipe) -> Option<String> {
     None
 }
 
+/// Why no engine can analyse a recipe under the command line's options.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Refusal {
+    /// `--engine passes` with a recipe that needs the table in memory (the
+    /// reason from [`cannot_stream`]).
+    PassesNeedMemory(String),
+    /// The in-memory engine would pass the budget and the recipe needs it.
+    OverBudget(String),
+}
+
+impl Refusal {
+    /// The error, naming the table.
+    pub fn at(self, path: String) -> crate::error::EngineError {
+        use crate::error::EngineError;
+        match self {
+            Refusal::PassesNeedMemory(reason) => EngineError::PassesNeedMemory { path, reason },
+            Refusal::OverBudget(reason) => EngineError::OverBudget { path, reason },
+        }
+    }
+}
+
 /// Chooses the engine for a file of `size` bytes; `Err` says why the recipe
-/// cannot be analysed within the budget.
-pub fn choose(raw: &RawRecipe, size: u64, options: &EngineOptions) -> Result<Choice, String> {
+/// cannot be analysed with these options. Both refusals are the user's to fix
+/// (an option or the recipe), and come before anything is read.
+pub fn choose(raw: &RawRecipe, size: u64, options: &EngineOptions) -> Result<Choice, Refusal> {
     let budget = options.budget.unwrap_or_else(default_budget);
     // Half the budget for the values; the rest for scores, labels and outputs.
     let passes = Choice::Passes {
@@ -125,13 +147,13 @@ pub fn choose(raw: &RawRecipe, size: u64, options: &EngineOptions) -> Result<Cho
     match (options.engine, cannot_stream(raw)) {
         (Engine::InMemory, _) => Ok(Choice::InMemory),
         (Engine::Passes, None) => Ok(passes),
-        (Engine::Passes, Some(why)) => Err(format!("cannot analyse in passes: {why}")),
+        (Engine::Passes, Some(why)) => Err(Refusal::PassesNeedMemory(why)),
         (Engine::Auto, None) if size >= PASSES_FROM || need > budget => Ok(passes),
-        (Engine::Auto, Some(why)) if need > budget => Err(format!(
+        (Engine::Auto, Some(why)) if need > budget => Err(Refusal::OverBudget(format!(
             "the table needs about {} in memory, above the memory budget of {}, and it cannot be analysed in passes: {why}; raise --memory-budget or change the recipe",
             show_size(need),
             show_size(budget)
-        )),
+        ))),
         (Engine::Auto, _) => Ok(Choice::InMemory),
     }
 }

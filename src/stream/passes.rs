@@ -515,7 +515,7 @@ pub fn preprocess(
             }
         }
         // The sum of squares of the scaled values is checked after pass 4.
-        check_finite(&source, &stats.feature, &stats, 0.0)?;
+        check_finite(&source, &stats.feature, &stats, 0.0, method)?;
         keep_scaled.push(j);
         scaling.features.push(stats);
     }
@@ -586,7 +586,13 @@ pub fn analyse(
     })?;
     for (j, &s) in squares.iter().enumerate() {
         let stats = &pre.scaling.features[j];
-        check_finite(&prepared.table.display, &stats.feature, stats, s)?;
+        check_finite(
+            &prepared.table.display,
+            &stats.feature,
+            stats,
+            s,
+            pre.scaling.method,
+        )?;
     }
     let gram = gram.finish();
     let t = crate::timing::lap("  pass 4: cross-products", t);

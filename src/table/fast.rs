@@ -242,6 +242,51 @@ fn scan_record_ends(bytes: &[u8], delimiter: u8, mut at_end: impl FnMut(usize, u
     }
 }
 
+/// The offset of a quote that opens a field and is never closed, by the rules
+/// that cut records (a quote opens a field only at its start; `""` inside one
+/// is a quote). With `first_record_only`, only the record at the start of
+/// `bytes` is looked at.
+pub fn unclosed_quote(bytes: &[u8], delimiter: u8, first_record_only: bool) -> Option<usize> {
+    memchr::memchr(b'"', bytes)?;
+    let mut quoted = false;
+    let mut opened = 0;
+    let mut field_start = 0;
+    let mut skip_next = false;
+    for i in memchr::memchr3_iter(delimiter, b'"', b'\n', bytes) {
+        if skip_next {
+            skip_next = false;
+            continue;
+        }
+        match bytes[i] {
+            b'"' if quoted => {
+                if bytes.get(i + 1) == Some(&b'"') {
+                    skip_next = true;
+                } else {
+                    quoted = false;
+                }
+            }
+            b'"' => {
+                quoted = i == field_start;
+                opened = i;
+            }
+            b'\n' if !quoted => {
+                if first_record_only {
+                    return None;
+                }
+                field_start = i + 1;
+            }
+            _ if !quoted => field_start = i + 1,
+            _ => {}
+        }
+    }
+    quoted.then_some(opened)
+}
+
+/// The 1-based line of byte `offset`.
+pub fn line_of(bytes: &[u8], offset: usize) -> u64 {
+    1 + memchr::memchr_iter(b'\n', &bytes[..offset]).count() as u64
+}
+
 /// Where the record starting at `from` ends (just past its newline, or the end of
 /// the bytes), and how many newlines it spans.
 fn record_end(bytes: &[u8], from: usize, delimiter: u8) -> (usize, u64) {
@@ -389,7 +434,17 @@ fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec, newlines: u64) -> Piece
             }
         }
         fields.clear();
-        let (next, spanned) = split_record(buf, pos, spec.delimiter, &mut fields);
+        let (next, spanned) = match split_record(buf, pos, spec.delimiter, &mut fields) {
+            Ok(found) => found,
+            Err(quote) => {
+                let before = memchr::memchr_iter(b'\n', &buf[pos..quote]).count() as u64;
+                piece.error = Some(InputError::UnclosedQuote {
+                    path: spec.display.to_string(),
+                    line: record_line + before,
+                });
+                return piece;
+            }
+        };
         pos = next;
         line += spanned;
         if fields.len() == 1
@@ -604,13 +659,15 @@ fn eight_digits(word: u64, n: u32) -> u64 {
 
 /// Splits the record starting at `pos` into `fields` (quotes removed, `""`
 /// unescaped, a trailing `\r` dropped); returns where the next record starts and
-/// how many newlines this one spans.
+/// how many newlines this one spans, or `Err` with the offset of a quote that
+/// opens a field and is never closed (the rest of the bytes would otherwise
+/// become one field, and the error a wrong count of fields).
 fn split_record(
     buf: &[u8],
     mut pos: usize,
     delimiter: u8,
     fields: &mut Vec<Field>,
-) -> (usize, u64) {
+) -> Result<(usize, u64), usize> {
     let mut newlines = 0;
     loop {
         let mut owned: Option<Vec<u8>> = None;
@@ -618,11 +675,10 @@ fn split_record(
         if buf.get(pos) == Some(&b'"') {
             pos += 1;
             start = pos;
+            let opened = pos - 1;
             loop {
                 let Some(q) = memchr::memchr(b'"', &buf[pos..]) else {
-                    newlines += memchr::memchr_iter(b'\n', &buf[pos..]).count() as u64;
-                    pos = buf.len();
-                    break;
+                    return Err(opened);
                 };
                 newlines += memchr::memchr_iter(b'\n', &buf[pos..pos + q]).count() as u64;
                 if buf.get(pos + q + 1) == Some(&b'"') {
@@ -667,11 +723,11 @@ fn split_record(
                 _ => {}
             }
             fields.push(field);
-            return if end < buf.len() {
+            return Ok(if end < buf.len() {
                 (end + 1, newlines + 1)
             } else {
                 (end, newlines)
-            };
+            });
         }
         fields.push(field);
         pos = end + 1;

@@ -50,6 +50,27 @@ pub fn read_header(bytes: &[u8], display: &str, delimiter: u8) -> Result<Header,
     if bytes.iter().all(|b| b.is_ascii_whitespace()) || bytes == b"\xef\xbb\xbf" {
         return Err(empty());
     }
+    if bytes.starts_with(b"\xff\xfe") || bytes.starts_with(b"\xfe\xff") {
+        return Err(InputError::Utf16 {
+            path: display.to_string(),
+        });
+    }
+    if memchr::memchr(b'\n', bytes).is_none() && memchr::memchr(b'\r', bytes).is_some() {
+        return Err(InputError::CarriageReturnsOnly {
+            path: display.to_string(),
+        });
+    }
+    let start = if bytes.starts_with(b"\xef\xbb\xbf") {
+        3
+    } else {
+        0
+    };
+    if let Some(q) = super::fast::unclosed_quote(&bytes[start..], delimiter, true) {
+        return Err(InputError::UnclosedQuote {
+            path: display.to_string(),
+            line: super::fast::line_of(bytes, start + q),
+        });
+    }
     let mut reader = csv_reader(bytes, delimiter);
     let names: Vec<String> = reader
         .headers()
@@ -81,6 +102,14 @@ pub fn read_header(bytes: &[u8], display: &str, delimiter: u8) -> Result<Header,
 /// column is parsed as numbers, counting cells that are not numbers.
 pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<Table, InputError> {
     let header = read_header(bytes, display, options.delimiter)?;
+    // The csv crate would read the rest of the file into the quoted field.
+    let start = usize::from(bytes.starts_with(b"\xef\xbb\xbf")) * 3;
+    if let Some(q) = super::fast::unclosed_quote(&bytes[start..], options.delimiter, false) {
+        return Err(InputError::UnclosedQuote {
+            path: display.to_string(),
+            line: super::fast::line_of(bytes, start + q),
+        });
+    }
     let width = header.names.len();
     let is_text: Vec<bool> = header
         .names
