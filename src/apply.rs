@@ -20,6 +20,7 @@ use crate::outputs::folder::write_folder;
 use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, RunInfo};
 use crate::outputs::model::{Fill, Model};
+use crate::outputs::reading;
 use crate::outputs::replace::check_replaceable;
 use crate::outputs::tables;
 use crate::recipe::plan::Transform;
@@ -31,7 +32,6 @@ use crate::stages::missing::FilledCell;
 use crate::stages::transform::apply_transforms;
 use crate::stages::{Feature, FeatureData};
 use crate::table::{ColumnData, ReadOptions, read_header, read_table};
-use crate::outputs::reading;
 use crate::verify::read_trusted_manifest;
 use serde_json::{Value, json};
 use std::path::{Path, PathBuf};
@@ -136,14 +136,16 @@ impl ScoreSettings {
             .unwrap_or(&Value::Null);
         let delimiter = match &input["delimiter"] {
             Value::Null => b',',
-            Value::String(d) => crate::recipe::raw::Delimiter::try_from(d.clone())
-                .map_err(|why| {
-                    not_results(
-                        results,
-                        format!("manifest.json: recipe.resolved.input.delimiter: {why}"),
-                    )
-                })?
-                .0,
+            Value::String(d) => {
+                crate::recipe::raw::Delimiter::try_from(d.clone())
+                    .map_err(|why| {
+                        not_results(
+                            results,
+                            format!("manifest.json: recipe.resolved.input.delimiter: {why}"),
+                        )
+                    })?
+                    .0
+            }
             other => {
                 return Err(not_results(
                     results,

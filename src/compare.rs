@@ -11,8 +11,8 @@
 
 use crate::error::{Error, InputError};
 use crate::outputs::manifest::{RunInfo, render};
-use crate::run::{compute, prepare};
 use crate::outputs::reading::{self, Links, Unopened};
+use crate::run::{compute, prepare};
 use crate::verify::read_trusted_manifest;
 use nalgebra::DMatrix;
 use serde_json::Value;
@@ -43,38 +43,38 @@ pub struct Side {
 /// one is an error naming the file and line (never a panic or a silent NaN).
 pub fn load_side(path: &Path) -> Result<Side, Error> {
     let label = path.display().to_string();
-    let (manifest, files, shown): (Value, BTreeMap<String, Vec<u8>>, Box<dyn Fn(&str) -> String>) =
-        if path.is_file() {
-            let prepared = prepare(path)?;
-            let (_, _, computed) = compute(&prepared)?;
-            let run = RunInfo {
-                started_utc: String::new(),
-                seconds: 0.0,
-                host: String::new(),
-                threads: 0,
-                platform: String::new(),
-            };
-            let (text, _) = render(&computed.body, &computed.outputs, &run);
-            let label = label.clone();
-            (
-                serde_json::from_str(&text).expect("our own JSON"),
-                computed.files.into_iter().collect(),
-                Box::new(move |name| format!("{name} computed from {label}")),
-            )
-        } else {
-            let manifest = read_trusted_manifest(path)?;
-            let mut files = BTreeMap::new();
-            for name in ["variance.csv", "loadings.csv", "scores.csv"] {
-                files.insert(name.to_string(), read_table_file(path, name)?);
-            }
-            let folder = path.to_path_buf();
-            (
-                manifest,
-                files,
-                Box::new(move |name| folder.join(name).display().to_string()),
-            )
+    let recipe = path.is_file();
+    let (manifest, files): (Value, BTreeMap<String, Vec<u8>>) = if recipe {
+        let prepared = prepare(path)?;
+        let (_, _, computed) = compute(&prepared)?;
+        let run = RunInfo {
+            started_utc: String::new(),
+            seconds: 0.0,
+            host: String::new(),
+            threads: 0,
+            platform: String::new(),
         };
-    side_from_tables(label, manifest, &files, &*shown)
+        let (text, _) = render(&computed.body, &computed.outputs, &run);
+        (
+            serde_json::from_str(&text).expect("our own JSON"),
+            computed.files.into_iter().collect(),
+        )
+    } else {
+        let manifest = read_trusted_manifest(path)?;
+        let mut files = BTreeMap::new();
+        for name in ["variance.csv", "loadings.csv", "scores.csv"] {
+            files.insert(name.to_string(), read_table_file(path, name)?);
+        }
+        (manifest, files)
+    };
+    let shown = |name: &str| {
+        if recipe {
+            format!("{name} computed from {label}")
+        } else {
+            path.join(name).display().to_string()
+        }
+    };
+    side_from_tables(label.clone(), manifest, &files, &shown)
 }
 
 /// Reads one result table of a results folder: a regular file inside it.
@@ -84,11 +84,9 @@ fn read_table_file(folder: &Path, name: &str) -> Result<Vec<u8>, Error> {
     match reading::open_regular(&path, &reading::resolved(folder), Links::Refuse) {
         Ok(mut file) => {
             let mut bytes = Vec::new();
-            std::io::Read::read_to_end(&mut file, &mut bytes).map_err(|source| {
-                InputError::Io {
-                    path: shown,
-                    source,
-                }
+            std::io::Read::read_to_end(&mut file, &mut bytes).map_err(|source| InputError::Io {
+                path: shown,
+                source,
             })?;
             Ok(bytes)
         }
@@ -135,7 +133,9 @@ pub fn side_from_tables(
             "yes" => kept += 1,
             "no" => {}
             other => {
-                return Err(variance_table.bad(row.0, format!("`kept` is `{other}`, not yes or no")));
+                return Err(
+                    variance_table.bad(row.0, format!("`kept` is `{other}`, not yes or no"))
+                );
             }
         }
     }
@@ -152,7 +152,9 @@ pub fn side_from_tables(
     {
         return Err(loading_table.bad(
             1,
-            format!("the header is not `feature,PC1,…,PCm` with m at least the {kept} kept component(s)"),
+            format!(
+                "the header is not `feature,PC1,…,PCm` with m at least the {kept} kept component(s)"
+            ),
         ));
     }
     let mut features = Vec::new();

@@ -281,7 +281,12 @@ fn outside_files(folder: &Path, manifest: &Value, scored: bool) -> Outside {
                 ))
             }
         });
-        files.push(("input", shown.display().to_string(), at, text(input, "sha256")));
+        files.push((
+            "input",
+            shown.display().to_string(),
+            at,
+            text(input, "sha256"),
+        ));
     }
     Outside { files, root }
 }
@@ -388,9 +393,7 @@ fn rerun_refusal(manifest: &Value, report: &Verification) -> Option<String> {
     if !inputs_ok {
         return Some("the recorded input is not the file that was analysed".into());
     }
-    let recorded = manifest
-        .pointer("/inputs/0/path")
-        .and_then(Value::as_str);
+    let recorded = manifest.pointer("/inputs/0/path").and_then(Value::as_str);
     let resolved = manifest
         .pointer("/recipe/resolved/input/file")
         .and_then(Value::as_str);
@@ -494,15 +497,18 @@ fn rerun_and_compare(
 /// An output's bytes for comparison, if it is a regular file of the folder no
 /// longer than `expected` + 1 bytes (longer means different; empty when absent).
 fn read_output(folder: &Path, name: &str, expected: u64) -> Vec<u8> {
-    reading::open_regular(&folder.join(name), &reading::resolved(folder), Links::Refuse)
-        .ok()
-        .and_then(|f| {
-            let mut bytes = Vec::new();
-            std::io::Read::read_to_end(&mut std::io::Read::take(f, expected + 1), &mut bytes)
-                .ok()?;
-            Some(bytes)
-        })
-        .unwrap_or_default()
+    reading::open_regular(
+        &folder.join(name),
+        &reading::resolved(folder),
+        Links::Refuse,
+    )
+    .ok()
+    .and_then(|f| {
+        let mut bytes = Vec::new();
+        std::io::Read::read_to_end(&mut std::io::Read::take(f, expected + 1), &mut bytes).ok()?;
+        Some(bytes)
+    })
+    .unwrap_or_default()
 }
 
 fn placeholder_run() -> crate::outputs::manifest::RunInfo {
@@ -608,11 +614,7 @@ pub fn describe(folder: &Path, v: &Verification) -> String {
     }
     for u in &v.unlisted {
         let what = u.what.map_or(String::new(), |w| format!(" ({w})"));
-        let _ = writeln!(
-            out,
-            "extra   {:<40} NOT IN THE MANIFEST{what}",
-            u.path
-        );
+        let _ = writeln!(out, "extra   {:<40} NOT IN THE MANIFEST{what}", u.path);
     }
     let _ = writeln!(
         out,

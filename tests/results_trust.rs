@@ -69,7 +69,10 @@ fn write_model(folder: &Path, text: &str) {
     let sha = sextant::outputs::hashing::sha256_hex(text.as_bytes());
     reseal(folder, |m| {
         let outputs = m["outputs"].as_array_mut().unwrap();
-        let record = outputs.iter_mut().find(|o| o["path"] == "model.json").unwrap();
+        let record = outputs
+            .iter_mut()
+            .find(|o| o["path"] == "model.json")
+            .unwrap();
         record["sha256"] = Value::String(sha);
         record["bytes"] = Value::from(text.len());
     });
@@ -202,7 +205,12 @@ fn a_results_folder_that_is_a_link_is_not_replaced() {
     let out = sextant(ws.path(), &["run", "recipes/dairy-march.toml", "--replace"]);
     assert_eq!(out.code, 2, "{}", out.stderr);
     assert!(out.stderr.contains("symbolic link"), "{}", out.stderr);
-    assert!(fs::symlink_metadata(&folder).unwrap().file_type().is_symlink());
+    assert!(
+        fs::symlink_metadata(&folder)
+            .unwrap()
+            .file_type()
+            .is_symlink()
+    );
     assert!(real.join("manifest.json").exists());
 }
 
@@ -216,11 +224,17 @@ fn an_empty_folder_is_still_used() {
 
 // ----------------------------------------------------------- tampered models
 
+/// An edit of a model.
+type Edit = fn(&mut Value);
+
+/// An edit of a table's text.
+type Change = fn(&str) -> String;
+
 /// One way of editing a model and the field the refusal must name.
 struct Tamper {
     what: &'static str,
     field: &'static str,
-    edit: fn(&mut Value),
+    edit: Edit,
 }
 
 fn drop_last(v: &mut Value) {
@@ -341,7 +355,12 @@ fn a_tampered_model_is_refused_naming_the_field() {
     // A number too large for a double is refused where it is read.
     let huge = original.replacen("\"centre\": ", "\"centre\": 1e999, \"was\": ", 1);
     write_model(&folder, &huge);
-    expect_refused(ws.path(), "results/dairy-march", "1e999", "`features[0].centre`");
+    expect_refused(
+        ws.path(),
+        "results/dairy-march",
+        "1e999",
+        "`features[0].centre`",
+    );
     write_model(&folder, &original);
     assert_eq!(apply_to(ws.path(), "results/dairy-march", "fine").code, 0);
 }
@@ -364,7 +383,7 @@ fn expect_refused(ws: &Path, results: &str, what: &str, field: &str) {
 #[test]
 fn a_tampered_fill_model_is_refused_naming_the_field() {
     let ws = workspace();
-    let cases: [(&str, &str, fn(&mut Value), &str); 5] = [
+    let cases: [(&str, &str, Edit, &str); 5] = [
         (
             "iterative-pca",
             "imputation loadings row short",
@@ -441,7 +460,8 @@ fn iterative_fill_without_missing_cells_runs_and_applies() {
     let out = sextant(ws.path(), &["apply", "out", "gaps.csv", "--out", "scored"]);
     assert_eq!(out.code, 0, "{}", out.stderr);
     assert!(
-        out.stdout.contains("1 row(s) with missing cells were not scored"),
+        out.stdout
+            .contains("1 row(s) with missing cells were not scored"),
         "{}",
         out.stdout
     );
@@ -460,14 +480,22 @@ fn a_manifest_with_a_wrong_digest_stops_apply_and_diff() {
     fs::write(&path, text.replacen("\"unit-variance\"", "\"pareto\"", 1)).unwrap();
     let out = apply_to(ws.path(), "results/dairy-march", "x");
     assert_eq!(out.code, 2, "{}", out.stderr);
-    assert!(out.stderr.contains("digest does not match"), "{}", out.stderr);
+    assert!(
+        out.stderr.contains("digest does not match"),
+        "{}",
+        out.stderr
+    );
     assert!(!ws.path().join("x").exists());
     let out = sextant(
         ws.path(),
         &["diff", "results/dairy-march", "recipes/dairy-march.toml"],
     );
     assert_eq!(out.code, 2, "{}", out.stderr);
-    assert!(out.stderr.contains("digest does not match"), "{}", out.stderr);
+    assert!(
+        out.stderr.contains("digest does not match"),
+        "{}",
+        out.stderr
+    );
 }
 
 /// Runs the binary with a time limit and an address-space limit (so reading
@@ -518,7 +546,12 @@ fn verify_opens_nothing_outside_and_never_a_device_or_fifo() {
     std::os::unix::fs::symlink("/dev/zero", folder.join("zero.bin")).unwrap();
     reseal(&folder, |m| {
         let inputs = m["inputs"].as_array_mut().unwrap();
-        for p in ["/etc/passwd", "../../outside", "../demo-data/pipe", "/dev/zero"] {
+        for p in [
+            "/etc/passwd",
+            "../../outside",
+            "../demo-data/pipe",
+            "/dev/zero",
+        ] {
             inputs.push(input(p));
         }
         let outputs = m["outputs"].as_array_mut().unwrap();
@@ -533,7 +566,11 @@ fn verify_opens_nothing_outside_and_never_a_device_or_fifo() {
         Duration::from_secs(30),
     );
     assert_eq!(out.code, 1, "{}{}", out.stdout, out.stderr);
-    assert!(start.elapsed() < Duration::from_secs(10), "{:?}", start.elapsed());
+    assert!(
+        start.elapsed() < Duration::from_secs(10),
+        "{:?}",
+        start.elapsed()
+    );
     let line = |name: &str| {
         out.stdout
             .lines()
@@ -579,7 +616,11 @@ fn verify_of_an_edited_manifest_opens_nothing_outside_the_folder() {
     assert!(out.stdout.contains("DOES NOT MATCH"), "{}", out.stdout);
     let input = out.stdout.lines().find(|l| l.contains("pipe")).unwrap();
     assert!(input.contains("NOT CHECKED"), "{input}");
-    let recipe = out.stdout.lines().find(|l| l.starts_with("recipe")).unwrap();
+    let recipe = out
+        .stdout
+        .lines()
+        .find(|l| l.starts_with("recipe"))
+        .unwrap();
     assert!(recipe.contains("NOT CHECKED"), "{recipe}");
     // Outputs inside the folder are still checked.
     assert!(
@@ -617,7 +658,7 @@ fn verify_reports_a_file_the_manifest_does_not_name() {
 fn diff_names_the_file_and_line_of_a_malformed_table() {
     let ws = workspace();
     let folder = analysed(ws.path(), "recipes/dairy-march.toml");
-    let cases: [(&str, fn(&str) -> String, &str); 6] = [
+    let cases: [(&str, Change, &str); 6] = [
         ("variance.csv", |_| String::new(), "variance.csv:1"),
         (
             "variance.csv",
@@ -643,7 +684,11 @@ fn diff_names_the_file_and_line_of_a_malformed_table() {
             },
             "scores.csv:4",
         ),
-        ("scores.csv", |t| t.replacen("PC2", "PCx", 1), "scores.csv:1"),
+        (
+            "scores.csv",
+            |t| t.replacen("PC2", "PCx", 1),
+            "scores.csv:1",
+        ),
     ];
     for (name, change, at) in cases {
         let path = folder.join(name);

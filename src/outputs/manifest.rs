@@ -224,7 +224,16 @@ mod tests {
         for ok in ["scores.csv", "plots/scree.svg", "a..b"] {
             assert!(is_plain_relative(ok), "{ok}");
         }
-        for bad in ["", "/etc/passwd", "../x", "plots/../../x", "./x", "a//b", "a/", "a\\b"] {
+        for bad in [
+            "",
+            "/etc/passwd",
+            "../x",
+            "plots/../../x",
+            "./x",
+            "a//b",
+            "a/",
+            "a\\b",
+        ] {
             assert!(!is_plain_relative(bad), "{bad}");
         }
     }

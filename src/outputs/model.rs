@@ -188,12 +188,18 @@ pub fn build(
         rows: pre.scaled.n_rows(),
         kept: k,
         eigenvalues: d.eigenvalues[..k].to_vec(),
-        loadings: (0..names.len()).map(|j| (0..k).map(|a| d.loadings.get(j, a)).collect()).collect(),
+        loadings: (0..names.len())
+            .map(|j| (0..k).map(|a| d.loadings.get(j, a)).collect())
+            .collect(),
         limits: analysis
             .diagnostics
             .limits
             .iter()
-            .map(|l| ModelLimits { confidence: l.confidence, t2_new_rows: l.t2_new_rows, spe: l.spe })
+            .map(|l| ModelLimits {
+                confidence: l.confidence,
+                t2_new_rows: l.t2_new_rows,
+                spe: l.spe,
+            })
             .collect(),
         spe_limit: match analysis.diagnostics.spe_method {
             crate::recipe::raw::SpeLimit::JacksonMudholkar => "jackson-mudholkar".into(),
@@ -222,7 +228,11 @@ pub fn parse(bytes: &[u8]) -> Result<Model, ModelProblem> {
     let mut reader = serde_json::Deserializer::from_slice(bytes);
     let model: Model = serde_path_to_error::deserialize(&mut reader).map_err(|e| {
         let field = e.path().to_string();
-        let field = if field == "." { "model.json".to_string() } else { field };
+        let field = if field == "." {
+            "model.json".to_string()
+        } else {
+            field
+        };
         problem(field, format!("cannot be read ({})", e.into_inner()))
     })?;
     reader
@@ -254,7 +264,13 @@ fn length(field: &str, found: usize, want: usize, of: &str) -> Result<(), ModelP
 
 /// Checks a loadings table: `rows` rows of `cols` finite entries, each at
 /// most 1 in size (the loadings of unit-length components).
-fn loadings_table(field: &str, table: &[Vec<f64>], rows: usize, cols: usize, of: &str) -> Result<(), ModelProblem> {
+fn loadings_table(
+    field: &str,
+    table: &[Vec<f64>],
+    rows: usize,
+    cols: usize,
+    of: &str,
+) -> Result<(), ModelProblem> {
     length(field, table.len(), rows, "one per feature")?;
     for (j, row) in table.iter().enumerate() {
         let at = format!("{field}[{j}]");
@@ -286,7 +302,10 @@ impl Model {
         }
         let p = self.features.len();
         if p == 0 {
-            return Err(problem("features", "is empty; a model has at least one feature"));
+            return Err(problem(
+                "features",
+                "is empty; a model has at least one feature",
+            ));
         }
         let scaling = known(
             "scaling",
@@ -311,7 +330,12 @@ impl Model {
                 ),
             ));
         }
-        length("eigenvalues", self.eigenvalues.len(), k, "one per kept component")?;
+        length(
+            "eigenvalues",
+            self.eigenvalues.len(),
+            k,
+            "one per kept component",
+        )?;
         all_finite("eigenvalues", &self.eigenvalues)?;
         if let Some(i) = self.eigenvalues.iter().position(|&v| v <= 0.0) {
             return Err(problem(format!("eigenvalues[{i}]"), "is not positive"));
@@ -342,7 +366,12 @@ impl Model {
             if let Some(t) = &f.transform {
                 known(&at("transform"), t, &["log10", "ln", "sqrt"])?;
             }
-            for (key, v) in [("centre", f.centre), ("scale", f.scale), ("min", f.min), ("max", f.max)] {
+            for (key, v) in [
+                ("centre", f.centre),
+                ("scale", f.scale),
+                ("min", f.min),
+                ("max", f.max),
+            ] {
                 if !v.is_finite() {
                     return Err(problem(at(key), "is not a finite number"));
                 }
@@ -350,7 +379,7 @@ impl Model {
             if f.min > f.max {
                 return Err(problem(at("min"), "is larger than max"));
             }
-            if !(f.scale > 0.0) {
+            if f.scale <= 0.0 {
                 return Err(problem(at("scale"), "is not positive"));
             }
             match scaling {
@@ -388,7 +417,10 @@ impl Model {
         let is_feature = |n: &str| self.features.iter().any(|f| f.name == n);
         if let Some(id) = &self.id {
             if id.is_empty() || is_feature(id) || self.groups.contains(id) {
-                return Err(problem("id", format!("`{id}` is empty, a feature or a group")));
+                return Err(problem(
+                    "id",
+                    format!("`{id}` is empty, a feature or a group"),
+                ));
             }
         }
         for (i, g) in self.groups.iter().enumerate() {
@@ -405,7 +437,8 @@ impl Model {
     fn check_limits(&self) -> Result<(), ModelProblem> {
         for (i, l) in self.limits.iter().enumerate() {
             let at = |key: &str| format!("limits[{i}].{key}");
-            if !(l.confidence > 0.0 && l.confidence < 1.0) {
+            // JSON holds no NaN, so the confidence is a number.
+            if l.confidence <= 0.0 || l.confidence >= 1.0 {
                 return Err(problem(at("confidence"), "is not strictly between 0 and 1"));
             }
             for (key, v) in [("t2_new_rows", l.t2_new_rows), ("spe", l.spe)] {
@@ -427,12 +460,19 @@ impl Model {
             }
             // No missing cells in the analysed rows: nothing was fitted.
             Fill::IterativePca { model }
-                if model.centre.is_empty() && model.scale.is_empty() && model.loadings.is_empty() =>
+                if model.centre.is_empty()
+                    && model.scale.is_empty()
+                    && model.loadings.is_empty() =>
             {
                 Ok(())
             }
             Fill::IterativePca { model } => {
-                length("fill.model.centre", model.centre.len(), p, "one per feature")?;
+                length(
+                    "fill.model.centre",
+                    model.centre.len(),
+                    p,
+                    "one per feature",
+                )?;
                 all_finite("fill.model.centre", &model.centre)?;
                 length("fill.model.scale", model.scale.len(), p, "one per feature")?;
                 all_finite("fill.model.scale", &model.scale)?;
@@ -443,10 +483,18 @@ impl Model {
                 if s == 0 || s >= p {
                     return Err(problem(
                         "fill.model.loadings",
-                        format!("has {s} component(s); an imputation model has at least 1 and fewer than the {p} feature(s)"),
+                        format!(
+                            "has {s} component(s); an imputation model has at least 1 and fewer than the {p} feature(s)"
+                        ),
                     ));
                 }
-                loadings_table("fill.model.loadings", &model.loadings, p, s, "as many as the first feature's")
+                loadings_table(
+                    "fill.model.loadings",
+                    &model.loadings,
+                    p,
+                    s,
+                    "as many as the first feature's",
+                )
             }
             Fill::Knn {
                 neighbours,
@@ -457,14 +505,22 @@ impl Model {
                 for (j, column) in reference.iter().enumerate() {
                     let at = format!("fill.reference[{j}]");
                     length(&at, column.len(), n, "as many rows as the first feature's")?;
-                    if let Some(r) = column.iter().position(|v| v.is_some_and(|v| !v.is_finite())) {
-                        return Err(problem(format!("{at}[{r}]"), "is not a finite number or null"));
+                    if let Some(r) = column
+                        .iter()
+                        .position(|v| v.is_some_and(|v| !v.is_finite()))
+                    {
+                        return Err(problem(
+                            format!("{at}[{r}]"),
+                            "is not a finite number or null",
+                        ));
                     }
                 }
                 if *neighbours == 0 || *neighbours > n {
                     return Err(problem(
                         "fill.neighbours",
-                        format!("is {neighbours}; it must be at least 1 and at most the {n} reference row(s)"),
+                        format!(
+                            "is {neighbours}; it must be at least 1 and at most the {n} reference row(s)"
+                        ),
                     ));
                 }
                 Ok(())
@@ -480,7 +536,14 @@ fn known<'a>(field: &str, value: &'a str, choices: &[&str]) -> Result<&'a str, M
     } else {
         Err(problem(
             field,
-            format!("is `{value}`; expected one of: {}", choices.iter().map(|c| format!("`{c}`")).collect::<Vec<_>>().join(", ")),
+            format!(
+                "is `{value}`; expected one of: {}",
+                choices
+                    .iter()
+                    .map(|c| format!("`{c}`"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
         ))
     }
 }

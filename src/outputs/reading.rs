@@ -70,7 +70,8 @@ pub fn open_regular(path: &Path, within: &Path, links: Links) -> Result<File, Un
     if !meta.is_file() {
         return refused(format!("{}, not a regular file", kind(&meta.file_type())));
     }
-    let file = open_nonblocking(&real).map_err(|e| Unopened::Refused(format!("cannot be opened ({e})")))?;
+    let file = open_nonblocking(&real)
+        .map_err(|e| Unopened::Refused(format!("cannot be opened ({e})")))?;
     match file.metadata() {
         Ok(m) if m.is_file() => Ok(file),
         Ok(m) => refused(format!("{}, not a regular file", kind(&m.file_type()))),
@@ -154,9 +155,16 @@ mod tests {
         let open = |name: &str, links| open_regular(&dir.path().join(name), &within, links);
         assert!(open("a.csv", Links::Refuse).is_ok());
         assert!(open("in", Links::FollowInside).is_ok());
-        assert!(matches!(open("in", Links::Refuse), Err(Unopened::Refused(_))));
-        assert!(matches!(open("zero", Links::FollowInside), Err(Unopened::Refused(w)) if w.contains("outside")));
-        assert!(matches!(open("sub", Links::Refuse), Err(Unopened::Refused(w)) if w.contains("a folder")));
+        assert!(matches!(
+            open("in", Links::Refuse),
+            Err(Unopened::Refused(_))
+        ));
+        assert!(
+            matches!(open("zero", Links::FollowInside), Err(Unopened::Refused(w)) if w.contains("outside"))
+        );
+        assert!(
+            matches!(open("sub", Links::Refuse), Err(Unopened::Refused(w)) if w.contains("a folder"))
+        );
         assert_eq!(open("none", Links::Refuse).unwrap_err(), Unopened::Missing);
     }
 }

@@ -138,10 +138,7 @@ impl std::fmt::Display for Unlisted {
 /// a named file or manifest.json that is not a regular file (a symbolic link,
 /// a folder, a device) is listed too. Symbolic links are never followed, and
 /// only folders that hold named files are entered.
-pub fn unlisted_entries(
-    folder: &Path,
-    named: &BTreeSet<String>,
-) -> std::io::Result<Vec<Unlisted>> {
+pub fn unlisted_entries(folder: &Path, named: &BTreeSet<String>) -> std::io::Result<Vec<Unlisted>> {
     let folders: BTreeSet<&str> = named
         .iter()
         .flat_map(|n| n.match_indices('/').map(move |(i, _)| &n[..i]))
@@ -235,16 +232,18 @@ mod tests {
         let d = dir.path();
         fs::create_dir_all(d.join("plots")).unwrap();
         fs::create_dir_all(d.join("extra/deep")).unwrap();
-        for f in ["manifest.json", "scores.csv", "plots/scree.svg", "notes.txt"] {
+        for f in [
+            "manifest.json",
+            "scores.csv",
+            "plots/scree.svg",
+            "notes.txt",
+        ] {
             fs::write(d.join(f), "x").unwrap();
         }
         fs::write(d.join(".hidden"), "x").unwrap();
         std::os::unix::fs::symlink("/etc", d.join("model.json")).unwrap();
-        let found = unlisted_entries(
-            d,
-            &names(&["scores.csv", "plots/scree.svg", "model.json"]),
-        )
-        .unwrap();
+        let found =
+            unlisted_entries(d, &names(&["scores.csv", "plots/scree.svg", "model.json"])).unwrap();
         let shown: Vec<String> = found.iter().map(ToString::to_string).collect();
         assert_eq!(
             shown,
