@@ -8,6 +8,11 @@
 //! matter; extra columns are ignored and reported; a missing feature is an
 //! error. Results are written all at once to their own folder, with a manifest
 //! that names the model's SHA-256 and the digest of the run that made it.
+//!
+//! The results folder is not trusted blindly: its manifest must match its
+//! digest, model.json its recorded SHA-256, and the model must pass its checks
+//! ([`crate::outputs::model::parse`]) before a row is read. Loading
+//! ([`load_model`]), scoring ([`score`], no I/O) and writing are separate steps.
 
 use crate::error::{Error, InputError, OutputError};
 use crate::linalg::Matrix;
@@ -15,6 +20,7 @@ use crate::outputs::folder::write_folder;
 use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, RunInfo};
 use crate::outputs::model::{Fill, Model};
+use crate::outputs::reading;
 use crate::outputs::replace::check_replaceable;
 use crate::outputs::tables;
 use crate::recipe::plan::Transform;
@@ -26,7 +32,7 @@ use crate::stages::missing::FilledCell;
 use crate::stages::transform::apply_transforms;
 use crate::stages::{Feature, FeatureData};
 use crate::table::{ColumnData, ReadOptions, read_header, read_table};
-use crate::verify::read_manifest;
+use crate::verify::read_trusted_manifest;
 use serde_json::{Value, json};
 use std::path::{Path, PathBuf};
 use std::time::Instant;
@@ -61,82 +67,155 @@ fn not_results(folder: &Path, reason: String) -> Error {
     .into()
 }
 
-/// Reads the model of a results folder, refusing one whose bytes differ from
-/// what the manifest recorded.
-fn load_model(results: &Path) -> Result<(Model, String, Value), Error> {
-    let manifest = read_manifest(results)?;
-    let bytes = std::fs::read(results.join("model.json"))
+/// Reads the model of a results folder: the manifest must match its digest,
+/// model.json must be a regular file with the SHA-256 the manifest recorded,
+/// and the model must pass [`crate::outputs::model::Model::check`].
+pub fn load_model(results: &Path) -> Result<(Model, String, Value), Error> {
+    let manifest = read_trusted_manifest(results)?;
+    let file = match reading::open_regular(
+        &results.join("model.json"),
+        &reading::resolved(results),
+        reading::Links::Refuse,
+    ) {
+        Ok(file) => file,
+        Err(reading::Unopened::Missing) => {
+            return Err(not_results(results, "there is no model.json".into()));
+        }
+        Err(reading::Unopened::Refused(why)) => {
+            return Err(not_results(results, format!("model.json is {why}")));
+        }
+    };
+    let mut bytes = Vec::new();
+    std::io::Read::read_to_end(&mut { file }, &mut bytes)
         .map_err(|e| not_results(results, format!("cannot read model.json ({e})")))?;
-    let sha = sha256_hex(&bytes);
+    let (model, sha) = model_from_bytes(results, &manifest, &bytes)?;
+    Ok((model, sha, manifest))
+}
+
+/// The model in `bytes`, refused unless the manifest records its SHA-256 and
+/// it passes the model's checks; also its SHA-256.
+pub fn model_from_bytes(
+    results: &Path,
+    manifest: &Value,
+    bytes: &[u8],
+) -> Result<(Model, String), Error> {
+    let sha = sha256_hex(bytes);
     let recorded = manifest["outputs"]
         .as_array()
         .and_then(|o| o.iter().find(|f| f["path"] == "model.json"))
-        .and_then(|f| f["sha256"].as_str())
-        .map(str::to_string);
-    if recorded.as_deref() != Some(sha.as_str()) {
+        .and_then(|f| f["sha256"].as_str());
+    if recorded != Some(sha.as_str()) {
         return Err(not_results(
             results,
             "model.json does not match the SHA-256 in manifest.json (it changed after the run); rerun the analysis or restore the file".into(),
         ));
     }
-    let model: Model = serde_json::from_slice(&bytes)
-        .map_err(|e| not_results(results, format!("model.json cannot be read ({e})")))?;
-    Ok((model, sha, manifest))
+    let model = crate::outputs::model::parse(bytes).map_err(|p| InputError::BadModel {
+        path: results.display().to_string(),
+        field: p.field,
+        problem: p.problem,
+    })?;
+    Ok((model, sha))
 }
 
-/// Scores the rows of `table_path` with the model in `results`.
-pub fn apply(
-    results: &Path,
-    table_path: &Path,
-    options: &ApplyOptions,
-) -> Result<ApplySummary, Error> {
-    let start = Instant::now();
-    let started_utc = manifest::utc_now();
-    // Refused before anything is read or computed: a replacement must never
-    // delete what this command reads.
-    let folder = options
-        .out
-        .clone()
-        .unwrap_or_else(|| default_folder(results, table_path));
-    guard_folder(&folder, results, table_path)?;
-    let (model, model_sha, source) = load_model(results)?;
-    let shown = table_path.display().to_string();
-    let bytes = crate::paths::read_regular(table_path).map_err(|source| InputError::Io {
-        path: shown.clone(),
-        source,
-    })?;
-    let table_sha = sha256_hex(&bytes);
-    let resolved_input = source
-        .pointer("/recipe/resolved/input")
-        .cloned()
-        .unwrap_or(Value::Null);
-    let delimiter = match table_path
-        .extension()
-        .and_then(|e| e.to_str())
-        .map(str::to_ascii_lowercase)
-        .as_deref()
-    {
-        Some("tsv") | Some("tab") => b'\t',
-        _ => resolved_input["delimiter"]
-            .as_str()
-            .and_then(|d| d.bytes().next())
-            .unwrap_or(b','),
-    };
-    let missing_tokens: Vec<String> = resolved_input["missing"]
-        .as_array()
-        .map(|a| {
-            a.iter()
-                .filter_map(|t| t.as_str().map(str::to_string))
-                .collect()
-        })
-        .unwrap_or_else(|| {
-            crate::recipe::raw::DEFAULT_MISSING_TOKENS
-                .iter()
-                .map(|s| s.to_string())
-                .collect()
-        });
+/// How the new table is read and how many unusual rows are detailed, as the
+/// analysis recorded them in its manifest.
+#[derive(Debug, Clone)]
+pub struct ScoreSettings {
+    /// The recipe's delimiter (a `.tsv` or `.tab` table is read with tabs).
+    pub delimiter: u8,
+    pub missing_tokens: Vec<String>,
+    pub contributions_max_rows: usize,
+}
 
-    let header = read_header(&bytes, &shown, delimiter)?;
+impl ScoreSettings {
+    /// The settings recorded in an analysis' manifest (defaults where absent).
+    pub fn from_manifest(results: &Path, manifest: &Value) -> Result<ScoreSettings, Error> {
+        let input = manifest
+            .pointer("/recipe/resolved/input")
+            .unwrap_or(&Value::Null);
+        let delimiter = match &input["delimiter"] {
+            Value::Null => b',',
+            Value::String(d) => {
+                crate::recipe::raw::Delimiter::try_from(d.clone())
+                    .map_err(|why| {
+                        not_results(
+                            results,
+                            format!("manifest.json: recipe.resolved.input.delimiter: {why}"),
+                        )
+                    })?
+                    .0
+            }
+            other => {
+                return Err(not_results(
+                    results,
+                    format!(
+                        "manifest.json: recipe.resolved.input.delimiter is {other}, not a text"
+                    ),
+                ));
+            }
+        };
+        let missing_tokens: Vec<String> = input["missing"]
+            .as_array()
+            .map(|a| {
+                a.iter()
+                    .filter_map(|t| t.as_str().map(str::to_string))
+                    .collect()
+            })
+            .unwrap_or_else(|| {
+                crate::recipe::raw::DEFAULT_MISSING_TOKENS
+                    .iter()
+                    .map(|s| s.to_string())
+                    .collect()
+            });
+        let contributions_max_rows = manifest
+            .pointer("/recipe/resolved/diagnostics/contributions_max_rows")
+            .and_then(Value::as_u64)
+            .map_or(1000, |m| usize::try_from(m).unwrap_or(usize::MAX));
+        Ok(ScoreSettings {
+            delimiter,
+            missing_tokens,
+            contributions_max_rows,
+        })
+    }
+
+    /// The delimiter for `table`: tabs for a `.tsv` or `.tab` file.
+    pub fn delimiter_for(&self, table: &Path) -> u8 {
+        match table
+            .extension()
+            .and_then(|e| e.to_str())
+            .map(str::to_ascii_lowercase)
+            .as_deref()
+        {
+            Some("tsv") | Some("tab") => b'\t',
+            _ => self.delimiter,
+        }
+    }
+}
+
+/// The scores of a new table, ready to be written.
+#[derive(Debug, Clone)]
+pub struct Scored {
+    /// scores.csv, contributions.csv and imputed.csv.
+    pub files: Vec<(String, Vec<u8>)>,
+    pub rows_in: usize,
+    pub rows_scored: usize,
+    pub columns: usize,
+    pub notes: Vec<String>,
+    pub limits: Vec<Limits>,
+    pub filled: usize,
+}
+
+/// Scores the rows of a table (`bytes`, shown as `shown`) with a checked model.
+/// No file is read or written.
+pub fn score(
+    model: &Model,
+    settings: &ScoreSettings,
+    delimiter: u8,
+    bytes: &[u8],
+    shown: &str,
+) -> Result<Scored, Error> {
+    let header = read_header(bytes, shown, delimiter)?;
     let absent: Vec<String> = model
         .features
         .iter()
@@ -145,7 +224,7 @@ pub fn apply(
         .collect();
     if !absent.is_empty() {
         return Err(InputError::MissingFeatures {
-            path: shown,
+            path: shown.to_string(),
             names: absent.join(", "),
         }
         .into());
@@ -175,11 +254,11 @@ pub fn apply(
     }
     let text_columns: Vec<String> = id.iter().cloned().chain(groups.iter().cloned()).collect();
     let table = read_table(
-        &bytes,
-        &shown,
+        bytes,
+        shown,
         &ReadOptions {
             delimiter,
-            missing_tokens,
+            missing_tokens: settings.missing_tokens.clone(),
             text_columns,
         },
     )?;
@@ -188,11 +267,12 @@ pub fn apply(
     // The features in the model's order, as numbers, transformed like the training rows.
     let mut features = Vec::new();
     for f in &model.features {
+        // The model's check keeps the id and groups (read as text) apart from the features.
         let Some(ColumnData::Numeric(column)) = table.column(&f.name).map(|c| &c.data) else {
-            unreachable!()
+            unreachable!("a checked model's features are numeric columns of the table")
         };
         if let Some((line, text)) = column.first_bad.clone() {
-            return Err(InputError::bad_cell(&shown, line, &f.name, text).into());
+            return Err(InputError::bad_cell(shown, line, &f.name, text).into());
         }
         let transform = match f.transform.as_deref() {
             Some("log10") => Some(Transform::Log10),
@@ -210,16 +290,16 @@ pub fn apply(
         features,
         rows: (0..rows_in).collect(),
         lines: table.lines.clone(),
-        source: shown.clone(),
+        source: shown.to_string(),
     };
     let (data, _) = apply_transforms(data)?;
-    notes.extend(range_notes(&model, &data));
+    notes.extend(range_notes(model, &data));
 
     // Fill missing cells row by row from the training model.
     let p = model.features.len();
     let mut scored_rows = Vec::new();
     let mut filled = Vec::new();
-    let mut skipped = 0;
+    let (mut skipped, mut unfilled) = (0, 0);
     let mut x: Vec<Vec<f64>> = Vec::new();
     for i in 0..rows_in {
         let mut row: Vec<f64> = data.features.iter().map(|f| f.values[i]).collect();
@@ -230,6 +310,11 @@ pub fn apply(
                 Fill::Constant { values } => {
                     gaps.iter().for_each(|&j| row[j] = values[j]);
                     Some(())
+                }
+                // No missing cells in the analysed rows: no imputation model.
+                Fill::IterativePca { model: m } if m.centre.is_empty() => {
+                    unfilled += 1;
+                    None
                 }
                 Fill::IterativePca { model: m } => fill_row_from_model(&mut row, m),
                 Fill::Knn {
@@ -256,7 +341,13 @@ pub fn apply(
         scored_rows.push(i);
         x.push(row);
     }
-    if skipped > 0 {
+    if unfilled > 0 {
+        notes.push(format!(
+            "{unfilled} row(s) with missing cells were not scored (the analysed rows had no missing cells, so no imputation model was made)"
+        ));
+    }
+    if skipped > unfilled {
+        let skipped = skipped - unfilled;
         notes.push(match model.fill {
             Fill::DropRows => format!(
                 "{skipped} row(s) with missing cells were not scored (the model drops such rows)"
@@ -266,7 +357,7 @@ pub fn apply(
     }
     if scored_rows.is_empty() {
         return Err(InputError::TooFewRows {
-            path: shown,
+            path: shown.to_string(),
             rows: 0,
             why: " that can be scored".into(),
         }
@@ -301,10 +392,8 @@ pub fn apply(
     } else {
         crate::recipe::raw::SpeLimit::JacksonMudholkar
     };
-    let max_rows = source
-        .pointer("/recipe/resolved/diagnostics/contributions_max_rows")
-        .and_then(Value::as_u64)
-        .unwrap_or(1000) as usize;
+    // More rows than are scored cannot be listed.
+    let max_rows = settings.contributions_max_rows.min(n);
     let diagnostics = diagnose_all(
         with_limits(limits, spe_method, None, Vec::new(), max_rows),
         &t2,
@@ -346,7 +435,6 @@ pub fn apply(
             )
         })
         .collect();
-    let names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
     let files: Vec<(String, Vec<u8>)> = vec![
         (
             "scores.csv".into(),
@@ -355,7 +443,7 @@ pub fn apply(
         ),
         (
             "contributions.csv".into(),
-            tables::contributions_csv(&rows, &names, &flagged),
+            tables::contributions_csv(&rows, &feature_names, &flagged),
         ),
         (
             "imputed.csv".into(),
@@ -363,7 +451,57 @@ pub fn apply(
                 .map_err(|e| crate::error::OutputError::io(Path::new("a scratch file"), e))?,
         ),
     ];
+    Ok(Scored {
+        files,
+        rows_in,
+        rows_scored: n,
+        columns: table.columns.len(),
+        notes,
+        limits: diagnostics.limits,
+        filled: filled.len(),
+    })
+}
 
+/// Scores the rows of `table_path` with the model in `results`.
+pub fn apply(
+    results: &Path,
+    table_path: &Path,
+    options: &ApplyOptions,
+) -> Result<ApplySummary, Error> {
+    let start = Instant::now();
+    let started_utc = manifest::utc_now();
+    // Refused before anything is read or computed: a replacement must never
+    // delete what this command reads.
+    let folder = options
+        .out
+        .clone()
+        .unwrap_or_else(|| default_folder(results, table_path));
+    guard_folder(&folder, results, table_path)?;
+    let (model, model_sha, source) = load_model(results)?;
+    let settings = ScoreSettings::from_manifest(results, &source)?;
+    let shown = table_path.display().to_string();
+    let bytes = crate::paths::read_regular(table_path).map_err(|source| InputError::Io {
+        path: shown.clone(),
+        source,
+    })?;
+    let table_sha = sha256_hex(&bytes);
+    let scored = score(
+        &model,
+        &settings,
+        settings.delimiter_for(table_path),
+        &bytes,
+        &shown,
+    )?;
+    let Scored {
+        files,
+        rows_in,
+        rows_scored: n,
+        columns,
+        notes,
+        limits,
+        filled,
+    } = scored;
+    let mut notes = notes;
     let lock = crate::outputs::lock::lock(&folder)?;
     notes.extend(lock.notes.iter().cloned());
     let fingerprint = (model_sha.clone(), vec![table_sha.clone()]);
@@ -376,8 +514,7 @@ pub fn apply(
             sha256: sha256_hex(b),
         })
         .collect();
-    let flagged_counts: Vec<(f64, usize, usize)> = diagnostics
-        .limits
+    let flagged_counts: Vec<(f64, usize, usize)> = limits
         .iter()
         .map(|l| (l.confidence, l.t2_flagged, l.spe_flagged))
         .collect();
@@ -394,12 +531,12 @@ pub fn apply(
             bytes: bytes.len() as u64,
             sha256: table_sha,
             rows: rows_in,
-            columns: table.columns.len(),
+            columns,
         }],
         "steps": {
             "rows_in": rows_in,
             "rows_scored": n,
-            "cells_filled": filled.len(),
+            "cells_filled": filled,
             "fill": match &model.fill {
                 Fill::DropRows => "drop-rows",
                 Fill::Constant { .. } => "training fill values",
@@ -407,7 +544,7 @@ pub fn apply(
                 Fill::Knn { .. } => "nearest training rows",
             },
             "t2_limit": "new-observation F form (NIST/SEMATECH e-Handbook 6.5.4.3.4), saved with the model",
-            "limits": diagnostics.limits,
+            "limits": limits,
             "notes": notes,
         },
         "outputs": outputs,
@@ -432,7 +569,7 @@ pub fn apply(
         rows_scored: n,
         notes,
         flagged: flagged_counts,
-        filled: filled.len(),
+        filled,
         digest,
     })
 }

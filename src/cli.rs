@@ -93,7 +93,11 @@ pub enum Command {
     /// Re-hash every input and output named in a results folder's manifest.
     ///
     /// Reports each file as unchanged, changed or missing, and checks the
-    /// manifest's own digest. Exit code 0 when everything matches, 1 otherwise.
+    /// manifest's own digest. Files the manifest does not name are reported as
+    /// extra; a path outside the folders a manifest may name, or a file that is
+    /// not a regular file, is refused and never opened; with an edited manifest
+    /// nothing outside the results folder is opened. Exit code 0 when
+    /// everything matches, 1 otherwise.
     Verify {
         /// A results folder (the one holding manifest.json).
         results: PathBuf,

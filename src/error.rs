@@ -263,6 +263,20 @@ pub enum InputError {
     MissingFeatures { path: String, names: String },
     #[error("{path}: not a sextant results folder: {reason}")]
     NotResults { path: String, reason: String },
+    #[error(
+        "{path}: model.json cannot be used: `{field}` {problem}; rerun the analysis to write the model again"
+    )]
+    BadModel {
+        path: String,
+        field: String,
+        problem: String,
+    },
+    #[error("{path}:{line}: {problem}; this is not a table sextant wrote (rerun the analysis)")]
+    BadResultsTable {
+        path: String,
+        line: u64,
+        problem: String,
+    },
     #[error("{path}: the file is empty; expected a header row and data rows")]
     Empty { path: String },
     #[error(

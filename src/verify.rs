@@ -5,22 +5,52 @@
 //! recomputed. With `--rerun`, the resolved recipe stored in the manifest is run
 //! again into a scratch folder and every output is compared byte for byte; for
 //! CSV tables the largest absolute difference between numbers is reported.
+//!
+//! A manifest is not trusted for what it names:
+//! - The digest is checked first. When it does not match, the outputs inside
+//!   the folder are still checked, but nothing the manifest names outside the
+//!   folder (recipe, inputs, model) is opened: those are reported as not
+//!   checked, and the verification fails.
+//! - Outputs must be plain relative paths inside the folder, and regular files
+//!   (no links). Files in the folder that the manifest does not name are
+//!   reported, and fail the verification.
+//! - The recipe (or, for scores of `apply`, the results folder of the model) is
+//!   reached by its relative path: leading `..` then plain names, never an
+//!   absolute path. The folder those `..` climb to is the only place outside the
+//!   results folder that is opened: inputs must lie inside it (a link that
+//!   leaves it is refused).
+//! - Only regular files are opened (never a fifo or device) and each is hashed
+//!   a block at a time. A refused file is reported with the reason.
 
 use crate::error::{Error, InputError};
-use crate::outputs::hashing::sha256_hex;
+use crate::outputs::manifest::{digest_matches, is_plain_relative};
+use crate::outputs::reading::{self, Links, Unopened};
+use crate::outputs::replace::{Unlisted, unlisted_entries};
 use crate::recipe::resolved::recipe_text;
 use crate::run::{compute, prepare_recipe};
 use serde_json::Value;
+use std::collections::BTreeSet;
 use std::fmt::Write;
 use std::fs;
 use std::path::{Path, PathBuf};
+
+/// The largest manifest.json read; a real one is a few kilobytes per output.
+const MANIFEST_LIMIT: u64 = 64 << 20;
 
 /// The state of one file named in a manifest.
 #[derive(Debug, Clone, PartialEq)]
 pub enum FileState {
     Unchanged,
-    Changed { found: String },
+    Changed {
+        found: String,
+    },
     Missing,
+    /// Not opened: the path or the file is not one verify reads.
+    Refused {
+        reason: String,
+    },
+    /// Not opened because the manifest's digest does not match.
+    NotChecked,
 }
 
 /// One checked file.
@@ -36,6 +66,8 @@ pub struct Checked {
 pub struct Verification {
     pub files: Vec<Checked>,
     pub digest_ok: bool,
+    /// Entries of the folder the manifest does not name.
+    pub unlisted: Vec<Unlisted>,
     pub notes: Vec<String>,
     /// With `--rerun`: files whose recomputed bytes differ, with a description.
     pub rerun_differences: Vec<String>,
@@ -47,25 +79,68 @@ impl Verification {
     pub fn passed(&self) -> bool {
         self.digest_ok
             && self.files.iter().all(|f| f.state == FileState::Unchanged)
+            && self.unlisted.is_empty()
             && self.rerun_differences.is_empty()
     }
 }
 
-/// Reads a results folder's manifest.
-pub fn read_manifest(folder: &Path) -> Result<Value, Error> {
-    let path = folder.join("manifest.json");
-    let not_results = |reason: String| InputError::NotResults {
+fn not_results(folder: &Path, reason: String) -> Error {
+    InputError::NotResults {
         path: folder.display().to_string(),
         reason,
+    }
+    .into()
+}
+
+/// Reads a results folder's manifest (a regular file in the folder, written
+/// by sextant). Its digest is not checked: see [`read_trusted_manifest`].
+pub fn read_manifest(folder: &Path) -> Result<Value, Error> {
+    let path = folder.join("manifest.json");
+    let file = match reading::open_regular(&path, &reading::resolved(folder), Links::Refuse) {
+        Ok(file) => file,
+        Err(Unopened::Missing) => {
+            return Err(not_results(folder, "there is no manifest.json".into()));
+        }
+        Err(Unopened::Refused(why)) => {
+            return Err(not_results(folder, format!("manifest.json is {why}")));
+        }
     };
-    let bytes =
-        fs::read(&path).map_err(|e| not_results(format!("cannot read manifest.json ({e})")))?;
-    let value: Value = serde_json::from_slice(&bytes)
-        .map_err(|e| not_results(format!("manifest.json is not valid JSON ({e})")))?;
+    let bytes = reading::read_at_most(file, MANIFEST_LIMIT)
+        .map_err(|e| not_results(folder, format!("cannot read manifest.json ({e})")))?
+        .ok_or_else(|| not_results(folder, "manifest.json is too large to be one".into()))?;
+    manifest_from_bytes(folder, &bytes)
+}
+
+/// The manifest in `bytes` (of `folder`): JSON that says sextant wrote it.
+pub fn manifest_from_bytes(folder: &Path, bytes: &[u8]) -> Result<Value, Error> {
+    let value: Value = serde_json::from_slice(bytes)
+        .map_err(|e| not_results(folder, format!("manifest.json is not valid JSON ({e})")))?;
     if value.pointer("/tool/name").and_then(Value::as_str) != Some("sextant") {
-        return Err(not_results("manifest.json was not written by sextant".into()).into());
+        return Err(not_results(
+            folder,
+            "manifest.json was not written by sextant".into(),
+        ));
     }
     Ok(value)
+}
+
+/// Reads a results folder's manifest and refuses it unless its digest
+/// matches its contents (for `apply` and `diff`, which act on what it says).
+pub fn read_trusted_manifest(folder: &Path) -> Result<Value, Error> {
+    let manifest = read_manifest(folder)?;
+    check_trusted(folder, &manifest)?;
+    Ok(manifest)
+}
+
+/// Refuses a manifest whose digest does not match its contents.
+pub fn check_trusted(folder: &Path, manifest: &Value) -> Result<(), Error> {
+    if digest_matches(manifest) {
+        return Ok(());
+    }
+    Err(not_results(
+        folder,
+        "manifest.json was edited: its digest does not match its contents, so nothing it records can be trusted; rerun the analysis (`sextant verify` shows what changed)".into(),
+    ))
 }
 
 /// The folder the recipe's relative paths start from, as recorded in the manifest.
@@ -77,23 +152,152 @@ pub fn recipe_path(folder: &Path, manifest: &Value) -> PathBuf {
     crate::paths::tidy(&folder.join(rel))
 }
 
-fn check_file(role: &'static str, shown: String, path: &Path, expected: &str) -> Checked {
-    let state = match fs::read(path) {
-        Err(_) => FileState::Missing,
-        Ok(bytes) => {
-            let found = sha256_hex(&bytes);
-            if found == expected {
-                FileState::Unchanged
-            } else {
-                FileState::Changed { found }
-            }
-        }
-    };
-    Checked {
-        role,
-        path: shown,
-        state,
+/// A path the manifest names relative to `from`: leading `..` then plain
+/// names. Returns the lexical absolute path and how many folders it climbs.
+fn reach(from: &Path, rel: &str) -> Result<(PathBuf, usize), String> {
+    if rel.starts_with('/') {
+        return Err("an absolute path; a manifest names files by relative paths only".into());
     }
+    let climbs = rel.split('/').take_while(|p| *p == "..").count();
+    let rest = rel.split('/').skip(climbs).collect::<Vec<_>>().join("/");
+    if !is_plain_relative(&rest) {
+        return Err("not a relative path of the form `../folder/file`".into());
+    }
+    let mut base = crate::paths::normalize(from);
+    for _ in 0..climbs {
+        if !base.pop() {
+            return Err("climbs above the root folder".into());
+        }
+    }
+    Ok((base.join(rest), climbs))
+}
+
+/// `path` with its last `climbs` names removed (lexically).
+fn climb(path: &Path, climbs: usize) -> PathBuf {
+    let mut base = crate::paths::normalize(path);
+    for _ in 0..climbs {
+        base.pop();
+    }
+    base
+}
+
+/// Hashes `path` if it may be opened and compares it with `expected`.
+fn check_file(path: &Path, within: &Path, links: Links, expected: &str) -> FileState {
+    let file = match reading::open_regular(path, within, links) {
+        Ok(file) => file,
+        Err(Unopened::Missing) => return FileState::Missing,
+        Err(Unopened::Refused(reason)) => return FileState::Refused { reason },
+    };
+    match reading::sha256_of(file) {
+        Ok(found) if found == expected => FileState::Unchanged,
+        Ok(found) => FileState::Changed { found },
+        Err(e) => FileState::Refused {
+            reason: format!("cannot be read ({e})"),
+        },
+    }
+}
+
+/// Where the files named outside the results folder are, once their paths
+/// passed [`reach`]: (role, shown path, absolute path or why it was refused,
+/// expected hash), and the folder they must all lie in.
+struct Outside {
+    files: Vec<(&'static str, String, Result<PathBuf, String>, String)>,
+    root: PathBuf,
+}
+
+fn text(v: &Value, key: &str) -> String {
+    v.get(key)
+        .and_then(Value::as_str)
+        .unwrap_or_default()
+        .to_string()
+}
+
+/// Resolves the recipe (or model) and inputs a manifest names.
+fn outside_files(folder: &Path, manifest: &Value, scored: bool) -> Outside {
+    let mut files = Vec::new();
+    // A run's inputs are named relative to its recipe; the scores of `apply`
+    // name their table and model relative to their own folder.
+    let (inputs_dir, root) = if scored {
+        let rel = text(&manifest["model"], "results");
+        let shown = crate::paths::tidy(&folder.join(&rel).join("model.json"));
+        let reached = reach(folder, &rel);
+        let root = match &reached {
+            Ok((results, climbs)) => {
+                let own = climb(folder, *climbs);
+                let theirs = analysis_root(results).filter(|r| own.starts_with(r));
+                theirs.unwrap_or(own)
+            }
+            Err(_) => crate::paths::normalize(folder),
+        };
+        files.push((
+            "model",
+            shown.display().to_string(),
+            reached.map(|(p, _)| p.join("model.json")),
+            text(&manifest["model"], "sha256"),
+        ));
+        (crate::paths::normalize(folder), root)
+    } else {
+        let rel = manifest
+            .pointer("/recipe/path")
+            .and_then(Value::as_str)
+            .unwrap_or("recipe.toml");
+        let shown = crate::paths::tidy(&folder.join(rel));
+        let reached = reach(folder, rel);
+        let root = match &reached {
+            Ok((_, climbs)) => climb(folder, *climbs),
+            Err(_) => crate::paths::normalize(folder),
+        };
+        let dir = reached
+            .as_ref()
+            .ok()
+            .and_then(|(p, _)| p.parent().map(Path::to_path_buf))
+            .unwrap_or_else(|| root.clone());
+        files.push((
+            "recipe",
+            shown.display().to_string(),
+            reached.map(|(p, _)| p),
+            text(&manifest["recipe"], "sha256"),
+        ));
+        (dir, root)
+    };
+    let shown_dir = if scored {
+        folder.to_path_buf()
+    } else {
+        recipe_path(folder, manifest)
+            .parent()
+            .map(Path::to_path_buf)
+            .unwrap_or_default()
+    };
+    for input in manifest["inputs"].as_array().into_iter().flatten() {
+        let rel = text(input, "path");
+        let shown = crate::paths::tidy(&shown_dir.join(&rel));
+        let at = reach(&inputs_dir, &rel).and_then(|(p, _)| {
+            if p.starts_with(&root) {
+                Ok(p)
+            } else {
+                Err(format!(
+                    "outside {}, the folder the manifest's own paths reach",
+                    root.display()
+                ))
+            }
+        });
+        files.push((
+            "input",
+            shown.display().to_string(),
+            at,
+            text(input, "sha256"),
+        ));
+    }
+    Outside { files, root }
+}
+
+/// The folder an analysis' recipe path climbs to, from its own manifest (if it
+/// is readable and its digest matches).
+fn analysis_root(results: &Path) -> Option<PathBuf> {
+    let manifest = read_trusted_manifest(results).ok()?;
+    let rel = manifest.pointer("/recipe/path")?.as_str()?;
+    let (_, climbs) = reach(results, rel).ok()?;
+    Some(climb(results, climbs))
 }
 
 /// Verifies a results folder.
@@ -102,68 +306,56 @@ pub fn verify(folder: &Path, rerun: bool) -> Result<Verification, Error> {
     // results back into place).
     let tidied = crate::outputs::debris::tidy(folder);
     let manifest = read_manifest(folder)?;
-    let mut report = Verification::default();
+    let mut report = Verification {
+        digest_ok: digest_matches(&manifest),
+        ..Verification::default()
+    };
     report.notes.extend(tidied);
-    let text = |v: &Value, key: &str| {
-        v.get(key)
-            .and_then(Value::as_str)
-            .unwrap_or_default()
-            .to_string()
-    };
-    let recipe = recipe_path(folder, &manifest);
-    // A run's inputs are named relative to its recipe; the scores of `apply`
-    // name their table and model relative to their own folder.
-    let scored = manifest.get("model").is_some() && manifest.get("recipe").is_none();
-    let inputs_dir = if scored {
-        folder.to_path_buf()
-    } else {
-        recipe.parent().map(Path::to_path_buf).unwrap_or_default()
-    };
-    if scored {
-        let model = crate::paths::tidy(
-            &folder
-                .join(text(&manifest["model"], "results"))
-                .join("model.json"),
+    if !report.digest_ok {
+        report.notes.push(
+            "manifest.json was edited: its digest no longer matches its contents, so the files it names outside the results folder were not opened".into(),
         );
-        report.files.push(check_file(
-            "model",
-            model.display().to_string(),
-            &model,
-            &text(&manifest["model"], "sha256"),
-        ));
-    } else {
-        report.files.push(check_file(
-            "recipe",
-            recipe.display().to_string(),
-            &recipe,
-            &text(&manifest["recipe"], "sha256"),
-        ));
     }
-    for input in manifest["inputs"].as_array().into_iter().flatten() {
-        let path = crate::paths::tidy(&inputs_dir.join(text(input, "path")));
-        report.files.push(check_file(
-            "input",
-            path.display().to_string(),
-            &path,
-            &text(input, "sha256"),
-        ));
+    let scored = manifest.get("model").is_some() && manifest.get("recipe").is_none();
+    let outside = outside_files(folder, &manifest, scored);
+    let root = reading::resolved(&outside.root);
+    for (role, shown, at, expected) in outside.files {
+        let state = match at {
+            _ if !report.digest_ok => FileState::NotChecked,
+            Ok(path) => check_file(&path, &root, Links::FollowInside, &expected),
+            Err(reason) => FileState::Refused { reason },
+        };
+        report.files.push(Checked {
+            role,
+            path: shown,
+            state,
+        });
     }
+    let inside = reading::resolved(folder);
+    let mut named = BTreeSet::new();
     for output in manifest["outputs"].as_array().into_iter().flatten() {
         let name = text(output, "path");
-        report.files.push(check_file(
-            "output",
-            name.clone(),
-            &folder.join(&name),
-            &text(output, "sha256"),
-        ));
+        let state = if is_plain_relative(&name) {
+            named.insert(name.clone());
+            check_file(
+                &folder.join(&name),
+                &inside,
+                Links::Refuse,
+                &text(output, "sha256"),
+            )
+        } else {
+            FileState::Refused {
+                reason: "not a plain relative path inside the results folder".into(),
+            }
+        };
+        report.files.push(Checked {
+            role: "output",
+            path: name,
+            state,
+        });
     }
-    report.digest_ok =
-        manifest_digest(&manifest).as_deref() == manifest.get("digest").and_then(Value::as_str);
-    if !report.digest_ok {
-        report
-            .notes
-            .push("manifest.json was edited: its digest no longer matches its contents".into());
-    }
+    report.unlisted =
+        unlisted_entries(folder, &named).map_err(|e| crate::error::OutputError::io(folder, e))?;
     let made_by = manifest
         .pointer("/tool/version")
         .and_then(Value::as_str)
@@ -180,19 +372,45 @@ pub fn verify(folder: &Path, rerun: bool) -> Result<Verification, Error> {
                 .into(),
         );
     } else if rerun {
-        rerun_and_compare(folder, &manifest, &recipe, &mut report)?;
+        match rerun_refusal(&manifest, &report) {
+            Some(why) => report.notes.push(format!("not rerun: {why}")),
+            None => {
+                let recipe = recipe_path(folder, &manifest);
+                rerun_and_compare(folder, &manifest, &recipe, &mut report)?;
+            }
+        }
     }
     Ok(report)
+}
+
+/// Why `--rerun` must not run what the manifest records: a rerun reads the
+/// recorded input, so it must be the file just verified.
+fn rerun_refusal(manifest: &Value, report: &Verification) -> Option<String> {
+    if !report.digest_ok {
+        return Some("the manifest's digest does not match".into());
+    }
+    let inputs_ok = report
+        .files
+        .iter()
+        .filter(|f| f.role == "input")
+        .all(|f| f.state == FileState::Unchanged);
+    if !inputs_ok {
+        return Some("the recorded input is not the file that was analysed".into());
+    }
+    let recorded = manifest.pointer("/inputs/0/path").and_then(Value::as_str);
+    let resolved = manifest
+        .pointer("/recipe/resolved/input/file")
+        .and_then(Value::as_str);
+    if recorded.is_none() || recorded != resolved {
+        return Some("the recorded recipe reads another input than the one recorded".into());
+    }
+    None
 }
 
 /// The digest a manifest should carry: SHA-256 of its compact JSON without
 /// `digest` and `run`.
 pub fn manifest_digest(manifest: &Value) -> Option<String> {
-    let mut body = manifest.clone();
-    let map = body.as_object_mut()?;
-    map.remove("digest");
-    map.remove("run");
-    Some(sha256_hex(&serde_json::to_vec(&body).ok()?))
+    crate::outputs::manifest::digest_of(manifest)
 }
 
 fn rerun_and_compare(
@@ -237,7 +455,7 @@ fn rerun_and_compare(
             fs::create_dir_all(dir).map_err(|e| crate::error::OutputError::io(dir, e))?;
         }
         fs::write(&path, bytes).map_err(|e| crate::error::OutputError::io(&path, e))?;
-        let old = fs::read(folder.join(name)).unwrap_or_default();
+        let old = read_output(folder, name, bytes.len() as u64);
         if old != *bytes {
             report
                 .rerun_differences
@@ -278,6 +496,23 @@ fn rerun_and_compare(
         report.scratch = Some(scratch.keep());
     }
     Ok(())
+}
+
+/// An output's bytes for comparison, if it is a regular file of the folder no
+/// longer than `expected` + 1 bytes (longer means different; empty when absent).
+fn read_output(folder: &Path, name: &str, expected: u64) -> Vec<u8> {
+    reading::open_regular(
+        &folder.join(name),
+        &reading::resolved(folder),
+        Links::Refuse,
+    )
+    .ok()
+    .and_then(|f| {
+        let mut bytes = Vec::new();
+        std::io::Read::read_to_end(&mut std::io::Read::take(f, expected + 1), &mut bytes).ok()?;
+        Some(bytes)
+    })
+    .unwrap_or_default()
 }
 
 fn placeholder_run() -> crate::outputs::manifest::RunInfo {
@@ -374,8 +609,16 @@ pub fn describe(folder: &Path, v: &Verification) -> String {
             FileState::Unchanged => "unchanged".to_string(),
             FileState::Changed { found } => format!("CHANGED (now sha256 {found})"),
             FileState::Missing => "MISSING".to_string(),
+            FileState::Refused { reason } => format!("REFUSED, not opened: {reason}"),
+            FileState::NotChecked => {
+                "NOT CHECKED (outside the results folder, named by an edited manifest)".to_string()
+            }
         };
         let _ = writeln!(out, "{:<7} {:<40} {state}", f.role, f.path);
+    }
+    for u in &v.unlisted {
+        let what = u.what.map_or(String::new(), |w| format!(" ({w})"));
+        let _ = writeln!(out, "extra   {:<40} NOT IN THE MANIFEST{what}", u.path);
     }
     let _ = writeln!(
         out,

@@ -4,6 +4,11 @@
 //! the compact JSON of everything except `digest` and `run`; `run` (start time,
 //! duration, host, threads, platform) is the only part that may differ between
 //! reruns, and nothing hashes it.
+//!
+//! Commands that read a results folder trust its manifest only as far as
+//! [`digest_matches`] and [`output_names`] allow: the digest catches an edited
+//! manifest, and every output it names must be a plain relative path inside the
+//! folder.
 
 use super::hashing::sha256_hex;
 use serde::Serialize;
@@ -63,6 +68,55 @@ pub fn fingerprint(manifest: &Value) -> Option<(String, Vec<String>)> {
         .map(|i| i.get("sha256").and_then(Value::as_str).map(str::to_string))
         .collect::<Option<Vec<_>>>()?;
     Some((recipe, inputs))
+}
+
+/// The digest a manifest should carry: SHA-256 of its compact JSON without
+/// `digest` and `run` (`None` when it is not a JSON object).
+pub fn digest_of(manifest: &Value) -> Option<String> {
+    let mut body = manifest.clone();
+    let map = body.as_object_mut()?;
+    map.remove("digest");
+    map.remove("run");
+    Some(sha256_hex(&serde_json::to_vec(&body).ok()?))
+}
+
+/// Whether the manifest's `digest` is the digest of its contents.
+pub fn digest_matches(manifest: &Value) -> bool {
+    let recorded = manifest.get("digest").and_then(Value::as_str);
+    recorded.is_some() && digest_of(manifest).as_deref() == recorded
+}
+
+/// Whether `path` is a plain relative path: `/`-separated names, none of them
+/// empty, `.` or `..` (so it cannot leave the folder it is relative to).
+pub fn is_plain_relative(path: &str) -> bool {
+    !path.is_empty()
+        && !path.contains('\\')
+        && !path.contains('\0')
+        && path
+            .split('/')
+            .all(|part| !part.is_empty() && part != "." && part != "..")
+}
+
+/// The output paths a manifest names, each a plain relative path; otherwise
+/// the first offending entry, described.
+pub fn output_names(manifest: &Value) -> Result<Vec<String>, String> {
+    let Some(outputs) = manifest.get("outputs").and_then(Value::as_array) else {
+        return Err("it has no list of outputs".into());
+    };
+    let mut names = Vec::with_capacity(outputs.len());
+    for (i, output) in outputs.iter().enumerate() {
+        match output.get("path").and_then(Value::as_str) {
+            Some(path) if is_plain_relative(path) => names.push(path.to_string()),
+            Some(path) => {
+                return Err(format!(
+                    "output {} is named `{path}`, which is not a plain path inside the folder",
+                    i + 1
+                ));
+            }
+            None => return Err(format!("output {} has no path", i + 1)),
+        }
+    }
+    Ok(names)
 }
 
 /// Assembles the manifest and returns it as pretty JSON text with its digest.
@@ -160,5 +214,27 @@ mod tests {
         let (text_b, b) = render(&body, &[], &run("b"));
         assert_eq!(a, b);
         assert_ne!(text_a, text_b);
+        let value: Value = serde_json::from_str(&text_a).unwrap();
+        assert_eq!(digest_of(&value).as_deref(), Some(a.as_str()));
+        assert!(digest_matches(&value));
+    }
+
+    #[test]
+    fn plain_relative_paths() {
+        for ok in ["scores.csv", "plots/scree.svg", "a..b"] {
+            assert!(is_plain_relative(ok), "{ok}");
+        }
+        for bad in [
+            "",
+            "/etc/passwd",
+            "../x",
+            "plots/../../x",
+            "./x",
+            "a//b",
+            "a/",
+            "a\\b",
+        ] {
+            assert!(!is_plain_relative(bad), "{bad}");
+        }
     }
 }

@@ -9,6 +9,7 @@ pub mod manifest;
 pub mod model;
 pub mod plots;
 pub mod present;
+pub mod reading;
 pub mod replace;
 pub mod report;
 pub mod tables;

@@ -2,6 +2,11 @@
 //! analysed rows were scored: features in order, their transforms, how missing
 //! cells are filled, centre and scale, loadings, eigenvalues, the number of kept
 //! components, the T² and SPE limits for new rows, and the sign rule.
+//!
+//! A model.json is read back by [`parse`], which checks every shape and value
+//! `apply` relies on ([`Model::check`]) and names the offending field as a path
+//! (`loadings[3]`, `fill.model.centre`), so a model that was edited (or written
+//! by something else) is refused instead of scoring garbage or failing midway.
 
 use crate::run::{Analysis, Prepared, Preprocessed};
 use crate::stages::impute::ImputationModel;
@@ -10,6 +15,12 @@ use serde::{Deserialize, Serialize};
 
 /// The model file's own format version.
 pub const MODEL_FORMAT: u32 = 1;
+
+/// The sign rule every model is written with.
+pub const SIGN_RULE: &str = "the largest-magnitude loading of each component is positive; magnitudes within 1e-9 relative are ties, won by the first feature";
+
+/// How far a loading of a unit-length component may pass 1 in size (rounding).
+const LOADING_SLACK: f64 = 1e-6;
 
 /// A saved model.
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -107,6 +118,10 @@ pub fn build(
         FillModel::Constant(values) => Fill::Constant {
             values: pick.iter().map(|&i| values[i]).collect(),
         },
+        // Without missing cells in the analysed rows no imputation model is fitted.
+        FillModel::Iterative(m) if m.centre.is_empty() => Fill::IterativePca {
+            model: ImputationModel::default(),
+        },
         FillModel::Iterative(m) => Fill::IterativePca {
             model: ImputationModel {
                 centre: pick.iter().map(|&i| m.centre[i]).collect(),
@@ -115,7 +130,14 @@ pub fn build(
             },
         },
         FillModel::Knn { reference } => Fill::Knn {
-            neighbours: plan.knn.neighbours.0.get(),
+            // More neighbours than rows fill exactly as all the rows do; the
+            // model says what is used, so that it checks as a model should.
+            neighbours: plan
+                .knn
+                .neighbours
+                .0
+                .get()
+                .min(reference.first().map_or(1, Vec::len)),
             reference: pick
                 .iter()
                 .map(|&i| {
@@ -166,18 +188,363 @@ pub fn build(
         rows: pre.scaled.n_rows(),
         kept: k,
         eigenvalues: d.eigenvalues[..k].to_vec(),
-        loadings: (0..names.len()).map(|j| (0..k).map(|a| d.loadings.get(j, a)).collect()).collect(),
+        loadings: (0..names.len())
+            .map(|j| (0..k).map(|a| d.loadings.get(j, a)).collect())
+            .collect(),
         limits: analysis
             .diagnostics
             .limits
             .iter()
-            .map(|l| ModelLimits { confidence: l.confidence, t2_new_rows: l.t2_new_rows, spe: l.spe })
+            .map(|l| ModelLimits {
+                confidence: l.confidence,
+                t2_new_rows: l.t2_new_rows,
+                spe: l.spe,
+            })
             .collect(),
         spe_limit: match analysis.diagnostics.spe_method {
             crate::recipe::raw::SpeLimit::JacksonMudholkar => "jackson-mudholkar".into(),
             crate::recipe::raw::SpeLimit::Box => "box".into(),
         },
-        sign_rule: "the largest-magnitude loading of each component is positive; magnitudes within 1e-9 relative are ties, won by the first feature".into(),
+        sign_rule: SIGN_RULE.into(),
+    }
+}
+
+/// What is wrong with a model file: the field, as a path, and the problem.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ModelProblem {
+    pub field: String,
+    pub problem: String,
+}
+
+fn problem(field: impl Into<String>, problem: impl Into<String>) -> ModelProblem {
+    ModelProblem {
+        field: field.into(),
+        problem: problem.into(),
+    }
+}
+
+/// Reads a model.json and checks it ([`Model::check`]).
+pub fn parse(bytes: &[u8]) -> Result<Model, ModelProblem> {
+    let mut reader = serde_json::Deserializer::from_slice(bytes);
+    let model: Model = serde_path_to_error::deserialize(&mut reader).map_err(|e| {
+        let field = e.path().to_string();
+        let field = if field == "." {
+            "model.json".to_string()
+        } else {
+            field
+        };
+        problem(field, format!("cannot be read ({})", e.into_inner()))
+    })?;
+    reader
+        .end()
+        .map_err(|e| problem("model.json", format!("has text after the model ({e})")))?;
+    model.check()?;
+    Ok(model)
+}
+
+/// Checks that every value is finite (`what` says where).
+fn all_finite(field: &str, values: &[f64]) -> Result<(), ModelProblem> {
+    match values.iter().position(|v| !v.is_finite()) {
+        Some(i) => Err(problem(format!("{field}[{i}]"), "is not a finite number")),
+        None => Ok(()),
+    }
+}
+
+/// Checks the length of a list.
+fn length(field: &str, found: usize, want: usize, of: &str) -> Result<(), ModelProblem> {
+    if found == want {
+        Ok(())
+    } else {
+        Err(problem(
+            field,
+            format!("has {found} entries; expected {want} ({of})"),
+        ))
+    }
+}
+
+/// Checks a loadings table: `rows` rows of `cols` finite entries, each at
+/// most 1 in size (the loadings of unit-length components).
+fn loadings_table(
+    field: &str,
+    table: &[Vec<f64>],
+    rows: usize,
+    cols: usize,
+    of: &str,
+) -> Result<(), ModelProblem> {
+    length(field, table.len(), rows, "one per feature")?;
+    for (j, row) in table.iter().enumerate() {
+        let at = format!("{field}[{j}]");
+        length(&at, row.len(), cols, of)?;
+        all_finite(&at, row)?;
+        if let Some(a) = row.iter().position(|v| v.abs() > 1.0 + LOADING_SLACK) {
+            return Err(problem(
+                format!("{at}[{a}]"),
+                "is larger than 1 in size, which a loading of a unit-length component cannot be",
+            ));
+        }
+    }
+    Ok(())
+}
+
+impl Model {
+    /// Checks what `apply` relies on: the format, every length against the
+    /// number of features p and of kept components k, finite values, positive
+    /// and sorted eigenvalues, positive scales, known names.
+    pub fn check(&self) -> Result<(), ModelProblem> {
+        if self.model_format != MODEL_FORMAT {
+            return Err(problem(
+                "model_format",
+                format!(
+                    "is {}; this version of sextant reads model format {MODEL_FORMAT}",
+                    self.model_format
+                ),
+            ));
+        }
+        let p = self.features.len();
+        if p == 0 {
+            return Err(problem(
+                "features",
+                "is empty; a model has at least one feature",
+            ));
+        }
+        let scaling = known(
+            "scaling",
+            &self.scaling,
+            &["none", "center", "unit-variance", "pareto", "range"],
+        )?;
+        self.check_features(scaling)?;
+        self.check_roles()?;
+        let k = self.kept;
+        if k == 0 || k > p {
+            return Err(problem(
+                "kept",
+                format!("is {k}; it must be at least 1 and at most the {p} feature(s)"),
+            ));
+        }
+        if self.rows < 2 || self.rows <= k {
+            return Err(problem(
+                "rows",
+                format!(
+                    "is {}; an analysis of {k} component(s) had at least 2 rows and more than {k}",
+                    self.rows
+                ),
+            ));
+        }
+        length(
+            "eigenvalues",
+            self.eigenvalues.len(),
+            k,
+            "one per kept component",
+        )?;
+        all_finite("eigenvalues", &self.eigenvalues)?;
+        if let Some(i) = self.eigenvalues.iter().position(|&v| v <= 0.0) {
+            return Err(problem(format!("eigenvalues[{i}]"), "is not positive"));
+        }
+        if let Some(i) = self.eigenvalues.windows(2).position(|w| w[1] > w[0]) {
+            return Err(problem(
+                format!("eigenvalues[{}]", i + 1),
+                "is larger than the one before; eigenvalues are sorted largest first",
+            ));
+        }
+        loadings_table("loadings", &self.loadings, p, k, "one per kept component")?;
+        self.check_limits()?;
+        known("spe_limit", &self.spe_limit, &["jackson-mudholkar", "box"])?;
+        known("sign_rule", &self.sign_rule, &[SIGN_RULE])?;
+        self.check_fill()
+    }
+
+    fn check_features(&self, scaling: &str) -> Result<(), ModelProblem> {
+        let mut seen = std::collections::BTreeSet::new();
+        for (j, f) in self.features.iter().enumerate() {
+            let at = |key: &str| format!("features[{j}].{key}");
+            if f.name.is_empty() {
+                return Err(problem(at("name"), "is empty"));
+            }
+            if !seen.insert(f.name.as_str()) {
+                return Err(problem(at("name"), format!("`{}` appears twice", f.name)));
+            }
+            if let Some(t) = &f.transform {
+                known(&at("transform"), t, &["log10", "ln", "sqrt"])?;
+            }
+            for (key, v) in [
+                ("centre", f.centre),
+                ("scale", f.scale),
+                ("min", f.min),
+                ("max", f.max),
+            ] {
+                if !v.is_finite() {
+                    return Err(problem(at(key), "is not a finite number"));
+                }
+            }
+            if f.min > f.max {
+                return Err(problem(at("min"), "is larger than max"));
+            }
+            if f.scale <= 0.0 {
+                return Err(problem(at("scale"), "is not positive"));
+            }
+            match scaling {
+                "none" if f.centre != 0.0 || f.scale != 1.0 => {
+                    return Err(problem(
+                        at("centre"),
+                        "and scale must be 0 and 1 with scaling \"none\"",
+                    ));
+                }
+                "center" if f.scale != 1.0 => {
+                    return Err(problem(at("scale"), "must be 1 with scaling \"center\""));
+                }
+                "none" => {}
+                _ => {
+                    // The centre is the mean of the analysed values, so it lies in
+                    // their range (up to rounding).
+                    let slack = 1e-9 * f.min.abs().max(f.max.abs()).max(f.max - f.min);
+                    if f.centre < f.min - slack || f.centre > f.max + slack {
+                        return Err(problem(
+                            at("centre"),
+                            format!(
+                                "is {}, outside the analysed range [{}, {}] it is the mean of",
+                                f.centre, f.min, f.max
+                            ),
+                        ));
+                    }
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// The id and group columns are read as text, so none may be a feature.
+    fn check_roles(&self) -> Result<(), ModelProblem> {
+        let is_feature = |n: &str| self.features.iter().any(|f| f.name == n);
+        if let Some(id) = &self.id {
+            if id.is_empty() || is_feature(id) || self.groups.contains(id) {
+                return Err(problem(
+                    "id",
+                    format!("`{id}` is empty, a feature or a group"),
+                ));
+            }
+        }
+        for (i, g) in self.groups.iter().enumerate() {
+            if g.is_empty() || is_feature(g) || self.groups[..i].contains(g) {
+                return Err(problem(
+                    format!("groups[{i}]"),
+                    format!("`{g}` is empty, a feature or named twice"),
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    fn check_limits(&self) -> Result<(), ModelProblem> {
+        for (i, l) in self.limits.iter().enumerate() {
+            let at = |key: &str| format!("limits[{i}].{key}");
+            // JSON holds no NaN, so the confidence is a number.
+            if l.confidence <= 0.0 || l.confidence >= 1.0 {
+                return Err(problem(at("confidence"), "is not strictly between 0 and 1"));
+            }
+            for (key, v) in [("t2_new_rows", l.t2_new_rows), ("spe", l.spe)] {
+                if v.is_some_and(|v| !(v.is_finite() && v > 0.0)) {
+                    return Err(problem(at(key), "is not a positive finite number or null"));
+                }
+            }
+        }
+        Ok(())
+    }
+
+    fn check_fill(&self) -> Result<(), ModelProblem> {
+        let p = self.features.len();
+        match &self.fill {
+            Fill::DropRows => Ok(()),
+            Fill::Constant { values } => {
+                length("fill.values", values.len(), p, "one per feature")?;
+                all_finite("fill.values", values)
+            }
+            // No missing cells in the analysed rows: nothing was fitted.
+            Fill::IterativePca { model }
+                if model.centre.is_empty()
+                    && model.scale.is_empty()
+                    && model.loadings.is_empty() =>
+            {
+                Ok(())
+            }
+            Fill::IterativePca { model } => {
+                length(
+                    "fill.model.centre",
+                    model.centre.len(),
+                    p,
+                    "one per feature",
+                )?;
+                all_finite("fill.model.centre", &model.centre)?;
+                length("fill.model.scale", model.scale.len(), p, "one per feature")?;
+                all_finite("fill.model.scale", &model.scale)?;
+                if let Some(j) = model.scale.iter().position(|&v| v <= 0.0) {
+                    return Err(problem(format!("fill.model.scale[{j}]"), "is not positive"));
+                }
+                let s = model.loadings.first().map_or(0, Vec::len);
+                if s == 0 || s >= p {
+                    return Err(problem(
+                        "fill.model.loadings",
+                        format!(
+                            "has {s} component(s); an imputation model has at least 1 and fewer than the {p} feature(s)"
+                        ),
+                    ));
+                }
+                loadings_table(
+                    "fill.model.loadings",
+                    &model.loadings,
+                    p,
+                    s,
+                    "as many as the first feature's",
+                )
+            }
+            Fill::Knn {
+                neighbours,
+                reference,
+            } => {
+                length("fill.reference", reference.len(), p, "one per feature")?;
+                let n = reference.first().map_or(0, Vec::len);
+                for (j, column) in reference.iter().enumerate() {
+                    let at = format!("fill.reference[{j}]");
+                    length(&at, column.len(), n, "as many rows as the first feature's")?;
+                    if let Some(r) = column
+                        .iter()
+                        .position(|v| v.is_some_and(|v| !v.is_finite()))
+                    {
+                        return Err(problem(
+                            format!("{at}[{r}]"),
+                            "is not a finite number or null",
+                        ));
+                    }
+                }
+                if *neighbours == 0 || *neighbours > n {
+                    return Err(problem(
+                        "fill.neighbours",
+                        format!(
+                            "is {neighbours}; it must be at least 1 and at most the {n} reference row(s)"
+                        ),
+                    ));
+                }
+                Ok(())
+            }
+        }
+    }
+}
+
+/// Checks that `value` is one of `choices`, and returns it.
+fn known<'a>(field: &str, value: &'a str, choices: &[&str]) -> Result<&'a str, ModelProblem> {
+    if choices.contains(&value) {
+        Ok(value)
+    } else {
+        Err(problem(
+            field,
+            format!(
+                "is `{value}`; expected one of: {}",
+                choices
+                    .iter()
+                    .map(|c| format!("`{c}`"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+        ))
     }
 }
 
