@@ -299,7 +299,7 @@ pub fn score(
     let p = model.features.len();
     let mut scored_rows = Vec::new();
     let mut filled = Vec::new();
-    let (mut skipped, mut unfilled) = (0, 0);
+    let mut skipped = 0;
     let mut x: Vec<Vec<f64>> = Vec::new();
     for i in 0..rows_in {
         let mut row: Vec<f64> = data.features.iter().map(|f| f.values[i]).collect();
@@ -310,11 +310,6 @@ pub fn score(
                 Fill::Constant { values } => {
                     gaps.iter().for_each(|&j| row[j] = values[j]);
                     Some(())
-                }
-                // No missing cells in the analysed rows: no imputation model.
-                Fill::IterativePca { model: m } if m.centre.is_empty() => {
-                    unfilled += 1;
-                    None
                 }
                 Fill::IterativePca { model: m } => fill_row_from_model(&mut row, m),
                 Fill::Knn {
@@ -341,13 +336,7 @@ pub fn score(
         scored_rows.push(i);
         x.push(row);
     }
-    if unfilled > 0 {
-        notes.push(format!(
-            "{unfilled} row(s) with missing cells were not scored (the analysed rows had no missing cells, so no imputation model was made)"
-        ));
-    }
-    if skipped > unfilled {
-        let skipped = skipped - unfilled;
+    if skipped > 0 {
         notes.push(match model.fill {
             Fill::DropRows => format!(
                 "{skipped} row(s) with missing cells were not scored (the model drops such rows)"

@@ -96,6 +96,8 @@ enum Cmd {
     Run,
     /// `check`, then `run`: both must give the code and the message.
     Both,
+    /// A whole command line of its own (`apply`, `verify`, `run --replace`).
+    Line(&'static [&'static str]),
 }
 
 struct Case {
@@ -109,6 +111,9 @@ struct Case {
     /// to the temporary folder.
     files: &'static [(&'static str, &'static str)],
     links: &'static [(&'static str, &'static str)],
+    /// Made first: a genuine results folder `res` of the base recipe (its
+    /// recipe is `made.toml`), before `files` and `links` are added.
+    results: bool,
     code: i32,
     /// The file and position the message must name: `recipe.toml:12:11:`,
     /// `data.csv:7:`, or only `data.csv:` where no line applies.
@@ -128,6 +133,7 @@ const BAD: Case = Case {
     args: &[],
     files: &[],
     links: &[],
+    results: false,
     code: 2,
     at: "",
     says: &[],
@@ -1697,6 +1703,327 @@ const CASES: &[Case] = &[
         not: &["\u{1b}"],
         ..BAD
     },
+    // -----------------------------------------------------------------------
+    // Paths: overlaps through links, existing folders, what --replace may remove.
+    Case {
+        name: "output folder is the parent folder",
+        recipe: Replace("folder = \"out\"", "folder = \"..\""),
+        at: "recipe.toml:9:10:",
+        says: &["would contain the recipe"],
+        ..BAD
+    },
+    Case {
+        name: "output folder is a link to the recipe's folder",
+        recipe: Replace("folder = \"out\"", "folder = \"here\""),
+        links: &[("here", ".")],
+        at: "recipe.toml:9:10:",
+        says: &["would contain the recipe"],
+        ..BAD
+    },
+    Case {
+        name: "input reached through a link into the output folder",
+        data: Data::Absent,
+        files: &[(
+            "out/kept.csv",
+            "sample,group,a,b,c\ns1,x,1,2,3\ns2,y,2,1,4\ns3,x,3,3,1\n",
+        )],
+        links: &[("data.csv", "out/kept.csv")],
+        at: "recipe.toml:9:10:",
+        says: &["would contain the input table"],
+        ..BAD
+    },
+    Case {
+        name: "recipe reached through a link into the output folder",
+        recipe: Replace("file = \"data.csv\"", "file = \"data.csv\""),
+        files: &[(
+            "out/real.toml",
+            "format = 1\n[input]\nfile = \"data.csv\"\n[output]\nfolder = \"out\"\n",
+        )],
+        links: &[("linked.toml", "out/real.toml")],
+        args: &["linked.toml"],
+        at: "linked.toml:5:10:",
+        says: &["would contain the recipe"],
+        ..BAD
+    },
+    Case {
+        name: "output folder exists as a file",
+        files: &[("out", "not a folder")],
+        cmd: Cmd::Run,
+        at: "out:",
+        says: &["exists and is not a folder", "choose another output.folder"],
+        ..BAD
+    },
+    Case {
+        name: "output folder holds files of the user",
+        files: &[("out/thesis.tex", "chapter one")],
+        cmd: Cmd::Run,
+        at: "out:",
+        says: &["not a sextant results folder", "will not replace it"],
+        ..BAD
+    },
+    Case {
+        name: "replace a folder holding a hand-written manifest",
+        files: &[
+            (
+                "out/manifest.json",
+                "{\"tool\": {\"name\": \"sextant\"}, \"digest\": \"0\"}",
+            ),
+            ("out/thesis.tex", "chapter one"),
+        ],
+        cmd: Cmd::Line(&["run", "recipe.toml", "--replace"]),
+        at: "out:",
+        says: &["thesis.tex"],
+        ..BAD
+    },
+    Case {
+        name: "replace a results folder holding an extra file",
+        results: true,
+        files: &[("res/notes.txt", "my notes")],
+        cmd: Cmd::Line(&["run", "made.toml", "--replace"]),
+        at: "res:",
+        says: &["notes.txt"],
+        ..BAD
+    },
+    Case {
+        name: "replace a results folder that is a link",
+        results: true,
+        recipe: Replace("folder = \"out\"", "folder = \"alias\""),
+        links: &[("alias", "res")],
+        cmd: Cmd::Line(&["run", "recipe.toml", "--replace"]),
+        at: "alias:",
+        says: &["symbolic link"],
+        ..BAD
+    },
+    Case {
+        name: "input is a device",
+        recipe: Replace("file = \"data.csv\"", "file = \"/dev/zero\""),
+        at: "/dev/zero:",
+        says: &["a device, pipe or socket, not a regular file"],
+        ..BAD
+    },
+    Case {
+        name: "input is a folder",
+        recipe: Replace("file = \"data.csv\"", "file = \"sub\""),
+        files: &[("sub/x.csv", "a\n1\n")],
+        at: "sub:",
+        says: &["a folder, not a regular file"],
+        ..BAD
+    },
+    Case {
+        name: "recipe is a device",
+        links: &[("null.toml", "/dev/null")],
+        cmd: Cmd::Line(&["check", "null.toml"]),
+        at: "null.toml:",
+        says: &["cannot read the recipe", "not a regular file"],
+        ..BAD
+    },
+    Case {
+        name: "recipe file does not exist",
+        cmd: Cmd::Line(&["check", "absent.toml"]),
+        at: "absent.toml:",
+        says: &["cannot read the recipe"],
+        ..BAD
+    },
+    // -----------------------------------------------------------------------
+    // apply: the results folder, the new table and where the scores go.
+    Case {
+        name: "apply to a folder without a manifest",
+        files: &[("empty/readme.txt", "x")],
+        cmd: Cmd::Line(&["apply", "empty", "data.csv"]),
+        at: "empty:",
+        says: &["not a sextant results folder", "manifest.json"],
+        ..BAD
+    },
+    Case {
+        name: "apply with a manifest that is not JSON",
+        results: true,
+        files: &[("res/manifest.json", "{ not json")],
+        cmd: Cmd::Line(&["apply", "res", "data.csv"]),
+        at: "res:",
+        says: &["manifest.json"],
+        ..BAD
+    },
+    Case {
+        name: "apply with an edited manifest",
+        results: true,
+        files: &[(
+            "res/manifest.json",
+            "{\"tool\": {\"name\": \"sextant\"}, \"digest\": \"0\", \"outputs\": []}",
+        )],
+        cmd: Cmd::Line(&["apply", "res", "data.csv"]),
+        at: "res:",
+        says: &["digest"],
+        ..BAD
+    },
+    Case {
+        name: "apply with an edited model",
+        results: true,
+        files: &[("res/model.json", "{}")],
+        cmd: Cmd::Line(&["apply", "res", "data.csv"]),
+        at: "res:",
+        says: &["model.json", "SHA-256"],
+        ..BAD
+    },
+    Case {
+        name: "apply to a table without a model feature",
+        results: true,
+        files: &[("new.csv", "sample,group,a,b\nn1,x,1,2\n")],
+        cmd: Cmd::Line(&["apply", "res", "new.csv"]),
+        at: "new.csv:",
+        says: &["feature(s) c are not in the table's header"],
+        ..BAD
+    },
+    Case {
+        name: "apply to a table with a text cell in a feature",
+        results: true,
+        files: &[("new.csv", "sample,group,a,b,c\nn1,x,1,2,3\nn2,x,1,two,3\n")],
+        cmd: Cmd::Line(&["apply", "res", "new.csv"]),
+        at: "new.csv:3:",
+        says: &["column `b`", "`two`"],
+        ..BAD
+    },
+    Case {
+        name: "apply to a table with a ragged row",
+        results: true,
+        files: &[("new.csv", "sample,group,a,b,c\nn1,x,1,2,3\nn2,x,1,2\n")],
+        cmd: Cmd::Line(&["apply", "res", "new.csv"]),
+        at: "new.csv:3:",
+        says: &["fields"],
+        ..BAD
+    },
+    Case {
+        name: "apply to an empty table",
+        results: true,
+        files: &[("new.csv", "")],
+        cmd: Cmd::Line(&["apply", "res", "new.csv"]),
+        at: "new.csv:",
+        says: &["empty"],
+        ..BAD
+    },
+    Case {
+        name: "apply to a table that does not exist",
+        results: true,
+        cmd: Cmd::Line(&["apply", "res", "absent.csv"]),
+        at: "absent.csv:",
+        says: &["cannot read the file"],
+        ..BAD
+    },
+    Case {
+        name: "apply to a device",
+        results: true,
+        cmd: Cmd::Line(&["apply", "res", "/dev/zero"]),
+        at: "/dev/zero:",
+        says: &["not a regular file"],
+        ..BAD
+    },
+    Case {
+        name: "apply writing into the results folder it reads",
+        results: true,
+        cmd: Cmd::Line(&["apply", "res", "data.csv", "--out", "res", "--replace"]),
+        at: "res:",
+        says: &["would overlap the results folder", "choose another --out"],
+        ..BAD
+    },
+    Case {
+        name: "apply writing inside the results folder",
+        results: true,
+        cmd: Cmd::Line(&["apply", "res", "data.csv", "--out", "res/scored"]),
+        at: "res/scored:",
+        says: &["would overlap the results folder"],
+        ..BAD
+    },
+    Case {
+        name: "apply writing through a link to the results folder",
+        results: true,
+        links: &[("same", "res")],
+        cmd: Cmd::Line(&["apply", "res", "data.csv", "--out", "same", "--replace"]),
+        at: "same:",
+        says: &["would overlap the results folder", "links followed"],
+        ..BAD
+    },
+    Case {
+        name: "apply writing over the table's folder",
+        results: true,
+        files: &[("batch/new.csv", "sample,group,a,b,c\nn1,x,1,2,3\n")],
+        cmd: Cmd::Line(&[
+            "apply",
+            "res",
+            "batch/new.csv",
+            "--out",
+            "batch",
+            "--replace",
+        ]),
+        at: "batch:",
+        says: &["would overlap the table"],
+        ..BAD
+    },
+    Case {
+        name: "apply writing over a folder of the user",
+        results: true,
+        files: &[("mine/thesis.tex", "chapter one")],
+        cmd: Cmd::Line(&["apply", "res", "data.csv", "--out", "mine", "--replace"]),
+        at: "mine:",
+        says: &["not a sextant results folder", "will not replace it"],
+        ..BAD
+    },
+    // -----------------------------------------------------------------------
+    // verify: what it is given, and what a manifest may make it open.
+    Case {
+        name: "verify a folder without a manifest",
+        files: &[("empty/readme.txt", "x")],
+        cmd: Cmd::Line(&["verify", "empty"]),
+        at: "empty:",
+        says: &["not a sextant results folder"],
+        ..BAD
+    },
+    Case {
+        name: "verify a manifest that is not JSON",
+        results: true,
+        files: &[("res/manifest.json", "[1, 2")],
+        cmd: Cmd::Line(&["verify", "res"]),
+        at: "res:",
+        says: &["manifest.json"],
+        ..BAD
+    },
+    Case {
+        name: "verify a manifest written by another program",
+        results: true,
+        files: &[("res/manifest.json", "{\"tool\": {\"name\": \"other\"}}")],
+        cmd: Cmd::Line(&["verify", "res"]),
+        at: "res:",
+        says: &["not written by sextant"],
+        ..BAD
+    },
+    Case {
+        name: "verify a file instead of a folder",
+        cmd: Cmd::Line(&["verify", "data.csv"]),
+        at: "data.csv:",
+        says: &["not a sextant results folder"],
+        ..BAD
+    },
+    Case {
+        name: "verify a results folder with an extra file",
+        results: true,
+        files: &[("res/notes.txt", "mine")],
+        cmd: Cmd::Line(&["verify", "res"]),
+        code: 1,
+        at: "notes.txt",
+        says: &["NOT IN THE MANIFEST"],
+        ..BAD
+    },
+    Case {
+        name: "verify a manifest that names a system file",
+        results: true,
+        files: &[(
+            "res/manifest.json",
+            "{\"tool\": {\"name\": \"sextant\", \"version\": \"0.1.0\"}, \"recipe\": {\"path\": \"../made.toml\", \"sha256\": \"0\"}, \"inputs\": [{\"path\": \"/etc/passwd\", \"sha256\": \"0\"}], \"outputs\": [], \"digest\": \"0\"}",
+        )],
+        cmd: Cmd::Line(&["verify", "res"]),
+        code: 1,
+        at: "/etc/passwd",
+        says: &["digest"],
+        ..BAD
+    },
 ];
 
 // ---------------------------------------------------------------------------
@@ -1783,6 +2110,19 @@ impl Case {
             Data::Bytes(bytes) => write(root, "data.csv", bytes),
             Data::Absent => {}
         }
+        if self.results {
+            write(
+                root,
+                "made.toml",
+                BASE.replace("\"out\"", "\"res\"").as_bytes(),
+            );
+            let made = Command::new(env!("CARGO_BIN_EXE_sextant"))
+                .args(["run", "made.toml"])
+                .current_dir(root)
+                .output()
+                .expect("the sextant binary starts");
+            assert!(made.status.success(), "{}: the results folder", self.name);
+        }
         for (rel, text) in self.files {
             write(root, rel, text.as_bytes());
         }
@@ -1798,6 +2138,7 @@ impl Case {
             Cmd::Check => &["check"],
             Cmd::Run => &["run"],
             Cmd::Both => &["check", "run"],
+            Cmd::Line(line) => return vec![line.to_vec()],
         };
         names
             .iter()
@@ -1841,13 +2182,20 @@ impl Case {
                 verdict.panicked = true;
                 wrong.push("the binary panicked".into());
             }
-            let positioned = !self.at.is_empty() && stderr.contains(self.at);
+            // A failed verification is a report on standard output, not an error.
+            let report = self.code == 1 && !stdout.is_empty();
+            let shown = if report {
+                format!("{stderr}{stdout}")
+            } else {
+                stderr.clone()
+            };
+            let positioned = !self.at.is_empty() && shown.contains(self.at);
             all_positioned &= positioned && has_line(self.at);
             if !self.at.is_empty() && !positioned {
                 wrong.push(format!("stderr does not name {:?}", self.at));
             }
             for part in self.says {
-                if !stderr.contains(part) {
+                if !shown.contains(part) {
                     wrong.push(format!("stderr lacks {part:?}"));
                 }
             }
@@ -1856,7 +2204,7 @@ impl Case {
                     wrong.push(format!("the output contains {part:?}"));
                 }
             }
-            if self.code != 0 {
+            if self.code != 0 && !report {
                 if !stderr.starts_with("error: ") {
                     wrong.push("stderr does not start with `error: `".into());
                 }

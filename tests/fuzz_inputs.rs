@@ -474,6 +474,36 @@ const SETTINGS: &[(&str, &str, &[&str])] = &[
     ),
 ];
 
+/// A settings table, and the choice (table, setting) that makes it apply.
+const ENABLING: &[(&str, &str, &str)] = &[
+    (
+        "missing.iterative_pca",
+        "missing",
+        "method = \"iterative-pca\"",
+    ),
+    ("missing.knn", "missing", "method = \"knn\""),
+    (
+        "components.randomized",
+        "components",
+        "method = \"randomized\"",
+    ),
+    (
+        "components.randomized",
+        "diagnostics",
+        "spe_limit = \"box\"",
+    ),
+    (
+        "components.parallel_analysis",
+        "components",
+        "keep = \"parallel-analysis\"",
+    ),
+    (
+        "components.cross_validation",
+        "components",
+        "keep = \"cross-validation\"",
+    ),
+];
+
 /// Settings of one `[[plot]]` table.
 const PLOT_SETTINGS: &[(&str, &[&str])] = &[
     (
@@ -523,6 +553,17 @@ fn generate_recipe(rng: &mut Stream, table: usize) -> String {
             .entry(section)
             .or_default()
             .push(format!("{key} = {}", pick(rng, values)));
+    }
+    // Settings of a method apply only when it is chosen (others are refused):
+    // mostly choose it, so the cases reach the method itself.
+    for (section, parent, choice) in ENABLING {
+        if tables.contains_key(section) && rng.below(4) != 0 {
+            let (parent, choice) = (*parent, *choice);
+            let lines = tables.entry(parent).or_default();
+            let key = choice.split(" = ").next().unwrap_or("");
+            lines.retain(|l| l.split(" = ").next() != Some(key));
+            lines.push(choice.to_string());
+        }
     }
     if rng.below(8) == 0 {
         let (section, _, _) = pick(rng, SETTINGS);

@@ -118,10 +118,6 @@ pub fn build(
         FillModel::Constant(values) => Fill::Constant {
             values: pick.iter().map(|&i| values[i]).collect(),
         },
-        // Without missing cells in the analysed rows no imputation model is fitted.
-        FillModel::Iterative(m) if m.centre.is_empty() => Fill::IterativePca {
-            model: ImputationModel::default(),
-        },
         FillModel::Iterative(m) => Fill::IterativePca {
             model: ImputationModel {
                 centre: pick.iter().map(|&i| m.centre[i]).collect(),
@@ -457,14 +453,6 @@ impl Model {
             Fill::Constant { values } => {
                 length("fill.values", values.len(), p, "one per feature")?;
                 all_finite("fill.values", values)
-            }
-            // No missing cells in the analysed rows: nothing was fitted.
-            Fill::IterativePca { model }
-                if model.centre.is_empty()
-                    && model.scale.is_empty()
-                    && model.loadings.is_empty() =>
-            {
-                Ok(())
             }
             Fill::IterativePca { model } => {
                 length(
