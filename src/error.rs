@@ -35,6 +35,8 @@ impl Error {
         match self {
             Error::Recipe(_) | Error::Input(_) | Error::Engine(_) => EXIT_INVALID,
             Error::Output(OutputError::Refused { .. }) => EXIT_INVALID,
+            // The recipe asks more of the table than it can give: a bad input.
+            Error::Analysis(AnalysisError::ImputationComponents { .. }) => EXIT_INVALID,
             Error::Analysis(_) | Error::Output(_) => EXIT_FAILED,
         }
     }
@@ -443,6 +445,14 @@ fn describe_cell(text: &str) -> String {
 pub enum AnalysisError {
     #[error("missing cells cannot be filled: {reason}")]
     Imputation { reason: String },
+    #[error(
+        "missing cells cannot be filled: iterative PCA with {components} component(s) needs fewer components than both the features ({features}) and the rows minus one ({rows_less_one}), and leaving residual degrees of freedom; set a lower missing.iterative_pca.components or another missing.method"
+    )]
+    ImputationComponents {
+        components: usize,
+        features: usize,
+        rows_less_one: usize,
+    },
     #[error("cross-validation cannot run: {reason}")]
     CrossValidation { reason: String },
     #[error(

@@ -1703,6 +1703,18 @@ const CASES: &[Case] = &[
         not: &["\u{1b}"],
         ..BAD
     },
+    Case {
+        name: "iterative PCA with more components than the table allows",
+        recipe: Section(
+            "[missing]\nmethod = \"iterative-pca\"\n[missing.iterative_pca]\ncomponents = 3",
+        ),
+        cmd: Cmd::Run,
+        says: &[
+            "iterative PCA with 3 component(s) needs fewer components than both the features (3)",
+            "set a lower missing.iterative_pca.components",
+        ],
+        ..BAD
+    },
     // -----------------------------------------------------------------------
     // Paths: overlaps through links, existing folders, what --replace may remove.
     Case {

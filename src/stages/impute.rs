@@ -100,11 +100,11 @@ pub fn iterative_pca(
     let dof =
         (n * p) as f64 - p as f64 - (n * s) as f64 - (p * s) as f64 + (s * s) as f64 + s as f64;
     if s == 0 || s >= p.min(n.saturating_sub(1)) || dof <= 0.0 {
-        return Err(AnalysisError::Imputation {
-            reason: format!(
-                "iterative PCA with {s} component(s) needs fewer components than both the features ({p}) and the rows minus one ({}); set missing.iterative_pca.components",
-                n.saturating_sub(1)
-            ),
+        let rows_less_one = n.saturating_sub(1);
+        return Err(AnalysisError::ImputationComponents {
+            components: s,
+            features: p,
+            rows_less_one,
         });
     }
     let mut missing: Vec<(usize, usize)> = Vec::new();
