@@ -236,19 +236,19 @@ fn check_pin(
     shown: &str,
     sha256: &str,
 ) -> Result<(), Error> {
-    if let Some((expected, at)) = &input.pin {
-        if expected != sha256 {
-            return Err(RecipeError {
-                file: recipe.path.clone(),
-                at: Some(at.clone()),
-                problem: RecipeProblem::PinMismatch {
-                    path: shown.to_string(),
-                    expected: expected.clone(),
-                    found: sha256.to_string(),
-                },
-            }
-            .into());
+    if let Some((expected, at)) = &input.pin
+        && expected != sha256
+    {
+        return Err(RecipeError {
+            file: recipe.path.clone(),
+            at: Some(at.clone()),
+            problem: RecipeProblem::PinMismatch {
+                path: shown.to_string(),
+                expected: expected.clone(),
+                found: sha256.to_string(),
+            },
         }
+        .into());
     }
     Ok(())
 }
@@ -346,10 +346,10 @@ fn check_keep_bound(prepared: &Prepared, pre: &Preprocessed) -> Result<(), Error
     // decomposition.
     let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
     let bound = if plan.scaling.centers() { n - 1 } else { n }.min(p);
-    if let Keep::Count(k) = plan.components.keep {
-        if k.get() > bound {
-            return Err(keep_error(prepared, pre, k.get(), bound));
-        }
+    if let Keep::Count(k) = plan.components.keep
+        && k.get() > bound
+    {
+        return Err(keep_error(prepared, pre, k.get(), bound));
     }
     Ok(())
 }

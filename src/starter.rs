@@ -228,10 +228,10 @@ fn read(data: &Path) -> Result<Loaded, Error> {
                 best = Some((count, d));
             }
         }
-        if let Some((_, d)) = best {
-            if read_header(&bytes, &display, d).is_ok_and(|h| h.names.len() > 1) {
-                delimiter = d;
-            }
+        if let Some((_, d)) = best
+            && read_header(&bytes, &display, d).is_ok_and(|h| h.names.len() > 1)
+        {
+            delimiter = d;
         }
     }
     let header = read_header(&bytes, &display, delimiter)?;
@@ -1168,21 +1168,21 @@ fn scaling_section(out: &mut String, inspection: &Inspection, rows: usize) {
     let largest = usable
         .iter()
         .max_by(|a, b| a.1.stats.sd.total_cmp(&b.1.stats.sd));
-    if let (Some(lo), Some(hi)) = (smallest, largest) {
-        if usable.len() > 1 {
-            let ratio = hi.1.stats.sd / lo.1.stats.sd;
-            comment(
-                out,
-                &format!(
-                    "Standard deviations of the features range from {} ({}) to {} ({}), a factor of {}.",
-                    sig3(lo.1.stats.sd),
-                    lo.0.name,
-                    sig3(hi.1.stats.sd),
-                    hi.0.name,
-                    sig3(ratio)
-                ),
-            );
-        }
+    if let (Some(lo), Some(hi)) = (smallest, largest)
+        && usable.len() > 1
+    {
+        let ratio = hi.1.stats.sd / lo.1.stats.sd;
+        comment(
+            out,
+            &format!(
+                "Standard deviations of the features range from {} ({}) to {} ({}), a factor of {}.",
+                sig3(lo.1.stats.sd),
+                lo.0.name,
+                sig3(hi.1.stats.sd),
+                hi.0.name,
+                sig3(ratio)
+            ),
+        );
     }
     comment(
         out,

@@ -301,19 +301,19 @@ fn mutate(rng: &mut ChaCha8Rng, doc: &mut Value) {
     paths(doc, &mut Vec::new(), &mut all);
     let path = all[below(rng, all.len())].clone();
     // Deleting a key or an element acts on the parent.
-    if below(rng, 5) == 0 {
-        if let Some((last, parent)) = path.split_last() {
-            match (node(doc, parent), last) {
-                (Value::Object(map), Seg::Key(k)) => {
-                    map.remove(k);
-                }
-                (Value::Array(items), Seg::Index(i)) => {
-                    items.remove(*i);
-                }
-                _ => {}
+    if below(rng, 5) == 0
+        && let Some((last, parent)) = path.split_last()
+    {
+        match (node(doc, parent), last) {
+            (Value::Object(map), Seg::Key(k)) => {
+                map.remove(k);
             }
-            return;
+            (Value::Array(items), Seg::Index(i)) => {
+                items.remove(*i);
+            }
+            _ => {}
         }
+        return;
     }
     let target = node(doc, &path);
     match target {

@@ -258,7 +258,7 @@ fn generated(target: usize, end: &str) -> (Vec<u8>, Vec<u64>) {
         // A fixed sequence with no pattern short enough to line up with pieces.
         let h = i.wrapping_mul(0x9e37_79b9_7f4a_7c15).rotate_left(17);
         let v = (h >> 11) as f64 / (1u64 << 53) as f64 * 2000.0 - 1000.0;
-        if h % 97 == 0 {
+        if h.is_multiple_of(97) {
             text.push_str(end);
             line += 1;
         }
@@ -272,7 +272,7 @@ fn generated(target: usize, end: &str) -> (Vec<u8>, Vec<u64>) {
             1 => "NA".to_string(),
             2 => format!(" {v:e} "),
             3 => format!("\"{v}\""),
-            4 if i % 1001 == 0 => "n/d".to_string(),
+            4 if i.is_multiple_of(1001) => "n/d".to_string(),
             _ => format!("{v}"),
         };
         let (note, breaks) = match (h >> 16) % 7 {

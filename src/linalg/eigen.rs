@@ -455,11 +455,11 @@ pub fn fix_signs(vectors: &mut Matrix) {
             .fold(0.0, f64::max);
         let lead =
             (0..vectors.rows).find(|&i| vectors.get(i, a).abs() >= largest * (1.0 - SIGN_TIE));
-        if let Some(lead) = lead {
-            if vectors.get(lead, a) < 0.0 {
-                for i in 0..vectors.rows {
-                    vectors.set(i, a, -vectors.get(i, a));
-                }
+        if let Some(lead) = lead
+            && vectors.get(lead, a) < 0.0
+        {
+            for i in 0..vectors.rows {
+                vectors.set(i, a, -vectors.get(i, a));
             }
         }
     }

@@ -411,13 +411,13 @@ impl Model {
     /// The id and group columns are read as text, so none may be a feature.
     fn check_roles(&self) -> Result<(), ModelProblem> {
         let is_feature = |n: &str| self.features.iter().any(|f| f.name == n);
-        if let Some(id) = &self.id {
-            if id.is_empty() || is_feature(id) || self.groups.contains(id) {
-                return Err(problem(
-                    "id",
-                    format!("`{id}` is empty, a feature or a group"),
-                ));
-            }
+        if let Some(id) = &self.id
+            && (id.is_empty() || is_feature(id) || self.groups.contains(id))
+        {
+            return Err(problem(
+                "id",
+                format!("`{id}` is empty, a feature or a group"),
+            ));
         }
         for (i, g) in self.groups.iter().enumerate() {
             if g.is_empty() || is_feature(g) || self.groups[..i].contains(g) {

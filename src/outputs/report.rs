@@ -563,7 +563,7 @@ pub fn escape(text: &str) -> String {
 fn with_code(text: &str) -> String {
     let escaped = escape(text);
     let parts: Vec<&str> = escaped.split('`').collect();
-    if parts.len() < 3 || parts.len() % 2 == 0 {
+    if parts.len() < 3 || parts.len().is_multiple_of(2) {
         return escaped;
     }
     let mut out = String::with_capacity(escaped.len() + 32);

@@ -658,7 +658,7 @@ mod tests {
             f64::NEG_INFINITY,
             0.1 + 0.2,
         ];
-        if (i + j) % 7 == 0 {
+        if (i + j).is_multiple_of(7) {
             special[(i / 7 + j) % special.len()]
         } else {
             ((i * 31 + j * 17) as f64).sin() * 10f64.powi((i % 9) as i32 - 4)

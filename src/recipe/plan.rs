@@ -177,17 +177,17 @@ pub fn check_names(recipe: &LoadedRecipe, header: &Header) -> Result<(), RecipeE
             return Err(unknown_column(recipe, name, &header.names, table));
         }
     }
-    if let Some(id) = &input.id {
-        if let Some(g) = input.groups.iter().find(|g| g.get_ref() == id.get_ref()) {
-            return Err(recipe.error_at(
-                g.span(),
-                RecipeProblem::TwoRoles {
-                    name: id.get_ref().clone(),
-                    first: "the id",
-                    second: "a group",
-                },
-            ));
-        }
+    if let Some(id) = &input.id
+        && let Some(g) = input.groups.iter().find(|g| g.get_ref() == id.get_ref())
+    {
+        return Err(recipe.error_at(
+            g.span(),
+            RecipeProblem::TwoRoles {
+                name: id.get_ref().clone(),
+                first: "the id",
+                second: "a group",
+            },
+        ));
     }
     for (i, g) in input.groups.iter().enumerate() {
         if input.groups[..i].iter().any(|e| e.get_ref() == g.get_ref()) {
@@ -428,17 +428,17 @@ fn assign_transforms(
                     continue;
                 }
                 matched = true;
-                if let Some(first) = assigned[i] {
-                    if first != kind {
-                        return Err(recipe.error_at(
-                            pattern.span(),
-                            RecipeProblem::TwoTransforms {
-                                name: f.clone(),
-                                first: first.name(),
-                                second: kind.name(),
-                            },
-                        ));
-                    }
+                if let Some(first) = assigned[i]
+                    && first != kind
+                {
+                    return Err(recipe.error_at(
+                        pattern.span(),
+                        RecipeProblem::TwoTransforms {
+                            name: f.clone(),
+                            first: first.name(),
+                            second: kind.name(),
+                        },
+                    ));
                 }
                 assigned[i] = Some(kind);
             }
@@ -477,16 +477,15 @@ fn components_plan(recipe: &LoadedRecipe) -> Result<ComponentsPlan, RecipeError>
     let compute = c.compute.as_ref().map(|n| n.get_ref().0.get());
     if let (Keep::Count(k), Some(compute), Some(span)) =
         (keep, compute, c.keep.as_ref().map(|k| k.span()))
+        && k.get() > compute
     {
-        if k.get() > compute {
-            return Err(recipe.error_at(
-                span,
-                RecipeProblem::KeepAboveCompute {
-                    keep: k.get(),
-                    compute,
-                },
-            ));
-        }
+        return Err(recipe.error_at(
+            span,
+            RecipeProblem::KeepAboveCompute {
+                keep: k.get(),
+                compute,
+            },
+        ));
     }
     Ok(ComponentsPlan {
         keep,
@@ -517,13 +516,13 @@ pub fn method_plan(recipe: &LoadedRecipe) -> Result<MethodPlan, RecipeError> {
         // recipe is read (`super::applies`).
         DecompositionMethod::Exact => Ok(MethodPlan::Exact),
         DecompositionMethod::Randomized => {
-            if let Some(keep) = &c.keep {
-                if let Some((rule, why)) = whole_spectrum_rule(*keep.get_ref()) {
-                    return Err(recipe.error_at(
-                        keep.span(),
-                        RecipeProblem::RandomizedNeedsCount { rule, why },
-                    ));
-                }
+            if let Some(keep) = &c.keep
+                && let Some((rule, why)) = whole_spectrum_rule(*keep.get_ref())
+            {
+                return Err(recipe.error_at(
+                    keep.span(),
+                    RecipeProblem::RandomizedNeedsCount { rule, why },
+                ));
             }
             if recipe.raw.diagnostics.spe_limit != SpeLimit::Box {
                 let span = c.method.as_ref().map(|m| m.span()).unwrap_or_default();

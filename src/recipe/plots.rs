@@ -90,20 +90,20 @@ fn one_plot(
             }
         }
     }
-    if kind != PlotKind::Loadings {
-        if let Some(c) = &raw.component {
-            return Err(err(c.span(), not_for("component")));
-        }
+    if kind != PlotKind::Loadings
+        && let Some(c) = &raw.component
+    {
+        return Err(err(c.span(), not_for("component")));
     }
-    if !matches!(kind, PlotKind::Scores | PlotKind::Biplot) {
-        if let Some(c) = &raw.color {
-            return Err(err(c.span(), not_for("color")));
-        }
+    if !matches!(kind, PlotKind::Scores | PlotKind::Biplot)
+        && let Some(c) = &raw.color
+    {
+        return Err(err(c.span(), not_for("color")));
     }
-    if kind != PlotKind::Scores {
-        if let Some(e) = &raw.ellipse {
-            return Err(err(e.span(), not_for("ellipse")));
-        }
+    if kind != PlotKind::Scores
+        && let Some(e) = &raw.ellipse
+    {
+        return Err(err(e.span(), not_for("ellipse")));
     }
     if !takes_points {
         if let Some(l) = &raw.labels {

@@ -150,10 +150,10 @@ fn plots_value(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
 pub fn recipe_text(resolved: &Value) -> Result<String, String> {
     let mut value = resolved.clone();
     super::applies::drop_inapplicable(&mut value);
-    if let Some(input) = value.get_mut("input").and_then(Value::as_object_mut) {
-        if input.get("features").is_some_and(Value::is_string) {
-            input.remove("features");
-        }
+    if let Some(input) = value.get_mut("input").and_then(Value::as_object_mut)
+        && input.get("features").is_some_and(Value::is_string)
+    {
+        input.remove("features");
     }
     let toml_value = to_toml(&value).ok_or("the resolved recipe is not a table")?;
     toml::to_string(&toml_value).map_err(|e| e.to_string())

@@ -424,14 +424,13 @@ fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec, newlines: u64) -> Piece
         .any(|m| super::number::plain_decimal(m.as_bytes()).is_some());
     while pos < buf.len() {
         let record_line = line;
-        if plain {
-            if let Some((next, spanned)) =
+        if plain
+            && let Some((next, spanned)) =
                 plain_record(buf, pos, record_line, spec, numeric_tokens, &mut piece)
-            {
-                line += spanned;
-                pos = next;
-                continue;
-            }
+        {
+            line += spanned;
+            pos = next;
+            continue;
         }
         fields.clear();
         let (next, spanned) = match split_record(buf, pos, spec.delimiter, &mut fields) {

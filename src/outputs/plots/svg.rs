@@ -40,7 +40,7 @@ impl Display for N {
             f.write_char('-')?;
         }
         let a = tenths.unsigned_abs();
-        if a % 10 == 0 {
+        if a.is_multiple_of(10) {
             write!(f, "{}", a / 10)
         } else {
             write!(f, "{}.{}", a / 10, a % 10)
