@@ -208,49 +208,17 @@ impl Layout {
 /// with the same rules as [`split_record`]: a quote opens a quoted field only at
 /// the start of a field, and `""` inside one is an escaped quote. Calls `at_end`
 /// with each end and the count of newlines up to it; stops when it returns false.
-fn scan_record_ends(bytes: &[u8], delimiter: u8, mut at_end: impl FnMut(usize, u64) -> bool) {
-    let mut quoted = false;
-    let mut field_start = 0;
-    let mut newlines = 0;
-    let mut skip_next = false;
-    for i in memchr::memchr3_iter(delimiter, b'"', b'\n', bytes) {
-        if skip_next {
-            skip_next = false;
-            continue;
-        }
-        match bytes[i] {
-            b'"' if quoted => {
-                if bytes.get(i + 1) == Some(&b'"') {
-                    skip_next = true;
-                } else {
-                    quoted = false;
-                }
-            }
-            b'"' => quoted = i == field_start,
-            b'\n' => {
-                newlines += 1;
-                if !quoted {
-                    field_start = i + 1;
-                    if !at_end(i + 1, newlines) {
-                        return;
-                    }
-                }
-            }
-            _ if !quoted => field_start = i + 1,
-            _ => {}
-        }
-    }
-}
-
-/// The offset of a quote that opens a field and is never closed, by the rules
-/// that cut records (a quote opens a field only at its start; `""` inside one
-/// is a quote). With `first_record_only`, only the record at the start of
-/// `bytes` is looked at.
-pub fn unclosed_quote(bytes: &[u8], delimiter: u8, first_record_only: bool) -> Option<usize> {
-    memchr::memchr(b'"', bytes)?;
+/// Returns the offset of the quote that opened a field still open when the
+/// bytes ran out (a quote never closed), if one is.
+fn scan_record_ends(
+    bytes: &[u8],
+    delimiter: u8,
+    mut at_end: impl FnMut(usize, u64) -> bool,
+) -> Option<usize> {
     let mut quoted = false;
     let mut opened = 0;
     let mut field_start = 0;
+    let mut newlines = 0;
     let mut skip_next = false;
     for i in memchr::memchr3_iter(delimiter, b'"', b'\n', bytes) {
         if skip_next {
@@ -269,17 +237,28 @@ pub fn unclosed_quote(bytes: &[u8], delimiter: u8, first_record_only: bool) -> O
                 quoted = i == field_start;
                 opened = i;
             }
-            b'\n' if !quoted => {
-                if first_record_only {
-                    return None;
+            b'\n' => {
+                newlines += 1;
+                if !quoted {
+                    field_start = i + 1;
+                    if !at_end(i + 1, newlines) {
+                        return None;
+                    }
                 }
-                field_start = i + 1;
             }
             _ if !quoted => field_start = i + 1,
             _ => {}
         }
     }
     quoted.then_some(opened)
+}
+
+/// The offset of a quote that opens a field and is never closed, by the rules
+/// that cut records. With `first_record_only`, only the record at the start of
+/// `bytes` is looked at.
+pub fn unclosed_quote(bytes: &[u8], delimiter: u8, first_record_only: bool) -> Option<usize> {
+    memchr::memchr(b'"', bytes)?;
+    scan_record_ends(bytes, delimiter, |_, _| !first_record_only)
 }
 
 /// The 1-based line of byte `offset`.
