@@ -42,17 +42,6 @@ fn write_table(path: &Path) {
     fs::write(path, text).unwrap();
 }
 
-/// The hidden entries sextant makes beside a results folder.
-fn hidden_leftovers(dir: &Path) -> Vec<String> {
-    let mut names: Vec<String> = fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .filter(|n| n.contains(".sextant-"))
-        .collect();
-    names.sort();
-    names
-}
-
 fn start(dir: &Path, args: &[&str]) -> Child {
     Command::new(BIN)
         .args(args)
@@ -122,7 +111,7 @@ fn ctrl_c_removes_the_scratch_file_staging_folder_and_lock() {
     let out = child.wait_with_output().unwrap();
     assert_eq!(out.status.code(), Some(130), "{:?}", out);
     assert!(String::from_utf8_lossy(&out.stderr).contains("interrupted"));
-    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert_eq!(common::hidden_entries(dir), Vec::<String>::new());
     assert!(
         !dir.join("out").exists(),
         "no results folder from an interrupted run"
@@ -139,7 +128,7 @@ fn ctrl_c_removes_the_scratch_file_staging_folder_and_lock() {
     );
     let out = child.wait_with_output().unwrap();
     assert_eq!(out.status.code(), Some(130), "{:?}", out);
-    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert_eq!(common::hidden_entries(dir), Vec::<String>::new());
     assert_eq!(
         fs::read(dir.join("out/manifest.json")).unwrap(),
         before,
@@ -163,7 +152,7 @@ fn ctrl_c_during_new_leaves_no_recipe_behind() {
     );
     let out = child.wait_with_output().unwrap();
     assert_eq!(out.status.code(), Some(130), "{:?}", out);
-    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert_eq!(common::hidden_entries(dir), Vec::<String>::new());
     assert!(!dir.join("starter.toml").exists());
 }
 
@@ -204,7 +193,7 @@ fn after_kill_9_the_next_run_removes_what_was_left_and_says_so() {
         "the run ended before its scratch file was seen"
     );
     child.wait().unwrap();
-    let left = hidden_leftovers(dir);
+    let left = common::hidden_entries(dir);
     let scratch: Vec<&String> = left.iter().filter(|n| n.contains("-scratch-")).collect();
     assert!(
         !scratch.is_empty(),
@@ -222,7 +211,7 @@ fn after_kill_9_the_next_run_removes_what_was_left_and_says_so() {
         "{}",
         next.stdout
     );
-    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert_eq!(common::hidden_entries(dir), Vec::<String>::new());
 
     // Killed while writing the results: the staging folder stays; `verify`
     // removes it and the results still verify.
@@ -232,7 +221,7 @@ fn after_kill_9_the_next_run_removes_what_was_left_and_says_so() {
         "the run ended before its staging folder was seen"
     );
     child.wait().unwrap();
-    let left = hidden_leftovers(dir);
+    let left = common::hidden_entries(dir);
     assert!(
         left.iter().any(|n| n.starts_with(".out.sextant-new-")),
         "{left:?}"
@@ -244,10 +233,10 @@ fn after_kill_9_the_next_run_removes_what_was_left_and_says_so() {
         "{}",
         verify.stdout
     );
-    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert_eq!(common::hidden_entries(dir), Vec::<String>::new());
     let next = sextant(dir, &PASSES);
     assert_eq!(next.code, 0, "{}", next.stderr);
-    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert_eq!(common::hidden_entries(dir), Vec::<String>::new());
 }
 
 #[test]
@@ -258,7 +247,7 @@ fn a_second_run_is_refused_while_the_first_holds_the_lock() {
     let mut first = start(dir, &PASSES);
     // The lock is taken before the first scratch file is made.
     let deadline = Instant::now() + Duration::from_secs(60);
-    while !hidden_leftovers(dir)
+    while !common::hidden_entries(dir)
         .iter()
         .any(|n| n.starts_with(".out.sextant-scratch-"))
     {
@@ -283,12 +272,12 @@ fn a_second_run_is_refused_while_the_first_holds_the_lock() {
     );
     // The refused run removed nothing of the first's.
     assert!(
-        hidden_leftovers(dir)
+        common::hidden_entries(dir)
             .iter()
             .any(|n| n.starts_with(".out.sextant-scratch-"))
             || first.try_wait().unwrap().is_some()
     );
     let out = first.wait_with_output().unwrap();
     assert_eq!(out.status.code(), Some(0), "{:?}", out);
-    assert_eq!(hidden_leftovers(dir), Vec::<String>::new());
+    assert_eq!(common::hidden_entries(dir), Vec::<String>::new());
 }

@@ -26,17 +26,6 @@ fn demo_copy() -> tempfile::TempDir {
     dir
 }
 
-/// Hidden names in `dir` that sextant makes.
-fn hidden(dir: &Path) -> Vec<String> {
-    let mut names: Vec<String> = fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .filter(|n| n.contains(".sextant-"))
-        .collect();
-    names.sort();
-    names
-}
-
 /// Regression: a lock file left empty (a full disk while it was written) or
 /// holding anything else blocked every later run until deleted by hand.
 #[test]
@@ -52,7 +41,11 @@ fn a_lock_file_with_empty_or_garbled_text_does_not_block() {
         let out = sextant(dir.path(), &["run", "r.toml"]);
         assert_eq!(out.code, 0, "{:?}: {}", text, out.stderr);
         assert!(dir.path().join("out/manifest.json").exists());
-        assert_eq!(hidden(dir.path()), Vec::<String>::new(), "{text:?}");
+        assert_eq!(
+            common::hidden_entries(dir.path()),
+            Vec::<String>::new(),
+            "{text:?}"
+        );
     }
 }
 
@@ -70,7 +63,7 @@ fn a_lock_naming_a_live_process_that_holds_nothing_does_not_block() {
     .unwrap();
     let out = sextant(dir.path(), &["run", "r.toml"]);
     assert_eq!(out.code, 0, "{}", out.stderr);
-    assert_eq!(hidden(dir.path()), Vec::<String>::new());
+    assert_eq!(common::hidden_entries(dir.path()), Vec::<String>::new());
 }
 
 #[test]
@@ -112,5 +105,5 @@ fn a_held_lock_refuses_the_run_and_names_its_holder() {
     drop(file);
     let out = sextant(dir.path(), &["run", "r.toml"]);
     assert_eq!(out.code, 0, "{}", out.stderr);
-    assert_eq!(hidden(dir.path()), Vec::<String>::new());
+    assert_eq!(common::hidden_entries(dir.path()), Vec::<String>::new());
 }

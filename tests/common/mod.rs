@@ -42,3 +42,16 @@ pub fn sextant(cwd: &Path, args: &[&str]) -> Out {
         stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
     }
 }
+
+/// The hidden entries sextant makes beside a results folder (lock, staging,
+/// earlier results moved aside, scratch files), sorted.
+#[allow(dead_code)] // only the tests of locks and interruptions look
+pub fn hidden_entries(dir: &Path) -> Vec<String> {
+    let mut names: Vec<String> = fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.contains(".sextant-"))
+        .collect();
+    names.sort();
+    names
+}
