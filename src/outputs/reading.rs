@@ -90,7 +90,8 @@ fn open_nonblocking(path: &Path) -> std::io::Result<File> {
     use std::os::unix::fs::OpenOptionsExt;
     fs::OpenOptions::new()
         .read(true)
-        .custom_flags(libc::O_NONBLOCK)
+        // The flag's value from rustix (already a dependency for the commit's exchange).
+        .custom_flags(rustix::fs::OFlags::NONBLOCK.bits() as i32)
         .open(path)
 }
 
