@@ -74,7 +74,7 @@ pub fn load_model(results: &Path) -> Result<(Model, String, Value), Error> {
     let manifest = read_trusted_manifest(results)?;
     let file = match reading::open_regular(
         &results.join("model.json"),
-        &reading::resolved(results),
+        &crate::paths::resolve(results),
         reading::Links::Refuse,
     ) {
         Ok(file) => file,

@@ -81,7 +81,7 @@ pub fn load_side(path: &Path) -> Result<Side, Error> {
 fn read_table_file(folder: &Path, name: &str) -> Result<Vec<u8>, Error> {
     let path = folder.join(name);
     let shown = path.display().to_string();
-    match reading::open_regular(&path, &reading::resolved(folder), Links::Refuse) {
+    match reading::open_regular(&path, &crate::paths::resolve(folder), Links::Refuse) {
         Ok(mut file) => {
             let mut bytes = Vec::new();
             std::io::Read::read_to_end(&mut file, &mut bytes).map_err(|source| InputError::Io {

@@ -96,7 +96,7 @@ fn not_results(folder: &Path, reason: String) -> Error {
 /// by sextant). Its digest is not checked: see [`read_trusted_manifest`].
 pub fn read_manifest(folder: &Path) -> Result<Value, Error> {
     let path = folder.join("manifest.json");
-    let file = match reading::open_regular(&path, &reading::resolved(folder), Links::Refuse) {
+    let file = match reading::open_regular(&path, &crate::paths::resolve(folder), Links::Refuse) {
         Ok(file) => file,
         Err(Unopened::Missing) => {
             return Err(not_results(folder, "there is no manifest.json".into()));
@@ -318,7 +318,7 @@ pub fn verify(folder: &Path, rerun: bool) -> Result<Verification, Error> {
     }
     let scored = manifest.get("model").is_some() && manifest.get("recipe").is_none();
     let outside = outside_files(folder, &manifest, scored);
-    let root = reading::resolved(&outside.root);
+    let root = crate::paths::resolve(&outside.root);
     for (role, shown, at, expected) in outside.files {
         let state = match at {
             _ if !report.digest_ok => FileState::NotChecked,
@@ -331,7 +331,7 @@ pub fn verify(folder: &Path, rerun: bool) -> Result<Verification, Error> {
             state,
         });
     }
-    let inside = reading::resolved(folder);
+    let inside = crate::paths::resolve(folder);
     let mut named = BTreeSet::new();
     for output in manifest["outputs"].as_array().into_iter().flatten() {
         let name = text(output, "path");
@@ -503,7 +503,7 @@ fn rerun_and_compare(
 fn read_output(folder: &Path, name: &str, expected: u64) -> Vec<u8> {
     reading::open_regular(
         &folder.join(name),
-        &reading::resolved(folder),
+        &crate::paths::resolve(folder),
         Links::Refuse,
     )
     .ok()

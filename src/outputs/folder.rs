@@ -62,11 +62,6 @@ impl Staging {
         })
     }
 
-    /// The staging folder's path.
-    pub fn path(&self) -> &Path {
-        self.dir.path()
-    }
-
     /// Writes one file (a relative path); may be called from several threads.
     /// It is flushed to disk by [`Staging::commit`].
     pub fn write(&self, name: &str, bytes: &[u8]) -> Result<(), OutputError> {

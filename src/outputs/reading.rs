@@ -12,7 +12,7 @@ use super::hashing::hex;
 use sha2::{Digest, Sha256};
 use std::fs::{self, File};
 use std::io::Read;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 /// Why a file was not opened.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -33,14 +33,8 @@ pub enum Links {
     FollowInside,
 }
 
-/// The folder as the file system resolves it (links followed), for
-/// [`open_regular`]; the lexical absolute path when it cannot be resolved.
-pub fn resolved(folder: &Path) -> PathBuf {
-    fs::canonicalize(folder).unwrap_or_else(|_| crate::paths::normalize(folder))
-}
-
 /// Opens `path` for reading if it is a regular file whose resolved path lies
-/// inside `within` (already [`resolved`]).
+/// inside `within` (already resolved: [`crate::paths::resolve`]).
 pub fn open_regular(path: &Path, within: &Path, links: Links) -> Result<File, Unopened> {
     let refused = |why: String| Err(Unopened::Refused(why));
     let look = match fs::symlink_metadata(path) {
@@ -148,7 +142,7 @@ mod tests {
     #[test]
     fn links_devices_and_folders_are_refused() {
         let dir = tempfile::tempdir().unwrap();
-        let within = resolved(dir.path());
+        let within = crate::paths::resolve(dir.path());
         fs::write(dir.path().join("a.csv"), "x").unwrap();
         std::os::unix::fs::symlink(dir.path().join("a.csv"), dir.path().join("in")).unwrap();
         std::os::unix::fs::symlink("/dev/zero", dir.path().join("zero")).unwrap();
