@@ -57,6 +57,21 @@ pub fn register(path: &Path) -> Registration {
     Registration(id)
 }
 
+/// Creates a file or folder with `make` and registers the path `path_of`
+/// gives, with the registry held throughout: a signal cannot come between the
+/// creation and the registration and leave the new entry behind.
+pub fn create_registered<T, E>(
+    make: impl FnOnce() -> Result<T, E>,
+    path_of: impl FnOnce(&T) -> &Path,
+) -> Result<(T, Registration), E> {
+    let mut registry = registry();
+    let made = make()?;
+    let id = registry.next;
+    registry.next += 1;
+    registry.paths.push((id, path_of(&made).to_path_buf()));
+    Ok((made, Registration(id)))
+}
+
 /// Holds off the handler while a few file-system steps that must not be cut
 /// in half run (moving results into place).
 pub fn hold() -> impl Drop {

@@ -105,8 +105,11 @@ pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), OutputError> {
         Some(p) if !p.as_os_str().is_empty() => p,
         _ => Path::new("."),
     };
-    let mut tmp = tempfile::NamedTempFile::new_in(dir).map_err(|e| OutputError::io(dir, e))?;
-    let _on_signal = crate::cleanup::register(tmp.path());
+    let (mut tmp, _on_signal) = crate::cleanup::create_registered(
+        || tempfile::NamedTempFile::new_in(dir),
+        |tmp| tmp.path(),
+    )
+    .map_err(|e| OutputError::io(dir, e))?;
     std::io::Write::write_all(&mut tmp, bytes).map_err(|e| OutputError::io(path, e))?;
     if let Ok(old) = std::fs::metadata(path) {
         keep_owner(tmp.path(), &old);

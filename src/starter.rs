@@ -1242,9 +1242,10 @@ fn write_checked(target: &Path, dir: &Path, bytes: &[u8], force: bool) -> Result
         // Like any new file: read-write for all, less what the umask takes away.
         builder.permissions(std::fs::Permissions::from_mode(0o666));
     }
-    let mut file = builder.tempfile_in(dir).map_err(io)?;
     // Checking the recipe reads the whole table: an interruption removes it.
-    let _on_signal = crate::cleanup::register(file.path());
+    let (mut file, _on_signal) =
+        crate::cleanup::create_registered(|| builder.tempfile_in(dir), |file| file.path())
+            .map_err(io)?;
     file.write_all(bytes).map_err(io)?;
     file.as_file().sync_all().map_err(io)?;
 

@@ -445,10 +445,12 @@ fn rerun_and_compare(
     let (_, _, computed) = compute(&prepared)?;
     report.rerun_done = true;
 
-    let scratch = tempfile::Builder::new()
-        .prefix("sextant-rerun-")
-        .tempdir()
-        .map_err(|e| crate::error::OutputError::io(&std::env::temp_dir(), e))?;
+    // An interruption removes the rerun's files too.
+    let (scratch, _on_signal) = crate::cleanup::create_registered(
+        || tempfile::Builder::new().prefix("sextant-rerun-").tempdir(),
+        |dir| dir.path(),
+    )
+    .map_err(|e| crate::error::OutputError::io(&std::env::temp_dir(), e))?;
     for (name, bytes) in &computed.files {
         let path = scratch.path().join(name);
         if let Some(dir) = path.parent() {

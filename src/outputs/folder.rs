@@ -50,12 +50,17 @@ impl Staging {
     pub fn new(target: &Path) -> Result<Staging, OutputError> {
         let parent = debris::parent_of(target);
         fs::create_dir_all(&parent).map_err(|e| OutputError::io(&parent, e))?;
-        let dir = tempfile::Builder::new()
-            .prefix(&debris::prefix(target, Kind::New))
-            .tempdir_in(&parent)
-            .map_err(|e| OutputError::io(&parent, e))?;
+        let (dir, registered) = crate::cleanup::create_registered(
+            || {
+                tempfile::Builder::new()
+                    .prefix(&debris::prefix(target, Kind::New))
+                    .tempdir_in(&parent)
+            },
+            |dir| dir.path(),
+        )
+        .map_err(|e| OutputError::io(&parent, e))?;
         Ok(Staging {
-            registered: crate::cleanup::register(dir.path()),
+            registered,
             dir,
             target: target.to_path_buf(),
             parent,
@@ -65,20 +70,34 @@ impl Staging {
     /// Writes one file (a relative path); may be called from several threads.
     /// It is flushed to disk by [`Staging::commit`].
     pub fn write(&self, name: &str, bytes: &[u8]) -> Result<(), OutputError> {
-        let path = self.dir.path().join(name);
-        if let Some(dir) = path.parent() {
-            fs::create_dir_all(dir).map_err(|e| OutputError::io(dir, e))?;
-        }
+        let path = self.subfolders_of(name)?;
         fs::write(&path, bytes).map_err(|e| OutputError::io(&path, e))
+    }
+
+    /// The path of `name` in the staging folder, with its subfolders made.
+    /// Only the folders below the staging folder are made, never the staging
+    /// folder itself: once a signal has removed it, a writer still running
+    /// fails instead of making it again.
+    fn subfolders_of(&self, name: &str) -> Result<PathBuf, OutputError> {
+        let root = self.dir.path();
+        let path = root.join(name);
+        let mut dir = root.to_path_buf();
+        let relative = Path::new(name);
+        for part in relative.parent().into_iter().flat_map(Path::components) {
+            dir.push(part);
+            match fs::create_dir(&dir) {
+                Ok(()) => {}
+                Err(e) if e.kind() == io::ErrorKind::AlreadyExists && dir.is_dir() => {}
+                Err(e) => return Err(OutputError::io(&dir, e)),
+            }
+        }
+        Ok(path)
     }
 
     /// Creates one file (a relative path) to be written by the caller; it is
     /// flushed to disk by [`Staging::commit`].
     pub fn create(&self, name: &str) -> Result<(PathBuf, fs::File), OutputError> {
-        let path = self.dir.path().join(name);
-        if let Some(dir) = path.parent() {
-            fs::create_dir_all(dir).map_err(|e| OutputError::io(dir, e))?;
-        }
+        let path = self.subfolders_of(name)?;
         let file = fs::File::create(&path).map_err(|e| OutputError::io(&path, e))?;
         Ok((path, file))
     }
@@ -378,5 +397,25 @@ impl FaultPlan {
             Path::new("a commit step"),
             io::Error::other(INJECTED),
         )))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Regression: after a signal had removed the staging folder, a writer
+    /// thread still running made it again (with `create_dir_all`), and the
+    /// interrupted run left it behind.
+    #[test]
+    fn a_removed_staging_folder_is_not_made_again_by_a_writer() {
+        let ws = tempfile::tempdir().unwrap();
+        let staging = Staging::new(&ws.path().join("out")).unwrap();
+        staging.write("plots/a.svg", b"<svg/>").unwrap();
+        assert!(staging.dir.path().join("plots/a.svg").is_file());
+        fs::remove_dir_all(staging.dir.path()).unwrap();
+        assert!(staging.write("plots/b.svg", b"<svg/>").is_err());
+        assert!(staging.create("tables/c.csv").is_err());
+        assert!(!staging.dir.path().exists());
     }
 }

@@ -133,11 +133,13 @@ fn take(folder: &Path, path: &Path, created: Vec<PathBuf>) -> Result<Taken, Outp
         if !super::debris::names(&file, path) {
             continue;
         }
+        // Ours from here: an interruption removes it.
+        let registered = crate::cleanup::register(path);
         // Only informational: a full disk must not stop a run that holds the lock.
         let _ = describe_holder(&mut file);
         let notes = super::debris::sweep(folder);
         return Ok(Taken::Held(FolderLock {
-            _registered: crate::cleanup::register(path),
+            _registered: registered,
             _held: file,
             path: path.to_path_buf(),
             created,

@@ -124,10 +124,17 @@ impl Store {
             return Ok(());
         }
         if self.spill.is_none() {
-            let file =
-                crate::outputs::debris::scratch_file(owner, crate::outputs::debris::Kind::Scratch)?;
+            let (file, registered) = crate::cleanup::create_registered(
+                || {
+                    crate::outputs::debris::scratch_file(
+                        owner,
+                        crate::outputs::debris::Kind::Scratch,
+                    )
+                },
+                |file| file.path(),
+            )?;
             let mut spill = Spill {
-                _registered: crate::cleanup::register(file.path()),
+                _registered: registered,
                 file,
                 chunks: Vec::new(),
                 end: 0,

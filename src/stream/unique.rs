@@ -146,12 +146,17 @@ impl IdCheck {
         }
         self.sort();
         if self.spill.is_none() {
-            let file = crate::outputs::debris::scratch_file(
-                &self.scratch,
-                crate::outputs::debris::Kind::Ids,
+            let (file, registered) = crate::cleanup::create_registered(
+                || {
+                    crate::outputs::debris::scratch_file(
+                        &self.scratch,
+                        crate::outputs::debris::Kind::Ids,
+                    )
+                },
+                |file| file.path(),
             )?;
             self.spill = Some(Spill {
-                _registered: crate::cleanup::register(file.path()),
+                _registered: registered,
                 file,
                 starts: Vec::new(),
                 end: 0,
