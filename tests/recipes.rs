@@ -216,3 +216,46 @@ fn demo_results_match_the_summary() {
         "row,sample,farm,season,PC1,PC2,T2,SPE,T2_above_95,SPE_above_95,T2_above_99,SPE_above_99\n"
     ));
 }
+
+/// The recipe printed in README.md ("The recipe", the demo shortened) is run as
+/// written: it must stay a valid recipe, and since it only leaves out figures,
+/// notes and comments, its tables must equal those of recipes/dairy-march.toml.
+#[test]
+fn the_readme_recipe_runs_and_matches_the_demo() {
+    let readme = fs::read_to_string(repo().join("README.md")).unwrap();
+    let start = readme
+        .find("```toml\n")
+        .expect("README.md shows a recipe in a ```toml block");
+    let body = &readme[start + "```toml\n".len()..];
+    let text = &body[..body.find("```").expect("the block is closed")];
+    assert!(
+        text.contains("[output]"),
+        "the README block is a whole recipe"
+    );
+
+    let ws = workspace();
+    let dir = ws.path();
+    let readme_recipe = dir.join("recipes/readme-example.toml");
+    fs::write(
+        &readme_recipe,
+        text.replace("results/dairy-march", "results/readme"),
+    )
+    .unwrap();
+    let (code, _, stderr) = sextant(&["run", "recipes/readme-example.toml"], dir);
+    assert_eq!(code, 0, "the README's recipe fails:\n{stderr}");
+    let (code, _, stderr) = sextant(&["run", "recipes/dairy-march.toml"], dir);
+    assert_eq!(code, 0, "{stderr}");
+    for table in [
+        "scores.csv",
+        "loadings.csv",
+        "variance.csv",
+        "preprocessing.csv",
+    ] {
+        let shown = fs::read(dir.join("results/readme").join(table)).unwrap();
+        let demo = fs::read(dir.join("results/dairy-march").join(table)).unwrap();
+        assert!(
+            shown == demo,
+            "{table} of the README's recipe differs from the demo recipe's: update one or the other"
+        );
+    }
+}

@@ -139,9 +139,10 @@ fn table(v: &Value) -> Vec<Vec<f64>> {
         .collect()
 }
 
-/// `err ≤ limit`, written so that a NaN error fails.
+/// `err ≤ limit`, written so that a NaN error fails; an infinite error or
+/// limit fails too (a non-finite value met on either side is never a match).
 fn passes(err: f64, limit: f64) -> bool {
-    err <= limit
+    err.is_finite() && limit.is_finite() && err <= limit
 }
 
 /// Collects every mismatch of a test and reports them all at once, with numbers.
@@ -185,6 +186,12 @@ impl Check {
     /// `got` must print as `printed` when rounded to the same number of decimals.
     fn printed(&mut self, what: &str, got: f64, printed: &str) {
         self.compared += 1;
+        if !got.is_finite() {
+            self.failures.push(format!(
+                "{what}: got {got}, not finite; published {printed}"
+            ));
+            return;
+        }
         let decimals = printed.split('.').nth(1).map_or(0, str::len);
         let shown = format!("{got:.decimals$}");
         if shown != printed {
@@ -904,4 +911,43 @@ fn wine_unscaled_pc1_takes_almost_all_variance() {
     // Library (same notes, 8 decimals): correlation PC1 share 0.36198848.
     c.printed("wine correlation PC1 share", share(&corr), "0.36198848");
     c.finish("wine_scaling");
+}
+
+// The collector itself must be able to fail: a check that compared nothing, or
+// met a non-finite value, would otherwise pass without proving anything.
+
+#[test]
+#[should_panic(expected = "nothing compared")]
+fn a_check_that_compared_nothing_fails() {
+    Check::default().finish("empty");
+}
+
+#[test]
+#[should_panic(expected = "comparisons failed")]
+fn a_check_that_met_nan_fails() {
+    let mut check = Check::default();
+    check.relative("NaN against 1", f64::NAN, 1.0, 1e-9);
+    check.finish("nan");
+}
+
+#[test]
+#[should_panic(expected = "comparisons failed")]
+fn a_check_that_met_infinity_fails() {
+    let mut check = Check::default();
+    check.entry(
+        "infinity against infinity",
+        f64::INFINITY,
+        f64::INFINITY,
+        1e-9,
+    );
+    check.within("an infinite error", f64::INFINITY, f64::INFINITY);
+    check.finish("infinite");
+}
+
+#[test]
+#[should_panic(expected = "comparisons failed")]
+fn a_check_that_met_nan_in_a_printed_table_fails() {
+    let mut check = Check::default();
+    check.printed("NaN against 1.0", f64::NAN, "1.0");
+    check.finish("printed nan");
 }

@@ -29,6 +29,8 @@ struct Check {
     /// The largest error as a share of its tolerance (1 = at the limit).
     worst_share: f64,
     failures: Vec<String>,
+    /// How many values were compared: a check that compared nothing fails.
+    compared: usize,
 }
 
 impl Check {
@@ -39,10 +41,18 @@ impl Check {
             worst_at: String::new(),
             worst_share: 0.0,
             failures: Vec::new(),
+            compared: 0,
         }
     }
 
     fn close(&mut self, what: String, got: f64, expected: f64, tolerance: f64) {
+        self.compared += 1;
+        if !got.is_finite() || !expected.is_finite() {
+            self.failures.push(format!(
+                "{what}: got {got}, expected {expected}: not finite"
+            ));
+            return;
+        }
         let r = rel(got, expected);
         if r > self.worst || r.is_nan() {
             self.worst = r;
@@ -58,6 +68,13 @@ impl Check {
 
     /// `got` rounded to the printed number of decimals must equal the printed text.
     fn printed(&mut self, what: String, got: f64, printed: &str) {
+        self.compared += 1;
+        if !got.is_finite() {
+            self.failures.push(format!(
+                "{what}: got {got}, not finite; table says {printed}"
+            ));
+            return;
+        }
         let decimals = printed.split('.').nth(1).map_or(0, str::len);
         let shown = format!("{got:.decimals$}");
         if shown != printed {
@@ -68,6 +85,7 @@ impl Check {
     }
 
     fn finish(self) {
+        assert!(self.compared > 0, "{}: nothing compared", self.name);
         if !self.worst_at.is_empty() {
             println!(
                 "{}: worst relative error {:.2e} at {}; largest error/tolerance {:.2}",
@@ -1496,4 +1514,29 @@ fn results_are_bit_identical_to_the_recorded_ones() {
         }
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
+}
+
+// The collector itself must be able to fail: a check that compared nothing, or
+// met a non-finite value, would otherwise pass without proving anything.
+
+#[test]
+#[should_panic(expected = "nothing compared")]
+fn a_check_that_compared_nothing_fails() {
+    Check::new("empty").finish();
+}
+
+#[test]
+#[should_panic(expected = "not finite")]
+fn a_check_that_met_nan_fails() {
+    let mut check = Check::new("nan");
+    check.close("NaN against 1".into(), f64::NAN, 1.0, 1e-3);
+    check.finish();
+}
+
+#[test]
+#[should_panic(expected = "not finite")]
+fn a_check_that_met_infinity_in_a_printed_table_fails() {
+    let mut check = Check::new("infinite");
+    check.printed("inf against 1.0".into(), f64::INFINITY, "1.0");
+    check.finish();
 }
