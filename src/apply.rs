@@ -580,11 +580,11 @@ fn range_notes(model: &Model, data: &FeatureData) -> Vec<String> {
                 "`{}`: {} value(s) far outside the analysed range [{}, {}]{}, first at line {} ({}); is it in another unit?",
                 f.name,
                 far.len(),
-                tables::number(f.min),
-                tables::number(f.max),
+                crate::text::number(f.min),
+                crate::text::number(f.max),
                 f.transform.as_deref().map_or(String::new(), |t| format!(" (after {t})")),
                 data.lines[first],
-                tables::number(column.values[first])
+                crate::text::number(column.values[first])
             ));
         }
     }

@@ -2,7 +2,7 @@
 
 use crate::error::Error;
 use crate::run::{self, Prepared, Preprocessed, RunOptions, RunSummary};
-use crate::stages::select::pct;
+use crate::text::percent_figure;
 use clap::{Parser, Subcommand};
 use std::fmt::Write;
 use std::path::PathBuf;
@@ -302,7 +302,7 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
                 "  dropped  {}: {} missing ({} %), {why}",
                 f.feature,
                 f.missing,
-                pct(f.share)
+                percent_figure(f.share)
             );
         }
     }
@@ -369,7 +369,7 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
             "  {:<24} {:>5} missing ({} %)",
             f.feature,
             f.missing,
-            pct(f.share)
+            percent_figure(f.share)
         );
     }
     if !pre.transforms.is_empty() {
@@ -412,7 +412,7 @@ pub fn describe_run(s: &RunSummary) -> String {
         "components {} kept of {} computed, {} % of the variance ({}: {})",
         sel.kept,
         sel.computed,
-        pct(kept),
+        percent_figure(kept),
         sel.rule,
         sel.reason
     );

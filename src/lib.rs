@@ -24,5 +24,6 @@ pub mod starter;
 pub mod stats;
 pub mod stream;
 pub mod table;
+pub mod text;
 pub mod timing;
 pub mod verify;

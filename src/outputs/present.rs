@@ -5,7 +5,7 @@ use super::view::{Evidence, FlaggedLine, PlotView, ReportView, Scores3d, Varianc
 use crate::recipe::raw::Keep;
 use crate::run::{Analysis, Prepared, Preprocessed};
 use crate::stages::diagnose::contributions;
-use crate::stages::select::pct;
+use crate::text::percent_figure as pct;
 use rayon::prelude::*;
 use std::sync::Arc;
 

@@ -14,6 +14,7 @@ use crate::stages::diagnose::Diagnostics;
 use crate::stages::missing::MissingReport;
 use crate::stages::scale::ScaleReport;
 use crate::stages::select::{Selection, bartlett_rest};
+use crate::text::{number, number_in};
 use rayon::prelude::*;
 use std::fmt::Write as _;
 use std::io;
@@ -22,20 +23,6 @@ use std::io;
 /// table is cut never depends on the number of threads (not that the bytes
 /// could: each block is plain text joined in order).
 pub const BLOCK_ROWS: usize = 8192;
-
-/// A number as the shortest round-trip text; negative zero is written as 0.
-pub fn number(v: f64) -> String {
-    number_in(&mut ryu::Buffer::new(), v).to_string()
-}
-
-/// The text of [`number`], written into a reusable buffer instead of a new string.
-fn number_in(buffer: &mut ryu::Buffer, v: f64) -> &str {
-    if v == 0.0 {
-        return "0";
-    }
-    let s = buffer.format(v);
-    s.strip_suffix(".0").unwrap_or(s)
-}
 
 /// Builds CSV bytes with the `csv` crate, which quotes names that need it.
 struct CsvOut(csv::Writer<Vec<u8>>);
@@ -499,16 +486,6 @@ mod tests {
     use crate::rows::CellIn;
     use crate::stages::diagnose::{Limits, with_limits};
     use crate::stages::missing::FilledCell;
-
-    #[test]
-    fn numbers_round_trip_and_are_short() {
-        assert_eq!(number(1.0), "1");
-        assert_eq!(number(-0.0), "0");
-        assert_eq!(number(0.1), "0.1");
-        assert_eq!(number(1e-7), "1e-7");
-        let v = 0.1 + 0.2;
-        assert_eq!(number(v).parse::<f64>().unwrap(), v);
-    }
 
     /// The serial writer the parallel ones replaced, kept as their reference.
     fn scores_csv_serial(

@@ -16,7 +16,6 @@ use super::store::{Chunk, Store};
 use crate::error::{Error, InputError};
 use crate::linalg::SUM_START;
 use crate::linalg::crossprod::{GramAccumulator, row_times};
-use crate::outputs::tables::number;
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::{ConstantPolicy, MissingMethod};
 use crate::run::{Analysis, Prepared, Preprocessed, rows_needing_values};
@@ -26,6 +25,7 @@ use crate::stages::missing::{FeatureMissing, FillModel, MissingReport};
 use crate::stages::scale::{FeatureScale, ScaleReport, Scaled, check_finite};
 use crate::stages::select::{Evidence, select};
 use crate::stages::transform::{Applied, domain_error, transform_value};
+use crate::text::number;
 use rayon::prelude::*;
 
 /// How each analysed feature is read from the store and brought to the scale

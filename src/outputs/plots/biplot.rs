@@ -10,10 +10,11 @@ use super::circle::draw_arrows;
 use super::frame::{self, Extent, Frame, Step};
 use super::scatter::{self, Colour, Groups, Legend, Selection};
 use super::svg::{self, NEUTRAL};
-use super::{LEGEND_X, equal_axes, scatter_layout, title, words_number};
+use super::{LEGEND_X, equal_axes, scatter_layout, title};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
 use crate::rows::Batch;
+use crate::text::significant_plain;
 use std::fmt::Write;
 
 /// Arrow colour.
@@ -153,7 +154,10 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
         legend.marker("#FFFFFF", svg::Shape::Circle, true, "above a limit");
     }
     legend.rule(ARROW, None, 1.2, "feature: loading × √λ");
-    legend.note(&format!("arrows drawn × {}", words_number(p.stretch, 3)));
+    legend.note(&format!(
+        "arrows drawn × {}",
+        significant_plain(p.stretch, 3)
+    ));
     legend.gap();
     if let Some((classes, colours)) = &density {
         legend.density(classes, colours);
@@ -168,9 +172,9 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
         "{}. A biplot (Gabriel 1971) of PC{} ({}) and PC{} ({}) in the covariance form: each point is a row's scores divided by √λ of the component (so both axes have unit variance), and each arrow is a feature's loadings multiplied by √λ",
         title(plan, view),
         plan.x,
-        super::percent(view.share(a)),
+        crate::text::percent_or_undefined(view.share(a)),
         plan.y,
-        super::percent(view.share(b)),
+        crate::text::percent_or_undefined(view.share(b)),
     );
     if view.scaling == "unit-variance" {
         s.push_str(
@@ -180,8 +184,8 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
     let _ = write!(
         s,
         ", all arrows stretched by the common factor {} so they can be read against the points. One data unit has the same length on both axes. Angles between arrows approximate the correlations between features, and a point's projection onto an arrow approximates that feature's scaled value (times {}).",
-        words_number(p.stretch, 3),
-        words_number(p.stretch, 3),
+        significant_plain(p.stretch, 3),
+        significant_plain(p.stretch, 3),
     );
     if p.root.0 == 1.0 && view.eigenvalues[a] != 1.0
         || p.root.1 == 1.0 && view.eigenvalues[b] != 1.0

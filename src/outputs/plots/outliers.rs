@@ -10,11 +10,12 @@
 use super::frame::{self, Axis, Extent, Frame};
 use super::scatter::{self, Colour, Groups, Legend, Selection};
 use super::svg::{self, MUTED, NEUTRAL, Shape};
-use super::{LEGEND_X, scatter_layout, title, words_number};
+use super::{LEGEND_X, scatter_layout, title};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
 use crate::recipe::raw::PointLabels;
 use crate::rows::Batch;
+use crate::text::significant_plain;
 use std::fmt::Write;
 
 /// Colours and shapes of the four kinds of rows (Okabe & Ito colours).
@@ -216,7 +217,7 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
     }
     // The limits.
     let rule = format!("stroke=\"{MUTED}\" stroke-width=\"1.2\" stroke-dasharray=\"6 4\"");
-    let level = super::percent(view.confidence);
+    let level = crate::text::percent_or_undefined(view.confidence);
     body.push_str("<g class=\"limits\">\n");
     if let Some(l) = lx {
         let x = panel.px(l);
@@ -259,11 +260,11 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
     legend.heading(&format!("limits at {level}"));
     legend.rule(MUTED, Some("6 4"), 1.2, "limit");
     match view.t2_limit {
-        Some(l) => legend.note(&format!("T²: {}", words_number(l, 4))),
+        Some(l) => legend.note(&format!("T²: {}", significant_plain(l, 4))),
         None => legend.note("T²: not defined"),
     }
     match view.spe_limit {
-        Some(l) => legend.note(&format!("SPE: {}", words_number(l, 4))),
+        Some(l) => legend.note(&format!("SPE: {}", significant_plain(l, 4))),
         None => legend.note("SPE: not defined"),
     }
     if let Some((classes, colours)) = &density {
@@ -322,7 +323,7 @@ fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared) {
 }
 
 fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
-    let level = super::percent(view.confidence);
+    let level = crate::text::percent_or_undefined(view.confidence);
     let mut s = format!(
         "{}. Each row's Hotelling T² (distance within the model of {} kept components, horizontal) against its squared prediction error SPE (distance from the model, vertical).",
         title(plan, view),
@@ -333,7 +334,7 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
             let _ = write!(
                 s,
                 " The dashed vertical line is the T² limit at {level} ({}).",
-                words_number(l, 4)
+                significant_plain(l, 4)
             );
         }
         None => {
@@ -348,7 +349,7 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
             let _ = write!(
                 s,
                 " The dashed horizontal line is the SPE limit at {level} ({}).",
-                words_number(l, 4)
+                significant_plain(l, 4)
             );
         }
         None => {
