@@ -48,7 +48,7 @@ pub struct Prepared {
 /// The numbers of a table read for the passes engine.
 pub struct PassData {
     /// Behind a lock because the first pass transforms the values in place.
-    pub store: std::sync::Mutex<crate::stream::store::Store>,
+    pub store: std::sync::Mutex<crate::store::Store>,
     /// The table column of each store column.
     pub numeric: Vec<usize>,
     /// The table column of each of the store's texts.
@@ -609,7 +609,7 @@ pub fn scratch_dir(plan: &Plan) -> std::path::PathBuf {
 }
 
 fn scratch_dir_of(output: &Path) -> std::path::PathBuf {
-    crate::outputs::debris::parent_of(output)
+    crate::scratch::parent_of(output)
 }
 
 /// How many of the most unusual rows the outputs list: contributions.csv's

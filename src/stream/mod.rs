@@ -1,6 +1,6 @@
 //! The passes engine: the analysis of a large table without holding it as a
 //! matrix. The file is read once, in chunks (hashed and parsed at the same
-//! time); its numbers go to a [`store::Store`] that stays in memory while it fits
+//! time); its numbers go to a [`crate::store::Store`] that stays in memory while it fits
 //! the memory budget and otherwise lives in a scratch file; then each statistic
 //! is computed in a pass over the store (see [`passes`]).
 //!
@@ -17,8 +17,9 @@
 
 pub mod ingest;
 pub mod passes;
-pub mod store;
 pub mod unique;
+
+use crate::store;
 
 use crate::recipe::raw::{DecompositionMethod, Keep, MissingMethod, RawRecipe, ScalingMethod};
 

@@ -12,7 +12,7 @@
 //! 5. scores, T² and SPE, row by row;
 //! 6. the scaled values of the rows whose contributions are reported.
 
-use super::store::{Chunk, Store};
+use crate::store::{Chunk, Store};
 use crate::error::{Error, InputError};
 use crate::linalg::SUM_START;
 use crate::linalg::crossprod::{GramAccumulator, row_times};

@@ -148,9 +148,9 @@ impl IdCheck {
         if self.spill.is_none() {
             let (file, registered) = crate::cleanup::create_registered(
                 || {
-                    crate::outputs::debris::scratch_file(
+                    crate::scratch::scratch_file(
                         &self.scratch,
-                        crate::outputs::debris::Kind::Ids,
+                        crate::scratch::Kind::Ids,
                     )
                 },
                 |file| file.path(),

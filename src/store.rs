@@ -1,7 +1,9 @@
-//! Where the passes engine keeps rows between passes: the table's numbers (with
-//! its text cells and line numbers), and later the rows' results. In memory
-//! while they fit the memory budget, otherwise in a scratch file beside the
-//! results folder that each pass reads back in order.
+//! The row store: where the passes engine keeps rows between passes (the
+//! table's numbers, with its text cells and line numbers) and where every
+//! analysed row's results are kept (`rows`). In memory while they fit the
+//! memory budget, otherwise in a scratch file beside the results folder that
+//! each pass reads back in order. At the bottom of the crate, so that both use
+//! it without either importing the other.
 
 use std::fs::File;
 use std::io::{self, Read, Seek, SeekFrom, Write};
@@ -126,9 +128,9 @@ impl Store {
         if self.spill.is_none() {
             let (file, registered) = crate::cleanup::create_registered(
                 || {
-                    crate::outputs::debris::scratch_file(
+                    crate::scratch::scratch_file(
                         owner,
-                        crate::outputs::debris::Kind::Scratch,
+                        crate::scratch::Kind::Scratch,
                     )
                 },
                 |file| file.path(),
