@@ -411,11 +411,11 @@ pub fn score(
     );
     let mut chosen = diagnostics.most_unusual(max_rows);
     chosen.sort_unstable();
-    let mut details = crate::run::row_details(&rows, k, &chosen)?;
+    let mut details = crate::analysis::row_details(&rows, k, &chosen)?;
     for (&i, row) in &mut details {
         row.z = z.row(i).to_vec();
     }
-    let flagged: Vec<(&crate::run::RowDetail, Vec<(f64, f64)>)> = details
+    let flagged: Vec<(&crate::analysis::RowDetail, Vec<(f64, f64)>)> = details
         .values()
         .map(|d| {
             (

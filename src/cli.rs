@@ -1,7 +1,8 @@
 //! The command line: commands, options and what each prints.
 
+use crate::analysis::{Prepared, Preprocessed, matrix_name};
 use crate::error::Error;
-use crate::run::{self, Prepared, Preprocessed, RunOptions, RunSummary};
+use crate::run::{self, RunOptions, RunSummary};
 use crate::text::percent_figure;
 use clap::{Parser, Subcommand};
 use std::fmt::Write;
@@ -384,7 +385,7 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
         out,
         "scaling    {} ({} matrix)",
         plan.scaling.name(),
-        run::matrix_name(plan)
+        matrix_name(plan)
     );
 }
 

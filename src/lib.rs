@@ -6,6 +6,7 @@
 //! scale, decompose, select) → [`outputs`]. [`run`] is the only module that reads
 //! or writes files during a run.
 
+pub mod analysis;
 pub mod apply;
 pub mod cleanup;
 pub mod cli;

@@ -1,11 +1,15 @@
 //! The one orchestrator: it reads the recipe and the input, runs the stages in
 //! order, and writes the results folder. All file I/O of a run happens here.
 
+use crate::analysis::{
+    Analysis, InputRecord, PassData, Prepared, Preprocessed, RowDetail, column_squares,
+    diagnostics_for, keep_error, loadings_wanted, matrix_name, row_details, rows_needing_values,
+    scores_between, scratch_dir, texts_of,
+};
 use crate::error::{Error, InputError, RecipeError, RecipeProblem};
-use crate::linalg::Matrix;
 use crate::outputs::folder::Staging;
 use crate::outputs::hashing::sha256_hex;
-use crate::outputs::manifest::{self, FileRecord, InputRecord, ManifestBody, RunInfo};
+use crate::outputs::manifest::{self, FileRecord, ManifestBody, RunInfo};
 use crate::outputs::replace::check_replaceable;
 use crate::outputs::tables;
 use crate::recipe::plan::MethodPlan;
@@ -17,64 +21,20 @@ use crate::recipe::{self, LoadedRecipe};
 use crate::rows::RowResults;
 use crate::stages::FeatureData;
 use crate::stages::crossval::cross_validate;
-use crate::stages::decompose::{Decomposition, decompose_keeping, scores};
+use crate::stages::decompose::{decompose_keeping, scores};
 use crate::stages::diagnose::{Diagnostics, contributions, diagnose_all, row_statistics};
-use crate::stages::missing::{MissingReport, MissingSettings, handle_missing};
+use crate::stages::missing::{MissingSettings, handle_missing};
 use crate::stages::parallel::parallel_analysis;
-use crate::stages::scale::{ScaleReport, Scaled, scale};
-use crate::stages::select::{Evidence, Selection, select_among};
-use crate::stages::transform::{Applied, apply_transforms};
+use crate::stages::scale::scale;
+use crate::stages::select::{Evidence, select_among};
+use crate::stages::transform::apply_transforms;
 use crate::stats::limits::ResidualMoments;
 use crate::stream::{Choice, EngineOptions};
 use crate::table::{ColumnData, Table, read_header, read_table_parallel};
 use serde_json::{Value, json};
-use std::collections::BTreeMap;
 use std::path::Path;
 use std::sync::Arc;
 use std::time::Instant;
-
-/// A recipe with its table read and its plan checked.
-pub struct Prepared {
-    pub recipe: LoadedRecipe,
-    pub plan: Plan,
-    /// The table; when it is analysed in passes, its numeric columns carry their
-    /// counts but no values (those are in `passes`).
-    pub table: Table,
-    pub input: InputRecord,
-    /// The table's numbers when the passes engine analyses it.
-    pub passes: Option<PassData>,
-}
-
-/// The numbers of a table read for the passes engine.
-pub struct PassData {
-    /// Behind a lock because the first pass transforms the values in place.
-    pub store: std::sync::Mutex<crate::store::Store>,
-    /// The table column of each store column.
-    pub numeric: Vec<usize>,
-    /// The table column of each of the store's texts.
-    pub texts: Vec<usize>,
-}
-
-impl PassData {
-    /// Where the store keeps the texts of table column `column`, if it does.
-    pub fn text_index(&self, table: &Table, column: &str) -> Option<usize> {
-        let c = table.columns.iter().position(|c| c.name == column)?;
-        self.texts.iter().position(|&t| t == c)
-    }
-}
-
-/// The data after every preprocessing stage, with the stages' reports.
-pub struct Preprocessed {
-    pub scaled: Scaled,
-    /// Every filled cell, in row order.
-    pub filled: crate::rows::FilledCells,
-    /// How new rows' missing cells are filled (one entry per feature kept by the
-    /// missing stage, in order; constant features dropped later are still here).
-    pub fill_model: crate::stages::missing::FillModel,
-    pub missing: MissingReport,
-    pub transforms: Vec<Applied>,
-    pub scaling: ScaleReport,
-}
 
 /// Loads the recipe, reads and hashes the input, and checks the plan.
 pub fn prepare(recipe_path: &Path) -> Result<Prepared, Error> {
@@ -168,7 +128,7 @@ fn prepare_in_passes(
     // Scratch files go beside the results folder, named after it, like its
     // staging folder.
     let (scratch, _) = crate::recipe::plan::output_folder(&recipe, &input)?;
-    let dir = scratch_dir_of(&scratch);
+    let dir = crate::analysis::scratch_dir_of(&scratch);
     std::fs::create_dir_all(&dir).map_err(|e| crate::error::OutputError::io(&dir, e))?;
     let t = std::time::Instant::now();
     let (sha256, bytes, ingested) = crate::stream::ingest::ingest(
@@ -354,126 +314,6 @@ fn check_keep_bound(prepared: &Prepared, pre: &Preprocessed) -> Result<(), Error
     Ok(())
 }
 
-/// The error for a fixed count of components above what the data can give.
-pub fn keep_error(prepared: &Prepared, pre: &Preprocessed, keep: usize, available: usize) -> Error {
-    let at = prepared.plan.components.keep_written.clone();
-    let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
-    Error::Recipe(RecipeError {
-        file: prepared.recipe.path.clone(),
-        at: at.clone(),
-        problem: RecipeProblem::KeepAboveRank {
-            keep,
-            default: at.is_none(),
-            available,
-            reason: format!("{n} rows and {p} features after preprocessing"),
-        },
-    })
-}
-
-/// The decomposition, the choice of k and the scores.
-pub struct Analysis {
-    pub decomposition: Decomposition,
-    pub selection: Selection,
-    /// Every analysed row's scores (of the computed components), T², SPE and
-    /// labels, in row order.
-    pub rows: Arc<RowResults>,
-    pub diagnostics: Diagnostics,
-    /// Σᵢ zᵢⱼ² of each scaled feature, summed in row order from +0 (the
-    /// correlation loadings' spreads).
-    pub column_squares: Vec<f64>,
-    /// The rows whose contributions are reported, by row index (see
-    /// [`rows_needing_values`]).
-    pub details: BTreeMap<usize, RowDetail>,
-    /// What the randomized method did, when the recipe asked for it.
-    pub randomized: Option<crate::stages::randomized::RandomizedReport>,
-}
-
-impl Analysis {
-    /// Every row's T² (read from the rows; for checks on small tables).
-    pub fn t2(&self) -> Vec<f64> {
-        self.per_row(|b, i| b.t2(i))
-    }
-
-    /// Every row's SPE.
-    pub fn spe(&self) -> Vec<f64> {
-        self.per_row(|b, i| b.spe(i))
-    }
-
-    /// The kept components' scores, rows × kept.
-    pub fn kept_scores(&self) -> Matrix {
-        let kept = self.selection.kept;
-        let mut data = Vec::with_capacity(self.rows.len() * kept);
-        self.rows
-            .each(|b| (0..b.len()).for_each(|i| data.extend_from_slice(&b.scores(i)[..kept])))
-            .expect("the rows can be read back");
-        Matrix {
-            rows: self.rows.len(),
-            cols: kept,
-            data,
-        }
-    }
-
-    fn per_row(&self, f: impl Fn(&crate::rows::Batch, usize) -> f64) -> Vec<f64> {
-        let mut out = Vec::with_capacity(self.rows.len());
-        self.rows
-            .each(|b| out.extend((0..b.len()).map(|i| f(b, i))))
-            .expect("the rows can be read back");
-        out
-    }
-}
-
-/// The rows whose contributions the outputs report: the most unusual flagged
-/// rows, up to the larger of the recipe's cap and the report's list, in row order.
-pub fn rows_needing_values(diagnostics: &Diagnostics, plan: &Plan) -> Vec<usize> {
-    let most = plan
-        .diagnostics
-        .contributions_max_rows
-        .0
-        .get()
-        .max(crate::outputs::present::REPORT_FLAGGED_ROWS);
-    let mut rows = diagnostics.most_unusual(most.min(unusual_kept(plan)));
-    rows.sort_unstable();
-    rows
-}
-
-/// Σᵢ zᵢⱼ² of each column, rows in order, each sum starting from +0.
-pub fn column_squares(z: &Matrix) -> Vec<f64> {
-    let mut squares = vec![0.0; z.cols];
-    for i in 0..z.rows {
-        crate::stages::decompose::add_squares(&mut squares, z.row(i));
-    }
-    squares
-}
-
-/// The scores of components `from..to` (each entry the same dot product as in
-/// [`scores`], so splitting the components changes no bit).
-pub fn scores_between(z: &Matrix, loadings: &Matrix, from: usize, to: usize) -> Matrix {
-    crate::linalg::crossprod::times(z, &loadings.columns(from, to))
-}
-
-/// How many loadings to compute before the number of components is chosen: the
-/// components reported, a fixed count and the highest component plotted (more
-/// are computed afterwards if the rule keeps more). Both engines ask for the
-/// same number.
-pub fn loadings_wanted(plan: &crate::recipe::plan::Plan) -> usize {
-    let components = &plan.components;
-    let highest_plot = plan
-        .plots
-        .iter()
-        .map(|p| p.highest_component())
-        .max()
-        .unwrap_or(0);
-    let fixed = match components.keep {
-        Keep::Count(k) => k.get(),
-        _ => 0,
-    };
-    components
-        .compute
-        .unwrap_or(DEFAULT_COMPUTE)
-        .max(fixed)
-        .max(highest_plot)
-}
-
 /// Decomposes the scaled data, chooses the number of components and computes the
 /// per-row diagnostics.
 pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Error> {
@@ -593,105 +433,6 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         details,
         randomized,
     })
-}
-
-/// The texts of a table's text column in the given table rows.
-pub fn texts_of(prepared: &Prepared, column: &str, rows: &[usize]) -> Vec<String> {
-    match prepared.table.column(column).map(|c| &c.data) {
-        Some(ColumnData::Text(values)) => rows.iter().map(|&r| values[r].clone()).collect(),
-        _ => unreachable!("id and group columns are read as text"),
-    }
-}
-
-/// Where scratch files go: beside the results folder, like its staging folder.
-pub fn scratch_dir(plan: &Plan) -> std::path::PathBuf {
-    scratch_dir_of(&plan.output)
-}
-
-fn scratch_dir_of(output: &Path) -> std::path::PathBuf {
-    crate::scratch::parent_of(output)
-}
-
-/// How many of the most unusual rows the outputs list: contributions.csv's
-/// cap, the report's table and the rotating view's extra rows.
-pub fn unusual_kept(plan: &Plan) -> usize {
-    plan.diagnostics
-        .contributions_max_rows
-        .0
-        .get()
-        .max(crate::outputs::present::REPORT_FLAGGED_ROWS)
-        .max(crate::outputs::present::UNUSUAL_3D)
-}
-
-/// The limits of the plan's confidence levels for `n` rows and `kept`
-/// components, nothing counted yet.
-pub fn diagnostics_for(
-    plan: &Plan,
-    n: usize,
-    kept: usize,
-    moments: Result<ResidualMoments, crate::stats::limits::LimitError>,
-) -> Diagnostics {
-    crate::stages::diagnose::limits(
-        n,
-        kept,
-        moments,
-        &plan.diagnostics.confidence.0,
-        plan.diagnostics.spe_limit,
-        unusual_kept(plan),
-    )
-}
-
-/// One of the rows the outputs show in detail (contributions, the report's
-/// flagged rows).
-#[derive(Debug, Clone)]
-pub struct RowDetail {
-    /// The row's scaled values.
-    pub z: Vec<f64>,
-    /// Its kept scores, T² and SPE.
-    pub scores: Vec<f64>,
-    pub t2: f64,
-    pub spe: f64,
-    /// Its table row (0-based), its label (id or "row N") and its id and group
-    /// values, as scores.csv writes them.
-    pub table_row: usize,
-    pub label: String,
-    pub texts: Vec<String>,
-}
-
-/// The details of the rows `wanted` (indices among the analysed rows, in
-/// increasing order), read from the rows' results in one pass; their scaled
-/// values `z` are left empty for the engine to fill.
-pub fn row_details(
-    rows: &RowResults,
-    kept: usize,
-    wanted: &[usize],
-) -> Result<BTreeMap<usize, RowDetail>, Error> {
-    let mut details = BTreeMap::new();
-    let texts = usize::from(rows.id.is_some()) + rows.groups.len();
-    rows.each(|b| {
-        let from = wanted.partition_point(|&i| i < b.first);
-        let to = wanted.partition_point(|&i| i < b.first + b.len());
-        for &i in &wanted[from..to] {
-            let r = i - b.first;
-            let mut own = Vec::with_capacity(texts);
-            own.extend(b.id(r).map(String::from));
-            own.extend((0..rows.groups.len()).map(|g| b.group(g, r).to_string()));
-            details.insert(
-                i,
-                RowDetail {
-                    z: Vec::new(),
-                    scores: b.scores(r)[..kept].to_vec(),
-                    t2: b.t2(r),
-                    spe: b.spe(r),
-                    table_row: b.table_row(r),
-                    label: b.label(r).into_owned(),
-                    texts: own,
-                },
-            );
-        }
-    })
-    .map_err(|e| crate::error::OutputError::io(Path::new("a scratch file"), e))?;
-    Ok(details)
 }
 
 /// Options of `sextant run`.
@@ -1279,18 +1020,6 @@ fn diagnostics_json(diag: &Diagnostics, rank: usize, kept: usize, max_rows: usiz
         "contributions_written_for": diag.flagged.min(max_rows),
         "notes": diag.notes,
     })
-}
-
-/// The name of the matrix whose eigenvectors are the loadings.
-pub fn matrix_name(plan: &Plan) -> &'static str {
-    use crate::recipe::raw::ScalingMethod::*;
-    match plan.scaling {
-        None => "second moments (uncentred)",
-        Center => "covariance",
-        UnitVariance => "correlation",
-        Pareto => "covariance of Pareto-scaled features",
-        Range => "covariance of range-scaled features",
-    }
 }
 
 #[cfg(test)]

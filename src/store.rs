@@ -127,12 +127,7 @@ impl Store {
         }
         if self.spill.is_none() {
             let (file, registered) = crate::cleanup::create_registered(
-                || {
-                    crate::scratch::scratch_file(
-                        owner,
-                        crate::scratch::Kind::Scratch,
-                    )
-                },
+                || crate::scratch::scratch_file(owner, crate::scratch::Kind::Scratch),
                 |file| file.path(),
             )?;
             let mut spill = Spill {

@@ -21,8 +21,8 @@
 //! 4. the earlier results are deleted (renamed to `.NAME.sextant-gone-XXXX`
 //!    first, so a half-deleted folder is never taken for complete results).
 
-use crate::scratch::{self, Kind};
 use crate::error::OutputError;
+use crate::scratch::{self, Kind};
 use std::fs;
 use std::io;
 use std::path::{Path, PathBuf};

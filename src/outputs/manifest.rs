@@ -11,6 +11,7 @@
 //! folder.
 
 use super::hashing::sha256_hex;
+pub use crate::analysis::InputRecord;
 use serde::Serialize;
 use serde_json::{Value, json};
 
@@ -23,17 +24,6 @@ pub struct FileRecord {
     pub path: String,
     pub bytes: u64,
     pub sha256: String,
-}
-
-/// One input table, with its shape.
-#[derive(Debug, Clone, Serialize)]
-pub struct InputRecord {
-    /// The path as written in the recipe (relative to the recipe's folder).
-    pub path: String,
-    pub bytes: u64,
-    pub sha256: String,
-    pub rows: usize,
-    pub columns: usize,
 }
 
 /// The details of this particular execution, outside every digest.

@@ -7,8 +7,8 @@
 //! writer keeps no state from one record to the next that changes the bytes, so
 //! the file is identical to a single serial writer's on any number of threads.
 
+use crate::analysis::RowDetail;
 use crate::rows::{FilledCells, RowResults};
-use crate::run::RowDetail;
 use crate::stages::decompose::Decomposition;
 use crate::stages::diagnose::Diagnostics;
 use crate::stages::missing::MissingReport;
@@ -864,7 +864,7 @@ mod tests {
         let zeros = vec![0.0; n];
         let whole = results(&labels, &no_scores, (&zeros, &zeros), None);
         let rows_flagged: Vec<usize> = flagged.iter().map(|(i, _)| *i).collect();
-        let details = crate::run::row_details(&whole, 0, &rows_flagged).unwrap();
+        let details = crate::analysis::row_details(&whole, 0, &rows_flagged).unwrap();
         let parts: Vec<(&RowDetail, Vec<(f64, f64)>)> = flagged
             .iter()
             .map(|(i, parts)| (&details[i], parts.clone()))

@@ -12,19 +12,19 @@
 //! 5. scores, T² and SPE, row by row;
 //! 6. the scaled values of the rows whose contributions are reported.
 
-use crate::store::{Chunk, Store};
+use crate::analysis::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::error::{Error, InputError};
 use crate::linalg::SUM_START;
 use crate::linalg::crossprod::{GramAccumulator, row_times};
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::{ConstantPolicy, MissingMethod};
-use crate::run::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::stages::decompose::{add_squares, from_cross_products};
 use crate::stages::diagnose::RowStatistics;
 use crate::stages::missing::{FeatureMissing, FillModel, MissingReport};
 use crate::stages::scale::{FeatureScale, ScaleReport, Scaled, check_finite};
 use crate::stages::select::{Evidence, select};
 use crate::stages::transform::{Applied, domain_error, transform_value};
+use crate::store::{Chunk, Store};
 use crate::text::number;
 use rayon::prelude::*;
 
@@ -602,7 +602,7 @@ pub fn analyse(
         &squares,
         n,
         centred,
-        crate::run::loadings_wanted(plan),
+        crate::analysis::loadings_wanted(plan),
     )?;
     let t = crate::timing::lap("  eigendecomposition", t);
     if decomposition.rank == 0 {
@@ -619,7 +619,7 @@ pub fn analyse(
         &plan.components,
         Evidence::default(),
     )
-    .map_err(|e| crate::run::keep_error(prepared, pre, e.keep, e.available))?;
+    .map_err(|e| crate::analysis::keep_error(prepared, pre, e.keep, e.available))?;
     if selection.computed > decomposition.loadings.cols {
         decomposition = from_cross_products(&gram, &squares, n, centred, selection.computed)?;
     }
@@ -635,7 +635,7 @@ pub fn analyse(
     let moments = crate::stats::limits::ResidualMoments::from_eigenvalues(
         &decomposition.eigenvalues[kept..decomposition.rank],
     );
-    let mut diagnostics = crate::run::diagnostics_for(plan, n, kept, moments);
+    let mut diagnostics = crate::analysis::diagnostics_for(plan, n, kept, moments);
     let mut results = results_for(prepared, computed, store.spilled());
     let labels = label_texts(prepared);
     let texts = store.text_width();
@@ -695,7 +695,7 @@ pub fn analyse(
     // The wanted rows' details from the results (one reading of them), then
     // their scaled values from the store, found by table row.
     let mut details =
-        crate::run::row_details(&results, kept, &rows_needing_values(&diagnostics, plan))?;
+        crate::analysis::row_details(&results, kept, &rows_needing_values(&diagnostics, plan))?;
     let wanted: std::collections::BTreeMap<usize, usize> =
         details.iter().map(|(&i, row)| (row.table_row, i)).collect();
     if !wanted.is_empty() {
@@ -755,5 +755,5 @@ fn label_texts(prepared: &Prepared) -> Vec<usize> {
 }
 
 fn scratch_error(prepared: &Prepared, e: std::io::Error) -> Error {
-    crate::error::OutputError::io(&crate::run::scratch_dir(&prepared.plan), e).into()
+    crate::error::OutputError::io(&crate::analysis::scratch_dir(&prepared.plan), e).into()
 }

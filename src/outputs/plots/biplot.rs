@@ -20,7 +20,8 @@ use std::fmt::Write;
 /// Arrow colour.
 pub const ARROW: &str = "#3D3D3D";
 
-struct Prepared {
+/// What one scan of the rows gathers for the biplot.
+struct BiplotScan {
     /// The extents of the points' coordinates over every row.
     x: Extent,
     y: Extent,
@@ -60,7 +61,7 @@ fn coords(plan: &PlotPlan, view: &PlotView) -> impl Fn(&Batch, usize) -> (f64, f
     }
 }
 
-fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+fn prepare(plan: &PlotPlan, view: &PlotView) -> BiplotScan {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let (ra, rb) = roots(plan, view);
     let colour = Colour::of(view, plan.color.as_deref());
@@ -88,7 +89,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     } else {
         1.0
     };
-    Prepared {
+    BiplotScan {
         x: g.x,
         y: g.y,
         root: (ra, rb),
@@ -99,7 +100,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     }
 }
 
-fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str) -> String {
+fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan, caption: &str) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let layout = scatter_layout();
     let tips: Vec<(f64, f64)> = p
@@ -166,7 +167,7 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
     frame::finish(back, &t, caption, &body)
 }
 
-fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let mut s = format!(
         "{}. A biplot (Gabriel 1971) of PC{} ({}) and PC{} ({}) in the covariance form: each point is a row's scores divided by √λ of the component (so both axes have unit variance), and each arrow is a feature's loadings multiplied by √λ",

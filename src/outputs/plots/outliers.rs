@@ -28,7 +28,8 @@ const BOTH: (&str, Shape) = ("#CC79A7", Shape::Diamond);
 /// limit this many times.
 pub const ROOT_ABOVE: f64 = 6.0;
 
-struct Prepared {
+/// What one scan of the rows gathers for the outlier map.
+struct OutlierScan {
     /// The extents of the plotted coordinates over every row (of the square
     /// roots where the axis has a root scale).
     x: Extent,
@@ -59,7 +60,7 @@ fn coords(root_x: bool, root_y: bool) -> impl Fn(&Batch, usize) -> (f64, f64) {
     }
 }
 
-fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+fn prepare(plan: &PlotPlan, view: &PlotView) -> OutlierScan {
     let above = |v: f64, l: Option<f64>| l.is_some_and(|l| v > l);
     let kind = |batch: &Batch, i: usize| -> u32 {
         let a = above(batch.t2(i), view.t2_limit);
@@ -106,7 +107,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
             if root_y { root(y) } else { y },
         )
     });
-    Prepared {
+    OutlierScan {
         x: if root_x { rooted_x } else { g.x },
         y: if root_y { rooted_y } else { g.y },
         root_x,
@@ -173,7 +174,7 @@ fn style(kind: usize) -> (&'static str, Shape) {
     [WITHIN, T2_ONLY, SPE_ONLY, BOTH][kind.min(3)]
 }
 
-fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str) -> String {
+fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan, caption: &str) -> String {
     let layout = scatter_layout();
     let lx = view.t2_limit.filter(|l| l.is_finite());
     let ly = view.spe_limit.filter(|l| l.is_finite());
@@ -284,7 +285,7 @@ fn short(kind: usize) -> &'static str {
     ][kind.min(3)]
 }
 
-fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared) {
+fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &OutlierScan) {
     out.push_str("<g class=\"points\">\n");
     let mut current: Option<usize> = None;
     for point in &p.sel.points {
@@ -322,7 +323,7 @@ fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared) {
     out.push_str("</g>\n");
 }
 
-fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan) -> String {
     let level = crate::text::percent_or_undefined(view.confidence);
     let mut s = format!(
         "{}. Each row's Hotelling T² (distance within the model of {} kept components, horizontal) against its squared prediction error SPE (distance from the model, vertical).",

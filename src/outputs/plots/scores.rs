@@ -15,7 +15,8 @@ use std::fmt::Write;
 /// The ellipse: the limit L and the semi-axes along x and y, or why it is not drawn.
 type Ellipse = Result<(f64, f64, f64), String>;
 
-struct Prepared {
+/// What one scan of the rows gathers for the score plot.
+struct ScoreScan {
     /// The extents of the two components' scores over every row.
     x: Extent,
     y: Extent,
@@ -35,7 +36,7 @@ fn coords(plan: &PlotPlan) -> impl Fn(&Batch, usize) -> (f64, f64) {
     }
 }
 
-fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+fn prepare(plan: &PlotPlan, view: &PlotView) -> ScoreScan {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let colour = Colour::of(view, plan.color.as_deref());
     let g = scatter::gather(
@@ -55,7 +56,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
         let l = t2_limit_phase1(n, 2, conf).map_err(|e| e.to_string())?;
         Ok((l, (l * la).sqrt(), (l * lb).sqrt()))
     });
-    Prepared {
+    ScoreScan {
         x: g.x,
         y: g.y,
         n,
@@ -65,7 +66,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     }
 }
 
-fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str) -> String {
+fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan, caption: &str) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let layout = scatter_layout();
     let (ex, ey) = match &p.ellipse {
@@ -143,7 +144,7 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
     frame::finish(back, &t, caption, &body)
 }
 
-fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let mut s = format!(
         "{}. Scores of the rows on PC{} ({} of the variance, horizontal) and PC{} ({}, vertical), with one score unit the same length on both axes.",
