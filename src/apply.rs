@@ -544,7 +544,7 @@ pub fn apply(
         seconds: (seconds * 1000.0).round() / 1000.0,
         host: manifest::host_name(),
         threads: rayon::current_num_threads(),
-        platform: crate::run::platform(),
+        platform: crate::outputs::manifest::platform(),
     };
     let (text, digest) = manifest::render_value(body, &run);
     let mut all = files;

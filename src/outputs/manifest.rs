@@ -175,6 +175,20 @@ pub fn host_name() -> String {
         .unwrap_or_else(|| "unknown".to_string())
 }
 
+/// The platform the binary was built for: architecture, OS and C environment.
+pub fn platform() -> String {
+    let env = if cfg!(target_env = "gnu") {
+        "-gnu"
+    } else if cfg!(target_env = "musl") {
+        "-musl"
+    } else if cfg!(target_env = "msvc") {
+        "-msvc"
+    } else {
+        ""
+    };
+    format!("{}-{}{env}", std::env::consts::ARCH, std::env::consts::OS)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
