@@ -119,7 +119,7 @@ pub struct Analysis {
     /// [`rows_needing_values`]).
     pub details: BTreeMap<usize, RowDetail>,
     /// What the randomized method did, when the recipe asked for it.
-    pub randomized: Option<crate::stages::randomized::RandomizedReport>,
+    pub randomized: Option<crate::stages::decompose::RandomizedReport>,
 }
 
 impl Analysis {
