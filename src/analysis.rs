@@ -15,7 +15,7 @@ use crate::linalg::Matrix;
 use crate::recipe::LoadedRecipe;
 use crate::recipe::plan::Plan;
 use crate::recipe::raw::{DEFAULT_COMPUTE, Keep};
-use crate::rows::RowResults;
+use crate::row_results::RowResults;
 use crate::stages::decompose::Decomposition;
 use crate::stages::diagnose::Diagnostics;
 use crate::stages::missing::MissingReport;
@@ -79,7 +79,7 @@ impl PassData {
 pub struct Preprocessed {
     pub scaled: Scaled,
     /// Every filled cell, in row order.
-    pub filled: crate::rows::FilledCells,
+    pub filled: crate::row_results::FilledCells,
     /// How new rows' missing cells are filled (one entry per feature kept by the
     /// missing stage, in order; constant features dropped later are still here).
     pub fill_model: crate::stages::missing::FillModel,
@@ -147,7 +147,7 @@ impl Analysis {
         }
     }
 
-    fn per_row(&self, f: impl Fn(&crate::rows::Batch, usize) -> f64) -> Vec<f64> {
+    fn per_row(&self, f: impl Fn(&crate::row_results::Batch, usize) -> f64) -> Vec<f64> {
         let mut out = Vec::with_capacity(self.rows.len());
         self.rows
             .each(|b| out.extend((0..b.len()).map(|i| f(b, i))))

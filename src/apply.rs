@@ -24,7 +24,7 @@ use crate::outputs::reading;
 use crate::outputs::replace::check_replaceable;
 use crate::outputs::tables;
 use crate::recipe::plan::Transform;
-use crate::rows::RowResults;
+use crate::row_results::RowResults;
 use crate::stages::decompose::scores;
 use crate::stages::diagnose::{Limits, contributions, diagnose_all, row_statistics, with_limits};
 use crate::stages::impute::{fill_row_from_model, fill_row_from_reference};
@@ -395,7 +395,7 @@ pub fn score(
         _ => unreachable!("id and group columns are read as text"),
     };
     let feature_names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
-    let filled = crate::rows::FilledCells::from_cells(&filled, &feature_names);
+    let filled = crate::row_results::FilledCells::from_cells(&filled, &feature_names);
     let texts = |name: &str| -> Vec<String> {
         let values = text_of(name);
         scored_rows.iter().map(|&r| values[r].clone()).collect()

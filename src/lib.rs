@@ -3,8 +3,9 @@
 //!
 //! The pipeline reads as a chain of types: recipe text → [`recipe::raw`] →
 //! [`recipe::plan::Plan`] → [`table::Table`] → [`stages`] (missing, transform,
-//! scale, decompose, select) → [`outputs`]. [`run`] is the only module that reads
-//! or writes files during a run.
+//! scale, decompose, select) → [`analysis`] → [`outputs`]. [`run`] decides what
+//! a run reads and where its results go. The modules form floors that import
+//! only downward; `tests/layers.rs` holds their order and enforces it.
 
 pub mod analysis;
 pub mod apply;
@@ -18,7 +19,7 @@ pub mod paths;
 pub mod pin;
 pub mod progress;
 pub mod recipe;
-pub mod rows;
+pub mod row_results;
 pub mod run;
 pub mod scratch;
 pub mod stages;

@@ -18,7 +18,7 @@ use crate::recipe::plan::{Plan, check_names, input_plan, make_plan};
 use crate::recipe::raw::DEFAULT_COMPUTE;
 use crate::recipe::raw::Keep;
 use crate::recipe::{self, LoadedRecipe};
-use crate::rows::RowResults;
+use crate::row_results::RowResults;
 use crate::stages::FeatureData;
 use crate::stages::crossval::cross_validate;
 use crate::stages::decompose::{decompose_keeping, scores};
@@ -287,7 +287,7 @@ fn preprocess_in_memory(prepared: &Prepared) -> Result<Preprocessed, Error> {
     };
     let (data, missing, filled, fill_model) = handle_missing(data, &settings)?;
     let (scaled, scaling) = scale(data, plan.scaling, plan.constant_features)?;
-    let filled = crate::rows::FilledCells::from_cells(&filled, &plan.features);
+    let filled = crate::row_results::FilledCells::from_cells(&filled, &plan.features);
     Ok(Preprocessed {
         scaled,
         missing,

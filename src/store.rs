@@ -1,6 +1,6 @@
 //! The row store: where the passes engine keeps rows between passes (the
 //! table's numbers, with its text cells and line numbers) and where every
-//! analysed row's results are kept (`rows`). In memory while they fit the
+//! analysed row's results are kept (`row_results`). In memory while they fit the
 //! memory budget, otherwise in a scratch file beside the results folder that
 //! each pass reads back in order. At the bottom of the crate, so that both use
 //! it without either importing the other.

@@ -247,7 +247,7 @@ fn rows_for_3d(n: usize, diag: &crate::stages::diagnose::Diagnostics) -> Vec<usi
 
 /// The first three scores, labels and first group of the `shown` rows (in
 /// row order), read in one pass over the rows.
-fn scores_3d(view: &PlotView, rows: &crate::rows::RowResults, shown: &[usize]) -> Scores3d {
+fn scores_3d(view: &PlotView, rows: &crate::row_results::RowResults, shown: &[usize]) -> Scores3d {
     let mut points = Vec::with_capacity(shown.len());
     let mut labels = Vec::with_capacity(shown.len());
     let mut group = Vec::new();

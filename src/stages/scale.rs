@@ -37,7 +37,7 @@ pub struct ScaleReport {
 #[derive(Debug, Clone)]
 pub struct Scaled {
     pub names: Vec<String>,
-    /// The values, or `None` when the streaming engine analysed the table in
+    /// The values, or `None` when the passes engine analysed the table in
     /// passes without holding it (see [`crate::stream`]).
     pub matrix: Option<Matrix>,
     /// Index in the table of each analysed row (empty in passes, where each

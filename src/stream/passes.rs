@@ -347,7 +347,7 @@ pub fn preprocess(
     crate::progress::current().stage("pass 2 of 6: filled values");
     // Per feature: the sum, lowest and highest of the filled values.
     let mut filled_stats = vec![(SUM_START, f64::INFINITY, f64::NEG_INFINITY); q];
-    let mut filled = crate::rows::FilledCells::new(
+    let mut filled = crate::row_results::FilledCells::new(
         plan.features.clone(),
         if store.spilled() { 0 } else { u64::MAX },
         &plan.output,
@@ -385,7 +385,7 @@ pub fn preprocess(
                             let raw = &chunk.values[r * width..(r + 1) * width];
                             for j in 0..q {
                                 if raw[features.column[j]].is_nan() {
-                                    cells.push(crate::rows::CellIn {
+                                    cells.push(crate::row_results::CellIn {
                                         table_row: offset + r,
                                         // The plan's index of the feature.
                                         feature: kept[j],
@@ -399,7 +399,7 @@ pub fn preprocess(
                     .collect::<Vec<_>>()
             },
         );
-        let cells: Vec<crate::rows::CellIn> = cells.into_iter().flatten().collect();
+        let cells: Vec<crate::row_results::CellIn> = cells.into_iter().flatten().collect();
         filled
             .push(&cells)
             .map_err(|e| scratch_error(prepared, e))?;
@@ -641,7 +641,7 @@ pub fn analyse(
     let texts = store.text_width();
     // Per row of the results: its table row, scores (kept, then the others),
     // T² and SPE, computed straight into the layout the results keep.
-    let w = crate::rows::RowResults::row_width(computed);
+    let w = crate::row_results::RowResults::row_width(computed);
     let mut first = 0;
     let mut offset = 0;
     // The chunks' texts move on to the results (nothing reads them after this
@@ -727,9 +727,13 @@ pub fn analyse(
 
 /// Where the rows' results go: in memory, or all to a scratch file beside the
 /// results folder when the table's values did not fit the budget.
-fn results_for(prepared: &Prepared, computed: usize, spill: bool) -> crate::rows::RowResults {
+fn results_for(
+    prepared: &Prepared,
+    computed: usize,
+    spill: bool,
+) -> crate::row_results::RowResults {
     let plan = &prepared.plan;
-    crate::rows::RowResults::new(
+    crate::row_results::RowResults::new(
         computed,
         plan.input.id.clone(),
         plan.input.groups.clone(),

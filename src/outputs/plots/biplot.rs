@@ -13,7 +13,7 @@ use super::svg::{self, NEUTRAL};
 use super::{LEGEND_X, equal_axes, scatter_layout, title};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
-use crate::rows::Batch;
+use crate::row_results::Batch;
 use crate::text::significant_plain;
 use std::fmt::Write;
 

@@ -14,7 +14,7 @@ use super::{LEGEND_X, scatter_layout, title};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
 use crate::recipe::raw::PointLabels;
-use crate::rows::Batch;
+use crate::row_results::Batch;
 use crate::text::significant_plain;
 use std::fmt::Write;
 

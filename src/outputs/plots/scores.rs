@@ -7,7 +7,7 @@ use super::svg::{self, MUTED, N, NEUTRAL};
 use super::{LEGEND_X, equal_axes, scatter_layout, title};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
-use crate::rows::Batch;
+use crate::row_results::Batch;
 use crate::stats::limits::t2_limit_phase1;
 use crate::text::significant_plain;
 use std::fmt::Write;

@@ -8,7 +8,7 @@ use super::{
     rows_into, yes_no_str,
 };
 use crate::analysis::RowDetail;
-use crate::rows::{FilledCells, RowResults};
+use crate::row_results::{FilledCells, RowResults};
 use crate::stages::diagnose::Diagnostics;
 use std::io;
 
@@ -195,7 +195,7 @@ mod tests {
     use super::*;
     use crate::linalg::Matrix;
     use crate::recipe::raw::SpeLimit;
-    use crate::rows::CellIn;
+    use crate::row_results::CellIn;
     use crate::stages::diagnose::{Limits, with_limits};
     use crate::stages::missing::FilledCell;
     use crate::text::number;
@@ -257,7 +257,7 @@ mod tests {
         let mut out = RowResults::new(cols, id.as_ref().map(|i| i.0.clone()), names, 0, dir);
         for first in (0..n).step_by(run.max(1)) {
             let last = n.min(first + run);
-            out.push(crate::rows::RowsIn {
+            out.push(crate::row_results::RowsIn {
                 table_rows: &labels.rows[first..last],
                 scores: &joined[first * cols..last * cols],
                 t2: &t2[first..last],
