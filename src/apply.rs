@@ -24,7 +24,7 @@ use crate::outputs::reading;
 use crate::outputs::replace::check_replaceable;
 use crate::outputs::tables;
 use crate::recipe::plan::Transform;
-use crate::rows::RowResults;
+use crate::row_results::RowResults;
 use crate::stages::decompose::scores;
 use crate::stages::diagnose::{Limits, contributions, diagnose_all, row_statistics, with_limits};
 use crate::stages::impute::{fill_row_from_model, fill_row_from_reference};
@@ -395,7 +395,7 @@ pub fn score(
         _ => unreachable!("id and group columns are read as text"),
     };
     let feature_names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
-    let filled = crate::rows::FilledCells::from_cells(&filled, &feature_names);
+    let filled = crate::row_results::FilledCells::from_cells(&filled, &feature_names);
     let texts = |name: &str| -> Vec<String> {
         let values = text_of(name);
         scored_rows.iter().map(|&r| values[r].clone()).collect()
@@ -411,11 +411,11 @@ pub fn score(
     );
     let mut chosen = diagnostics.most_unusual(max_rows);
     chosen.sort_unstable();
-    let mut details = crate::run::row_details(&rows, k, &chosen)?;
+    let mut details = crate::analysis::row_details(&rows, k, &chosen)?;
     for (&i, row) in &mut details {
         row.z = z.row(i).to_vec();
     }
-    let flagged: Vec<(&crate::run::RowDetail, Vec<(f64, f64)>)> = details
+    let flagged: Vec<(&crate::analysis::RowDetail, Vec<(f64, f64)>)> = details
         .values()
         .map(|d| {
             (
@@ -544,7 +544,7 @@ pub fn apply(
         seconds: (seconds * 1000.0).round() / 1000.0,
         host: manifest::host_name(),
         threads: rayon::current_num_threads(),
-        platform: crate::run::platform(),
+        platform: crate::outputs::manifest::platform(),
     };
     let (text, digest) = manifest::render_value(body, &run);
     let mut all = files;
@@ -580,11 +580,11 @@ fn range_notes(model: &Model, data: &FeatureData) -> Vec<String> {
                 "`{}`: {} value(s) far outside the analysed range [{}, {}]{}, first at line {} ({}); is it in another unit?",
                 f.name,
                 far.len(),
-                tables::number(f.min),
-                tables::number(f.max),
+                crate::text::number(f.min),
+                crate::text::number(f.max),
                 f.transform.as_deref().map_or(String::new(), |t| format!(" (after {t})")),
                 data.lines[first],
-                tables::number(column.values[first])
+                crate::text::number(column.values[first])
             ));
         }
     }

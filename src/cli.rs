@@ -1,8 +1,9 @@
 //! The command line: commands, options and what each prints.
 
+use crate::analysis::{Prepared, Preprocessed, matrix_name};
 use crate::error::Error;
-use crate::run::{self, Prepared, Preprocessed, RunOptions, RunSummary};
-use crate::stages::select::pct;
+use crate::run::{self, RunOptions, RunSummary};
+use crate::text::percent_figure;
 use clap::{Parser, Subcommand};
 use std::fmt::Write;
 use std::path::PathBuf;
@@ -302,7 +303,7 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
                 "  dropped  {}: {} missing ({} %), {why}",
                 f.feature,
                 f.missing,
-                pct(f.share)
+                percent_figure(f.share)
             );
         }
     }
@@ -369,7 +370,7 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
             "  {:<24} {:>5} missing ({} %)",
             f.feature,
             f.missing,
-            pct(f.share)
+            percent_figure(f.share)
         );
     }
     if !pre.transforms.is_empty() {
@@ -384,7 +385,7 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
         out,
         "scaling    {} ({} matrix)",
         plan.scaling.name(),
-        run::matrix_name(plan)
+        matrix_name(plan)
     );
 }
 
@@ -412,7 +413,7 @@ pub fn describe_run(s: &RunSummary) -> String {
         "components {} kept of {} computed, {} % of the variance ({}: {})",
         sel.kept,
         sel.computed,
-        pct(kept),
+        percent_figure(kept),
         sel.rule,
         sel.reason
     );

@@ -13,6 +13,7 @@ use crate::error::{Error, InputError};
 use crate::outputs::manifest::{RunInfo, render};
 use crate::outputs::reading::{self, Links, Unopened};
 use crate::run::{compute, prepare};
+use crate::text::{percent as pct, trimmed};
 use crate::verify::read_trusted_manifest;
 use nalgebra::DMatrix;
 use serde_json::Value;
@@ -525,17 +526,6 @@ pub enum DiffFormat {
     Markdown,
 }
 
-fn g(v: f64) -> String {
-    format!("{v:.6}")
-        .trim_end_matches('0')
-        .trim_end_matches('.')
-        .to_string()
-}
-
-fn pct(v: f64) -> String {
-    format!("{:.1} %", v * 100.0)
-}
-
 /// Renders a comparison.
 pub fn render_comparison(a: &Side, b: &Side, c: &Comparison, format: DiffFormat) -> String {
     let mut out = String::new();
@@ -594,7 +584,7 @@ pub fn render_comparison(a: &Side, b: &Side, c: &Comparison, format: DiffFormat)
             if share {
                 pct(s)
             } else {
-                g(e)
+                trimmed(e, 6)
             }
         }
         None => "—".to_string(),
@@ -642,7 +632,7 @@ pub fn render_comparison(a: &Side, b: &Side, c: &Comparison, format: DiffFormat)
             let _ = writeln!(
                 out,
                 "largest score change after sign alignment: {} on PC{comp} of row `{key}` ({} row(s) in both)",
-                g(*d),
+                trimmed(*d, 6),
                 c.common_rows
             );
         }
@@ -658,7 +648,7 @@ pub fn render_comparison(a: &Side, b: &Side, c: &Comparison, format: DiffFormat)
         let rows: Vec<Vec<String>> = c
             .moved
             .iter()
-            .map(|(f, d)| vec![f.clone(), g(*d)])
+            .map(|(f, d)| vec![f.clone(), trimmed(*d, 6)])
             .collect();
         table(&mut out, md, &["feature", "distance"], &rows);
     }

@@ -3,9 +3,11 @@
 //!
 //! The pipeline reads as a chain of types: recipe text → [`recipe::raw`] →
 //! [`recipe::plan::Plan`] → [`table::Table`] → [`stages`] (missing, transform,
-//! scale, decompose, select) → [`outputs`]. [`run`] is the only module that reads
-//! or writes files during a run.
+//! scale, decompose, select) → [`analysis`] → [`outputs`]. [`run`] decides what
+//! a run reads and where its results go. The modules form floors that import
+//! only downward; `tests/layers.rs` holds their order and enforces it.
 
+pub mod analysis;
 pub mod apply;
 pub mod cleanup;
 pub mod cli;
@@ -17,12 +19,15 @@ pub mod paths;
 pub mod pin;
 pub mod progress;
 pub mod recipe;
-pub mod rows;
+pub mod row_results;
 pub mod run;
+pub mod scratch;
 pub mod stages;
 pub mod starter;
 pub mod stats;
+pub mod store;
 pub mod stream;
 pub mod table;
+pub mod text;
 pub mod timing;
 pub mod verify;

@@ -35,8 +35,8 @@
 
 use crate::error::{Error, InputError, OutputError};
 use crate::recipe::raw::DEFAULT_MISSING_TOKENS;
-use crate::stages::select::pct;
 use crate::table::{ColumnData, ReadOptions, read_header, read_table};
+use crate::text::{percent_figure as pct, three_significant as sig3};
 use std::collections::{BTreeMap, BTreeSet};
 use std::fmt::Write as _;
 use std::io::Write as _;
@@ -648,8 +648,8 @@ fn id_reason(name: &str, kind: &Kind, rows: usize) -> String {
         }
         Kind::Numeric(n) => format!(
             "whole numbers {} to {}, one per row: row numbers",
-            crate::outputs::tables::number(n.stats.min),
-            crate::outputs::tables::number(n.stats.max)
+            crate::text::number(n.stats.min),
+            crate::text::number(n.stats.max)
         ),
         _ if named.is_empty() => {
             format!("text, a different value in each of the {rows} rows (the first such column)")
@@ -703,7 +703,7 @@ fn role_of(
             if s.min == s.max {
                 excluded(format!(
                     "the same number ({}) in every row that has one: no variance to analyse",
-                    crate::outputs::tables::number(s.min)
+                    crate::text::number(s.min)
                 ))
             } else if n.integer
                 && n.missing == 0
@@ -724,8 +724,8 @@ fn role_of(
             } else if n.unique && n.integer && s.max - s.min == (rows - 1) as f64 {
                 excluded(format!(
                     "whole numbers {} to {}, one per row: row numbers, not a measurement",
-                    crate::outputs::tables::number(s.min),
-                    crate::outputs::tables::number(s.max)
+                    crate::text::number(s.min),
+                    crate::text::number(s.max)
                 ))
             } else {
                 (Role::Feature, feature_reason(n, rows))
@@ -779,21 +779,6 @@ fn plain(s: &str) -> String {
     s.chars()
         .map(|c| if c.is_control() { ' ' } else { c })
         .collect()
-}
-
-/// A value with (at least) three significant digits, in plain decimal notation.
-fn sig3(v: f64) -> String {
-    if v == 0.0 || !v.is_finite() {
-        return crate::outputs::tables::number(v);
-    }
-    let scientific = format!("{v:.2e}");
-    let exponent: i32 = scientific
-        .split('e')
-        .nth(1)
-        .and_then(|e| e.parse().ok())
-        .unwrap_or(0);
-    let decimals = (2 - exponent).max(0) as usize;
-    format!("{v:.decimals$}")
 }
 
 /// `1 row`, `2 rows`.

@@ -3,9 +3,10 @@
 //! control limits' use, parallel analysis against published Monte Carlo values,
 //! cross-validation on data of known rank, and a planted outlier.
 
+use sextant::analysis::{Analysis, Preprocessed};
 use sextant::linalg::Matrix;
 use sextant::recipe::raw::{CvChoice, FoldsBy, RandomData, RawCrossValidation, RawParallel};
-use sextant::run::{Analysis, Preprocessed, analyse, prepare, preprocess};
+use sextant::run::{analyse, prepare, preprocess};
 use sextant::stages::crossval::cross_validate;
 use sextant::stages::diagnose::contributions;
 use sextant::stages::parallel::parallel_analysis;

@@ -4,8 +4,9 @@
 //! start, recovery on data of known low rank, and the reports and errors.
 
 use serde_json::Value;
+use sextant::analysis::Preprocessed;
 use sextant::linalg::random::Stream;
-use sextant::run::{Preprocessed, prepare, preprocess};
+use sextant::run::{prepare, preprocess};
 use std::collections::BTreeMap;
 use std::fs;
 use std::path::Path;

@@ -9,7 +9,7 @@ use sextant::outputs::plots::{self, MAX_INDIVIDUAL};
 use sextant::outputs::view::{Evidence, PlotView};
 use sextant::recipe::plots::PlotPlan;
 use sextant::recipe::raw::{PlotKind, PointLabels};
-use sextant::rows::{RowResults, RowsIn};
+use sextant::row_results::{RowResults, RowsIn};
 use std::fs;
 use std::path::Path;
 use std::process::Command;

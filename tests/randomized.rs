@@ -25,10 +25,10 @@ use nalgebra::DMatrix;
 use sextant::linalg::Matrix;
 use sextant::linalg::random::Stream;
 use sextant::recipe::raw::RawRandomized;
+use sextant::stages::decompose::RandomizedReport;
 use sextant::stages::decompose::{
     Decomposition, Route, decompose, decompose_keeping, decompose_randomized,
 };
-use sextant::stages::randomized::RandomizedReport;
 use std::fs;
 use std::path::Path;
 

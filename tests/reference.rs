@@ -17,8 +17,9 @@
 //! Every loading array in `reference_values.json` is indexed [feature][component].
 
 use serde_json::Value;
+use sextant::analysis::{Analysis, Preprocessed};
 use sextant::linalg::Matrix;
-use sextant::run::{Analysis, Preprocessed, analyse, prepare, preprocess};
+use sextant::run::{analyse, prepare, preprocess};
 use sextant::stages::select::broken_stick;
 use std::path::PathBuf;
 

@@ -21,8 +21,8 @@
 //! 4. the earlier results are deleted (renamed to `.NAME.sextant-gone-XXXX`
 //!    first, so a half-deleted folder is never taken for complete results).
 
-use super::debris::{self, Kind};
 use crate::error::OutputError;
+use crate::scratch::{self, Kind};
 use std::fs;
 use std::io;
 use std::path::{Path, PathBuf};
@@ -48,12 +48,12 @@ pub struct Staging {
 
 impl Staging {
     pub fn new(target: &Path) -> Result<Staging, OutputError> {
-        let parent = debris::parent_of(target);
+        let parent = scratch::parent_of(target);
         fs::create_dir_all(&parent).map_err(|e| OutputError::io(&parent, e))?;
         let (dir, registered) = crate::cleanup::create_registered(
             || {
                 tempfile::Builder::new()
-                    .prefix(&debris::prefix(target, Kind::New))
+                    .prefix(&scratch::prefix(target, Kind::New))
                     .tempdir_in(&parent)
             },
             |dir| dir.path(),
@@ -247,7 +247,7 @@ fn failed(path: &Path, e: io::Error) -> Stop {
 /// A name of kind `kind` for `target` that nothing uses yet. Only the folder
 /// lock's holder makes these, so checking first is enough.
 fn unused_name(target: &Path, parent: &Path, kind: Kind) -> PathBuf {
-    let prefix = debris::prefix(target, kind);
+    let prefix = scratch::prefix(target, kind);
     let pid = std::process::id();
     (0u32..)
         .map(|i| parent.join(format!("{prefix}{pid}-{i}")))

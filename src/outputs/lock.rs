@@ -67,7 +67,7 @@ impl FolderLock {
 
 /// The lock file for a results folder: `.<name>.sextant-lock` beside it.
 pub fn lock_path(folder: &Path) -> PathBuf {
-    super::debris::parent_of(folder).join(super::debris::lock_name(folder))
+    crate::scratch::parent_of(folder).join(crate::scratch::lock_name(folder))
 }
 
 /// Takes the lock on `folder`, creating its parent folder if needed; refuses
@@ -130,7 +130,7 @@ fn take(folder: &Path, path: &Path, created: Vec<PathBuf>) -> Result<Taken, Outp
         }
         // The holder before us removed the path after we opened it (see the
         // comment on `Drop`): this file is nobody's lock any more.
-        if !super::debris::names(&file, path) {
+        if !crate::scratch::names(&file, path) {
             continue;
         }
         // Ours from here: an interruption removes it.

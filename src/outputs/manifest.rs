@@ -11,6 +11,7 @@
 //! folder.
 
 use super::hashing::sha256_hex;
+pub use crate::analysis::InputRecord;
 use serde::Serialize;
 use serde_json::{Value, json};
 
@@ -23,17 +24,6 @@ pub struct FileRecord {
     pub path: String,
     pub bytes: u64,
     pub sha256: String,
-}
-
-/// One input table, with its shape.
-#[derive(Debug, Clone, Serialize)]
-pub struct InputRecord {
-    /// The path as written in the recipe (relative to the recipe's folder).
-    pub path: String,
-    pub bytes: u64,
-    pub sha256: String,
-    pub rows: usize,
-    pub columns: usize,
 }
 
 /// The details of this particular execution, outside every digest.
@@ -183,6 +173,20 @@ pub fn host_name() -> String {
         .map(|s| s.trim().to_string())
         .filter(|s| !s.is_empty())
         .unwrap_or_else(|| "unknown".to_string())
+}
+
+/// The platform the binary was built for: architecture, OS and C environment.
+pub fn platform() -> String {
+    let env = if cfg!(target_env = "gnu") {
+        "-gnu"
+    } else if cfg!(target_env = "musl") {
+        "-musl"
+    } else if cfg!(target_env = "msvc") {
+        "-msvc"
+    } else {
+        ""
+    };
+    format!("{}-{}{env}", std::env::consts::ARCH, std::env::consts::OS)
 }
 
 #[cfg(test)]

@@ -10,6 +10,7 @@ pub mod model;
 pub mod plots;
 pub mod present;
 pub mod reading;
+pub mod render;
 pub mod replace;
 pub mod report;
 pub mod tables;

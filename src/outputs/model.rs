@@ -8,7 +8,7 @@
 //! (`loadings[3]`, `fill.model.centre`), so a model that was edited (or written
 //! by something else) is refused instead of scoring garbage or failing midway.
 
-use crate::run::{Analysis, Prepared, Preprocessed};
+use crate::analysis::{Analysis, Prepared, Preprocessed};
 use crate::stages::impute::ImputationModel;
 use crate::stages::missing::FillModel;
 use serde::{Deserialize, Serialize};

@@ -2,10 +2,11 @@
 //! report's summary sentences and cautions.
 
 use super::view::{Evidence, FlaggedLine, PlotView, ReportView, Scores3d, VarianceLine};
+use crate::analysis::{Analysis, Prepared, Preprocessed};
+use crate::analysis::{REPORT_FLAGGED_ROWS, UNUSUAL_3D};
 use crate::recipe::raw::Keep;
-use crate::run::{Analysis, Prepared, Preprocessed};
 use crate::stages::diagnose::contributions;
-use crate::stages::select::pct;
+use crate::text::percent_figure as pct;
 use rayon::prelude::*;
 use std::sync::Arc;
 
@@ -168,7 +169,7 @@ pub fn summary(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> 
     out.push(format!(
         "Scaling: {}, so the loadings are eigenvectors of the {} matrix.",
         plan.scaling.name(),
-        crate::run::matrix_name(plan)
+        crate::analysis::matrix_name(plan)
     ));
     let kept_share: f64 = d.eigenvalues[..s.kept].iter().sum::<f64>() / d.total_variance;
     out.push(format!(
@@ -227,10 +228,6 @@ pub fn cautions() -> Vec<String> {
     .to_vec()
 }
 
-/// Flagged rows listed in the report, the most unusual first.
-pub const REPORT_FLAGGED_ROWS: usize = 50;
-/// The most unusual flagged rows the rotating view of a large table adds.
-pub const UNUSUAL_3D: usize = 500;
 /// Regularly spaced rows in the rotating view of a large table.
 pub const POINTS_3D: usize = 5_000;
 
@@ -250,7 +247,7 @@ fn rows_for_3d(n: usize, diag: &crate::stages::diagnose::Diagnostics) -> Vec<usi
 
 /// The first three scores, labels and first group of the `shown` rows (in
 /// row order), read in one pass over the rows.
-fn scores_3d(view: &PlotView, rows: &crate::rows::RowResults, shown: &[usize]) -> Scores3d {
+fn scores_3d(view: &PlotView, rows: &crate::row_results::RowResults, shown: &[usize]) -> Scores3d {
     let mut points = Vec::with_capacity(shown.len());
     let mut labels = Vec::with_capacity(shown.len());
     let mut group = Vec::new();
@@ -410,7 +407,7 @@ mod tests {
             .collect();
         let z = Matrix::from_columns(&columns);
         let d = decompose(&z, true, None).unwrap();
-        let closed = correlations_of_centred(&crate::run::column_squares(&z), z.rows, &d, 2);
+        let closed = correlations_of_centred(&crate::analysis::column_squares(&z), z.rows, &d, 2);
         let t = scores(&z, &d.loadings, 2);
         for j in 0..3 {
             for a in 0..2 {

@@ -13,6 +13,7 @@
 
 use super::tables::level_label;
 use super::view::{Figure, FlaggedLine, ReportView, Scores3d, VarianceLine};
+use crate::text::{fixed, percent_unsigned_zero as percent, significant};
 use sha2::{Digest, Sha256};
 use std::collections::{BTreeMap, BTreeSet};
 
@@ -597,44 +598,6 @@ fn join_numbers(items: impl Iterator<Item = String>) -> String {
 }
 
 // ---------------------------------------------------------------- numbers
-
-/// `v` to `digits` significant digits: fixed-point for magnitudes from 1e-4 to
-/// below 1e6, else scientific such as `1.235e-7`. A negative zero reads `0`.
-pub fn significant(v: f64, digits: usize) -> String {
-    if v.is_nan() {
-        return "not a number".to_string();
-    }
-    if v.is_infinite() {
-        return if v > 0.0 { "∞" } else { "−∞" }.to_string();
-    }
-    if v == 0.0 {
-        return "0".to_string();
-    }
-    let digits = digits.max(1);
-    let sci = format!("{:.*e}", digits - 1, v);
-    let (mantissa, exponent) = sci.split_once('e').expect("scientific format");
-    let exponent: i32 = exponent.parse().expect("an exponent");
-    if (-4..6).contains(&exponent) {
-        let decimals = (digits as i32 - 1 - exponent).max(0) as usize;
-        format!("{v:.decimals$}")
-    } else {
-        format!("{mantissa}e{exponent}")
-    }
-}
-
-/// A share as a percentage with one decimal, e.g. `41.2 %`.
-pub fn percent(share: f64) -> String {
-    format!("{} %", fixed(100.0 * share, 1))
-}
-
-/// `v` with a fixed number of decimals; never `-0.0`.
-pub fn fixed(v: f64, decimals: usize) -> String {
-    let s = format!("{v:.decimals$}");
-    match s.strip_prefix('-') {
-        Some(magnitude) if magnitude.chars().all(|c| c == '0' || c == '.') => magnitude.to_string(),
-        _ => s,
-    }
-}
 
 /// A number for the embedded JSON: six significant digits (plenty for a
 /// picture), or `null` for a value that is not finite.

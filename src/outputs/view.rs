@@ -34,7 +34,7 @@ pub struct PlotView {
     /// Every analysed row's scores on the computed components, T², SPE, id and
     /// group values, read in runs of rows (they may be in a scratch file).
     #[serde(skip)]
-    pub rows: Arc<crate::rows::RowResults>,
+    pub rows: Arc<crate::row_results::RowResults>,
     /// Hotelling's T² and SPE limits at `confidence` (the first level of the
     /// recipe); `None` where a limit is not defined. A row above either is
     /// flagged ([`PlotView::is_flagged`]).

@@ -8,6 +8,7 @@ use super::raw::{
     ConstantPolicy, DEFAULT_COMPUTE, DEFAULT_KEEP, DecompositionMethod, Keep, MissingMethod,
     ScalingMethod,
 };
+use crate::text::percent_short;
 use std::fmt::Write;
 use toml::Spanned;
 
@@ -23,12 +24,6 @@ fn join_words(items: &[String]) -> String {
         [one] => one.clone(),
         [rest @ .., last] => format!("{} and {last}", rest.join(", ")),
     }
-}
-
-fn percent(share: f64) -> String {
-    let p = share * 100.0;
-    let s = format!("{p:.2}");
-    format!("{} %", s.trim_end_matches('0').trim_end_matches('.'))
 }
 
 /// The numbered sentences.
@@ -106,7 +101,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
     let m = &raw.missing;
     s.push(format!(
         "Drop every feature with more than {} of its cells missing, and report it; missing cells are filled on the transformed scale.",
-        percent(m.max_feature_missing.0)
+        percent_short(m.max_feature_missing.0)
     ));
     s.push(match m.method {
         MissingMethod::DropRows => "Then drop every row that still has a missing cell in a feature.".into(),
@@ -180,7 +175,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
     s.push(match keep {
         None => format!("Keep {DEFAULT_KEEP} components (the default, as no rule is set); more than the data's rank stops the run."),
         Some(Keep::Count(k)) => format!("Keep {k} component(s); more than the data's rank stops the run."),
-        Some(Keep::Variance(v)) => format!("Keep the fewest components whose cumulative share of the variance reaches {}.", percent(v.0)),
+        Some(Keep::Variance(v)) => format!("Keep the fewest components whose cumulative share of the variance reaches {}.", percent_short(v.0)),
         Some(Keep::Kaiser) => "Keep the components whose eigenvalue exceeds the mean eigenvalue (Kaiser's rule; the mean is 1 for a correlation matrix).".into(),
         Some(Keep::BrokenStick) => "Keep the leading components that each explain more than the broken-stick expectation.".into(),
         Some(Keep::ParallelAnalysis) => {
@@ -217,7 +212,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         .confidence
         .0
         .iter()
-        .map(|c| percent(*c))
+        .map(|c| percent_short(*c))
         .collect();
     s.push(format!(
         "For every row compute Hotelling's T² over the kept components and the squared prediction error (SPE) after them, and flag rows above their limits at {} confidence (T² by the Beta form for the analysed rows; SPE by the {} approximation); list each flagged row's feature contributions.",

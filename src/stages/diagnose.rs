@@ -171,7 +171,7 @@ pub fn diagnose_all(mut limits: Diagnostics, t2: &[f64], spe: &[f64]) -> Diagnos
 }
 
 /// T² and SPE of each row, in one fixed order of summation (shared by the
-/// analysis, by scoring new rows and by the streaming engine, so all of them give
+/// analysis, by scoring new rows and by the passes engine, so all of them give
 /// the same bits). Rows are independent, so any run of rows may be passed.
 pub fn row_statistics(
     z: &Matrix,

@@ -259,7 +259,7 @@ pub fn handle_missing(
 
 /// The warning for filled values outside a feature's observed range [lo, hi].
 pub fn outside_range_warning(count: usize, feature: &str, lo: f64, hi: f64) -> String {
-    use crate::outputs::tables::number;
+    use crate::text::number;
     format!(
         "{count} filled value(s) of `{feature}` lie outside its observed range [{}, {}]",
         number(lo),

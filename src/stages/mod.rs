@@ -10,7 +10,6 @@ pub mod diagnose;
 pub mod impute;
 pub mod missing;
 pub mod parallel;
-pub mod randomized;
 pub mod scale;
 pub mod select;
 pub mod transform;

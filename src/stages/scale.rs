@@ -37,7 +37,7 @@ pub struct ScaleReport {
 #[derive(Debug, Clone)]
 pub struct Scaled {
     pub names: Vec<String>,
-    /// The values, or `None` when the streaming engine analysed the table in
+    /// The values, or `None` when the passes engine analysed the table in
     /// passes without holding it (see [`crate::stream`]).
     pub matrix: Option<Matrix>,
     /// Index in the table of each analysed row (empty in passes, where each
@@ -86,7 +86,7 @@ pub fn scale(
                     return Err(InputError::ConstantFeature {
                         path: data.source.clone(),
                         column: feature.name,
-                        value: crate::outputs::tables::number(stats.min),
+                        value: crate::text::number(stats.min),
                         scaling: method.name(),
                     }
                     .into());
@@ -155,8 +155,8 @@ pub fn check_finite(
         return Err(AnalysisError::Underflow {
             path: source.to_string(),
             column: name.to_string(),
-            min: crate::outputs::tables::number(stats.min),
-            max: crate::outputs::tables::number(stats.max),
+            min: crate::text::number(stats.min),
+            max: crate::text::number(stats.max),
             spread: match method {
                 ScalingMethod::Range => "range",
                 _ => "standard deviation",

@@ -14,6 +14,7 @@ use super::crossval::CvEvidence;
 use super::parallel::ParallelEvidence;
 use crate::recipe::plan::ComponentsPlan;
 use crate::recipe::raw::{DEFAULT_COMPUTE, Keep};
+use crate::text::{percent_figure, trimmed};
 use serde::Serialize;
 
 /// Evidence computed from the data for the rules that need more than eigenvalues.
@@ -108,7 +109,7 @@ pub fn select_among(
                 .count();
             let why = format!(
                 "{k} eigenvalue(s) exceed the mean eigenvalue {} (Kaiser 1960)",
-                fmt_short(mean_eigenvalue)
+                trimmed(mean_eigenvalue, 4)
             );
             ("kaiser", k, why)
         }
@@ -121,14 +122,14 @@ pub fn select_among(
             let why = match (shares.get(k), sticks.get(k)) {
                 (Some(s), Some(b)) if k == 0 => format!(
                     "not even component 1 explains more than the broken-stick expectation ({} % against {} %)",
-                    pct(*s),
-                    pct(*b)
+                    percent_figure(*s),
+                    percent_figure(*b)
                 ),
                 (Some(s), Some(b)) => format!(
                     "components 1 to {k} each explain more than the broken-stick expectation; component {} explains {} % against {} %",
                     k + 1,
-                    pct(*s),
-                    pct(*b)
+                    percent_figure(*s),
+                    percent_figure(*b)
                 ),
                 _ => format!("all {k} components explain more than the broken-stick expectation"),
             };
@@ -147,20 +148,20 @@ pub fn select_among(
             let why = match (eigenvalues.get(k), pa.thresholds.get(k)) {
                 (Some(v), Some(t)) if k == 0 => format!(
                     "not even the first eigenvalue ({}) exceeds the {}th percentile of {} random tables ({}) (Horn 1965, seed {})",
-                    fmt_short(*v),
-                    fmt_short(pa.percentile),
+                    trimmed(*v, 4),
+                    trimmed(pa.percentile, 4),
                     pa.replicates,
-                    fmt_short(*t),
+                    trimmed(*t, 4),
                     pa.seed
                 ),
                 (Some(v), Some(t)) => format!(
                     "components 1 to {k} have eigenvalues above the {}th percentile of {} random tables ({}); component {} has {} against {} (Horn 1965, seed {})",
-                    fmt_short(pa.percentile),
+                    trimmed(pa.percentile, 4),
                     pa.replicates,
                     random_words(pa),
                     k + 1,
-                    fmt_short(*v),
-                    fmt_short(*t),
+                    trimmed(*v, 4),
+                    trimmed(*t, 4),
                     pa.seed
                 ),
                 _ => format!("all {k} eigenvalues exceed the random tables' threshold"),
@@ -178,14 +179,14 @@ pub fn select_among(
             let why = match cv.choose {
                 crate::recipe::raw::CvChoice::Minimum => format!(
                     "{k} component(s) give the smallest PRESS ({}) over {} folds (Bro et al. 2008)",
-                    fmt_short(cv.press[k]),
+                    trimmed(cv.press[k], 4),
                     cv.folds
                 ),
                 crate::recipe::raw::CvChoice::OneStandardError => format!(
                     "{k} is the fewest components with PRESS ({}) within one standard error of the smallest ({} at {best}, standard error {}), over {} folds (Bro et al. 2008)",
-                    fmt_short(cv.press[k]),
-                    fmt_short(cv.press[best]),
-                    fmt_short(cv.standard_error[best]),
+                    trimmed(cv.press[k], 4),
+                    trimmed(cv.press[best], 4),
+                    trimmed(cv.standard_error[best], 4),
                     cv.folds
                 ),
             };
@@ -238,16 +239,16 @@ fn by_variance(shares: &[f64], target: f64, rank: usize) -> (&'static str, usize
             let why = format!(
                 "the first {} component(s) explain {} % of the variance, the fewest to reach {} %",
                 i + 1,
-                pct(cumulative),
-                pct(target)
+                percent_figure(cumulative),
+                percent_figure(target)
             );
             return ("variance", i + 1, why);
         }
     }
     let why = format!(
         "no count of components reaches {} % (all {rank} explain {} %), so all are kept",
-        pct(target),
-        pct(cumulative)
+        percent_figure(target),
+        percent_figure(cumulative)
     );
     ("variance", rank, why)
 }
@@ -283,16 +284,6 @@ pub fn bartlett_rest(
     let df = ((q + 2) * (q - 1) / 2) as f64;
     let p_value = crate::stats::distributions::chi2_sf(chi2, df).ok()?;
     Some((chi2, df, p_value))
-}
-
-/// A share as a percentage with one decimal.
-pub fn pct(share: f64) -> String {
-    format!("{:.1}", share * 100.0)
-}
-
-fn fmt_short(v: f64) -> String {
-    let s = format!("{v:.4}");
-    s.trim_end_matches('0').trim_end_matches('.').to_string()
 }
 
 #[cfg(test)]

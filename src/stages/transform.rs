@@ -63,7 +63,7 @@ pub fn domain_error(source: &str, line: u64, column: &str, v: f64, t: Transform)
         path: source.to_string(),
         line,
         column: column.to_string(),
-        value: crate::outputs::tables::number(v),
+        value: crate::text::number(v),
         transform: t.name(),
         need: if t == Transform::Sqrt {
             "a value ≥ 0"

@@ -3,8 +3,8 @@
 //! [`Store`]. Cells are parsed by the same code as the in-memory reader, so the
 //! values are the same bits.
 
-use super::store::{Chunk, Store};
 use crate::error::{Error, InputError};
+use crate::store::{Chunk, Store};
 use crate::table::fast::{Layout, header_end, last_record_end};
 use crate::table::{Header, NumericColumn, ReadOptions, Table, read_header};
 use sha2::{Digest, Sha256};

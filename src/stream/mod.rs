@@ -1,8 +1,10 @@
 //! The passes engine: the analysis of a large table without holding it as a
 //! matrix. The file is read once, in chunks (hashed and parsed at the same
-//! time); its numbers go to a [`store::Store`] that stays in memory while it fits
-//! the memory budget and otherwise lives in a scratch file; then each statistic
-//! is computed in a pass over the store (see [`passes`]).
+//! time); its numbers go to the row store ([`crate::store::Store`]), which stays
+//! in memory while it fits the memory budget and otherwise lives in a scratch
+//! file; then each statistic is computed in a pass over the store (see
+//! [`passes`]). The module keeps its old name, `stream`; in prose it is the
+//! passes engine.
 //!
 //! Which engine runs is decided before the file is read ([`choose`]):
 //! - the in-memory engine for files under [`PASSES_FROM`] whose estimated need
@@ -17,8 +19,9 @@
 
 pub mod ingest;
 pub mod passes;
-pub mod store;
 pub mod unique;
+
+use crate::store;
 
 use crate::recipe::raw::{DecompositionMethod, Keep, MissingMethod, RawRecipe, ScalingMethod};
 

@@ -12,20 +12,20 @@
 //! 5. scores, T² and SPE, row by row;
 //! 6. the scaled values of the rows whose contributions are reported.
 
-use super::store::{Chunk, Store};
+use crate::analysis::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::error::{Error, InputError};
 use crate::linalg::SUM_START;
 use crate::linalg::crossprod::{GramAccumulator, row_times};
-use crate::outputs::tables::number;
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::{ConstantPolicy, MissingMethod};
-use crate::run::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::stages::decompose::{add_squares, from_cross_products};
 use crate::stages::diagnose::RowStatistics;
 use crate::stages::missing::{FeatureMissing, FillModel, MissingReport};
 use crate::stages::scale::{FeatureScale, ScaleReport, Scaled, check_finite};
 use crate::stages::select::{Evidence, select};
 use crate::stages::transform::{Applied, domain_error, transform_value};
+use crate::store::{Chunk, Store};
+use crate::text::number;
 use rayon::prelude::*;
 
 /// How each analysed feature is read from the store and brought to the scale
@@ -347,7 +347,7 @@ pub fn preprocess(
     crate::progress::current().stage("pass 2 of 6: filled values");
     // Per feature: the sum, lowest and highest of the filled values.
     let mut filled_stats = vec![(SUM_START, f64::INFINITY, f64::NEG_INFINITY); q];
-    let mut filled = crate::rows::FilledCells::new(
+    let mut filled = crate::row_results::FilledCells::new(
         plan.features.clone(),
         if store.spilled() { 0 } else { u64::MAX },
         &plan.output,
@@ -385,7 +385,7 @@ pub fn preprocess(
                             let raw = &chunk.values[r * width..(r + 1) * width];
                             for j in 0..q {
                                 if raw[features.column[j]].is_nan() {
-                                    cells.push(crate::rows::CellIn {
+                                    cells.push(crate::row_results::CellIn {
                                         table_row: offset + r,
                                         // The plan's index of the feature.
                                         feature: kept[j],
@@ -399,7 +399,7 @@ pub fn preprocess(
                     .collect::<Vec<_>>()
             },
         );
-        let cells: Vec<crate::rows::CellIn> = cells.into_iter().flatten().collect();
+        let cells: Vec<crate::row_results::CellIn> = cells.into_iter().flatten().collect();
         filled
             .push(&cells)
             .map_err(|e| scratch_error(prepared, e))?;
@@ -602,7 +602,7 @@ pub fn analyse(
         &squares,
         n,
         centred,
-        crate::run::loadings_wanted(plan),
+        crate::analysis::loadings_wanted(plan),
     )?;
     let t = crate::timing::lap("  eigendecomposition", t);
     if decomposition.rank == 0 {
@@ -619,7 +619,7 @@ pub fn analyse(
         &plan.components,
         Evidence::default(),
     )
-    .map_err(|e| crate::run::keep_error(prepared, pre, e.keep, e.available))?;
+    .map_err(|e| crate::analysis::keep_error(prepared, pre, e.keep, e.available))?;
     if selection.computed > decomposition.loadings.cols {
         decomposition = from_cross_products(&gram, &squares, n, centred, selection.computed)?;
     }
@@ -635,13 +635,13 @@ pub fn analyse(
     let moments = crate::stats::limits::ResidualMoments::from_eigenvalues(
         &decomposition.eigenvalues[kept..decomposition.rank],
     );
-    let mut diagnostics = crate::run::diagnostics_for(plan, n, kept, moments);
+    let mut diagnostics = crate::analysis::diagnostics_for(plan, n, kept, moments);
     let mut results = results_for(prepared, computed, store.spilled());
     let labels = label_texts(prepared);
     let texts = store.text_width();
     // Per row of the results: its table row, scores (kept, then the others),
     // T² and SPE, computed straight into the layout the results keep.
-    let w = crate::rows::RowResults::row_width(computed);
+    let w = crate::row_results::RowResults::row_width(computed);
     let mut first = 0;
     let mut offset = 0;
     // The chunks' texts move on to the results (nothing reads them after this
@@ -695,7 +695,7 @@ pub fn analyse(
     // The wanted rows' details from the results (one reading of them), then
     // their scaled values from the store, found by table row.
     let mut details =
-        crate::run::row_details(&results, kept, &rows_needing_values(&diagnostics, plan))?;
+        crate::analysis::row_details(&results, kept, &rows_needing_values(&diagnostics, plan))?;
     let wanted: std::collections::BTreeMap<usize, usize> =
         details.iter().map(|(&i, row)| (row.table_row, i)).collect();
     if !wanted.is_empty() {
@@ -727,9 +727,13 @@ pub fn analyse(
 
 /// Where the rows' results go: in memory, or all to a scratch file beside the
 /// results folder when the table's values did not fit the budget.
-fn results_for(prepared: &Prepared, computed: usize, spill: bool) -> crate::rows::RowResults {
+fn results_for(
+    prepared: &Prepared,
+    computed: usize,
+    spill: bool,
+) -> crate::row_results::RowResults {
     let plan = &prepared.plan;
-    crate::rows::RowResults::new(
+    crate::row_results::RowResults::new(
         computed,
         plan.input.id.clone(),
         plan.input.groups.clone(),
@@ -755,5 +759,5 @@ fn label_texts(prepared: &Prepared) -> Vec<usize> {
 }
 
 fn scratch_error(prepared: &Prepared, e: std::io::Error) -> Error {
-    crate::error::OutputError::io(&crate::run::scratch_dir(&prepared.plan), e).into()
+    crate::error::OutputError::io(&crate::analysis::scratch_dir(&prepared.plan), e).into()
 }

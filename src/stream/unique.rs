@@ -147,12 +147,7 @@ impl IdCheck {
         self.sort();
         if self.spill.is_none() {
             let (file, registered) = crate::cleanup::create_registered(
-                || {
-                    crate::outputs::debris::scratch_file(
-                        &self.scratch,
-                        crate::outputs::debris::Kind::Ids,
-                    )
-                },
+                || crate::scratch::scratch_file(&self.scratch, crate::scratch::Kind::Ids),
                 |file| file.path(),
             )?;
             self.spill = Some(Spill {

@@ -10,16 +10,18 @@ use super::circle::draw_arrows;
 use super::frame::{self, Extent, Frame, Step};
 use super::scatter::{self, Colour, Groups, Legend, Selection};
 use super::svg::{self, NEUTRAL};
-use super::{LEGEND_X, equal_axes, scatter_layout, title, words_number};
+use super::{LEGEND_X, equal_axes, scatter_layout, title};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
-use crate::rows::Batch;
+use crate::row_results::Batch;
+use crate::text::significant_plain;
 use std::fmt::Write;
 
 /// Arrow colour.
 pub const ARROW: &str = "#3D3D3D";
 
-struct Prepared {
+/// What one scan of the rows gathers for the biplot.
+struct BiplotScan {
     /// The extents of the points' coordinates over every row.
     x: Extent,
     y: Extent,
@@ -59,7 +61,7 @@ fn coords(plan: &PlotPlan, view: &PlotView) -> impl Fn(&Batch, usize) -> (f64, f
     }
 }
 
-fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+fn prepare(plan: &PlotPlan, view: &PlotView) -> BiplotScan {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let (ra, rb) = roots(plan, view);
     let colour = Colour::of(view, plan.color.as_deref());
@@ -87,7 +89,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     } else {
         1.0
     };
-    Prepared {
+    BiplotScan {
         x: g.x,
         y: g.y,
         root: (ra, rb),
@@ -98,7 +100,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     }
 }
 
-fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str) -> String {
+fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan, caption: &str) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let layout = scatter_layout();
     let tips: Vec<(f64, f64)> = p
@@ -153,7 +155,10 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
         legend.marker("#FFFFFF", svg::Shape::Circle, true, "above a limit");
     }
     legend.rule(ARROW, None, 1.2, "feature: loading × √λ");
-    legend.note(&format!("arrows drawn × {}", words_number(p.stretch, 3)));
+    legend.note(&format!(
+        "arrows drawn × {}",
+        significant_plain(p.stretch, 3)
+    ));
     legend.gap();
     if let Some((classes, colours)) = &density {
         legend.density(classes, colours);
@@ -162,15 +167,15 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
     frame::finish(back, &t, caption, &body)
 }
 
-fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let mut s = format!(
         "{}. A biplot (Gabriel 1971) of PC{} ({}) and PC{} ({}) in the covariance form: each point is a row's scores divided by √λ of the component (so both axes have unit variance), and each arrow is a feature's loadings multiplied by √λ",
         title(plan, view),
         plan.x,
-        super::percent(view.share(a)),
+        crate::text::percent_or_undefined(view.share(a)),
         plan.y,
-        super::percent(view.share(b)),
+        crate::text::percent_or_undefined(view.share(b)),
     );
     if view.scaling == "unit-variance" {
         s.push_str(
@@ -180,8 +185,8 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
     let _ = write!(
         s,
         ", all arrows stretched by the common factor {} so they can be read against the points. One data unit has the same length on both axes. Angles between arrows approximate the correlations between features, and a point's projection onto an arrow approximates that feature's scaled value (times {}).",
-        words_number(p.stretch, 3),
-        words_number(p.stretch, 3),
+        significant_plain(p.stretch, 3),
+        significant_plain(p.stretch, 3),
     );
     if p.root.0 == 1.0 && view.eigenvalues[a] != 1.0
         || p.root.1 == 1.0 && view.eigenvalues[b] != 1.0

@@ -4,9 +4,10 @@
 use super::frame::{self, Axis, Frame, LABEL_SIZE, Layout, Panel, Step, TOP};
 use super::scatter::{Box2, Placement, Spot, place_labels};
 use super::svg::{self, Anchor, MUTED, N};
-use super::{title, words_number};
+use super::title;
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
+use crate::text::significant_plain;
 use std::fmt::Write;
 
 /// Arrow colour.
@@ -199,16 +200,16 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
         "{}. Each arrow ends at the Pearson correlation of a scaled feature with the scores of PC{} ({}, horizontal) and PC{} ({}, vertical); both axes run from −1 to 1 at the same scale. The solid circle has radius 1: an arrow reaching it is explained entirely by the two components. The dashed circle has radius √½: beyond it, the two components explain more than half of the feature's variance. Arrows pointing the same way belong to correlated features.",
         title(plan, view),
         plan.x,
-        super::percent(view.share(a)),
+        crate::text::percent_or_undefined(view.share(a)),
         plan.y,
-        super::percent(view.share(b)),
+        crate::text::percent_or_undefined(view.share(b)),
     );
     if let Some((len, name)) = longest {
         let _ = write!(
             s,
             " The longest arrow is {} (length {}).",
             name,
-            words_number(len, 2)
+            significant_plain(len, 2)
         );
     }
     s

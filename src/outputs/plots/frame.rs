@@ -17,6 +17,7 @@
 //! class or write sub-pixel positions.
 
 use super::svg::{self, HEIGHT, N, WIDTH, esc};
+pub use crate::text::pow10;
 use plotters::coord::ranged1d::{KeyPointHint, NoDefaultFormatting, Ranged, ValueFormatter};
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -44,23 +45,6 @@ pub struct Step {
     /// 1, 2, 5 or 25 (2.5 is written as 25 × 10^(e−1)).
     pub mantissa: i64,
     pub exponent: i32,
-}
-
-/// 10ᵉ by repeated multiplication or division (IEEE basic operations only).
-pub fn pow10(e: i32) -> f64 {
-    let mut v = 1.0;
-    if e >= 0 {
-        for _ in 0..e {
-            v *= 10.0;
-        }
-    } else {
-        let mut d = 1.0;
-        for _ in 0..(-e) {
-            d *= 10.0;
-        }
-        v /= d;
-    }
-    v
 }
 
 /// Dashed lines through the origin of a panel, in their own `origin` group.

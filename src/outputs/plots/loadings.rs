@@ -4,9 +4,10 @@
 use super::frame::{self, Axis, Frame, LABEL_SIZE, Layout, TICK_SIZE, TOP, padded_range};
 use super::scatter::{self, MARK};
 use super::svg::{self, Anchor, HEIGHT, INK, MUTED, N, WIDTH};
-use super::{equal_axes, title, words_number};
+use super::{equal_axes, title};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
+use crate::text::significant_plain;
 use std::fmt::Write;
 
 const POSITIVE: &str = "#0072B2";
@@ -266,8 +267,8 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
             "{}. The loading of each of the {p} features on PC{} ({} of the variance), in table order: blue bars are positive, vermilion bars negative. The loadings form a unit vector, so the dashed lines at ±1/√p = ±{} mark the size every loading would have if all features contributed equally; bars beyond them weigh more than an equal share. The sign of a component is a convention (its largest loading is positive).",
             title(plan, view),
             plan.x,
-            super::percent(view.share(a)),
-            words_number(1.0 / (p.max(1) as f64).sqrt(), 3),
+            crate::text::percent_or_undefined(view.share(a)),
+            significant_plain(1.0 / (p.max(1) as f64).sqrt(), 3),
         );
         let bl = bar_layout(view);
         if bl.every > 1 {
@@ -284,9 +285,9 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
             "{}. Each point is a feature, at its loadings on PC{} ({}, horizontal) and PC{} ({}, vertical), with one unit the same length on both axes. Features far from the origin shape these components; features close together load alike.",
             title(plan, view),
             plan.x,
-            super::percent(view.share(a)),
+            crate::text::percent_or_undefined(view.share(a)),
             plan.y,
-            super::percent(view.share(b)),
+            crate::text::percent_or_undefined(view.share(b)),
         )
     }
 }

@@ -184,32 +184,6 @@ fn equal_axes(layout: &Layout, xr: (f64, f64), yr: (f64, f64)) -> (Axis, Axis) {
     )
 }
 
-/// Formats a number for a caption with `digits` significant digits (fixed
-/// decimals, no exponent for ordinary sizes).
-fn words_number(v: f64, digits: i32) -> String {
-    if !v.is_finite() {
-        return "not a number".into();
-    }
-    if v == 0.0 {
-        return "0".into();
-    }
-    let mut e = 0;
-    let a = v.abs();
-    while frame::pow10(e) > a && e > -300 {
-        e -= 1;
-    }
-    while frame::pow10(e + 1) <= a && e < 300 {
-        e += 1;
-    }
-    let decimals = (digits - 1 - e).clamp(0, 12) as usize;
-    let s = format!("{v:.decimals$}");
-    if s.starts_with('-') && s.trim_start_matches(['-', '0', '.']).is_empty() {
-        s[1..].to_string()
-    } else {
-        s
-    }
-}
-
 /// The view's axis title ("PC1 (41.2 %)"), or just "PC1" when the share is
 /// not a finite number.
 fn axis_title(view: &PlotView, a: usize) -> String {
@@ -217,15 +191,5 @@ fn axis_title(view: &PlotView, a: usize) -> String {
         view.axis_title(a)
     } else {
         format!("PC{}", a + 1)
-    }
-}
-
-/// A percentage with one decimal, e.g. "41.2 %" ("an undefined share" when the
-/// share is not a finite number, e.g. for a zero total variance).
-fn percent(share: f64) -> String {
-    if share.is_finite() {
-        format!("{:.1} %", 100.0 * share)
-    } else {
-        "an undefined share".into()
     }
 }

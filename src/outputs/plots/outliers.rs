@@ -10,11 +10,12 @@
 use super::frame::{self, Axis, Extent, Frame};
 use super::scatter::{self, Colour, Groups, Legend, Selection};
 use super::svg::{self, MUTED, NEUTRAL, Shape};
-use super::{LEGEND_X, scatter_layout, title, words_number};
+use super::{LEGEND_X, scatter_layout, title};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
 use crate::recipe::raw::PointLabels;
-use crate::rows::Batch;
+use crate::row_results::Batch;
+use crate::text::significant_plain;
 use std::fmt::Write;
 
 /// Colours and shapes of the four kinds of rows (Okabe & Ito colours).
@@ -27,7 +28,8 @@ const BOTH: (&str, Shape) = ("#CC79A7", Shape::Diamond);
 /// limit this many times.
 pub const ROOT_ABOVE: f64 = 6.0;
 
-struct Prepared {
+/// What one scan of the rows gathers for the outlier map.
+struct OutlierScan {
     /// The extents of the plotted coordinates over every row (of the square
     /// roots where the axis has a root scale).
     x: Extent,
@@ -58,7 +60,7 @@ fn coords(root_x: bool, root_y: bool) -> impl Fn(&Batch, usize) -> (f64, f64) {
     }
 }
 
-fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+fn prepare(plan: &PlotPlan, view: &PlotView) -> OutlierScan {
     let above = |v: f64, l: Option<f64>| l.is_some_and(|l| v > l);
     let kind = |batch: &Batch, i: usize| -> u32 {
         let a = above(batch.t2(i), view.t2_limit);
@@ -105,7 +107,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
             if root_y { root(y) } else { y },
         )
     });
-    Prepared {
+    OutlierScan {
         x: if root_x { rooted_x } else { g.x },
         y: if root_y { rooted_y } else { g.y },
         root_x,
@@ -172,7 +174,7 @@ fn style(kind: usize) -> (&'static str, Shape) {
     [WITHIN, T2_ONLY, SPE_ONLY, BOTH][kind.min(3)]
 }
 
-fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str) -> String {
+fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan, caption: &str) -> String {
     let layout = scatter_layout();
     let lx = view.t2_limit.filter(|l| l.is_finite());
     let ly = view.spe_limit.filter(|l| l.is_finite());
@@ -216,7 +218,7 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
     }
     // The limits.
     let rule = format!("stroke=\"{MUTED}\" stroke-width=\"1.2\" stroke-dasharray=\"6 4\"");
-    let level = super::percent(view.confidence);
+    let level = crate::text::percent_or_undefined(view.confidence);
     body.push_str("<g class=\"limits\">\n");
     if let Some(l) = lx {
         let x = panel.px(l);
@@ -259,11 +261,11 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
     legend.heading(&format!("limits at {level}"));
     legend.rule(MUTED, Some("6 4"), 1.2, "limit");
     match view.t2_limit {
-        Some(l) => legend.note(&format!("T²: {}", words_number(l, 4))),
+        Some(l) => legend.note(&format!("T²: {}", significant_plain(l, 4))),
         None => legend.note("T²: not defined"),
     }
     match view.spe_limit {
-        Some(l) => legend.note(&format!("SPE: {}", words_number(l, 4))),
+        Some(l) => legend.note(&format!("SPE: {}", significant_plain(l, 4))),
         None => legend.note("SPE: not defined"),
     }
     if let Some((classes, colours)) = &density {
@@ -283,7 +285,7 @@ fn short(kind: usize) -> &'static str {
     ][kind.min(3)]
 }
 
-fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared) {
+fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &OutlierScan) {
     out.push_str("<g class=\"points\">\n");
     let mut current: Option<usize> = None;
     for point in &p.sel.points {
@@ -321,8 +323,8 @@ fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &Prepared) {
     out.push_str("</g>\n");
 }
 
-fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
-    let level = super::percent(view.confidence);
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan) -> String {
+    let level = crate::text::percent_or_undefined(view.confidence);
     let mut s = format!(
         "{}. Each row's Hotelling T² (distance within the model of {} kept components, horizontal) against its squared prediction error SPE (distance from the model, vertical).",
         title(plan, view),
@@ -333,7 +335,7 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
             let _ = write!(
                 s,
                 " The dashed vertical line is the T² limit at {level} ({}).",
-                words_number(l, 4)
+                significant_plain(l, 4)
             );
         }
         None => {
@@ -348,7 +350,7 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
             let _ = write!(
                 s,
                 " The dashed horizontal line is the SPE limit at {level} ({}).",
-                words_number(l, 4)
+                significant_plain(l, 4)
             );
         }
         None => {

@@ -2,7 +2,7 @@
 //! colours and shapes, the choice of which rows are drawn one by one and which
 //! are binned into a density, point labels, and the legend column.
 //!
-//! The rows are read only through [`crate::rows::RowResults::scan`] (they may
+//! The rows are read only through [`crate::row_results::RowResults::scan`] (they may
 //! be in a scratch file): one reading ([`gather`]) counts the groups, folds the
 //! axis ranges and keeps the rows drawn one by one; a second
 //! ([`draw_density`]) bins the others into a grid of fixed size. Neither holds
@@ -15,7 +15,7 @@ use super::svg::{
 };
 use crate::outputs::view::PlotView;
 use crate::recipe::raw::PointLabels;
-use crate::rows::Batch;
+use crate::row_results::Batch;
 use std::cmp::Ordering;
 use std::collections::BTreeMap;
 use std::fmt::Write;

@@ -4,17 +4,19 @@
 use super::frame::{self, Extent, Frame};
 use super::scatter::{self, Colour, Groups, Legend, Selection};
 use super::svg::{self, MUTED, N, NEUTRAL};
-use super::{LEGEND_X, equal_axes, scatter_layout, title, words_number};
+use super::{LEGEND_X, equal_axes, scatter_layout, title};
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
-use crate::rows::Batch;
+use crate::row_results::Batch;
 use crate::stats::limits::t2_limit_phase1;
+use crate::text::significant_plain;
 use std::fmt::Write;
 
 /// The ellipse: the limit L and the semi-axes along x and y, or why it is not drawn.
 type Ellipse = Result<(f64, f64, f64), String>;
 
-struct Prepared {
+/// What one scan of the rows gathers for the score plot.
+struct ScoreScan {
     /// The extents of the two components' scores over every row.
     x: Extent,
     y: Extent,
@@ -34,7 +36,7 @@ fn coords(plan: &PlotPlan) -> impl Fn(&Batch, usize) -> (f64, f64) {
     }
 }
 
-fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
+fn prepare(plan: &PlotPlan, view: &PlotView) -> ScoreScan {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let colour = Colour::of(view, plan.color.as_deref());
     let g = scatter::gather(
@@ -54,7 +56,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
         let l = t2_limit_phase1(n, 2, conf).map_err(|e| e.to_string())?;
         Ok((l, (l * la).sqrt(), (l * lb).sqrt()))
     });
-    Prepared {
+    ScoreScan {
         x: g.x,
         y: g.y,
         n,
@@ -64,7 +66,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> Prepared {
     }
 }
 
-fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str) -> String {
+fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan, caption: &str) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let layout = scatter_layout();
     let (ex, ey) = match &p.ellipse {
@@ -128,7 +130,10 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
             MUTED,
             Some("6 4"),
             1.2,
-            &format!("T² ellipse {}", super::percent(plan.ellipse.unwrap_or(0.0))),
+            &format!(
+                "T² ellipse {}",
+                crate::text::percent_or_undefined(plan.ellipse.unwrap_or(0.0))
+            ),
         );
         legend.gap();
     }
@@ -139,15 +144,15 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared, caption: &str
     frame::finish(back, &t, caption, &body)
 }
 
-fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let mut s = format!(
         "{}. Scores of the rows on PC{} ({} of the variance, horizontal) and PC{} ({}, vertical), with one score unit the same length on both axes.",
         title(plan, view),
         plan.x,
-        super::percent(view.share(a)),
+        crate::text::percent_or_undefined(view.share(a)),
         plan.y,
-        super::percent(view.share(b)),
+        crate::text::percent_or_undefined(view.share(b)),
     );
     if let Some(column) = &p.groups.column {
         let _ = write!(
@@ -165,12 +170,12 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &Prepared) -> String {
             let _ = write!(
                 s,
                 " The dashed ellipse is the Hotelling T² limit at {} for these two components alone: t{}²/λ{} + t{}²/λ{} = L with L = {} (the Phase I limit of Tracy, Young and Mason for n = {} rows and 2 components). Rows are flagged by T² over the {} kept components and by SPE, not by this ellipse, so a flagged row may lie inside it.",
-                super::percent(plan.ellipse.unwrap_or(0.0)),
+                crate::text::percent_or_undefined(plan.ellipse.unwrap_or(0.0)),
                 plan.x,
                 plan.x,
                 plan.y,
                 plan.y,
-                words_number(*l, 4),
+                significant_plain(*l, 4),
                 p.n,
                 view.kept
             );

@@ -6,9 +6,10 @@
 use super::frame::{self, Axis, Frame, LABEL_SIZE, Layout, Panel, Step, TOP};
 use super::scatter::{HALO, Legend, MARK};
 use super::svg::{self, Anchor, HEIGHT, INK, MUTED, N, Shape, blend};
-use super::{title, words_number};
+use super::title;
 use crate::outputs::view::PlotView;
 use crate::recipe::plots::PlotPlan;
+use crate::text::significant_plain;
 use std::fmt::Write;
 
 const BAR: &str = "#0072B2";
@@ -203,7 +204,10 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
             panel.right - 4.0,
             y - 4.0,
             Anchor::End,
-            &format!("mean eigenvalue {}", words_number(ev.mean_eigenvalue, 3)),
+            &format!(
+                "mean eigenvalue {}",
+                significant_plain(ev.mean_eigenvalue, 3)
+            ),
             &small,
         );
     }
@@ -224,7 +228,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
             panel.right - 4.0,
             y - 4.0,
             Anchor::End,
-            &format!("target {}", super::percent(target)),
+            &format!("target {}", crate::text::percent_or_undefined(target)),
             &small,
         );
     }
@@ -391,7 +395,7 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
         title(plan, view),
         view.kept,
         view.kept,
-        super::percent(cumulative),
+        crate::text::percent_or_undefined(cumulative),
         view.rule,
         view.rule_reason,
     );
@@ -407,14 +411,14 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
         let _ = write!(
             s,
             " The orange dashed line is Kaiser's threshold, the mean eigenvalue {}.",
-            words_number(ev.mean_eigenvalue, 3)
+            significant_plain(ev.mean_eigenvalue, 3)
         );
     }
     if let Some(t) = ev.variance_target {
         let _ = write!(
             s,
             " The orange dashed line on the share axis is the variance target of {}.",
-            super::percent(t)
+            crate::text::percent_or_undefined(t)
         );
     }
     if let Some(press) = ev.press.as_ref().filter(|p| !p.is_empty()) {

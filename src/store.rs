@@ -1,7 +1,9 @@
-//! Where the passes engine keeps rows between passes: the table's numbers (with
-//! its text cells and line numbers), and later the rows' results. In memory
-//! while they fit the memory budget, otherwise in a scratch file beside the
-//! results folder that each pass reads back in order.
+//! The row store: where the passes engine keeps rows between passes (the
+//! table's numbers, with its text cells and line numbers) and where every
+//! analysed row's results are kept (`row_results`). In memory while they fit the
+//! memory budget, otherwise in a scratch file beside the results folder that
+//! each pass reads back in order. At the bottom of the crate, so that both use
+//! it without either importing the other.
 
 use std::fs::File;
 use std::io::{self, Read, Seek, SeekFrom, Write};
@@ -125,12 +127,7 @@ impl Store {
         }
         if self.spill.is_none() {
             let (file, registered) = crate::cleanup::create_registered(
-                || {
-                    crate::outputs::debris::scratch_file(
-                        owner,
-                        crate::outputs::debris::Kind::Scratch,
-                    )
-                },
+                || crate::scratch::scratch_file(owner, crate::scratch::Kind::Scratch),
                 |file| file.path(),
             )?;
             let mut spill = Spill {

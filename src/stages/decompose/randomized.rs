@@ -42,13 +42,13 @@
 //! Eigenvalue Problem", SIAM, Theorem 4.5.1, as commonly given), so the report
 //! says how far each eigenvalue can be from a true one.
 
+use super::{Decomposition, Route, column_square_sums, rank_tolerance};
 use crate::error::AnalysisError;
 use crate::linalg::Matrix;
 use crate::linalg::crossprod::{gram_of_columns, times};
 use crate::linalg::eigen::{fix_signs, symmetric_eigen};
 use crate::linalg::random::Stream;
 use crate::recipe::raw::RawRandomized;
-use crate::stages::decompose::{Decomposition, Route, column_square_sums, rank_tolerance};
 use nalgebra::DMatrix;
 use serde::Serialize;
 

@@ -9,14 +9,20 @@
 //!
 //! Sign rule: in each loading vector the entry of largest magnitude is positive;
 //! ties go to the first feature. So reruns and other machines agree.
+//!
+//! Both methods live in this folder and return the types defined here
+//! ([`Decomposition`], [`Route`]): the exact one in this file, the randomized one
+//! (the leading components from a seeded sketch) in [`randomized`].
 
 use crate::error::AnalysisError;
 use crate::linalg::Matrix;
 use crate::linalg::crossprod::{gram_of_columns, gram_of_rows, times, transpose_times};
 use crate::linalg::eigen::{fix_signs, symmetric_eigen_leading};
 use crate::recipe::raw::RawRandomized;
-use crate::stages::randomized::RandomizedReport;
+pub use randomized::RandomizedReport;
 use serde::Serialize;
+
+pub mod randomized;
 
 /// Which matrix was decomposed.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -123,7 +129,7 @@ impl Decomposition {
 }
 
 /// The leading `want` components by the randomized method of Halko, Martinsson
-/// & Tropp (2011); see [`super::randomized`] for the steps and what is known of
+/// & Tropp (2011); see [`randomized`] for the steps and what is known of
 /// the rest of the spectrum. Only when the recipe sets
 /// `components.method = "randomized"`; never chosen by shape.
 pub fn decompose_randomized(
@@ -132,7 +138,7 @@ pub fn decompose_randomized(
     want: usize,
     settings: &RawRandomized,
 ) -> Result<(Decomposition, RandomizedReport), AnalysisError> {
-    super::randomized::randomized(z, centred, want, settings)
+    randomized::randomized(z, centred, want, settings)
 }
 
 /// Σᵢ zᵢⱼ² of each column, rows in order: the same sums as

@@ -6,7 +6,7 @@
 //! copy of every row. Each pass reads the file through a handle of its own, so
 //! several may run at once.
 
-use crate::stream::store::{Chunk, Store};
+use crate::store::{Chunk, Store};
 use std::borrow::Cow;
 use std::io;
 use std::path::{Path, PathBuf};
@@ -409,7 +409,7 @@ impl<'a> CellBatch<'a> {
 /// The id and group texts of the rows, looked up by table row in increasing
 /// order while the rows are read one chunk at a time ([`RowResults::labels`]).
 pub struct Labels<'a> {
-    cursor: crate::stream::store::Cursor<'a>,
+    cursor: crate::store::Cursor<'a>,
     chunk: Option<std::borrow::Cow<'a, Chunk>>,
     /// The next row of `chunk` to look at.
     at: usize,
