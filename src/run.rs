@@ -307,13 +307,11 @@ fn preprocess_in_memory(prepared: &Prepared) -> Result<Preprocessed, Error> {
     let plan = &prepared.plan;
     let data = FeatureData::from_table(&prepared.table, plan);
     if data.n_rows() < 2 {
-        let rows = data.n_rows();
-        return Err(InputError::TooFewRows {
-            path: data.source,
-            rows,
-            why: String::new(),
-        }
-        .into());
+        return Err(crate::stages::missing::too_few_rows(
+            &data.source,
+            data.n_rows(),
+            0,
+        ));
     }
     // Transforms come first, so every fill method works on the scale the analysis
     // sees (a mean fill of a log-transformed feature is its geometric mean).
@@ -436,13 +434,9 @@ pub fn rows_needing_values(diagnostics: &Diagnostics, plan: &Plan) -> Vec<usize>
     rows
 }
 
-/// Σᵢ zᵢⱼ² of each column, rows in order, each sum starting from +0.
+/// Σᵢ zᵢⱼ² of each column, rows in order ([`crate::stages::scale::Squares`]).
 pub fn column_squares(z: &Matrix) -> Vec<f64> {
-    let mut squares = vec![0.0; z.cols];
-    for i in 0..z.rows {
-        crate::stages::decompose::add_squares(&mut squares, z.row(i));
-    }
-    squares
+    crate::stages::scale::Squares::of(z)
 }
 
 /// The scores of components `from..to` (each entry the same dot product as in

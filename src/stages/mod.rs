@@ -4,6 +4,7 @@
 //! table → [`FeatureData`] → [`missing`] → [`transform`] → [`scale`] →
 //! [`decompose`] → [`select`].
 
+pub mod accumulate;
 pub mod crossval;
 pub mod decompose;
 pub mod diagnose;

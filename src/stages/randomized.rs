@@ -48,7 +48,7 @@ use crate::linalg::crossprod::{gram_of_columns, times};
 use crate::linalg::eigen::{fix_signs, symmetric_eigen};
 use crate::linalg::random::Stream;
 use crate::recipe::raw::RawRandomized;
-use crate::stages::decompose::{Decomposition, Route, column_square_sums, rank_tolerance};
+use crate::stages::decompose::{Decomposition, Route, rank_tolerance};
 use nalgebra::DMatrix;
 use serde::Serialize;
 
@@ -102,7 +102,7 @@ pub fn randomized(
     let (n, p) = (z.rows, z.cols);
     let divisor = (n - 1) as f64;
     // The exact method's total, from the same sums in the same order.
-    let total_variance = column_square_sums(z).iter().sum::<f64>() / divisor;
+    let total_variance = crate::stages::scale::Squares::of(z).iter().sum::<f64>() / divisor;
     let bound = if centred { n - 1 } else { n }.min(p);
     let wanted = wanted.min(bound);
     let l = (wanted + settings.oversampling.0).min(n.min(p)).max(1);
