@@ -492,13 +492,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
             (d, Some(report))
         }
     };
-    if decomposition.rank == 0 {
-        return Err(InputError::NoFeatures {
-            path: prepared.table.display.clone(),
-            why: " (the scaled data has no variance)".into(),
-        }
-        .into());
-    }
+    decomposition.check_variance(&prepared.table.display)?;
     let mut evidence = Evidence::default();
     match components.keep {
         Keep::ParallelAnalysis => {
@@ -1277,14 +1271,7 @@ fn diagnostics_json(diag: &Diagnostics, rank: usize, kept: usize, max_rows: usiz
 
 /// The name of the matrix whose eigenvectors are the loadings.
 pub fn matrix_name(plan: &Plan) -> &'static str {
-    use crate::recipe::raw::ScalingMethod::*;
-    match plan.scaling {
-        None => "second moments (uncentred)",
-        Center => "covariance",
-        UnitVariance => "correlation",
-        Pareto => "covariance of Pareto-scaled features",
-        Range => "covariance of range-scaled features",
-    }
+    plan.scaling.matrix_name()
 }
 
 #[cfg(test)]

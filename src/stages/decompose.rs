@@ -117,6 +117,18 @@ impl Decomposition {
     /// leading ones, so rules and limits that need the whole spectrum (Kaiser's
     /// p, the broken stick's p, Bartlett's test, the θ's of the SPE limit) must
     /// not read [`Decomposition::eigenvalues`] as if it were complete.
+    /// Refuses scaled data with no variance (no eigenvalue above rounding):
+    /// there is no component to keep, whichever engine found it.
+    pub fn check_variance(&self, source: &str) -> Result<(), crate::error::InputError> {
+        if self.rank == 0 {
+            return Err(crate::error::InputError::NoFeatures {
+                path: source.to_string(),
+                why: " (the scaled data has no variance)".into(),
+            });
+        }
+        Ok(())
+    }
+
     pub fn has_every_eigenvalue(&self) -> bool {
         self.eigenvalues.len() == self.loadings.rows
     }

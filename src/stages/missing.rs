@@ -8,8 +8,8 @@
 
 use super::FeatureData;
 use super::accumulate::Statistic;
-use super::scale::{Moments, MomentsReport};
 use super::impute::{IterativeReport, iterative_pca, knn};
+use super::scale::{Moments, MomentsReport};
 use crate::error::{Error, InputError};
 use crate::recipe::raw::{MissingMethod, RawIterative, RawKnn, ScalingMethod};
 use serde::Serialize;
@@ -444,9 +444,14 @@ fn fill_constant(
     for (feature, observed) in data.features.iter_mut().zip(observed) {
         // The median needs a copy to sort.
         let value = match method {
-            MissingMethod::Median => {
-                median(feature.values.iter().copied().filter(|v| !v.is_nan()).collect())
-            }
+            MissingMethod::Median => median(
+                feature
+                    .values
+                    .iter()
+                    .copied()
+                    .filter(|v| !v.is_nan())
+                    .collect(),
+            ),
             _ => mean_fill(observed),
         };
         for v in feature.values.iter_mut().filter(|v| v.is_nan()) {

@@ -87,7 +87,13 @@ pub fn scale(
         }
         let mut squares = Square::new();
         squares.push(&feature.values);
-        check_finite(&data.source, &feature.name, &stats, squares.finish(), method)?;
+        check_finite(
+            &data.source,
+            &feature.name,
+            &stats,
+            squares.finish(),
+            method,
+        )?;
         columns.push(feature.values);
         names.push(feature.name);
         report.features.push(stats);
@@ -440,6 +446,8 @@ impl ScalingMethod {
             ScalingMethod::UnitVariance => sd,
             ScalingMethod::Pareto => sd.sqrt(),
             ScalingMethod::Range => max - min,
+            #[cfg(test)]
+            ScalingMethod::TwiceSd => 2.0 * sd,
         }
     }
 
@@ -463,14 +471,41 @@ impl ScalingMethod {
         self == ScalingMethod::UnitVariance
     }
 
+    /// The name of the matrix whose eigenvectors are the loadings.
+    pub fn matrix_name(self) -> &'static str {
+        match self {
+            ScalingMethod::None => "second moments (uncentred)",
+            ScalingMethod::Center => "covariance",
+            ScalingMethod::UnitVariance => "correlation",
+            ScalingMethod::Pareto => "covariance of Pareto-scaled features",
+            ScalingMethod::Range => "covariance of range-scaled features",
+            #[cfg(test)]
+            ScalingMethod::TwiceSd => "correlation (halved)",
+        }
+    }
+
     /// One sentence for `sextant explain`.
     pub fn explanation(self) -> &'static str {
         match self {
-            ScalingMethod::None => "Neither centre nor scale the features, so the analysis is of the uncentred second-moment matrix XᵀX / (n − 1).",
-            ScalingMethod::Center => "Centre each feature on its mean without scaling, so the analysis is of the covariance matrix and features with large spread weigh most.",
-            ScalingMethod::UnitVariance => "Centre each feature on its mean and divide it by its standard deviation (divisor n − 1), so the analysis is of the correlation matrix and every feature weighs the same.",
-            ScalingMethod::Pareto => "Centre each feature on its mean and divide it by the square root of its standard deviation (Pareto scaling).",
-            ScalingMethod::Range => "Centre each feature on its mean and divide it by its range (max − min).",
+            ScalingMethod::None => {
+                "Neither centre nor scale the features, so the analysis is of the uncentred second-moment matrix XᵀX / (n − 1)."
+            }
+            ScalingMethod::Center => {
+                "Centre each feature on its mean without scaling, so the analysis is of the covariance matrix and features with large spread weigh most."
+            }
+            ScalingMethod::UnitVariance => {
+                "Centre each feature on its mean and divide it by its standard deviation (divisor n − 1), so the analysis is of the correlation matrix and every feature weighs the same."
+            }
+            ScalingMethod::Pareto => {
+                "Centre each feature on its mean and divide it by the square root of its standard deviation (Pareto scaling)."
+            }
+            ScalingMethod::Range => {
+                "Centre each feature on its mean and divide it by its range (max − min)."
+            }
+            #[cfg(test)]
+            ScalingMethod::TwiceSd => {
+                "Centre each feature on its mean and divide it by twice its standard deviation."
+            }
         }
     }
 
@@ -482,4 +517,92 @@ impl ScalingMethod {
         ScalingMethod::Pareto,
         ScalingMethod::Range,
     ];
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::stages::Feature;
+
+    fn data(columns: &[&[f64]]) -> FeatureData {
+        let n = columns[0].len();
+        FeatureData {
+            features: columns
+                .iter()
+                .enumerate()
+                .map(|(j, values)| Feature {
+                    name: format!("f{j}"),
+                    values: values.to_vec(),
+                    transform: None,
+                })
+                .collect(),
+            rows: (0..n).collect(),
+            lines: (2..n as u64 + 2).collect(),
+            source: "t.csv".into(),
+        }
+    }
+
+    /// The list of dividing methods the recipe check reads is the rule the
+    /// stage applies.
+    #[test]
+    fn dividing_names_are_the_dividing_methods() {
+        let dividing: Vec<&str> = ScalingMethod::ALL
+            .iter()
+            .filter(|m| m.divides())
+            .map(|m| m.name())
+            .collect();
+        assert_eq!(dividing, ScalingMethod::DIVIDING);
+    }
+
+    /// A method that exists only in the unit tests (`ScalingMethod::TwiceSd`,
+    /// written in the recipe enum and this stage only) scales, refuses a
+    /// constant feature and explains itself like the shipped ones: adding a
+    /// method needs no other file (the whole library compiles with it here).
+    #[test]
+    fn a_new_scaling_needs_only_the_enum_and_the_stage() {
+        let method = ScalingMethod::TwiceSd;
+        let (scaled, report) = scale(
+            data(&[&[1.0, 2.0, 3.0, 6.0]]),
+            method,
+            ConstantPolicy::Error,
+        )
+        .unwrap();
+        let f = &report.features[0];
+        assert_eq!((f.mean, f.centre), (3.0, 3.0));
+        assert_eq!(f.scale, 2.0 * f.sd);
+        let z = scaled.data();
+        assert_eq!(z.get(3, 0), (6.0 - 3.0) / (2.0 * f.sd));
+        let e = scale(data(&[&[4.0, 4.0, 4.0]]), method, ConstantPolicy::Error).unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("`twice-sd` scaling would divide by zero"),
+            "{e}"
+        );
+        let (_, dropped) = scale(
+            data(&[&[4.0, 4.0, 4.0], &[1.0, 2.0, 3.0]]),
+            method,
+            ConstantPolicy::Drop,
+        )
+        .unwrap();
+        assert_eq!(dropped.dropped_constant, vec!["f0".to_string()]);
+        assert!(
+            method
+                .explanation()
+                .contains("twice its standard deviation")
+        );
+        assert!(!method.gives_correlations() && !method.bounds_values());
+    }
+
+    /// Σ z² from −0 (the sum's start) and from +0 give the same bits once a
+    /// row is added, so one accumulator serves the overflow check, the total
+    /// variance and the correlation loadings.
+    #[test]
+    fn squares_from_either_zero_agree() {
+        for column in [&[0.0, 0.0][..], &[-0.0, 1e-200], &[3.0, -4.0]] {
+            let mut s = Square::new();
+            s.push(column);
+            let plus = column.iter().fold(0.0, |a, v| a + v * v);
+            assert_eq!(s.finish().to_bits(), plus.to_bits());
+        }
+    }
 }

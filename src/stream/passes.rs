@@ -1,6 +1,9 @@
 //! The analysis in passes over the [`Store`]: each pass reads the rows in table
-//! order and carries its sums from chunk to chunk, so every number is summed in
-//! the same order, from the same start, as the in-memory stages sum it. That is
+//! order and feeds them, chunk by chunk, to the statistics the in-memory stages
+//! feed whole columns ([`crate::stages::accumulate`]), and takes the stages'
+//! decisions through the stages' own functions (which feature is dropped, the
+//! fill value, a constant feature, the errors). So every number is summed in
+//! the same order, from the same start, by the same code as in memory. That is
 //! what makes the two engines give the same bits (tested on whole results
 //! folders in tests/engines.rs).
 //!
@@ -13,7 +16,7 @@
 //! 6. the scaled values of the rows whose contributions are reported.
 
 use super::store::{Chunk, Store};
-use crate::error::{Error, InputError};
+use crate::error::Error;
 use crate::linalg::crossprod::{GramAccumulator, row_times};
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::MissingMethod;
@@ -391,7 +394,8 @@ pub fn preprocess(
     let t = crate::timing::lap("  pass 2: filled sums and ranges", t);
     // Pass 3: squared deviations.
     crate::progress::current().stage("pass 3 of 6: spreads");
-    let mut deviations = PerFeature::new(moments.iter().map(|m| Deviations::about(m.mean)).collect());
+    let mut deviations =
+        PerFeature::new(moments.iter().map(|m| Deviations::about(m.mean)).collect());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, false, &mut values, &mut local);
         deviations.push(&values);
@@ -486,13 +490,7 @@ pub fn analyse(
         crate::run::loadings_wanted(plan),
     )?;
     let t = crate::timing::lap("  eigendecomposition", t);
-    if decomposition.rank == 0 {
-        return Err(InputError::NoFeatures {
-            path: prepared.table.display.clone(),
-            why: " (the scaled data has no variance)".into(),
-        }
-        .into());
-    }
+    decomposition.check_variance(&prepared.table.display)?;
     let selection = select(
         &decomposition.eigenvalues,
         decomposition.total_variance,
