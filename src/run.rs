@@ -18,11 +18,13 @@ use crate::rows::RowResults;
 use crate::stages::FeatureData;
 use crate::stages::crossval::cross_validate;
 use crate::stages::decompose::{Decomposition, decompose_keeping, scores};
-use crate::stages::diagnose::{Diagnostics, contributions, diagnose_all, row_statistics};
+use crate::stages::diagnose::{
+    Diagnostics, contributions, diagnose_all, residual_moments, row_statistics,
+};
 use crate::stages::missing::{MissingReport, MissingSettings, handle_missing};
 use crate::stages::parallel::parallel_analysis;
 use crate::stages::scale::{ScaleReport, Scaled, scale};
-use crate::stages::select::{Evidence, Selection, select_among};
+use crate::stages::select::{Evidence, Selection, choose};
 use crate::stages::transform::{Applied, apply_transforms};
 use crate::stats::limits::ResidualMoments;
 use crate::stream::{Choice, EngineOptions};
@@ -516,18 +518,16 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         }
         _ => {}
     }
-    let selection = select_among(
-        &decomposition.eigenvalues,
+    let selection = choose(
+        &mut decomposition,
         z.cols,
-        decomposition.total_variance,
-        decomposition.rank,
         components,
         evidence,
-    )
-    .map_err(|e| keep_error(prepared, pre, e.keep, e.available))?;
-    if randomized.is_none() && selection.computed > decomposition.loadings.cols {
-        decomposition = decompose_keeping(z, centred, None, selection.computed)?;
-    }
+        randomized
+            .is_none()
+            .then_some(|want: usize| decompose_keeping(z, centred, None, want)),
+        |e| keep_error(prepared, pre, e.keep, e.available),
+    )?;
     let kept = selection.kept;
     let scores = scores(z, &decomposition.loadings, kept);
     let more_scores = scores_between(z, &decomposition.loadings, kept, selection.computed);
@@ -537,17 +537,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         &scores,
         &decomposition.eigenvalues,
     );
-    let moments = match &randomized {
-        // θ₁ and θ₂ from the exact total and Σλ², not from the known
-        // eigenvalues alone (the plan allows only Box's limit here).
-        Some(report) => match report.residual_sums(&decomposition, kept, z.rows) {
-            Some((theta1, theta2)) => ResidualMoments::from_first_two(theta1, theta2),
-            None => Err(crate::stats::limits::LimitError::NoResidualEigenvalues),
-        },
-        None => {
-            ResidualMoments::from_eigenvalues(&decomposition.eigenvalues[kept..decomposition.rank])
-        }
-    };
+    let moments = residual_moments(&decomposition, kept, randomized.as_ref(), z.rows);
     let diagnostics = diagnose_all(diagnostics_for(plan, z.rows, kept, moments), &t2, &spe);
     let joined: Vec<f64> = (0..z.rows)
         .flat_map(|i| scores.row(i).iter().chain(more_scores.row(i)).copied())

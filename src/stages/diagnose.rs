@@ -176,6 +176,28 @@ impl Diagnostics {
     }
 }
 
+/// The moments of the residual eigenvalues after `kept` components, which the
+/// SPE limits take, as both engines compute them. After the randomized method
+/// (`randomized`, `rows` analysed) θ₁ and θ₂ come from the exact total and
+/// Σλ², not from the known eigenvalues alone (the plan allows only Box's limit
+/// there).
+pub fn residual_moments(
+    decomposition: &crate::stages::decompose::Decomposition,
+    kept: usize,
+    randomized: Option<&crate::stages::randomized::RandomizedReport>,
+    rows: usize,
+) -> Result<ResidualMoments, crate::stats::limits::LimitError> {
+    match randomized {
+        Some(report) => match report.residual_sums(decomposition, kept, rows) {
+            Some((theta1, theta2)) => ResidualMoments::from_first_two(theta1, theta2),
+            None => Err(crate::stats::limits::LimitError::NoResidualEigenvalues),
+        },
+        None => {
+            ResidualMoments::from_eigenvalues(&decomposition.eigenvalues[kept..decomposition.rank])
+        }
+    }
+}
+
 /// Diagnostics of rows whose T² and SPE are all at hand (the most unusual
 /// `keep` rows listed).
 pub fn diagnose_all(mut limits: Diagnostics, t2: &[f64], spe: &[f64]) -> Diagnostics {

@@ -23,7 +23,7 @@ use crate::recipe::raw::MissingMethod;
 use crate::run::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::stages::accumulate::{PerFeature, Statistic, by_columns};
 use crate::stages::decompose::from_cross_products;
-use crate::stages::diagnose::RowStatistics;
+use crate::stages::diagnose::{RowStatistics, residual_moments};
 use crate::stages::missing::{
     FeatureMissing, FillModel, Filled, MissingReport, Observed, ObservedReport,
     every_feature_dropped, mean_fill, too_few_rows,
@@ -31,7 +31,7 @@ use crate::stages::missing::{
 use crate::stages::scale::{
     Deviations, FeatureScale, Moments, ScaleReport, Scaled, Squares, check_finite, scale_value,
 };
-use crate::stages::select::{Evidence, select};
+use crate::stages::select::{Evidence, choose};
 use crate::stages::transform::{Applied, domain_error, transform_value};
 use rayon::prelude::*;
 
@@ -491,17 +491,14 @@ pub fn analyse(
     )?;
     let t = crate::timing::lap("  eigendecomposition", t);
     decomposition.check_variance(&prepared.table.display)?;
-    let selection = select(
-        &decomposition.eigenvalues,
-        decomposition.total_variance,
-        decomposition.rank,
+    let selection = choose(
+        &mut decomposition,
+        p,
         &plan.components,
         Evidence::default(),
-    )
-    .map_err(|e| crate::run::keep_error(prepared, pre, e.keep, e.available))?;
-    if selection.computed > decomposition.loadings.cols {
-        decomposition = from_cross_products(&gram, &squares, n, centred, selection.computed)?;
-    }
+        Some(|want: usize| from_cross_products(&gram, &squares, n, centred, want)),
+        |e| crate::run::keep_error(prepared, pre, e.keep, e.available),
+    )?;
     assert!(selection.computed <= decomposition.loadings.cols);
     let (kept, computed) = (selection.kept, selection.computed);
     let loadings = &decomposition.loadings;
@@ -511,9 +508,7 @@ pub fn analyse(
     let v_kept = loadings.columns(0, kept).data;
     let v_more = loadings.columns(kept, computed).data;
     let statistics = RowStatistics::new(loadings, kept, &decomposition.eigenvalues);
-    let moments = crate::stats::limits::ResidualMoments::from_eigenvalues(
-        &decomposition.eigenvalues[kept..decomposition.rank],
-    );
+    let moments = residual_moments(&decomposition, kept, None, n);
     let mut diagnostics = crate::run::diagnostics_for(plan, n, kept, moments);
     let mut results = results_for(prepared, computed, store.spilled());
     let labels = label_texts(prepared);
