@@ -170,13 +170,9 @@ pub fn rows_needing_values(diagnostics: &Diagnostics, plan: &Plan) -> Vec<usize>
     rows
 }
 
-/// Σᵢ zᵢⱼ² of each column, rows in order, each sum starting from +0.
+/// Σᵢ zᵢⱼ² of each column, rows in order ([`crate::stages::scale::Squares`]).
 pub fn column_squares(z: &Matrix) -> Vec<f64> {
-    let mut squares = vec![0.0; z.cols];
-    for i in 0..z.rows {
-        crate::stages::decompose::add_squares(&mut squares, z.row(i));
-    }
-    squares
+    crate::stages::scale::Squares::of(z)
 }
 
 /// The scores of components `from..to` (each entry the same dot product as in
@@ -310,12 +306,5 @@ pub fn row_details(
 
 /// The name of the matrix whose eigenvectors are the loadings.
 pub fn matrix_name(plan: &Plan) -> &'static str {
-    use crate::recipe::raw::ScalingMethod::*;
-    match plan.scaling {
-        None => "second moments (uncentred)",
-        Center => "covariance",
-        UnitVariance => "correlation",
-        Pareto => "covariance of Pareto-scaled features",
-        Range => "covariance of range-scaled features",
-    }
+    plan.scaling.matrix_name()
 }

@@ -23,12 +23,12 @@ use crate::outputs::model::{Fill, Model};
 use crate::outputs::reading;
 use crate::outputs::replace::check_replaceable;
 use crate::outputs::tables;
-use crate::recipe::plan::Transform;
 use crate::row_results::RowResults;
 use crate::stages::decompose::scores;
 use crate::stages::diagnose::{Limits, contributions, diagnose_all, row_statistics, with_limits};
 use crate::stages::impute::{fill_row_from_model, fill_row_from_reference};
 use crate::stages::missing::FilledCell;
+use crate::stages::scale::scale_value;
 use crate::stages::transform::apply_transforms;
 use crate::stages::{Feature, FeatureData};
 use crate::table::{ColumnData, ReadOptions, read_header, read_table};
@@ -274,16 +274,10 @@ pub fn score(
         if let Some((line, text)) = column.first_bad.clone() {
             return Err(InputError::bad_cell(shown, line, &f.name, text).into());
         }
-        let transform = match f.transform.as_deref() {
-            Some("log10") => Some(Transform::Log10),
-            Some("ln") => Some(Transform::Ln),
-            Some("sqrt") => Some(Transform::Sqrt),
-            _ => None,
-        };
         features.push(Feature {
             name: f.name.clone(),
             values: column.values.clone(),
-            transform,
+            transform: f.transform,
         });
     }
     let data = FeatureData {
@@ -358,7 +352,7 @@ pub fn score(
     let mut z = Matrix::zeros(n, p);
     for (r, row) in x.iter().enumerate() {
         for (j, f) in model.features.iter().enumerate() {
-            z.set(r, j, (row[j] - f.centre) / f.scale);
+            z.set(r, j, scale_value(row[j], f.centre, f.scale));
         }
     }
     let k = model.kept;
@@ -376,11 +370,7 @@ pub fn score(
         // New rows are flagged by the new-row T² limit; counted with the rows below.
         .map(|l| Limits::uncounted(l.confidence, l.t2_new_rows, l.t2_new_rows, l.spe))
         .collect();
-    let spe_method = if model.spe_limit == "box" {
-        crate::recipe::raw::SpeLimit::Box
-    } else {
-        crate::recipe::raw::SpeLimit::JacksonMudholkar
-    };
+    let spe_method = model.spe_limit;
     // More rows than are scored cannot be listed.
     let max_rows = settings.contributions_max_rows.min(n);
     let diagnostics = diagnose_all(
@@ -582,7 +572,8 @@ fn range_notes(model: &Model, data: &FeatureData) -> Vec<String> {
                 far.len(),
                 crate::text::number(f.min),
                 crate::text::number(f.max),
-                f.transform.as_deref().map_or(String::new(), |t| format!(" (after {t})")),
+                f.transform
+                    .map_or(String::new(), |t| format!(" (after {})", t.name())),
                 data.lines[first],
                 crate::text::number(column.values[first])
             ));

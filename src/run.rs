@@ -22,13 +22,12 @@ use crate::row_results::RowResults;
 use crate::stages::FeatureData;
 use crate::stages::crossval::cross_validate;
 use crate::stages::decompose::{decompose_keeping, scores};
-use crate::stages::diagnose::{diagnose_all, row_statistics};
+use crate::stages::diagnose::{diagnose_all, residual_moments, row_statistics};
 use crate::stages::missing::{MissingSettings, handle_missing};
 use crate::stages::parallel::parallel_analysis;
 use crate::stages::scale::scale;
-use crate::stages::select::{Evidence, select_among};
+use crate::stages::select::{Evidence, choose};
 use crate::stages::transform::apply_transforms;
-use crate::stats::limits::ResidualMoments;
 use crate::stream::{Choice, EngineOptions};
 use crate::table::{ColumnData, Table, read_header, read_table_parallel};
 use std::path::Path;
@@ -266,13 +265,11 @@ fn preprocess_in_memory(prepared: &Prepared) -> Result<Preprocessed, Error> {
     let plan = &prepared.plan;
     let data = FeatureData::from_table(&prepared.table, plan);
     if data.n_rows() < 2 {
-        let rows = data.n_rows();
-        return Err(InputError::TooFewRows {
-            path: data.source,
-            rows,
-            why: String::new(),
-        }
-        .into());
+        return Err(crate::stages::missing::too_few_rows(
+            &data.source,
+            data.n_rows(),
+            0,
+        ));
     }
     // Transforms come first, so every fill method works on the scale the analysis
     // sees (a mean fill of a log-transformed feature is its geometric mean).
@@ -337,13 +334,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
             (d, Some(report))
         }
     };
-    if decomposition.rank == 0 {
-        return Err(InputError::NoFeatures {
-            path: prepared.table.display.clone(),
-            why: " (the scaled data has no variance)".into(),
-        }
-        .into());
-    }
+    decomposition.check_variance(&prepared.table.display)?;
     let mut evidence = Evidence::default();
     match components.keep {
         Keep::ParallelAnalysis => {
@@ -367,18 +358,16 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         }
         _ => {}
     }
-    let selection = select_among(
-        &decomposition.eigenvalues,
+    let selection = choose(
+        &mut decomposition,
         z.cols,
-        decomposition.total_variance,
-        decomposition.rank,
         components,
         evidence,
-    )
-    .map_err(|e| keep_error(prepared, pre, e.keep, e.available))?;
-    if randomized.is_none() && selection.computed > decomposition.loadings.cols {
-        decomposition = decompose_keeping(z, centred, None, selection.computed)?;
-    }
+        randomized
+            .is_none()
+            .then_some(|want: usize| decompose_keeping(z, centred, None, want)),
+        |e| keep_error(prepared, pre, e.keep, e.available),
+    )?;
     let kept = selection.kept;
     let scores = scores(z, &decomposition.loadings, kept);
     let more_scores = scores_between(z, &decomposition.loadings, kept, selection.computed);
@@ -388,17 +377,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         &scores,
         &decomposition.eigenvalues,
     );
-    let moments = match &randomized {
-        // θ₁ and θ₂ from the exact total and Σλ², not from the known
-        // eigenvalues alone (the plan allows only Box's limit here).
-        Some(report) => match report.residual_sums(&decomposition, kept, z.rows) {
-            Some((theta1, theta2)) => ResidualMoments::from_first_two(theta1, theta2),
-            None => Err(crate::stats::limits::LimitError::NoResidualEigenvalues),
-        },
-        None => {
-            ResidualMoments::from_eigenvalues(&decomposition.eigenvalues[kept..decomposition.rank])
-        }
-    };
+    let moments = residual_moments(&decomposition, kept, randomized.as_ref(), z.rows);
     let diagnostics = diagnose_all(diagnostics_for(plan, z.rows, kept, moments), &t2, &spe);
     let joined: Vec<f64> = (0..z.rows)
         .flat_map(|i| scores.row(i).iter().chain(more_scores.row(i)).copied())

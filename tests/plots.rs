@@ -165,7 +165,7 @@ fn view(n: usize, flag_every: usize) -> PlotView {
         confidence: 0.95,
         t2_limit: Some(9.0),
         spe_limit: Some(0.75),
-        scaling: "unit-variance".into(),
+        scaling: sextant::recipe::raw::ScalingMethod::UnitVariance,
     };
     with_rows(v, &rows(n, flag_every))
 }

@@ -323,6 +323,11 @@ fn a_tampered_model_is_refused_naming_the_field() {
             edit: |m| m["limits"][1]["spe"] = Value::from(-3.0),
         },
         Tamper {
+            what: "unknown scaling",
+            field: "`scaling`",
+            edit: |m| m["scaling"] = Value::from("z-score"),
+        },
+        Tamper {
             what: "unknown SPE limit",
             field: "`spe_limit`",
             edit: |m| m["spe_limit"] = Value::from("guess"),

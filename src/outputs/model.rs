@@ -9,6 +9,8 @@
 //! by something else) is refused instead of scoring garbage or failing midway.
 
 use crate::analysis::{Analysis, Prepared, Preprocessed};
+use crate::recipe::plan::Transform;
+use crate::recipe::raw::{ScalingMethod, SpeLimit};
 use crate::stages::impute::ImputationModel;
 use crate::stages::missing::FillModel;
 use serde::{Deserialize, Serialize};
@@ -32,7 +34,7 @@ pub struct Model {
     pub input_sha256: String,
     pub id: Option<String>,
     pub groups: Vec<String>,
-    pub scaling: String,
+    pub scaling: ScalingMethod,
     pub features: Vec<ModelFeature>,
     pub fill: Fill,
     /// Rows of the analysed table (the n of the limits).
@@ -43,7 +45,7 @@ pub struct Model {
     /// `loadings[feature][component]` for the kept components.
     pub loadings: Vec<Vec<f64>>,
     pub limits: Vec<ModelLimits>,
-    pub spe_limit: String,
+    pub spe_limit: SpeLimit,
     pub sign_rule: String,
 }
 
@@ -53,7 +55,7 @@ pub struct Model {
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct ModelFeature {
     pub name: String,
-    pub transform: Option<String>,
+    pub transform: Option<Transform>,
     pub centre: f64,
     pub scale: f64,
     pub min: f64,
@@ -163,7 +165,7 @@ pub fn build(
                 .and_then(|i| plan.transforms[i]);
             ModelFeature {
                 name: name.clone(),
-                transform: t.map(|t| t.name().to_string()),
+                transform: t,
                 centre: s.centre,
                 scale: s.scale,
                 min: s.min,
@@ -178,7 +180,7 @@ pub fn build(
         input_sha256: prepared.input.sha256.clone(),
         id: plan.input.id.clone(),
         groups: plan.input.groups.clone(),
-        scaling: plan.scaling.name().to_string(),
+        scaling: plan.scaling,
         features,
         fill,
         rows: pre.scaled.n_rows(),
@@ -197,10 +199,7 @@ pub fn build(
                 spe: l.spe,
             })
             .collect(),
-        spe_limit: match analysis.diagnostics.spe_method {
-            crate::recipe::raw::SpeLimit::JacksonMudholkar => "jackson-mudholkar".into(),
-            crate::recipe::raw::SpeLimit::Box => "box".into(),
-        },
+        spe_limit: analysis.diagnostics.spe_method,
         sign_rule: SIGN_RULE.into(),
     }
 }
@@ -303,12 +302,7 @@ impl Model {
                 "is empty; a model has at least one feature",
             ));
         }
-        let scaling = known(
-            "scaling",
-            &self.scaling,
-            &["none", "center", "unit-variance", "pareto", "range"],
-        )?;
-        self.check_features(scaling)?;
+        self.check_features()?;
         self.check_roles()?;
         let k = self.kept;
         if k == 0 || k > p {
@@ -344,12 +338,12 @@ impl Model {
         }
         loadings_table("loadings", &self.loadings, p, k, "one per kept component")?;
         self.check_limits()?;
-        known("spe_limit", &self.spe_limit, &["jackson-mudholkar", "box"])?;
         known("sign_rule", &self.sign_rule, &[SIGN_RULE])?;
         self.check_fill()
     }
 
-    fn check_features(&self, scaling: &str) -> Result<(), ModelProblem> {
+    fn check_features(&self) -> Result<(), ModelProblem> {
+        let scaling = self.scaling;
         let mut seen = std::collections::BTreeSet::new();
         for (j, f) in self.features.iter().enumerate() {
             let at = |key: &str| format!("features[{j}].{key}");
@@ -358,9 +352,6 @@ impl Model {
             }
             if !seen.insert(f.name.as_str()) {
                 return Err(problem(at("name"), format!("`{}` appears twice", f.name)));
-            }
-            if let Some(t) = &f.transform {
-                known(&at("transform"), t, &["log10", "ln", "sqrt"])?;
             }
             for (key, v) in [
                 ("centre", f.centre),
@@ -378,31 +369,35 @@ impl Model {
             if f.scale <= 0.0 {
                 return Err(problem(at("scale"), "is not positive"));
             }
-            match scaling {
-                "none" if f.centre != 0.0 || f.scale != 1.0 => {
+            if !scaling.centers() {
+                if f.centre != 0.0 || f.scale != 1.0 {
                     return Err(problem(
                         at("centre"),
-                        "and scale must be 0 and 1 with scaling \"none\"",
+                        format!(
+                            "and scale must be 0 and 1 with scaling \"{}\"",
+                            scaling.name()
+                        ),
                     ));
                 }
-                "center" if f.scale != 1.0 => {
-                    return Err(problem(at("scale"), "must be 1 with scaling \"center\""));
-                }
-                "none" => {}
-                _ => {
-                    // The centre is the mean of the analysed values, so it lies in
-                    // their range (up to rounding).
-                    let slack = 1e-9 * f.min.abs().max(f.max.abs()).max(f.max - f.min);
-                    if f.centre < f.min - slack || f.centre > f.max + slack {
-                        return Err(problem(
-                            at("centre"),
-                            format!(
-                                "is {}, outside the analysed range [{}, {}] it is the mean of",
-                                f.centre, f.min, f.max
-                            ),
-                        ));
-                    }
-                }
+                continue;
+            }
+            if !scaling.divides() && f.scale != 1.0 {
+                return Err(problem(
+                    at("scale"),
+                    format!("must be 1 with scaling \"{}\"", scaling.name()),
+                ));
+            }
+            // The centre is the mean of the analysed values, so it lies in
+            // their range (up to rounding).
+            let slack = 1e-9 * f.min.abs().max(f.max.abs()).max(f.max - f.min);
+            if f.centre < f.min - slack || f.centre > f.max + slack {
+                return Err(problem(
+                    at("centre"),
+                    format!(
+                        "is {}, outside the analysed range [{}, {}] it is the mean of",
+                        f.centre, f.min, f.max
+                    ),
+                ));
             }
         }
         Ok(())

@@ -121,7 +121,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         confidence: first.map_or(0.95, |l| l.confidence),
         t2_limit: first.and_then(|l| l.t2),
         spe_limit: first.and_then(|l| l.spe),
-        scaling: plan.scaling.name().to_string(),
+        scaling: plan.scaling,
     }
 }
 

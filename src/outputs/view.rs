@@ -41,8 +41,8 @@ pub struct PlotView {
     pub confidence: f64,
     pub t2_limit: Option<f64>,
     pub spe_limit: Option<f64>,
-    /// The scaling method's name, e.g. "unit-variance".
-    pub scaling: String,
+    /// The scaling method (written by its recipe name).
+    pub scaling: crate::recipe::raw::ScalingMethod,
 }
 
 /// Evidence for the number of components, per component.

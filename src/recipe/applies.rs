@@ -55,7 +55,7 @@ pub const CONDITIONAL: &[Conditional] = &[
         setting: "constant_features",
         is_table: false,
         key: "method",
-        applies: &["unit-variance", "pareto", "range"],
+        applies: super::raw::ScalingMethod::DIVIDING,
         written: |r| r.scaling.constant_features.as_ref().map(|s| s.span()),
         current: |r| (quoted(r.scaling.method.name()), false),
     },

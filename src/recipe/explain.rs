@@ -6,7 +6,6 @@ use super::LoadedRecipe;
 use super::plan::input_plan;
 use super::raw::{
     ConstantPolicy, DEFAULT_COMPUTE, DEFAULT_KEEP, DecompositionMethod, Keep, MissingMethod,
-    ScalingMethod,
 };
 use crate::text::percent_short;
 use std::fmt::Write;
@@ -132,13 +131,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
     });
 
     let sc = &raw.scaling;
-    s.push(match sc.method {
-        ScalingMethod::None => "Neither centre nor scale the features, so the analysis is of the uncentred second-moment matrix XᵀX / (n − 1).".into(),
-        ScalingMethod::Center => "Centre each feature on its mean without scaling, so the analysis is of the covariance matrix and features with large spread weigh most.".into(),
-        ScalingMethod::UnitVariance => "Centre each feature on its mean and divide it by its standard deviation (divisor n − 1), so the analysis is of the correlation matrix and every feature weighs the same.".into(),
-        ScalingMethod::Pareto => "Centre each feature on its mean and divide it by the square root of its standard deviation (Pareto scaling).".into(),
-        ScalingMethod::Range => "Centre each feature on its mean and divide it by its range (max − min).".into(),
-    });
+    s.push(sc.method.explanation().into());
     if sc.method.divides() {
         s.push(match sc.constant_policy() {
             ConstantPolicy::Error => "A feature with no spread stops the run.".into(),

@@ -18,8 +18,9 @@ use std::num::NonZeroUsize;
 use std::path::{Path, PathBuf};
 use toml::Spanned;
 
-/// A per-feature transform applied before scaling.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+/// A per-feature transform applied before scaling (read back from model.json
+/// by its name).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum Transform {
     Log10,

@@ -356,6 +356,12 @@ pub enum ScalingMethod {
     Pareto,
     /// Centred and divided by the range (max − min).
     Range,
+    /// Only in the library's unit tests: centred and divided by twice the
+    /// standard deviation. It shows that a new method is this enum, the scaling
+    /// stage (`stages::scale`, where every other rule that differs between
+    /// methods lives) and their tests.
+    #[cfg(test)]
+    TwiceSd,
 }
 
 impl ScalingMethod {
@@ -366,15 +372,24 @@ impl ScalingMethod {
             ScalingMethod::UnitVariance => "unit-variance",
             ScalingMethod::Pareto => "pareto",
             ScalingMethod::Range => "range",
+            #[cfg(test)]
+            ScalingMethod::TwiceSd => "twice-sd",
         }
     }
 
+    /// The methods that divide by a measure of spread, as the recipe writes
+    /// them (where `constant_features` applies; a unit test holds it to
+    /// [`ScalingMethod::divides`]).
+    pub const DIVIDING: &'static [&'static str] = &["unit-variance", "pareto", "range"];
+
     /// Whether the scaling divides by a measure of spread.
     pub fn divides(self) -> bool {
-        matches!(
-            self,
-            ScalingMethod::UnitVariance | ScalingMethod::Pareto | ScalingMethod::Range
-        )
+        match self {
+            ScalingMethod::None | ScalingMethod::Center => false,
+            ScalingMethod::UnitVariance | ScalingMethod::Pareto | ScalingMethod::Range => true,
+            #[cfg(test)]
+            ScalingMethod::TwiceSd => true,
+        }
     }
 
     pub fn centers(self) -> bool {

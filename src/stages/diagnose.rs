@@ -149,6 +149,20 @@ impl Diagnostics {
         self.trim();
     }
 
+    /// Adds the counts of `other`, the same limits counted over other rows
+    /// (each row by its index among all the analysed rows). The order of the
+    /// most unusual rows is total, so the list is the one counting every row
+    /// in one run gives.
+    pub fn merge(&mut self, other: &Diagnostics) {
+        for (l, o) in self.limits.iter_mut().zip(&other.limits) {
+            l.t2_flagged += o.t2_flagged;
+            l.spe_flagged += o.spe_flagged;
+        }
+        self.flagged += other.flagged;
+        self.unusual.extend_from_slice(&other.unusual);
+        self.trim();
+    }
+
     /// The flagged rows (their index among the analysed rows), most unusual
     /// first (ties to the lower row), at most `max`; `max` may not pass the
     /// number kept.
@@ -159,6 +173,28 @@ impl Diagnostics {
             self.keep
         );
         self.unusual.iter().take(max).map(|u| u.row).collect()
+    }
+}
+
+/// The moments of the residual eigenvalues after `kept` components, which the
+/// SPE limits take, as both engines compute them. After the randomized method
+/// (`randomized`, `rows` analysed) θ₁ and θ₂ come from the exact total and
+/// Σλ², not from the known eigenvalues alone (the plan allows only Box's limit
+/// there).
+pub fn residual_moments(
+    decomposition: &crate::stages::decompose::Decomposition,
+    kept: usize,
+    randomized: Option<&crate::stages::decompose::randomized::RandomizedReport>,
+    rows: usize,
+) -> Result<ResidualMoments, crate::stats::limits::LimitError> {
+    match randomized {
+        Some(report) => match report.residual_sums(decomposition, kept, rows) {
+            Some((theta1, theta2)) => ResidualMoments::from_first_two(theta1, theta2),
+            None => Err(crate::stats::limits::LimitError::NoResidualEigenvalues),
+        },
+        None => {
+            ResidualMoments::from_eigenvalues(&decomposition.eigenvalues[kept..decomposition.rank])
+        }
     }
 }
 
@@ -344,6 +380,28 @@ mod tests {
 
     fn limit(confidence: f64, t2: Option<f64>, spe: Option<f64>) -> Limits {
         Limits::uncounted(confidence, t2, t2, spe)
+    }
+
+    /// Two parts counted apart and merged in order list and count what one
+    /// count of every row does (a partitioned input merges its parts so).
+    #[test]
+    fn merged_parts_count_what_one_run_counts() {
+        let (t2, spe) = rows(9_000);
+        let limits = vec![limit(0.99, Some(12.0), Some(3.0))];
+        let make = || with_limits(limits.clone(), SpeLimit::default(), None, Vec::new(), 50);
+        let mut whole = make();
+        whole.count(0, &t2, &spe);
+        whole.finish();
+        let (mut a, mut b) = (make(), make());
+        a.count(0, &t2[..4_000], &spe[..4_000]);
+        b.count(4_000, &t2[4_000..], &spe[4_000..]);
+        a.merge(&b);
+        a.finish();
+        assert!(whole.flagged > 50);
+        assert_eq!(a.flagged, whole.flagged);
+        assert_eq!(a.limits[0].t2_flagged, whole.limits[0].t2_flagged);
+        assert_eq!(a.limits[0].spe_flagged, whole.limits[0].spe_flagged);
+        assert_eq!(a.most_unusual(50), whole.most_unusual(50));
     }
 
     #[test]

@@ -28,6 +28,7 @@ use crate::error::AnalysisError;
 use crate::linalg::Matrix;
 use crate::recipe::raw::{IterativeVariant, RawIterative, ScalingMethod, StartValue};
 use crate::stages::decompose::decompose_keeping;
+use crate::stages::scale::{FeatureScale, scale_value, standardising_divisor};
 use serde::Serialize;
 
 /// What iterative PCA did.
@@ -57,24 +58,13 @@ fn start_values(columns: &[Vec<f64>], start: StartValue) -> Vec<f64> {
         .collect()
 }
 
-/// Centre and scale of one column under the recipe's scaling rule.
+/// Centre and scale of one column under the recipe's scaling rule, as the
+/// scaling stage measures them, with a zero scale taken as 1
+/// ([`standardising_divisor`]): a column the fill made constant is centred
+/// only.
 fn centre_scale(values: &[f64], scaling: ScalingMethod) -> (f64, f64) {
-    let n = values.len() as f64;
-    let mean = super::missing::mean(values);
-    let sd = (values.iter().map(|v| (v - mean) * (v - mean)).sum::<f64>() / (n - 1.0)).sqrt();
-    let (min, max) = values
-        .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
-            (a.min(v), b.max(v))
-        });
-    let centre = if scaling.centers() { mean } else { 0.0 };
-    let scale = match scaling {
-        ScalingMethod::None | ScalingMethod::Center => 1.0,
-        ScalingMethod::UnitVariance => sd,
-        ScalingMethod::Pareto => sd.sqrt(),
-        ScalingMethod::Range => max - min,
-    };
-    (centre, if scale > 0.0 { scale } else { 1.0 })
+    let s = FeatureScale::measure("", values, scaling);
+    (s.centre, standardising_divisor(s.scale))
 }
 
 /// The PCA model of the last iteration, kept so that missing cells of new rows
@@ -165,7 +155,7 @@ fn fit(
     let scaled: Vec<Vec<f64>> = columns
         .iter()
         .zip(&cs)
-        .map(|(c, &(m, sc))| c.iter().map(|v| (v - m) / sc).collect())
+        .map(|(c, &(m, sc))| c.iter().map(|&v| scale_value(v, m, sc)).collect())
         .collect();
     let z = Matrix::from_columns(&scaled);
     let d = decompose_keeping(&z, scaling.centers(), None, s)?;
@@ -221,7 +211,7 @@ fn observed_mean_sd(column: &[f64]) -> (f64, f64) {
         .sum::<f64>()
         / (m - 1.0).max(1.0))
     .sqrt();
-    (mean, if sd > 0.0 { sd } else { 1.0 })
+    (mean, standardising_divisor(sd))
 }
 
 /// Fills the missing cells of `columns` from the `k` nearest rows.
@@ -232,7 +222,7 @@ pub fn knn(columns: &mut [Vec<f64>], k: usize) {
         .iter()
         .map(|c| {
             let (mean, sd) = observed_mean_sd(c);
-            c.iter().map(|v| (v - mean) / sd).collect()
+            c.iter().map(|&v| scale_value(v, mean, sd)).collect()
         })
         .collect();
     let original: Vec<Vec<f64>> = columns.to_vec();
@@ -300,7 +290,7 @@ pub fn fill_row_from_model(row: &mut [f64], model: &ImputationModel) -> Option<(
     }
     let z: Vec<f64> = observed
         .iter()
-        .map(|&j| (row[j] - model.centre[j]) / model.scale[j])
+        .map(|&j| scale_value(row[j], model.centre[j], model.scale[j]))
         .collect();
     // Normal equations (V_Oᵀ V_O) t = V_Oᵀ z_O, solved by nalgebra's LU on the
     // small S × S system.

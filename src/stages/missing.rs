@@ -7,7 +7,9 @@
 //! filled value outside its feature's observed range is reported as a warning.
 
 use super::FeatureData;
+use super::accumulate::Statistic;
 use super::impute::{IterativeReport, iterative_pca, knn};
+use super::scale::{Moments, MomentsReport};
 use crate::error::{Error, InputError};
 use crate::recipe::raw::{MissingMethod, RawIterative, RawKnn, ScalingMethod};
 use serde::Serialize;
@@ -93,37 +95,23 @@ pub fn handle_missing(
     let max_share = settings.max_share;
     let mut reports = Vec::new();
     let mut kept = Vec::new();
+    // Each kept feature's observed cells: the mean fill and the range filled
+    // values are compared with.
+    let mut observed = Vec::new();
     for feature in data.features.drain(..) {
-        let missing = feature.values.iter().filter(|v| v.is_nan()).count();
-        let share = if n == 0 {
-            0.0
-        } else {
-            missing as f64 / n as f64
-        };
-        let dropped = drop_reason(missing, n, max_share);
-        reports.push(FeatureMissing {
-            feature: feature.name.clone(),
-            missing,
-            share,
-            dropped: dropped.clone(),
-            filled: 0,
-            fill_value: None,
-            mean_filled: None,
-            filled_outside_observed_range: 0,
-        });
-        if dropped.is_none() {
+        let mut counts = Observed::new();
+        counts.push(&feature.values);
+        let counts = counts.finish();
+        let report = FeatureMissing::counted(&feature.name, counts.missing, n, max_share);
+        if report.dropped.is_none() {
             kept.push(feature);
+            observed.push(counts);
         }
+        reports.push(report);
     }
     data.features = kept;
     if data.features.is_empty() {
-        return Err(InputError::NoFeatures {
-            path: data.source.clone(),
-            why: format!(
-                " (every feature misses more than max_feature_missing = {max_share} of its cells)"
-            ),
-        }
-        .into());
+        return Err(every_feature_dropped(&data.source, max_share));
     }
 
     let gaps: Vec<Vec<bool>> = data
@@ -131,26 +119,18 @@ pub fn handle_missing(
         .iter()
         .map(|f| f.values.iter().map(|v| v.is_nan()).collect())
         .collect();
-    let ranges: Vec<(f64, f64)> = data
-        .features
-        .iter()
-        .map(|f| {
-            f.values
-                .iter()
-                .filter(|v| !v.is_nan())
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
-                    (a.min(v), b.max(v))
-                })
-        })
-        .collect();
     let mut iterative_report = None;
     let mut fill_model = FillModel::DropRows;
     let mut rows_dropped = 0;
     match settings.method {
         MissingMethod::DropRows => rows_dropped = drop_incomplete_rows(&mut data),
         MissingMethod::Mean | MissingMethod::Median => {
-            fill_model =
-                FillModel::Constant(fill_constant(&mut data, settings.method, &mut reports));
+            fill_model = FillModel::Constant(fill_constant(
+                &mut data,
+                &observed,
+                settings.method,
+                &mut reports,
+            ));
         }
         MissingMethod::IterativePca | MissingMethod::Knn => {
             let mut columns: Vec<Vec<f64>> =
@@ -193,13 +173,12 @@ pub fn handle_missing(
                 .iter_mut()
                 .find(|r| r.feature == f.name)
                 .expect("every kept feature has a report");
-            let values: Vec<f64> = (0..n)
-                .filter(|&i| gaps[j][i])
-                .map(|i| f.values[i])
-                .collect();
+            let (lo, hi) = (observed[j].moments.min, observed[j].moments.max);
+            let mut values = Filled::within(lo, hi);
             let name: std::sync::Arc<str> = f.name.as_str().into();
             for (i, &gap) in gaps[j].iter().enumerate() {
                 if gap {
+                    values.add(f.values[i]);
                     filled_cells.push(FilledCell {
                         row: data.rows[i],
                         feature: name.clone(),
@@ -207,35 +186,12 @@ pub fn handle_missing(
                     });
                 }
             }
-            report.filled = values.len();
-            if !values.is_empty() {
-                report.mean_filled = Some(mean(&values));
-            }
-            let (lo, hi) = ranges[j];
-            report.filled_outside_observed_range =
-                values.iter().filter(|&&v| v < lo || v > hi).count();
-            if report.filled_outside_observed_range > 0 {
-                warnings.push(outside_range_warning(
-                    report.filled_outside_observed_range,
-                    &f.name,
-                    lo,
-                    hi,
-                ));
-            }
+            report.record_fill(&values.finish(), &mut warnings);
         }
         filled_cells.sort_by_key(|c| c.row);
     }
     if data.n_rows() < 2 {
-        return Err(InputError::TooFewRows {
-            path: data.source.clone(),
-            rows: data.n_rows(),
-            why: if rows_dropped > 0 {
-                format!(" after dropping {rows_dropped} row(s) with missing cells")
-            } else {
-                String::new()
-            },
-        }
-        .into());
+        return Err(too_few_rows(&data.source, data.n_rows(), rows_dropped));
     }
     let cells_filled = reports.iter().map(|r| r.filled).sum();
     Ok((
@@ -257,8 +213,47 @@ pub fn handle_missing(
     ))
 }
 
+impl FeatureMissing {
+    /// A feature with `missing` of its `n` cells missing, dropped if that is
+    /// too many ([`drop_reason`]); nothing filled yet.
+    pub fn counted(feature: &str, missing: usize, n: usize, max_share: f64) -> FeatureMissing {
+        FeatureMissing {
+            feature: feature.to_string(),
+            missing,
+            share: if n == 0 {
+                0.0
+            } else {
+                missing as f64 / n as f64
+            },
+            dropped: drop_reason(missing, n, max_share),
+            filled: 0,
+            fill_value: None,
+            mean_filled: None,
+            filled_outside_observed_range: 0,
+        }
+    }
+
+    /// Records what was filled, and warns of filled values outside the
+    /// feature's observed range.
+    pub fn record_fill(&mut self, filled: &FilledReport, warnings: &mut Vec<String>) {
+        self.filled = filled.count;
+        if filled.count > 0 {
+            self.mean_filled = Some(filled.mean);
+        }
+        self.filled_outside_observed_range = filled.outside;
+        if filled.outside > 0 {
+            warnings.push(outside_range_warning(
+                filled.outside,
+                &self.feature,
+                filled.low,
+                filled.high,
+            ));
+        }
+    }
+}
+
 /// The warning for filled values outside a feature's observed range [lo, hi].
-pub fn outside_range_warning(count: usize, feature: &str, lo: f64, hi: f64) -> String {
+fn outside_range_warning(count: usize, feature: &str, lo: f64, hi: f64) -> String {
     use crate::text::number;
     format!(
         "{count} filled value(s) of `{feature}` lie outside its observed range [{}, {}]",
@@ -277,6 +272,144 @@ pub fn drop_reason(missing: usize, n: usize, max_share: f64) -> Option<String> {
         ))
     } else {
         None
+    }
+}
+
+/// The error when every feature misses too much.
+pub fn every_feature_dropped(source: &str, max_share: f64) -> Error {
+    InputError::NoFeatures {
+        path: source.to_string(),
+        why: format!(
+            " (every feature misses more than max_feature_missing = {max_share} of its cells)"
+        ),
+    }
+    .into()
+}
+
+/// The error when fewer than two rows are left to analyse (`dropped` of them
+/// dropped for missing cells).
+pub fn too_few_rows(source: &str, rows: usize, dropped: usize) -> Error {
+    InputError::TooFewRows {
+        path: source.to_string(),
+        rows,
+        why: if dropped > 0 {
+            format!(" after dropping {dropped} row(s) with missing cells")
+        } else {
+            String::new()
+        },
+    }
+    .into()
+}
+
+/// The mean fill of a feature: the mean of its observed cells.
+pub fn mean_fill(observed: &ObservedReport) -> f64 {
+    observed.moments.mean
+}
+
+/// A feature's missing cells counted, and the count, sum and range of its
+/// observed cells ([`Moments`]), in row order.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct Observed {
+    missing: usize,
+    moments: Moments,
+}
+
+/// What [`Observed`] gives.
+#[derive(Debug, Clone, Copy)]
+pub struct ObservedReport {
+    pub missing: usize,
+    pub moments: MomentsReport,
+}
+
+impl Observed {
+    pub fn new() -> Observed {
+        Observed::default()
+    }
+}
+
+impl Statistic for Observed {
+    type Report = ObservedReport;
+
+    /// A missing cell is `NaN`.
+    #[inline]
+    fn add(&mut self, v: f64) {
+        if v.is_nan() {
+            self.missing += 1;
+        } else {
+            self.moments.add(v);
+        }
+    }
+
+    fn merge(&mut self, other: &Observed) {
+        self.missing += other.missing;
+        self.moments.merge(&other.moments);
+    }
+
+    fn finish(&self) -> ObservedReport {
+        ObservedReport {
+            missing: self.missing,
+            moments: self.moments.finish(),
+        }
+    }
+}
+
+/// The values filled into one feature's cells: how many, their mean (summed
+/// in row order) and how many lie outside the observed range [low, high].
+#[derive(Debug, Clone, Copy)]
+pub struct Filled {
+    low: f64,
+    high: f64,
+    count: usize,
+    sum: f64,
+    outside: usize,
+}
+
+/// What [`Filled`] gives.
+#[derive(Debug, Clone, Copy)]
+pub struct FilledReport {
+    pub count: usize,
+    pub mean: f64,
+    pub outside: usize,
+    pub low: f64,
+    pub high: f64,
+}
+
+impl Filled {
+    /// Nothing filled yet into a feature observed over [low, high].
+    pub fn within(low: f64, high: f64) -> Filled {
+        Filled {
+            low,
+            high,
+            count: 0,
+            sum: crate::linalg::SUM_START,
+            outside: 0,
+        }
+    }
+}
+
+impl Statistic for Filled {
+    type Report = FilledReport;
+
+    fn add(&mut self, v: f64) {
+        self.count += 1;
+        self.sum += v;
+        self.outside += usize::from(v < self.low || v > self.high);
+    }
+
+    fn merge(&mut self, other: &Filled) {
+        self.count += other.count;
+        self.sum += other.sum;
+        self.outside += other.outside;
+    }
+
+    fn finish(&self) -> FilledReport {
+        FilledReport {
+            count: self.count,
+            mean: self.sum / self.count as f64,
+            outside: self.outside,
+            low: self.low,
+            high: self.high,
+        }
     }
 }
 
@@ -303,17 +436,23 @@ fn retain_where<T>(items: &mut Vec<T>, keep: &[bool]) {
 /// returns those values.
 fn fill_constant(
     data: &mut FeatureData,
+    observed: &[ObservedReport],
     method: MissingMethod,
     reports: &mut [FeatureMissing],
 ) -> Vec<f64> {
     let mut values = Vec::new();
-    for feature in &mut data.features {
-        // The mean without copying the column (same sum, same order as `mean`);
-        // the median needs a copy to sort.
-        let observed = || feature.values.iter().copied().filter(|v| !v.is_nan());
+    for (feature, observed) in data.features.iter_mut().zip(observed) {
+        // The median needs a copy to sort.
         let value = match method {
-            MissingMethod::Median => median(observed().collect()),
-            _ => observed().sum::<f64>() / observed().count() as f64,
+            MissingMethod::Median => median(
+                feature
+                    .values
+                    .iter()
+                    .copied()
+                    .filter(|v| !v.is_nan())
+                    .collect(),
+            ),
+            _ => mean_fill(observed),
         };
         for v in feature.values.iter_mut().filter(|v| v.is_nan()) {
             *v = value;

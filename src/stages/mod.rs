@@ -3,7 +3,11 @@
 //!
 //! table → [`FeatureData`] → [`missing`] → [`transform`] → [`scale`] →
 //! [`decompose`] → [`select`].
+//!
+//! The statistics over rows they need are defined once, as accumulators
+//! ([`accumulate`]), which the passes engine feeds too.
 
+pub mod accumulate;
 pub mod crossval;
 pub mod decompose;
 pub mod diagnose;

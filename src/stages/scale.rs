@@ -6,6 +6,7 @@
 //! Standard deviations use the divisor n − 1.
 
 use super::FeatureData;
+use super::accumulate::Statistic;
 use crate::error::{AnalysisError, Error, InputError};
 use crate::linalg::Matrix;
 use crate::recipe::raw::{ConstantPolicy, ScalingMethod};
@@ -64,56 +65,40 @@ impl Scaled {
     }
 }
 
-/// Centres and scales every feature.
+/// Centres and scales every feature. Each column feeds the scaling stage's
+/// statistics ([`Moments`], then [`Deviations`] about the mean) whole, the rows
+/// in order, as the passes engine feeds them chunk by chunk.
 pub fn scale(
     data: FeatureData,
     method: ScalingMethod,
     constant: ConstantPolicy,
 ) -> Result<(Scaled, ScaleReport), Error> {
-    let mut report = ScaleReport {
-        method,
-        constant_features: constant,
-        features: Vec::new(),
-        dropped_constant: Vec::new(),
-    };
+    let mut report = ScaleReport::new(method, constant);
     let mut columns = Vec::new();
     let mut names = Vec::new();
     for mut feature in data.features {
         let stats = FeatureScale::measure(&feature.name, &feature.values, method);
-        if method.divides() && stats.min == stats.max {
-            match constant {
-                ConstantPolicy::Error => {
-                    return Err(InputError::ConstantFeature {
-                        path: data.source.clone(),
-                        column: feature.name,
-                        value: crate::text::number(stats.min),
-                        scaling: method.name(),
-                    }
-                    .into());
-                }
-                ConstantPolicy::Drop => {
-                    report.dropped_constant.push(feature.name);
-                    continue;
-                }
-            }
+        if !report.admit(&data.source, &stats)? {
+            continue;
         }
         // In place: the unscaled values are not needed again.
         for v in feature.values.iter_mut() {
-            *v = (*v - stats.centre) / stats.scale;
+            *v = stats.apply(*v);
         }
-        let squares: f64 = feature.values.iter().map(|z| z * z).sum();
-        check_finite(&data.source, &feature.name, &stats, squares, method)?;
+        let mut squares = Square::new();
+        squares.push(&feature.values);
+        check_finite(
+            &data.source,
+            &feature.name,
+            &stats,
+            squares.finish(),
+            method,
+        )?;
         columns.push(feature.values);
         names.push(feature.name);
         report.features.push(stats);
     }
-    if names.is_empty() {
-        return Err(InputError::NoFeatures {
-            path: data.source,
-            why: " (every feature is constant)".into(),
-        }
-        .into());
-    }
+    report.some_left(&data.source)?;
     Ok((
         Scaled {
             names,
@@ -123,6 +108,251 @@ pub fn scale(
         },
         report,
     ))
+}
+
+impl ScaleReport {
+    /// A report with no feature scaled yet.
+    pub fn new(method: ScalingMethod, constant: ConstantPolicy) -> ScaleReport {
+        ScaleReport {
+            method,
+            constant_features: constant,
+            features: Vec::new(),
+            dropped_constant: Vec::new(),
+        }
+    }
+
+    /// The rule for a feature whose values are all equal under a scaling that
+    /// divides by their spread: stop with an error, or drop it (recorded
+    /// here). `Ok(true)` when the feature is scaled.
+    pub fn admit(&mut self, source: &str, stats: &FeatureScale) -> Result<bool, Error> {
+        if !(self.method.divides() && stats.min == stats.max) {
+            return Ok(true);
+        }
+        match self.constant_features {
+            ConstantPolicy::Error => Err(InputError::ConstantFeature {
+                path: source.to_string(),
+                column: stats.feature.clone(),
+                value: crate::text::number(stats.min),
+                scaling: self.method.name(),
+            }
+            .into()),
+            ConstantPolicy::Drop => {
+                self.dropped_constant.push(stats.feature.clone());
+                Ok(false)
+            }
+        }
+    }
+
+    /// Refuses a table whose every feature was dropped as constant.
+    pub fn some_left(&self, source: &str) -> Result<(), Error> {
+        if self.features.is_empty() {
+            return Err(InputError::NoFeatures {
+                path: source.to_string(),
+                why: " (every feature is constant)".into(),
+            }
+            .into());
+        }
+        Ok(())
+    }
+}
+
+/// One value on the scale of the analysis: (x − centre) / scale. The one
+/// definition every engine, imputation and `apply` use.
+#[inline]
+pub fn scale_value(x: f64, centre: f64, scale: f64) -> f64 {
+    (x - centre) / scale
+}
+
+/// The divisor used to standardise a column inside a fill method (iterative
+/// PCA, the neighbours' distances): the column's scale, or 1 when the scale is
+/// zero, so that a column with no spread is centred only and never divides by
+/// zero. The analysis itself never takes this rule: a zero scale there is
+/// refused or dropped ([`ScaleReport::admit`], [`check_finite`]).
+pub fn standardising_divisor(scale: f64) -> f64 {
+    if scale > 0.0 { scale } else { 1.0 }
+}
+
+/// The count, sum and range of a feature's values: their mean, minimum and
+/// maximum. Summed in row order from [`crate::linalg::SUM_START`], the start
+/// `iter().sum()` takes.
+#[derive(Debug, Clone, Copy)]
+pub struct Moments {
+    count: usize,
+    sum: f64,
+    low: f64,
+    high: f64,
+}
+
+/// What [`Moments`] gives.
+#[derive(Debug, Clone, Copy)]
+pub struct MomentsReport {
+    pub count: usize,
+    pub mean: f64,
+    pub min: f64,
+    pub max: f64,
+}
+
+impl Moments {
+    pub fn new() -> Moments {
+        Moments {
+            count: 0,
+            sum: crate::linalg::SUM_START,
+            low: f64::INFINITY,
+            high: f64::NEG_INFINITY,
+        }
+    }
+}
+
+impl Default for Moments {
+    fn default() -> Self {
+        Moments::new()
+    }
+}
+
+impl Statistic for Moments {
+    type Report = MomentsReport;
+
+    #[inline]
+    fn add(&mut self, v: f64) {
+        self.count += 1;
+        self.sum += v;
+        self.low = self.low.min(v);
+        self.high = self.high.max(v);
+    }
+
+    fn merge(&mut self, other: &Moments) {
+        self.count += other.count;
+        self.sum += other.sum;
+        self.low = self.low.min(other.low);
+        self.high = self.high.max(other.high);
+    }
+
+    fn finish(&self) -> MomentsReport {
+        MomentsReport {
+            count: self.count,
+            mean: self.sum / self.count as f64,
+            min: self.low,
+            max: self.high,
+        }
+    }
+}
+
+/// The sum of squared deviations from a mean known beforehand (the second of
+/// two passes, for accuracy): the standard deviation with divisor n − 1.
+#[derive(Debug, Clone, Copy)]
+pub struct Deviations {
+    mean: f64,
+    count: usize,
+    squares: f64,
+}
+
+impl Deviations {
+    pub fn about(mean: f64) -> Deviations {
+        Deviations {
+            mean,
+            count: 0,
+            squares: crate::linalg::SUM_START,
+        }
+    }
+}
+
+impl Statistic for Deviations {
+    /// The standard deviation (divisor n − 1).
+    type Report = f64;
+
+    #[inline]
+    fn add(&mut self, v: f64) {
+        let d = v - self.mean;
+        self.count += 1;
+        self.squares += d * d;
+    }
+
+    fn merge(&mut self, other: &Deviations) {
+        self.count += other.count;
+        self.squares += other.squares;
+    }
+
+    fn finish(&self) -> f64 {
+        (self.squares / (self.count as f64 - 1.0)).sqrt()
+    }
+}
+
+/// Σ z² of one feature's scaled values, in row order from
+/// [`crate::linalg::SUM_START`]. (A start of +0 gives the same bits once a row
+/// is added, since a square is never −0; the decomposition's total variance,
+/// the overflow check and the correlation loadings all read this one sum.)
+#[derive(Debug, Clone, Copy)]
+pub struct Square(f64);
+
+impl Square {
+    pub fn new() -> Square {
+        Square(crate::linalg::SUM_START)
+    }
+}
+
+impl Default for Square {
+    fn default() -> Self {
+        Square::new()
+    }
+}
+
+impl Statistic for Square {
+    type Report = f64;
+
+    #[inline]
+    fn add(&mut self, v: f64) {
+        self.0 += v * v;
+    }
+
+    fn merge(&mut self, other: &Square) {
+        self.0 += other.0;
+    }
+
+    fn finish(&self) -> f64 {
+        self.0
+    }
+}
+
+/// [`Square`] of every column of row-major rows, taken a row at a time (the
+/// rows are read once, in memory order).
+#[derive(Debug, Clone)]
+pub struct Squares {
+    columns: Vec<Square>,
+}
+
+impl Squares {
+    pub fn new(width: usize) -> Squares {
+        Squares {
+            columns: vec![Square::new(); width],
+        }
+    }
+
+    /// Adds whole rows of `width` values each.
+    pub fn push(&mut self, rows: &[f64]) {
+        let p = self.columns.len().max(1);
+        for row in rows.chunks_exact(p) {
+            for (s, &v) in self.columns.iter_mut().zip(row) {
+                s.add(v);
+            }
+        }
+    }
+
+    pub fn merge(&mut self, other: &Squares) {
+        for (s, o) in self.columns.iter_mut().zip(&other.columns) {
+            s.merge(o);
+        }
+    }
+
+    pub fn finish(&self) -> Vec<f64> {
+        self.columns.iter().map(Statistic::finish).collect()
+    }
+
+    /// Σᵢ zᵢⱼ² of every column of a matrix held in memory.
+    pub fn of(z: &Matrix) -> Vec<f64> {
+        let mut squares = Squares::new(z.cols);
+        squares.push(&z.data);
+        squares.finish()
+    }
 }
 
 /// Refuses values whose mean, spread or squares overflow double precision: the
@@ -143,7 +373,7 @@ pub fn check_finite(
         path: source.to_string(),
         column: name.to_string(),
         what,
-        scaling: method.name(),
+        scaling: method,
     };
     if !stats.mean.is_finite() {
         return Err(overflow(OverflowPart::Sum));
@@ -157,10 +387,7 @@ pub fn check_finite(
             column: name.to_string(),
             min: crate::text::number(stats.min),
             max: crate::text::number(stats.max),
-            spread: match method {
-                ScalingMethod::Range => "range",
-                _ => "standard deviation",
-            },
+            spread: method.spread_name(),
         });
     }
     if !squares.is_finite() {
@@ -170,42 +397,212 @@ pub fn check_finite(
 }
 
 impl FeatureScale {
-    fn measure(name: &str, values: &[f64], method: ScalingMethod) -> FeatureScale {
-        let n = values.len() as f64;
-        let mean = super::missing::mean(values);
-        // Two passes (mean, then squared deviations) for accuracy.
-        let ss: f64 = values.iter().map(|v| (v - mean) * (v - mean)).sum();
-        let sd = (ss / (n - 1.0)).sqrt();
-        let min = values.iter().copied().fold(f64::INFINITY, f64::min);
-        let max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        FeatureScale::from_moments(name, mean, sd, min, max, method)
+    /// The scaling of one feature held in memory, from the same statistics the
+    /// passes engine feeds chunk by chunk.
+    pub fn measure(name: &str, values: &[f64], method: ScalingMethod) -> FeatureScale {
+        let mut moments = Moments::new();
+        moments.push(values);
+        let moments = moments.finish();
+        let mut deviations = Deviations::about(moments.mean);
+        deviations.push(values);
+        FeatureScale::from_moments(name, &moments, deviations.finish(), method)
     }
 
-    /// The centre and scale `method` takes from a feature's mean, standard
-    /// deviation and range (however they were summed).
+    /// The centre and scale `method` takes from a feature's moments and
+    /// standard deviation (however they were summed).
     pub fn from_moments(
         name: &str,
-        mean: f64,
+        moments: &MomentsReport,
         sd: f64,
-        min: f64,
-        max: f64,
         method: ScalingMethod,
     ) -> FeatureScale {
-        let centre = if method.centers() { mean } else { 0.0 };
-        let scale = match method {
-            ScalingMethod::None | ScalingMethod::Center => 1.0,
-            ScalingMethod::UnitVariance => sd,
-            ScalingMethod::Pareto => sd.sqrt(),
-            ScalingMethod::Range => max - min,
-        };
+        let (mean, min, max) = (moments.mean, moments.min, moments.max);
         FeatureScale {
             feature: name.to_string(),
             mean,
             sd,
             min,
             max,
-            centre,
-            scale,
+            centre: if method.centers() { mean } else { 0.0 },
+            scale: method.scale_of(sd, min, max),
+        }
+    }
+
+    /// A value of this feature on the scale of the analysis.
+    #[inline]
+    pub fn apply(&self, x: f64) -> f64 {
+        scale_value(x, self.centre, self.scale)
+    }
+}
+
+/// What each scaling method means. The rules that differ between methods live
+/// here (with `name`, `centers` and `divides` beside the enum), so a new method
+/// is the enum's variant, these matches, its test and its documentation.
+impl ScalingMethod {
+    /// The divisor from a feature's standard deviation and range.
+    pub fn scale_of(self, sd: f64, min: f64, max: f64) -> f64 {
+        match self {
+            ScalingMethod::None | ScalingMethod::Center => 1.0,
+            ScalingMethod::UnitVariance => sd,
+            ScalingMethod::Pareto => sd.sqrt(),
+            ScalingMethod::Range => max - min,
+            #[cfg(test)]
+            ScalingMethod::TwiceSd => 2.0 * sd,
+        }
+    }
+
+    /// The spread a dividing method divides by, in words.
+    pub fn spread_name(self) -> &'static str {
+        match self {
+            ScalingMethod::Range => "range",
+            _ => "standard deviation",
+        }
+    }
+
+    /// Whether the scaled values are bounded whatever the data's unit, so that
+    /// the sum of their squares cannot overflow.
+    pub fn bounds_values(self) -> bool {
+        matches!(self, ScalingMethod::UnitVariance | ScalingMethod::Range)
+    }
+
+    /// Whether the loadings times the square roots of the eigenvalues are the
+    /// correlations of the features with the components.
+    pub fn gives_correlations(self) -> bool {
+        self == ScalingMethod::UnitVariance
+    }
+
+    /// The name of the matrix whose eigenvectors are the loadings.
+    pub fn matrix_name(self) -> &'static str {
+        match self {
+            ScalingMethod::None => "second moments (uncentred)",
+            ScalingMethod::Center => "covariance",
+            ScalingMethod::UnitVariance => "correlation",
+            ScalingMethod::Pareto => "covariance of Pareto-scaled features",
+            ScalingMethod::Range => "covariance of range-scaled features",
+            #[cfg(test)]
+            ScalingMethod::TwiceSd => "correlation (halved)",
+        }
+    }
+
+    /// One sentence for `sextant explain`.
+    pub fn explanation(self) -> &'static str {
+        match self {
+            ScalingMethod::None => {
+                "Neither centre nor scale the features, so the analysis is of the uncentred second-moment matrix XᵀX / (n − 1)."
+            }
+            ScalingMethod::Center => {
+                "Centre each feature on its mean without scaling, so the analysis is of the covariance matrix and features with large spread weigh most."
+            }
+            ScalingMethod::UnitVariance => {
+                "Centre each feature on its mean and divide it by its standard deviation (divisor n − 1), so the analysis is of the correlation matrix and every feature weighs the same."
+            }
+            ScalingMethod::Pareto => {
+                "Centre each feature on its mean and divide it by the square root of its standard deviation (Pareto scaling)."
+            }
+            ScalingMethod::Range => {
+                "Centre each feature on its mean and divide it by its range (max − min)."
+            }
+            #[cfg(test)]
+            ScalingMethod::TwiceSd => {
+                "Centre each feature on its mean and divide it by twice its standard deviation."
+            }
+        }
+    }
+
+    /// Every method, in the recipe's order (for checks over all of them).
+    pub const ALL: [ScalingMethod; 5] = [
+        ScalingMethod::None,
+        ScalingMethod::Center,
+        ScalingMethod::UnitVariance,
+        ScalingMethod::Pareto,
+        ScalingMethod::Range,
+    ];
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::stages::Feature;
+
+    fn data(columns: &[&[f64]]) -> FeatureData {
+        let n = columns[0].len();
+        FeatureData {
+            features: columns
+                .iter()
+                .enumerate()
+                .map(|(j, values)| Feature {
+                    name: format!("f{j}"),
+                    values: values.to_vec(),
+                    transform: None,
+                })
+                .collect(),
+            rows: (0..n).collect(),
+            lines: (2..n as u64 + 2).collect(),
+            source: "t.csv".into(),
+        }
+    }
+
+    /// The list of dividing methods the recipe check reads is the rule the
+    /// stage applies.
+    #[test]
+    fn dividing_names_are_the_dividing_methods() {
+        let dividing: Vec<&str> = ScalingMethod::ALL
+            .iter()
+            .filter(|m| m.divides())
+            .map(|m| m.name())
+            .collect();
+        assert_eq!(dividing, ScalingMethod::DIVIDING);
+    }
+
+    /// A method that exists only in the unit tests (`ScalingMethod::TwiceSd`,
+    /// written in the recipe enum and this stage only) scales, refuses a
+    /// constant feature and explains itself like the shipped ones: adding a
+    /// method needs no other file (the whole library compiles with it here).
+    #[test]
+    fn a_new_scaling_needs_only_the_enum_and_the_stage() {
+        let method = ScalingMethod::TwiceSd;
+        let (scaled, report) = scale(
+            data(&[&[1.0, 2.0, 3.0, 6.0]]),
+            method,
+            ConstantPolicy::Error,
+        )
+        .unwrap();
+        let f = &report.features[0];
+        assert_eq!((f.mean, f.centre), (3.0, 3.0));
+        assert_eq!(f.scale, 2.0 * f.sd);
+        let z = scaled.data();
+        assert_eq!(z.get(3, 0), (6.0 - 3.0) / (2.0 * f.sd));
+        let e = scale(data(&[&[4.0, 4.0, 4.0]]), method, ConstantPolicy::Error).unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("`twice-sd` scaling would divide by zero"),
+            "{e}"
+        );
+        let (_, dropped) = scale(
+            data(&[&[4.0, 4.0, 4.0], &[1.0, 2.0, 3.0]]),
+            method,
+            ConstantPolicy::Drop,
+        )
+        .unwrap();
+        assert_eq!(dropped.dropped_constant, vec!["f0".to_string()]);
+        assert!(
+            method
+                .explanation()
+                .contains("twice its standard deviation")
+        );
+        assert!(!method.gives_correlations() && !method.bounds_values());
+    }
+
+    /// Σ z² from −0 (the sum's start) and from +0 give the same bits once a
+    /// row is added, so one accumulator serves the overflow check, the total
+    /// variance and the correlation loadings.
+    #[test]
+    fn squares_from_either_zero_agree() {
+        for column in [&[0.0, 0.0][..], &[-0.0, 1e-200], &[3.0, -4.0]] {
+            let mut s = Square::new();
+            s.push(column);
+            let plus = column.iter().fold(0.0, |a, v| a + v * v);
+            assert_eq!(s.finish().to_bits(), plus.to_bits());
         }
     }
 }

@@ -53,6 +53,32 @@ pub struct KeepAboveRank {
     pub available: usize,
 }
 
+/// The choice of k once the eigenvalues are known, as both engines make it:
+/// the recipe's rule over the p eigenvalues (p features), then the loadings of
+/// every computed component made sure of: `more(count)` decomposes again when
+/// the first decomposition computed fewer (`None` where it cannot, the
+/// randomized method). A fixed count above the rank becomes `keep_error`'s error.
+pub fn choose<E: From<crate::error::AnalysisError>>(
+    decomposition: &mut super::decompose::Decomposition,
+    p: usize,
+    plan: &ComponentsPlan,
+    evidence: Evidence,
+    more: Option<
+        impl FnOnce(usize) -> Result<super::decompose::Decomposition, crate::error::AnalysisError>,
+    >,
+    keep_error: impl FnOnce(KeepAboveRank) -> E,
+) -> Result<Selection, E> {
+    let d = &*decomposition;
+    let selection = select_among(&d.eigenvalues, p, d.total_variance, d.rank, plan, evidence)
+        .map_err(keep_error)?;
+    if let Some(more) = more
+        && selection.computed > decomposition.loadings.cols
+    {
+        *decomposition = more(selection.computed)?;
+    }
+    Ok(selection)
+}
+
 /// The broken-stick expectations b₁..b_p.
 pub fn broken_stick(p: usize) -> Vec<f64> {
     (1..=p)

@@ -23,7 +23,7 @@ pub mod unique;
 
 use crate::store;
 
-use crate::recipe::raw::{DecompositionMethod, Keep, MissingMethod, RawRecipe, ScalingMethod};
+use crate::recipe::raw::{DecompositionMethod, Keep, MissingMethod, RawRecipe};
 
 /// Which engine analyses the table.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -84,11 +84,11 @@ pub fn cannot_stream(raw: &RawRecipe) -> Option<String> {
             missing.name()
         ));
     }
-    if raw.scaling.method == ScalingMethod::None {
-        return Some(
-            "scaling.method = \"none\" needs the table in memory (every centred scaling works in passes)"
-                .into(),
-        );
+    if !raw.scaling.method.centers() {
+        return Some(format!(
+            "scaling.method = \"{}\" needs the table in memory (every centred scaling works in passes)",
+            raw.scaling.method.name()
+        ));
     }
     match raw.components.keep.as_ref().map(|k| k.get_ref()) {
         Some(Keep::ParallelAnalysis) => {

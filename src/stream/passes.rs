@@ -1,6 +1,9 @@
 //! The analysis in passes over the [`Store`]: each pass reads the rows in table
-//! order and carries its sums from chunk to chunk, so every number is summed in
-//! the same order, from the same start, as the in-memory stages sum it. That is
+//! order and feeds them, chunk by chunk, to the statistics the in-memory stages
+//! feed whole columns ([`crate::stages::accumulate`]), and takes the stages'
+//! decisions through the stages' own functions (which feature is dropped, the
+//! fill value, a constant feature, the errors). So every number is summed in
+//! the same order, from the same start, by the same code as in memory. That is
 //! what makes the two engines give the same bits (tested on whole results
 //! folders in tests/engines.rs).
 //!
@@ -12,20 +15,24 @@
 //! 5. scores, T² and SPE, row by row;
 //! 6. the scaled values of the rows whose contributions are reported.
 
-use crate::analysis::{Analysis, Prepared, Preprocessed, rows_needing_values};
-use crate::error::{Error, InputError};
-use crate::linalg::SUM_START;
+use crate::error::Error;
 use crate::linalg::crossprod::{GramAccumulator, row_times};
 use crate::recipe::plan::Transform;
-use crate::recipe::raw::{ConstantPolicy, MissingMethod};
-use crate::stages::decompose::{add_squares, from_cross_products};
-use crate::stages::diagnose::RowStatistics;
-use crate::stages::missing::{FeatureMissing, FillModel, MissingReport};
-use crate::stages::scale::{FeatureScale, ScaleReport, Scaled, check_finite};
-use crate::stages::select::{Evidence, select};
+use crate::recipe::raw::MissingMethod;
+use crate::analysis::{Analysis, Prepared, Preprocessed, rows_needing_values};
+use crate::stages::accumulate::{PerFeature, Statistic, by_columns};
+use crate::stages::decompose::from_cross_products;
+use crate::stages::diagnose::{RowStatistics, residual_moments};
+use crate::stages::missing::{
+    FeatureMissing, FillModel, Filled, MissingReport, Observed, ObservedReport,
+    every_feature_dropped, mean_fill, too_few_rows,
+};
+use crate::stages::scale::{
+    Deviations, FeatureScale, Moments, ScaleReport, Scaled, Squares, check_finite, scale_value,
+};
+use crate::stages::select::{Evidence, choose};
 use crate::stages::transform::{Applied, domain_error, transform_value};
 use crate::store::{Chunk, Store};
-use crate::text::number;
 use rayon::prelude::*;
 
 /// How each analysed feature is read from the store and brought to the scale
@@ -104,7 +111,7 @@ impl Features {
 
     fn scale_row(&self, row: &mut [f64]) {
         for (j, o) in row.iter_mut().enumerate() {
-            *o = (*o - self.centre[j]) / self.scale[j];
+            *o = scale_value(*o, self.centre[j], self.scale[j]);
         }
     }
 }
@@ -142,17 +149,6 @@ impl Features {
     }
 }
 
-/// Runs `f` on runs of per-feature accumulators at the same time (with the index
-/// of each run's first feature). Each feature's sums still take the rows in
-/// order, so how the features are split never changes a bit.
-fn by_columns<T: Send>(items: &mut [T], f: impl Fn(usize, &mut [T]) + Sync) {
-    let step = items.len().div_ceil(rayon::current_num_threads()).max(1);
-    items
-        .par_chunks_mut(step)
-        .enumerate()
-        .for_each(|(i, part)| f(i * step, part));
-}
-
 /// The store column holding a table column.
 fn store_column(prepared: &Prepared, numeric: &[usize], name: &str) -> usize {
     let t = prepared
@@ -167,15 +163,11 @@ fn store_column(prepared: &Prepared, numeric: &[usize], name: &str) -> usize {
         .expect("features are numeric columns")
 }
 
-/// Per-feature running statistics of pass 1.
-#[derive(Clone)]
+/// Per-feature state of pass 1: the missing stage's counts and observed sums,
+/// and the first value outside the transform's domain (its line and value).
+#[derive(Clone, Default)]
 struct FirstPass {
-    missing: usize,
-    observed_sum: f64,
-    observed: usize,
-    low: f64,
-    high: f64,
-    /// The first value outside the transform's domain: its line and value.
+    observed: Observed,
     bad: Option<(u64, f64)>,
 }
 
@@ -190,12 +182,7 @@ pub fn preprocess(
     let source = table.display.clone();
     let n = table.n_rows();
     if n < 2 {
-        return Err(InputError::TooFewRows {
-            path: source,
-            rows: n,
-            why: String::new(),
-        }
-        .into());
+        return Err(too_few_rows(&source, n, 0));
     }
     let width = store.width();
     let all_columns: Vec<usize> = plan
@@ -207,15 +194,7 @@ pub fn preprocess(
     // Pass 1.
     crate::progress::current().stage("pass 1 of 6: missing cells and observed sums");
     let t = std::time::Instant::now();
-    let start = FirstPass {
-        missing: 0,
-        observed_sum: SUM_START,
-        observed: 0,
-        low: f64::INFINITY,
-        high: f64::NEG_INFINITY,
-        bad: None,
-    };
-    let mut first = vec![start; plan.features.len()];
+    let mut first = vec![FirstPass::default(); plan.features.len()];
     // The transforms still to apply (none when an earlier preprocessing of
     // this store applied them).
     let pending: Vec<Option<Transform>> = if store.transformed {
@@ -230,24 +209,18 @@ pub fn preprocess(
                 let row = &chunk.values[r * width..(r + 1) * width];
                 for (j, f) in (from..).zip(part.iter_mut()) {
                     let v = row[all_columns[j]];
-                    if v.is_nan() {
-                        f.missing += 1;
-                        continue;
-                    }
                     let v = match pending[j] {
-                        Some(t) => match transform_value(t, v) {
+                        Some(t) if !v.is_nan() => match transform_value(t, v) {
                             Some(out) => out,
                             None => {
                                 f.bad.get_or_insert((chunk.lines[r], v));
                                 continue;
                             }
                         },
-                        None => v,
+                        _ => v,
                     };
-                    f.observed_sum += v;
-                    f.observed += 1;
-                    f.low = f.low.min(v);
-                    f.high = f.high.max(v);
+                    // A missing cell (`NaN`) is counted as missing.
+                    f.observed.add(v);
                 }
             }
         });
@@ -293,33 +266,18 @@ pub fn preprocess(
 
     // The missing stage's decisions.
     let max_share = plan.max_feature_missing;
+    let observed: Vec<ObservedReport> = first.iter().map(|f| f.observed.finish()).collect();
     let mut reports = Vec::new();
     let mut kept = Vec::new();
-    for (j, f) in first.iter().enumerate() {
-        let share = f.missing as f64 / n as f64;
-        let dropped = crate::stages::missing::drop_reason(f.missing, n, max_share);
-        if dropped.is_none() {
+    for (j, o) in observed.iter().enumerate() {
+        let report = FeatureMissing::counted(&plan.features[j], o.missing, n, max_share);
+        if report.dropped.is_none() {
             kept.push(j);
         }
-        reports.push(FeatureMissing {
-            feature: plan.features[j].clone(),
-            missing: f.missing,
-            share,
-            dropped,
-            filled: 0,
-            fill_value: None,
-            mean_filled: None,
-            filled_outside_observed_range: 0,
-        });
+        reports.push(report);
     }
     if kept.is_empty() {
-        return Err(InputError::NoFeatures {
-            path: source,
-            why: format!(
-                " (every feature misses more than max_feature_missing = {max_share} of its cells)"
-            ),
-        }
-        .into());
+        return Err(every_feature_dropped(&source, max_share));
     }
     let drop_incomplete = plan.missing_method == MissingMethod::DropRows;
     let fill: Vec<f64> = kept
@@ -328,7 +286,7 @@ pub fn preprocess(
             if drop_incomplete {
                 f64::NAN
             } else {
-                first[j].observed_sum / first[j].observed as f64
+                mean_fill(&observed[j])
             }
         })
         .collect();
@@ -346,7 +304,7 @@ pub fn preprocess(
     // Pass 2: the analysed rows, the filled cells, sums and ranges.
     crate::progress::current().stage("pass 2 of 6: filled values");
     // Per feature: the sum, lowest and highest of the filled values.
-    let mut filled_stats = vec![(SUM_START, f64::INFINITY, f64::NEG_INFINITY); q];
+    let mut filled_stats = PerFeature::new(vec![Moments::new(); q]);
     let mut filled = crate::row_results::FilledCells::new(
         plan.features.clone(),
         if store.spilled() { 0 } else { u64::MAX },
@@ -360,18 +318,7 @@ pub fn preprocess(
         // The sums by feature and the filled cells by blocks of rows, at the
         // same time; the blocks' cells are joined in row order.
         let (_, cells) = rayon::join(
-            || {
-                by_columns(&mut filled_stats, |from, part| {
-                    for row in values.chunks_exact(q.max(1)) {
-                        for (j, (sum, low, high)) in (from..).zip(part.iter_mut()) {
-                            let v = row[j];
-                            *sum += v;
-                            *low = low.min(v);
-                            *high = high.max(v);
-                        }
-                    }
-                })
-            },
+            || filled_stats.push(&values),
             || {
                 if drop_incomplete {
                     return Vec::new();
@@ -407,46 +354,25 @@ pub fn preprocess(
         offset += chunk.rows;
         Ok(())
     })?;
-    let sums: Vec<f64> = filled_stats.iter().map(|s| s.0).collect();
-    let lows: Vec<f64> = filled_stats.iter().map(|s| s.1).collect();
-    let highs: Vec<f64> = filled_stats.iter().map(|s| s.2).collect();
+    let moments = filled_stats.finish();
     let rows_dropped = n - analysed;
     let mut warnings = Vec::new();
     if !drop_incomplete {
         for (k, &j) in kept.iter().enumerate() {
             let value = features.fill[k];
-            let count = first[j].missing;
+            let range = &observed[j].moments;
+            // Every missing cell of the feature took the one fill value.
+            let mut values = Filled::within(range.min, range.max);
+            for _ in 0..observed[j].missing {
+                values.add(value);
+            }
             let report = &mut reports[j];
             report.fill_value = Some(value);
-            report.filled = count;
-            if count > 0 {
-                // The mean of the filled values, summed as `mean` sums them.
-                let total = (0..count).fold(SUM_START, |s, _| s + value);
-                report.mean_filled = Some(total / count as f64);
-            }
-            let (lo, hi) = (first[j].low, first[j].high);
-            if count > 0 && (value < lo || value > hi) {
-                report.filled_outside_observed_range = count;
-                warnings.push(crate::stages::missing::outside_range_warning(
-                    count,
-                    &features.names[k],
-                    lo,
-                    hi,
-                ));
-            }
+            report.record_fill(&values.finish(), &mut warnings);
         }
     }
     if analysed < 2 {
-        return Err(InputError::TooFewRows {
-            path: source,
-            rows: analysed,
-            why: if rows_dropped > 0 {
-                format!(" after dropping {rows_dropped} row(s) with missing cells")
-            } else {
-                String::new()
-            },
-        }
-        .into());
+        return Err(too_few_rows(&source, analysed, rows_dropped));
     }
     let missing = MissingReport {
         method: plan.missing_method,
@@ -464,68 +390,35 @@ pub fn preprocess(
     } else {
         FillModel::Constant(features.fill.clone())
     };
-    let means: Vec<f64> = sums.iter().map(|s| s / analysed as f64).collect();
 
     let t = crate::timing::lap("  pass 2: filled sums and ranges", t);
     // Pass 3: squared deviations.
     crate::progress::current().stage("pass 3 of 6: spreads");
-    let mut squares = vec![SUM_START; q];
+    let mut deviations =
+        PerFeature::new(moments.iter().map(|m| Deviations::about(m.mean)).collect());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, false, &mut values, &mut local);
-        by_columns(&mut squares, |from, part| {
-            for row in values.chunks_exact(q.max(1)) {
-                for (j, square) in (from..).zip(part.iter_mut()) {
-                    let d = row[j] - means[j];
-                    *square += d * d;
-                }
-            }
-        });
+        deviations.push(&values);
         Ok(())
     })?;
+    let sds = deviations.finish();
 
     crate::timing::lap("  pass 3: squared deviations", t);
     // The scaling stage's decisions, feature by feature.
     let method = plan.scaling;
-    let mut scaling = ScaleReport {
-        method,
-        constant_features: plan.constant_features,
-        features: Vec::new(),
-        dropped_constant: Vec::new(),
-    };
+    let mut scaling = ScaleReport::new(method, plan.constant_features);
     let mut keep_scaled = Vec::new();
     for j in 0..q {
-        let sd = (squares[j] / (analysed as f64 - 1.0)).sqrt();
-        let (min, max) = (lows[j], highs[j]);
-        let stats = FeatureScale::from_moments(&features.names[j], means[j], sd, min, max, method);
-        if method.divides() && min == max {
-            match plan.constant_features {
-                ConstantPolicy::Error => {
-                    return Err(InputError::ConstantFeature {
-                        path: source,
-                        column: stats.feature,
-                        value: number(min),
-                        scaling: method.name(),
-                    }
-                    .into());
-                }
-                ConstantPolicy::Drop => {
-                    scaling.dropped_constant.push(stats.feature);
-                    continue;
-                }
-            }
+        let stats = FeatureScale::from_moments(&features.names[j], &moments[j], sds[j], method);
+        if !scaling.admit(&source, &stats)? {
+            continue;
         }
         // The sum of squares of the scaled values is checked after pass 4.
         check_finite(&source, &stats.feature, &stats, 0.0, method)?;
         keep_scaled.push(j);
         scaling.features.push(stats);
     }
-    if keep_scaled.is_empty() {
-        return Err(InputError::NoFeatures {
-            path: source,
-            why: " (every feature is constant)".into(),
-        }
-        .into());
-    }
+    scaling.some_left(&source)?;
     let pre = Preprocessed {
         scaled: Scaled {
             analysed,
@@ -567,23 +460,15 @@ pub fn analyse(
     crate::progress::current().stage("pass 4 of 6: cross-products");
     let t = std::time::Instant::now();
     let mut gram = GramAccumulator::new(p);
-    let mut squares = vec![SUM_START; p];
-    let mut column_squares = vec![0.0; p];
+    let mut squares = Squares::new(p);
     let (mut z, mut local) = (Vec::new(), Vec::new());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, true, &mut z, &mut local);
         let z = &z;
-        let ((), ()) = rayon::join(
-            || gram.add_rows(z),
-            || {
-                for row in z.chunks_exact(p) {
-                    add_squares(&mut squares, row);
-                    add_squares(&mut column_squares, row);
-                }
-            },
-        );
+        let ((), ()) = rayon::join(|| gram.add_rows(z), || squares.push(z));
         Ok(())
     })?;
+    let squares = squares.finish();
     for (j, &s) in squares.iter().enumerate() {
         let stats = &pre.scaling.features[j];
         check_finite(
@@ -605,24 +490,15 @@ pub fn analyse(
         crate::analysis::loadings_wanted(plan),
     )?;
     let t = crate::timing::lap("  eigendecomposition", t);
-    if decomposition.rank == 0 {
-        return Err(InputError::NoFeatures {
-            path: prepared.table.display.clone(),
-            why: " (the scaled data has no variance)".into(),
-        }
-        .into());
-    }
-    let selection = select(
-        &decomposition.eigenvalues,
-        decomposition.total_variance,
-        decomposition.rank,
+    decomposition.check_variance(&prepared.table.display)?;
+    let selection = choose(
+        &mut decomposition,
+        p,
         &plan.components,
         Evidence::default(),
-    )
-    .map_err(|e| crate::analysis::keep_error(prepared, pre, e.keep, e.available))?;
-    if selection.computed > decomposition.loadings.cols {
-        decomposition = from_cross_products(&gram, &squares, n, centred, selection.computed)?;
-    }
+        Some(|want: usize| from_cross_products(&gram, &squares, n, centred, want)),
+        |e| crate::analysis::keep_error(prepared, pre, e.keep, e.available),
+    )?;
     assert!(selection.computed <= decomposition.loadings.cols);
     let (kept, computed) = (selection.kept, selection.computed);
     let loadings = &decomposition.loadings;
@@ -632,9 +508,7 @@ pub fn analyse(
     let v_kept = loadings.columns(0, kept).data;
     let v_more = loadings.columns(kept, computed).data;
     let statistics = RowStatistics::new(loadings, kept, &decomposition.eigenvalues);
-    let moments = crate::stats::limits::ResidualMoments::from_eigenvalues(
-        &decomposition.eigenvalues[kept..decomposition.rank],
-    );
+    let moments = residual_moments(&decomposition, kept, None, n);
     let mut diagnostics = crate::analysis::diagnostics_for(plan, n, kept, moments);
     let mut results = results_for(prepared, computed, store.spilled());
     let labels = label_texts(prepared);
@@ -718,7 +592,7 @@ pub fn analyse(
         decomposition,
         selection,
         diagnostics,
-        column_squares,
+        column_squares: squares,
         rows: std::sync::Arc::new(results),
         details,
         randomized: None,

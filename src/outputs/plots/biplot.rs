@@ -177,7 +177,7 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan) -> String 
         plan.y,
         crate::text::percent_or_undefined(view.share(b)),
     );
-    if view.scaling == "unit-variance" {
+    if view.scaling.gives_correlations() {
         s.push_str(
             " (with unit-variance scaling, these are the correlations of the feature with the two components)",
         );

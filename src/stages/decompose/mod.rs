@@ -83,7 +83,7 @@ pub fn decompose_keeping(
     } else {
         Route::Features
     });
-    let squares = column_square_sums(z);
+    let squares = crate::stages::scale::Squares::of(z);
     if route == Route::Features {
         return from_cross_products(&gram_of_columns(z), &squares, n, centred, want);
     }
@@ -123,6 +123,18 @@ impl Decomposition {
     /// leading ones, so rules and limits that need the whole spectrum (Kaiser's
     /// p, the broken stick's p, Bartlett's test, the θ's of the SPE limit) must
     /// not read [`Decomposition::eigenvalues`] as if it were complete.
+    /// Refuses scaled data with no variance (no eigenvalue above rounding):
+    /// there is no component to keep, whichever engine found it.
+    pub fn check_variance(&self, source: &str) -> Result<(), crate::error::InputError> {
+        if self.rank == 0 {
+            return Err(crate::error::InputError::NoFeatures {
+                path: source.to_string(),
+                why: " (the scaled data has no variance)".into(),
+            });
+        }
+        Ok(())
+    }
+
     pub fn has_every_eigenvalue(&self) -> bool {
         self.eigenvalues.len() == self.loadings.rows
     }
@@ -139,24 +151,6 @@ pub fn decompose_randomized(
     settings: &RawRandomized,
 ) -> Result<(Decomposition, RandomizedReport), AnalysisError> {
     randomized::randomized(z, centred, want, settings)
-}
-
-/// Σᵢ zᵢⱼ² of each column, rows in order: the same sums as
-/// `column.iter().map(|v| v * v).sum::<f64>()` (same start, same order), taken
-/// row by row so the matrix is read once, in memory order.
-pub fn column_square_sums(z: &Matrix) -> Vec<f64> {
-    let mut sums = vec![crate::linalg::SUM_START; z.cols];
-    for i in 0..z.rows {
-        add_squares(&mut sums, z.row(i));
-    }
-    sums
-}
-
-/// Adds the squares of one row's values to per-column sums.
-pub fn add_squares(sums: &mut [f64], row: &[f64]) {
-    for (s, v) in sums.iter_mut().zip(row) {
-        *s += v * v;
-    }
 }
 
 /// The p × p route from the cross-products ZᵀZ (n rows) and each column's

@@ -42,7 +42,7 @@
 //! Eigenvalue Problem", SIAM, Theorem 4.5.1, as commonly given), so the report
 //! says how far each eigenvalue can be from a true one.
 
-use super::{Decomposition, Route, column_square_sums, rank_tolerance};
+use super::{Decomposition, Route, rank_tolerance};
 use crate::error::AnalysisError;
 use crate::linalg::Matrix;
 use crate::linalg::crossprod::{gram_of_columns, times};
@@ -102,7 +102,7 @@ pub fn randomized(
     let (n, p) = (z.rows, z.cols);
     let divisor = (n - 1) as f64;
     // The exact method's total, from the same sums in the same order.
-    let total_variance = column_square_sums(z).iter().sum::<f64>() / divisor;
+    let total_variance = crate::stages::scale::Squares::of(z).iter().sum::<f64>() / divisor;
     let bound = if centred { n - 1 } else { n }.min(p);
     let wanted = wanted.min(bound);
     let l = (wanted + settings.oversampling.0).min(n.min(p)).max(1);
