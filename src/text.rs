@@ -182,7 +182,7 @@ mod tests {
         assert_eq!(significant(0.0, 4), "0");
         assert_eq!(significant(-0.0, 4), "0");
         assert_eq!(significant_plain(1.23456e-7, 3), "0.000000123");
-        assert_eq!(significant_plain(-0.0000000000001, 2), "0.0000000000001");
+        assert_eq!(significant_plain(-1e-13, 2), "0.000000000000");
         assert_eq!(significant_plain(f64::INFINITY, 3), "not a number");
     }
 

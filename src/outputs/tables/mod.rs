@@ -2,7 +2,7 @@
 //! back to the same f64 (`ryu`), so files are exact and identical on every machine.
 //!
 //! The long tables (`scores.csv`, `imputed.csv`, `contributions.csv`; in
-//! [`long`]) are formatted in parallel: rows are cut into blocks of a fixed
+//! `tables/long.rs`) are formatted in parallel: rows are cut into blocks of a fixed
 //! [`BLOCK_ROWS`], each block is written by its own `csv` writer with the same
 //! settings, and the blocks are joined in order. The writer keeps no state from
 //! one record to the next that changes the bytes, so the file is identical to a
