@@ -458,14 +458,16 @@ pub enum AnalysisError {
     #[error(
         "{path}: feature `{column}` has values too large for double precision: {} overflows; {}",
         .what.words(),
-        overflow_hint(*.what, *.scaling)
+        overflow_hint(*.what, .scaling, *.bounded)
     )]
     Overflow {
         path: String,
         column: String,
         what: OverflowPart,
-        /// The scaling in effect, which decides the hint.
-        scaling: crate::recipe::raw::ScalingMethod,
+        /// The name of the scaling in effect, and whether it bounds the
+        /// scaled values; they decide the hint.
+        scaling: &'static str,
+        bounded: bool,
     },
     #[error(
         "{path}: feature `{column}` varies too little for double precision: its values run from {min} to {max}, and the squares of their deviations underflow to zero, so its {spread} cannot be computed; rescale it (a change of unit, such as multiplying it by 1e200)"
@@ -508,10 +510,9 @@ impl OverflowPart {
 /// Dividing by the standard deviation bounds the scaled values, so it helps
 /// only when their squares overflowed under a scaling that does not already
 /// divide by a spread; the sum and the spread overflow whatever the scaling.
-fn overflow_hint(what: OverflowPart, method: crate::recipe::raw::ScalingMethod) -> String {
+fn overflow_hint(what: OverflowPart, scaling: &str, bounded: bool) -> String {
     let rescale = "rescale it (a change of unit)";
-    let scaling = method.name();
-    if what == OverflowPart::ScaledSquares && !method.bounds_values() {
+    if what == OverflowPart::ScaledSquares && !bounded {
         format!("{rescale}, or use scaling.method = \"unit-variance\" instead of \"{scaling}\"")
     } else {
         format!("{rescale}; the scaling (\"{scaling}\") cannot help here")

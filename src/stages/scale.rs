@@ -373,7 +373,8 @@ pub fn check_finite(
         path: source.to_string(),
         column: name.to_string(),
         what,
-        scaling: method,
+        scaling: method.name(),
+        bounded: method.bounds_values(),
     };
     if !stats.mean.is_finite() {
         return Err(overflow(OverflowPart::Sum));
