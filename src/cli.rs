@@ -264,7 +264,7 @@ pub fn execute(cli: Cli) -> Result<Outcome, Error> {
             data,
             output,
             force,
-        } => crate::starter::run_new(&data, output.as_deref(), force)?.into(),
+        } => crate::new_recipe::run_new(&data, output.as_deref(), force)?.into(),
     })
 }
 
