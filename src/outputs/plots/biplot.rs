@@ -8,7 +8,7 @@
 
 use super::circle::draw_arrows;
 use super::frame::{self, Extent, Frame, Step};
-use super::scatter::{self, Colour, Groups, Legend, Selection};
+use super::scatter::{self, Colour, Groups, Legend, PointSelection};
 use super::svg::{self, NEUTRAL};
 use super::{LEGEND_X, equal_axes, scatter_layout, title, words_number};
 use crate::outputs::view::PlotView;
@@ -30,7 +30,7 @@ struct Prepared {
     /// The common stretch of the arrows.
     stretch: f64,
     groups: Groups,
-    sel: Selection,
+    sel: PointSelection,
 }
 
 /// The divisors of the two components' scores: √λ, or 1 where λ is not
