@@ -9,7 +9,7 @@
 pub mod apply;
 pub mod cleanup;
 pub mod cli;
-pub mod compare;
+pub mod diff;
 pub mod error;
 pub mod linalg;
 pub mod new_recipe;

@@ -430,7 +430,7 @@ pub fn rows_needing_values(diagnostics: &Diagnostics, plan: &Plan) -> Vec<usize>
         .contributions_max_rows
         .0
         .get()
-        .max(crate::outputs::present::REPORT_FLAGGED_ROWS);
+        .max(crate::outputs::build_views::REPORT_FLAGGED_ROWS);
     let mut rows = diagnostics.most_unusual(most.min(unusual_kept(plan)));
     rows.sort_unstable();
     rows
@@ -619,8 +619,8 @@ pub fn unusual_kept(plan: &Plan) -> usize {
         .contributions_max_rows
         .0
         .get()
-        .max(crate::outputs::present::REPORT_FLAGGED_ROWS)
-        .max(crate::outputs::present::UNUSUAL_3D)
+        .max(crate::outputs::build_views::REPORT_FLAGGED_ROWS)
+        .max(crate::outputs::build_views::UNUSUAL_3D)
 }
 
 /// The limits of the plan's confidence levels for `n` rows and `kept`
@@ -757,7 +757,7 @@ pub fn render(
     crate::progress::current().stage("result tables, figures and report");
     let (resolved, resolved_sha) = resolved_with_hash(prepared);
     let fingerprint = fingerprint(prepared);
-    let view = crate::outputs::present::plot_view(prepared, pre, analysis);
+    let view = crate::outputs::build_views::plot_view(prepared, pre, analysis);
     let t = crate::timing::lap("  the plots' view", t);
     // The figures and the tables at the same time: each reads the rows a
     // chunk at a time (through a file handle of its own when they are in a
@@ -1156,8 +1156,8 @@ fn report_view_of(
     view: &crate::outputs::view::PlotView,
     figures: &[(String, Vec<u8>, String)],
 ) -> crate::outputs::view::ReportView {
-    use crate::outputs::{present, view::Figure};
-    let mut report_view = present::report_view(prepared, pre, analysis, view);
+    use crate::outputs::{build_views, view::Figure};
+    let mut report_view = build_views::report_view(prepared, pre, analysis, view);
     report_view.figures = prepared
         .plan
         .plots

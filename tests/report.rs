@@ -10,8 +10,8 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use serde_json::Value;
+use sextant::outputs::build_views::cautions;
 use sextant::outputs::hashing::sha256_hex;
-use sextant::outputs::present::cautions;
 use sextant::outputs::report::escape;
 
 const BIN: &str = env!("CARGO_BIN_EXE_sextant");

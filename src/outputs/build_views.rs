@@ -1,7 +1,7 @@
 //! Builds the plain views that figures and the report are drawn from, and the
 //! report's summary sentences and cautions.
 
-use super::view::{Evidence, FlaggedLine, PlotView, ReportView, Scores3d, VarianceLine};
+use super::view::{FlaggedLine, PlotView, ReportView, Scores3d, ScreeEvidence, VarianceLine};
 use crate::recipe::raw::Keep;
 use crate::run::{Analysis, Prepared, Preprocessed};
 use crate::stages::diagnose::contributions;
@@ -101,7 +101,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         computed,
         rule: s.rule.to_string(),
         rule_reason: s.reason.clone(),
-        evidence: Evidence {
+        evidence: ScreeEvidence {
             broken_stick: s.broken_stick[..computed].to_vec(),
             mean_eigenvalue: s.mean_eigenvalue,
             variance_target: match plan.components.keep {
