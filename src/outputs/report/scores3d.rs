@@ -228,4 +228,36 @@ mod tests {
         assert_eq!(c.legend[7].0, "other (3 values)");
         assert_eq!(c.colours[9], PALETTE[7]);
     }
+
+    #[test]
+    fn view_data_keeps_its_order_and_six_significant_digits() {
+        // The data is serialised with serde; the scores stay at six significant
+        // digits (not the round-trip digits serde_json would write), so the
+        // page's bytes did not change when the JSON stopped being built by hand.
+        let s = Scores3d {
+            axis_titles: ["PC1".into(), "PC2".into(), "PC3 <b>".into()],
+            points: vec![
+                [1.0, -0.000_012_345_678, 1_234_567.0],
+                [f64::NAN, 0.1 + 0.2, -2.5],
+            ],
+            labels: vec!["a".into(), "</script>".into()],
+            group: None,
+        };
+        let flagged = vec![FlaggedLine {
+            label: "</script>".into(),
+            t2: 9.0,
+            spe: 1.0,
+            t2_above: true,
+            spe_above: false,
+            top: Vec::new(),
+        }];
+        let mut out = String::new();
+        scores_3d(&mut out, &s, &flagged);
+        let start = out.find("id=\"sx3d-data\">").unwrap() + 15;
+        let end = start + out[start..].find("</script>").unwrap();
+        assert_eq!(
+            &out[start..end],
+            "{\"axes\":[\"PC1\",\"PC2\",\"PC3 \\u003cb>\"],\"group\":null,\"values\":[\"\"],\"colours\":[\"#0072B2\"],\"value\":[0,0],\"flagged\":[1],\"labels\":[\"a\",\"\\u003c/script>\"],\"points\":[[1,-1.23457e-5,1.23457e6],[null,0.3,-2.5]]}"
+        );
+    }
 }
