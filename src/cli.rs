@@ -122,7 +122,7 @@ pub enum Command {
         b: PathBuf,
         /// Output style.
         #[arg(long, value_enum, default_value = "text")]
-        format: crate::compare::DiffFormat,
+        format: crate::diff::DiffFormat,
     },
     /// Score new rows with the model saved in a results folder.
     ///
@@ -223,12 +223,9 @@ pub fn execute(cli: Cli) -> Result<Outcome, Error> {
             }
         }
         Command::Diff { a, b, format } => {
-            let (sa, sb) = (
-                crate::compare::load_side(&a)?,
-                crate::compare::load_side(&b)?,
-            );
-            let c = crate::compare::compare(&sa, &sb);
-            crate::compare::render_comparison(&sa, &sb, &c, format).into()
+            let (sa, sb) = (crate::diff::load_side(&a)?, crate::diff::load_side(&b)?);
+            let c = crate::diff::compare(&sa, &sb);
+            crate::diff::render_comparison(&sa, &sb, &c, format).into()
         }
         Command::Apply {
             results,
@@ -265,7 +262,7 @@ pub fn execute(cli: Cli) -> Result<Outcome, Error> {
             data,
             output,
             force,
-        } => crate::starter::run_new(&data, output.as_deref(), force)?.into(),
+        } => crate::new_recipe::run_new(&data, output.as_deref(), force)?.into(),
     })
 }
 

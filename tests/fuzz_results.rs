@@ -18,7 +18,7 @@ use rand_chacha::ChaCha8Rng;
 use rand_core::{Rng, SeedableRng};
 use serde_json::Value;
 use sextant::apply::{ScoreSettings, model_from_bytes, score};
-use sextant::compare::{DiffFormat, Side, compare, render_comparison, side_from_tables};
+use sextant::diff::{DiffFormat, Side, compare, render_comparison, side_from_tables};
 use sextant::error::Error;
 use sextant::outputs::hashing::sha256_hex;
 use sextant::verify::{check_trusted, describe, manifest_from_bytes, verify};
@@ -136,7 +136,7 @@ fn corpus() -> Corpus {
             .iter()
             .map(|n| (n.to_string(), fs::read(folder.join(n)).unwrap()))
             .collect();
-        let side = sextant::compare::load_side(&folder).unwrap();
+        let side = sextant::diff::load_side(&folder).unwrap();
         bases.push(Base {
             model: serde_json::from_slice(&model_bytes).unwrap(),
             folder,

@@ -6,7 +6,7 @@
 
 use sextant::error::Position;
 use sextant::outputs::plots::{self, MAX_INDIVIDUAL};
-use sextant::outputs::view::{Evidence, PlotView};
+use sextant::outputs::view::{PlotView, ScreeEvidence};
 use sextant::recipe::plots::PlotPlan;
 use sextant::recipe::raw::{PlotKind, PointLabels};
 use sextant::row_results::{RowResults, RowsIn};
@@ -152,7 +152,7 @@ fn view(n: usize, flag_every: usize) -> PlotView {
         computed: 3,
         rule: "broken-stick".into(),
         rule_reason: "components 1 to 2 each explain more than the broken-stick expectation".into(),
-        evidence: Evidence {
+        evidence: ScreeEvidence {
             broken_stick: vec![0.4567, 0.2567, 0.1567],
             mean_eigenvalue: 1.0,
             variance_target: None,

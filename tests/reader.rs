@@ -6,7 +6,7 @@
 //! editor shows.
 
 use proptest::prelude::*;
-use sextant::table::fast::{read_table_by_rows, read_table_in_pieces, read_table_parallel};
+use sextant::table::parallel::{read_table_by_rows, read_table_in_pieces, read_table_parallel};
 use sextant::table::{ColumnData, ReadOptions, Table, read_table};
 
 fn options() -> ReadOptions {

@@ -10,8 +10,8 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use serde_json::Value;
+use sextant::outputs::build_views::cautions;
 use sextant::outputs::hashing::sha256_hex;
-use sextant::outputs::present::cautions;
 use sextant::outputs::report::escape;
 
 const BIN: &str = env!("CARGO_BIN_EXE_sextant");
@@ -746,4 +746,77 @@ fn image_and_script_markup_from_the_data_stays_text_in_the_report_and_every_figu
         }
     }
     assert!(wrong.is_empty(), "{}", wrong.join("\n"));
+}
+
+/// A small table with gaps, for the fill methods.
+const GAPPY: &str = "id,a,b,c,d\n\
+r1,1.0,2.1,3.3,0.5\n\
+r2,2.0,,2.9,0.7\n\
+r3,3.1,4.2,,0.2\n\
+r4,3.9,5.1,1.8,\n\
+r5,5.2,6.3,1.1,0.9\n\
+r6,6.0,6.8,,0.4\n\
+r7,7.1,8.2,0.2,0.8\n\
+r8,,9.1,0.1,0.3\n\
+r9,9.0,9.8,-0.6,0.6\n\
+r10,10.2,11.1,-1.2,\n\
+r11,11.1,12.3,-1.5,0.1\n\
+r12,12.0,12.9,-2.2,0.5\n";
+
+/// The summary sentence on filled cells for one `[missing]` table.
+fn fill_sentence(missing: &str) -> String {
+    let dir = tempfile::tempdir().unwrap();
+    fs::write(dir.path().join("gappy.csv"), GAPPY).unwrap();
+    fs::write(
+        dir.path().join("r.toml"),
+        format!(
+            "format = 1\n[input]\nfile = \"gappy.csv\"\nid = \"id\"\n{missing}\n[components]\nkeep = 2\n[output]\nfolder = \"out\"\n"
+        ),
+    )
+    .unwrap();
+    run(&["run", "r.toml"], dir.path());
+    let html = fs::read_to_string(dir.path().join("out/report.html")).unwrap();
+    let start = html
+        .find("missing cells were filled")
+        .expect("a fill sentence");
+    let line_start = html[..start].rfind("<li>").unwrap() + 4;
+    let end = line_start + html[line_start..].find("</li>").unwrap();
+    html[line_start..end].to_string()
+}
+
+/// Regression: the report's summary described every fill the same vague way
+/// (kNN and iterative PCA without their k or components; earlier, as a fill
+/// with the feature's mean); each method is now named with its settings.
+#[test]
+fn fill_sentence_names_each_method_with_its_settings() {
+    let knn = fill_sentence("[missing]\nmethod = \"knn\"\n[missing.knn]\nneighbours = 3");
+    assert!(
+        knn.starts_with("6 missing cells were filled by k nearest neighbours (k = 3): each with the mean of the 3 nearest rows that observe it;"),
+        "{knn}"
+    );
+    let one = fill_sentence("[missing]\nmethod = \"knn\"\n[missing.knn]\nneighbours = 1");
+    assert!(
+        one.contains("filled by the nearest neighbour (k = 1): each with the value of the nearest row that observes it;"),
+        "{one}"
+    );
+    let ipca = fill_sentence(
+        "[missing]\nmethod = \"iterative-pca\"\n[missing.iterative_pca]\ncomponents = 2",
+    );
+    assert!(
+        ipca.starts_with("6 missing cells were filled by iterative PCA with 2 components;"),
+        "{ipca}"
+    );
+    let mean = fill_sentence("[missing]\nmethod = \"mean\"");
+    assert!(
+        mean.starts_with("6 missing cells were filled with their feature&#39;s mean;"),
+        "{mean}"
+    );
+    let median = fill_sentence("[missing]\nmethod = \"median\"");
+    assert!(
+        median.starts_with("6 missing cells were filled with their feature&#39;s median;"),
+        "{median}"
+    );
+    for s in [&knn, &one, &ipca] {
+        assert!(!s.contains("mean;") && !s.contains("median;"), "{s}");
+    }
 }

@@ -1,6 +1,7 @@
 //! Everything written to the results folder: tables, the manifest, hashes, and the
 //! all-or-nothing move of a finished folder into place.
 
+pub mod build_views;
 pub mod debris;
 pub mod folder;
 pub mod hashing;
@@ -8,7 +9,6 @@ pub mod lock;
 pub mod manifest;
 pub mod model;
 pub mod plots;
-pub mod present;
 pub mod reading;
 pub mod render;
 pub mod replace;

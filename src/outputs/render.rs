@@ -40,7 +40,7 @@ pub fn render(
     crate::progress::current().stage("result tables, figures and report");
     let (resolved, resolved_sha) = resolved_with_hash(prepared);
     let fingerprint = fingerprint(prepared);
-    let view = crate::outputs::present::plot_view(prepared, pre, analysis);
+    let view = crate::outputs::build_views::plot_view(prepared, pre, analysis);
     let t = crate::timing::lap("  the plots' view", t);
     // The figures and the tables at the same time: each reads the rows a
     // chunk at a time (through a file handle of its own when they are in a
@@ -376,8 +376,8 @@ fn report_view_of(
     view: &crate::outputs::view::PlotView,
     figures: &[(String, Vec<u8>, String)],
 ) -> crate::outputs::view::ReportView {
-    use crate::outputs::{present, view::Figure};
-    let mut report_view = present::report_view(prepared, pre, analysis, view);
+    use crate::outputs::{build_views, view::Figure};
+    let mut report_view = build_views::report_view(prepared, pre, analysis, view);
     report_view.figures = prepared
         .plan
         .plots

@@ -25,7 +25,7 @@ pub struct PlotView {
     /// "parallel-analysis", "cross-validation") and why.
     pub rule: String,
     pub rule_reason: String,
-    pub evidence: Evidence,
+    pub evidence: ScreeEvidence,
     /// `loadings[feature][component]` for the computed components (unit vectors).
     pub loadings: Vec<Vec<f64>>,
     /// `correlations[feature][component]`: Pearson correlation of each scaled
@@ -45,9 +45,10 @@ pub struct PlotView {
     pub scaling: crate::recipe::raw::ScalingMethod,
 }
 
-/// Evidence for the number of components, per component.
+/// The evidence for the number of components that the scree plot draws, per
+/// component.
 #[derive(Debug, Clone, Default, Serialize)]
-pub struct Evidence {
+pub struct ScreeEvidence {
     /// Broken-stick expected share of each computed component (always available).
     pub broken_stick: Vec<f64>,
     /// Kaiser's threshold: the mean eigenvalue.

@@ -345,13 +345,14 @@ pub fn glob_match(pattern: &str, name: &str) -> bool {
     p[pi..].iter().all(|&c| c == '*')
 }
 
-type Selection = (Vec<String>, Vec<(String, String)>);
+/// The chosen features, and each excluded column with its reason.
+type FeatureSelection = (Vec<String>, Vec<(String, String)>);
 
 fn select_features(
     recipe: &LoadedRecipe,
     input: &InputPlan,
     table: &Table,
-) -> Result<Selection, Error> {
+) -> Result<FeatureSelection, Error> {
     let raw = &recipe.raw.input;
     let has_role =
         |name: &str| input.id.as_deref() == Some(name) || input.groups.iter().any(|g| g == name);

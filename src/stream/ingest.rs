@@ -5,7 +5,7 @@
 
 use crate::error::{Error, InputError};
 use crate::store::{Chunk, Store};
-use crate::table::fast::{Layout, header_end, last_record_end};
+use crate::table::parallel::{RecordFormat, header_end, last_record_end};
 use crate::table::{Header, NumericColumn, ReadOptions, Table, read_header};
 use sha2::{Digest, Sha256};
 use std::io::Read;
@@ -162,7 +162,7 @@ fn read_all(
     }
     let header = read_header(&buf, display, delimiter)?;
     check_header(&header)?;
-    let layout = Layout::new(header.names, display, options);
+    let layout = RecordFormat::new(header.names, display, options);
     let (body_start, header_lines) = header_end(&buf, delimiter);
     buf.drain(..body_start);
     let width = layout.names.len();

@@ -3,11 +3,12 @@
 //! Missing cells are `NaN` inside numeric columns; a real `NaN` or infinity in the
 //! file is never accepted as data, so `NaN` always means "missing" here.
 
-pub mod fast;
 pub mod number;
+pub mod parallel;
 pub mod read;
+mod scan;
 
-pub use fast::read_table_parallel;
+pub use parallel::read_table_parallel;
 pub use read::{ReadOptions, read_header, read_table};
 
 /// The header row of a table, in file order.

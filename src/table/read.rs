@@ -65,10 +65,10 @@ pub fn read_header(bytes: &[u8], display: &str, delimiter: u8) -> Result<Header,
     } else {
         0
     };
-    if let Some(q) = super::fast::unclosed_quote(&bytes[start..], delimiter, true) {
+    if let Some(q) = super::parallel::unclosed_quote(&bytes[start..], delimiter, true) {
         return Err(InputError::UnclosedQuote {
             path: display.to_string(),
-            line: super::fast::line_of(bytes, start + q),
+            line: super::parallel::line_of(bytes, start + q),
         });
     }
     let mut reader = csv_reader(bytes, delimiter);
@@ -104,10 +104,10 @@ pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<
     let header = read_header(bytes, display, options.delimiter)?;
     // The csv crate would read the rest of the file into the quoted field.
     let start = usize::from(bytes.starts_with(b"\xef\xbb\xbf")) * 3;
-    if let Some(q) = super::fast::unclosed_quote(&bytes[start..], options.delimiter, false) {
+    if let Some(q) = super::parallel::unclosed_quote(&bytes[start..], options.delimiter, false) {
         return Err(InputError::UnclosedQuote {
             path: display.to_string(),
-            line: super::fast::line_of(bytes, start + q),
+            line: super::parallel::line_of(bytes, start + q),
         });
     }
     let width = header.names.len();

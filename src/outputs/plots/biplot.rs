@@ -8,7 +8,7 @@
 
 use super::circle::draw_arrows;
 use super::frame::{self, Extent, Frame, Step};
-use super::scatter::{self, Colour, Groups, Legend, Selection};
+use super::scatter::{self, Colour, Groups, Legend, PointSelection};
 use super::svg::{self, NEUTRAL};
 use super::{LEGEND_X, equal_axes, scatter_layout, title};
 use crate::outputs::view::PlotView;
@@ -32,7 +32,7 @@ struct BiplotScan {
     /// The common stretch of the arrows.
     stretch: f64,
     groups: Groups,
-    sel: Selection,
+    sel: PointSelection,
 }
 
 /// The divisors of the two components' scores: √λ, or 1 where λ is not

@@ -8,7 +8,7 @@
 //! caption says so.
 
 use super::frame::{self, Axis, Extent, Frame};
-use super::scatter::{self, Colour, Groups, Legend, Selection};
+use super::scatter::{self, Colour, Groups, Legend, PointSelection};
 use super::svg::{self, MUTED, NEUTRAL, Shape};
 use super::{LEGEND_X, scatter_layout, title};
 use crate::outputs::view::PlotView;
@@ -38,7 +38,7 @@ struct OutlierScan {
     root_y: bool,
     /// Rows by kind: 0 within, 1 above T² only, 2 above SPE only, 3 above both.
     groups: Groups,
-    sel: Selection,
+    sel: PointSelection,
 }
 
 const KIND_NAMES: [&str; 4] = [

@@ -2,7 +2,7 @@
 //! Hotelling T² ellipse.
 
 use super::frame::{self, Extent, Frame};
-use super::scatter::{self, Colour, Groups, Legend, Selection};
+use super::scatter::{self, Colour, Groups, Legend, PointSelection};
 use super::svg::{self, MUTED, N, NEUTRAL};
 use super::{LEGEND_X, equal_axes, scatter_layout, title};
 use crate::outputs::view::PlotView;
@@ -23,7 +23,7 @@ struct ScoreScan {
     /// Rows in all.
     n: usize,
     groups: Groups,
-    sel: Selection,
+    sel: PointSelection,
     ellipse: Option<Ellipse>,
 }
 

@@ -1,7 +1,7 @@
 //! Builds the plain views that figures and the report are drawn from, and the
 //! report's summary sentences and cautions.
 
-use super::view::{Evidence, FlaggedLine, PlotView, ReportView, Scores3d, VarianceLine};
+use super::view::{FlaggedLine, PlotView, ReportView, Scores3d, ScreeEvidence, VarianceLine};
 use crate::analysis::{Analysis, Prepared, Preprocessed};
 use crate::analysis::{REPORT_FLAGGED_ROWS, UNUSUAL_3D};
 use crate::recipe::raw::Keep;
@@ -102,7 +102,7 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
         computed,
         rule: s.rule.to_string(),
         rule_reason: s.reason.clone(),
-        evidence: Evidence {
+        evidence: ScreeEvidence {
             broken_stick: s.broken_stick[..computed].to_vec(),
             mean_eigenvalue: s.mean_eigenvalue,
             variance_target: match plan.components.keep {
@@ -200,10 +200,23 @@ fn missing_sentence(m: &crate::stages::missing::MissingReport) -> String {
         MissingMethod::DropRows => {
             return format!("{} rows with a missing cell were dropped.", m.rows_dropped);
         }
-        MissingMethod::Mean => "with their feature's mean",
-        MissingMethod::Median => "with their feature's median",
-        MissingMethod::IterativePca => "by iterative PCA",
-        MissingMethod::Knn => "from the nearest rows that observe them",
+        MissingMethod::Mean => "with their feature's mean".to_string(),
+        MissingMethod::Median => "with their feature's median".to_string(),
+        MissingMethod::IterativePca => match &m.iterative_pca {
+            Some(r) => format!(
+                "by iterative PCA with {} component{}",
+                r.components,
+                if r.components == 1 { "" } else { "s" }
+            ),
+            None => "by iterative PCA".to_string(),
+        },
+        MissingMethod::Knn => match m.knn_neighbours {
+            Some(1) => "by the nearest neighbour (k = 1): each with the value of the nearest row that observes it".to_string(),
+            Some(k) => format!(
+                "by k nearest neighbours (k = {k}): each with the mean of the {k} nearest rows that observe it"
+            ),
+            None => "from the nearest rows that observe them".to_string(),
+        },
     };
     if m.cells_filled == 0 {
         return "The used features had no missing cells, so nothing was filled.".into();
