@@ -10,10 +10,6 @@ use std::path::{Path, PathBuf};
 
 /// The floors, bottom first. A module may import only modules on lower floors;
 /// modules on the same floor may not import each other.
-///
-/// To clean once the `split` branch is merged: `compare` (now `diff`) and
-/// `starter` (now `new_recipe`) are listed under both names so that this test
-/// passes before and after the renames; drop the old names then.
 const LAYERS: &[&[&str]] = &[
     // The error types and their wording, path helpers, every number format.
     &["error", "paths", "text"],
@@ -32,11 +28,11 @@ const LAYERS: &[&[&str]] = &[
     // The stages of the analysis (no I/O).
     &["stages"],
     // Every analysed row's results and every filled cell, in chunks.
-    &["rows", "row_results"],
+    &["row_results"],
     // What the orchestrator, the passes engine and the outputs share.
     &["analysis"],
-    // The passes engine (`stream`, or `passes` once renamed).
-    &["stream", "passes"],
+    // The passes engine.
+    &["stream"],
     // Result files, figures, report, manifest, folder and lock.
     &["outputs"],
     // The orchestrator of `run` and `check`.
@@ -44,7 +40,7 @@ const LAYERS: &[&[&str]] = &[
     // The commands that read results folders and recipes: verify, pin.
     &["verify", "pin"],
     // The commands built on them and on the orchestrator: diff, apply, new.
-    &["compare", "diff", "apply", "starter", "new_recipe"],
+    &["diff", "apply", "new_recipe"],
     // The command line.
     &["cli"],
 ];
