@@ -504,7 +504,7 @@ fn variance_share_and_parallel_analysis_are_refused_too() {
 }
 
 /// Times the exact and the randomized decomposition on generated tables, for
-/// the crossover stated in DEVELOPERS.md. Run with
+/// the crossover stated in benches/README.md. Run with
 /// `cargo test --release --test randomized -- --ignored --nocapture crossover`.
 #[test]
 #[ignore = "a measurement, not a check"]

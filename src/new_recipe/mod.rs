@@ -33,7 +33,7 @@
 //! file is replaced only with `--force`. The text depends only on the table and
 //! the relative position of recipe and table: no time, host or absolute path.
 //!
-//! [`inspect`] gives each column its role; [`recipe_text`] writes the recipe
+//! `inspect` gives each column its role; `recipe_text` writes the recipe
 //! from the inspection; this module reads the table, writes the checked file and
 //! prints the summary.
 

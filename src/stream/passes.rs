@@ -15,11 +15,11 @@
 //! 5. scores, T² and SPE, row by row;
 //! 6. the scaled values of the rows whose contributions are reported.
 
+use crate::analysis::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::error::Error;
 use crate::linalg::crossprod::{GramAccumulator, row_times};
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::MissingMethod;
-use crate::analysis::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::stages::accumulate::{PerFeature, Statistic, by_columns};
 use crate::stages::decompose::from_cross_products;
 use crate::stages::diagnose::{RowStatistics, residual_moments};

@@ -10,9 +10,9 @@
 //! the number of threads; [`super::read::read_table`] (on the `csv` crate) is the
 //! reference it is tested against.
 //!
-//! A record without quotes takes the quick path ([`plain_record`]): the field
+//! A record without quotes takes the quick path (`plain_record`): the field
 //! count and UTF-8 are checked once, and each number is read while its field's
-//! end is looked for ([`super::scan`]). [`RecordFormat`] is what parsing a run of
+//! end is looked for (`super::scan`). [`RecordFormat`] is what parsing a run of
 //! records needs to know; the passes engine uses it to parse rows chunk by chunk.
 
 use super::read::{ReadOptions, number_cell, read_header};

@@ -11,10 +11,10 @@
 //! `format!` (never by locale), and nothing depends on the time, on chance or
 //! on hash-map order.
 //!
-//! The page is built section by section: [`overview`] (the header with its key
-//! facts, the contents and the summary), [`results`] (variance, loadings and
-//! flagged rows), [`scores3d`] (the rotatable view and its data), [`figures`]
-//! and [`closing`] (cautions and provenance). [`svg_ids`] inlines the figures
+//! The page is built section by section: `overview` (the header with its key
+//! facts, the contents and the summary), `results` (variance, loadings and
+//! flagged rows), `scores3d` (the rotatable view and its data), `figures`
+//! and `closing` (cautions and provenance). `svg_ids` inlines the figures
 //! with ids that cannot clash; the style sheet and the view's script are the
 //! files `style.css` and `view3d.js` beside this one.
 

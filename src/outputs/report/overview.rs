@@ -2,10 +2,10 @@
 //! summary sentences.
 
 use super::html::{escape, with_code};
-use crate::text::percent_unsigned_zero as percent;
 use super::page_title;
 use crate::outputs::tables::level_label;
 use crate::outputs::view::{ReportView, VarianceLine};
+use crate::text::percent_unsigned_zero as percent;
 
 pub(super) fn header(out: &mut String, view: &ReportView) {
     out.push_str("<main>\n<header class=\"sx-top\">\n<p class=\"sx-kicker\">Principal component analysis report</p>\n");

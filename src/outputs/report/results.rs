@@ -3,9 +3,9 @@
 
 use super::MAX_FLAGGED_ROWS;
 use super::html::{bar, escape};
-use crate::text::{fixed, percent_unsigned_zero as percent, significant};
 use crate::outputs::tables::level_label;
 use crate::outputs::view::{FlaggedLine, ReportView, VarianceLine};
+use crate::text::{fixed, percent_unsigned_zero as percent, significant};
 
 pub(super) fn variance(out: &mut String, lines: &[VarianceLine]) {
     out.push_str("<section id=\"variance\">\n<h2>Variance of the components</h2>\n");

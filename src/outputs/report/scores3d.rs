@@ -4,8 +4,8 @@
 
 use super::PALETTE;
 use super::html::{escape, script_safe};
-use crate::text::significant;
 use crate::outputs::view::{FlaggedLine, Scores3d};
+use crate::text::significant;
 use serde::Serialize;
 use serde_json::value::RawValue;
 use std::collections::{BTreeMap, BTreeSet};

@@ -16,9 +16,9 @@ pub struct RawComponents {
     pub method: Option<Spanned<DecompositionMethod>>,
     /// Settings of the randomized method; only allowed with `method = "randomized"`.
     pub randomized: Option<Spanned<RawRandomized>>,
-    /// Only with `keep = "parallel-analysis"` (see [`super::applies`]).
+    /// Only with `keep = "parallel-analysis"` (see `super::applies`).
     pub parallel_analysis: Option<Spanned<RawParallel>>,
-    /// Only with `keep = "cross-validation"` (see [`super::applies`]).
+    /// Only with `keep = "cross-validation"` (see `super::applies`).
     pub cross_validation: Option<Spanned<RawCrossValidation>>,
 }
 

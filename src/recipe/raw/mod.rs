@@ -6,8 +6,8 @@
 //! `plan` module turns a raw recipe into a checked plan once the table is read.
 //!
 //! This module holds the recipe, its input, plots and output; the sections that
-//! describe the analysis are in [`preprocessing`] (missing, transform, scaling)
-//! and [`components`] (components and diagnostics); [`values`] has the checked
+//! describe the analysis are in `preprocessing` (missing, transform, scaling)
+//! and `components` (components and diagnostics); `values` has the checked
 //! numbers and texts they share. All of them are re-exported here, so every type
 //! is `raw::Name`. Never `#[serde(flatten)]` here: it silently disables
 //! `deny_unknown_fields`.

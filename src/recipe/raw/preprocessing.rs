@@ -14,9 +14,9 @@ pub struct RawMissing {
     pub method: MissingMethod,
     #[serde(default = "default_max_feature_missing")]
     pub max_feature_missing: Share,
-    /// Only with `method = "iterative-pca"` (see [`super::applies`]).
+    /// Only with `method = "iterative-pca"` (see `super::applies`).
     pub iterative_pca: Option<Spanned<RawIterative>>,
-    /// Only with `method = "knn"` (see [`super::applies`]).
+    /// Only with `method = "knn"` (see `super::applies`).
     pub knn: Option<Spanned<RawKnn>>,
 }
 
@@ -198,7 +198,7 @@ pub struct RawTransform {
 pub struct RawScaling {
     #[serde(default)]
     pub method: ScalingMethod,
-    /// Only with a dividing method (see [`super::applies`]).
+    /// Only with a dividing method (see `super::applies`).
     pub constant_features: Option<Spanned<ConstantPolicy>>,
 }
 
