@@ -12,6 +12,8 @@ pub fn number(v: f64) -> String {
 }
 
 /// The text of [`number`], written into a reusable buffer instead of a new string.
+/// Inlined: the result tables call it for every value, from another module.
+#[inline]
 pub fn number_in(buffer: &mut ryu::Buffer, v: f64) -> &str {
     if v == 0.0 {
         return "0";

@@ -209,18 +209,23 @@ pub fn preprocess(
                 let row = &chunk.values[r * width..(r + 1) * width];
                 for (j, f) in (from..).zip(part.iter_mut()) {
                     let v = row[all_columns[j]];
+                    // Missing cells first: most features have no transform, and
+                    // this keeps the common path to one test and one add.
+                    if v.is_nan() {
+                        f.observed.add_missing();
+                        continue;
+                    }
                     let v = match pending[j] {
-                        Some(t) if !v.is_nan() => match transform_value(t, v) {
+                        Some(t) => match transform_value(t, v) {
                             Some(out) => out,
                             None => {
                                 f.bad.get_or_insert((chunk.lines[r], v));
                                 continue;
                             }
                         },
-                        _ => v,
+                        None => v,
                     };
-                    // A missing cell (`NaN`) is counted as missing.
-                    f.observed.add(v);
+                    f.observed.add_observed(v);
                 }
             }
         });
