@@ -74,7 +74,6 @@ labels = "flagged"
 def corpus():
     """(name, table file, recipe body without [input]/[output]) of each case."""
     cases = []
-    full = {"iris": "iris.csv", "wine": "wine.csv", "wdbc": "breast_cancer_wdbc.csv"}
     for scaling in ["none", "center", "unit-variance", "pareto", "range"]:
         cases.append((f"iris-{scaling}", "iris.csv",
                       f'[scaling]\nmethod = "{scaling}"\n[components]\nkeep = 2\n' + PLOTS))
@@ -98,7 +97,7 @@ def corpus():
             cases.append((f"{name}-gaps-{fill}", f"{name}-gaps.csv",
                           f'[missing]\nmethod = "{fill}"\n[scaling]\nmethod = "unit-variance"\n'
                           '[components]\nkeep = 3\n' + PLOTS))
-    return cases, full
+    return cases
 
 
 def run(sextant, args, cwd):
@@ -146,7 +145,7 @@ def main():
         blank_cells(os.path.join(data, "wine.csv"), os.path.join(tmp, "wine-gaps.csv"), 23)
         blank_cells(os.path.join(data, "breast_cancer_wdbc.csv"),
                     os.path.join(tmp, "wdbc-gaps.csv"), 41)
-        cases, _ = corpus()
+        cases = corpus()
         for name, table, body in cases:
             for engine in ["in-memory", "passes"]:
                 recipe = os.path.join(tmp, f"{name}.toml")

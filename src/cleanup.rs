@@ -50,11 +50,16 @@ impl Drop for Registration {
 
 /// Registers a file or folder to remove if the process is interrupted.
 pub fn register(path: &Path) -> Registration {
-    let mut registry = registry();
-    let id = registry.next;
-    registry.next += 1;
-    registry.paths.push((id, path.to_path_buf()));
-    Registration(id)
+    registry().add(path)
+}
+
+impl Registry {
+    fn add(&mut self, path: &Path) -> Registration {
+        let id = self.next;
+        self.next += 1;
+        self.paths.push((id, path.to_path_buf()));
+        Registration(id)
+    }
 }
 
 /// Creates a file or folder with `make` and registers the path `path_of`
@@ -66,10 +71,8 @@ pub fn create_registered<T, E>(
 ) -> Result<(T, Registration), E> {
     let mut registry = registry();
     let made = make()?;
-    let id = registry.next;
-    registry.next += 1;
-    registry.paths.push((id, path_of(&made).to_path_buf()));
-    Ok((made, Registration(id)))
+    let registration = registry.add(path_of(&made));
+    Ok((made, registration))
 }
 
 /// Holds off the handler while a few file-system steps that must not be cut

@@ -61,6 +61,27 @@ pub fn relative(from: &Path, to: &Path) -> String {
     }
 }
 
+/// The path of `relative` inside `root`, with the folders between them made.
+/// `root` itself is never made: a folder that a signal handler removed stays
+/// removed, and a writer still running fails instead of making it again (see
+/// `crate::cleanup`).
+pub fn make_subfolders(root: &Path, relative: &str) -> std::io::Result<PathBuf> {
+    let mut dir = root.to_path_buf();
+    for part in Path::new(relative)
+        .parent()
+        .into_iter()
+        .flat_map(Path::components)
+    {
+        dir.push(part);
+        match std::fs::create_dir(&dir) {
+            Ok(()) => {}
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists && dir.is_dir() => {}
+            Err(e) => return Err(e),
+        }
+    }
+    Ok(root.join(relative))
+}
+
 /// The metadata of `path` (links followed) if it is a regular file; a folder,
 /// device, pipe or socket is an error of kind `InvalidInput`, so a recipe or
 /// table named `/dev/zero` or a named pipe is refused instead of read forever.

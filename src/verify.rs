@@ -452,10 +452,8 @@ fn rerun_and_compare(
     )
     .map_err(|e| crate::error::OutputError::io(&std::env::temp_dir(), e))?;
     for (name, bytes) in &computed.files {
-        let path = scratch.path().join(name);
-        if let Some(dir) = path.parent() {
-            fs::create_dir_all(dir).map_err(|e| crate::error::OutputError::io(dir, e))?;
-        }
+        let path = crate::paths::make_subfolders(scratch.path(), name)
+            .map_err(|e| crate::error::OutputError::io(&scratch.path().join(name), e))?;
         fs::write(&path, bytes).map_err(|e| crate::error::OutputError::io(&path, e))?;
         let old = read_output(folder, name, bytes.len() as u64);
         if old != *bytes {

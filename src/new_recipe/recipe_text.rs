@@ -6,7 +6,7 @@ use super::{
     COMPUTE, Loaded, MAX_FEATURE_MISSING, MAX_GROUP_VALUES, ROWS_PER_GROUP_VALUE, SKEWNESS_LIMIT,
 };
 use crate::recipe::raw::DEFAULT_MISSING_TOKENS;
-use crate::text::{percent_figure as pct, three_significant as sig3};
+use crate::text::{fixed, percent_figure as pct, three_significant as sig3};
 use std::fmt::Write as _;
 use std::path::Path;
 
@@ -50,12 +50,6 @@ pub(super) fn counted(n: usize, noun: &str) -> String {
     } else {
         format!("{n} {noun}s")
     }
-}
-
-/// Two decimals, without a minus sign on a value that rounds to zero.
-fn two_decimals(v: f64) -> String {
-    let s = format!("{v:.2}");
-    if s == "-0.00" { "0.00".into() } else { s }
 }
 
 /// A setting with a comment after it, aligned to one column; a comment too long
@@ -385,8 +379,8 @@ fn transform_section(out: &mut String, inspection: &Inspection, rows: usize) {
             out,
             "#   {:width$}  {} -> {}",
             plain(&d.name),
-            two_decimals(s.skewness),
-            two_decimals(s.log_skewness.unwrap_or(0.0))
+            fixed(s.skewness, 2),
+            fixed(s.log_skewness.unwrap_or(0.0), 2)
         );
     }
     comment(
@@ -481,15 +475,6 @@ fn components_section(out: &mut String, inspection: &Inspection, rows: usize) {
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn three_significant_digits() {
-        assert_eq!(sig3(183.44), "183");
-        assert_eq!(sig3(0.043218), "0.0432");
-        assert_eq!(sig3(4312.0), "4312");
-        assert_eq!(sig3(999.7), "1000");
-        assert_eq!(sig3(1.0), "1.00");
-    }
 
     #[test]
     fn toml_strings_are_escaped() {

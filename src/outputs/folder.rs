@@ -74,24 +74,11 @@ impl Staging {
         fs::write(&path, bytes).map_err(|e| OutputError::io(&path, e))
     }
 
-    /// The path of `name` in the staging folder, with its subfolders made.
-    /// Only the folders below the staging folder are made, never the staging
-    /// folder itself: once a signal has removed it, a writer still running
-    /// fails instead of making it again.
+    /// The path of `name` in the staging folder, with its subfolders made
+    /// (never the staging folder itself: [`crate::paths::make_subfolders`]).
     fn subfolders_of(&self, name: &str) -> Result<PathBuf, OutputError> {
-        let root = self.dir.path();
-        let path = root.join(name);
-        let mut dir = root.to_path_buf();
-        let relative = Path::new(name);
-        for part in relative.parent().into_iter().flat_map(Path::components) {
-            dir.push(part);
-            match fs::create_dir(&dir) {
-                Ok(()) => {}
-                Err(e) if e.kind() == io::ErrorKind::AlreadyExists && dir.is_dir() => {}
-                Err(e) => return Err(OutputError::io(&dir, e)),
-            }
-        }
-        Ok(path)
+        crate::paths::make_subfolders(self.dir.path(), name)
+            .map_err(|e| OutputError::io(&self.dir.path().join(name), e))
     }
 
     /// Creates one file (a relative path) to be written by the caller; it is
