@@ -23,7 +23,7 @@ use crate::stages::scale::{ScaleReport, Scaled};
 use crate::stages::select::Selection;
 use crate::stages::transform::Applied;
 use crate::stats::limits::ResidualMoments;
-use crate::table::{ColumnData, Table};
+use crate::table::Table;
 use serde::Serialize;
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -53,12 +53,13 @@ pub struct Prepared {
     /// counts but no values (those are in `passes`).
     pub table: Table,
     pub input: InputRecord,
-    /// The table's numbers when the passes engine analyses it.
-    pub passes: Option<PassData>,
+    /// The table's numbers and labels, row by row (taken away once the
+    /// analysis is done, to free them before the outputs are made).
+    pub values: Option<StoredValues>,
 }
 
-/// The numbers of a table read for the passes engine.
-pub struct PassData {
+/// The numbers of a table, in the row store.
+pub struct StoredValues {
     /// Behind a lock because the first pass transforms the values in place.
     pub store: std::sync::Mutex<crate::store::Store>,
     /// The table column of each store column.
@@ -67,7 +68,16 @@ pub struct PassData {
     pub texts: Vec<usize>,
 }
 
-impl PassData {
+impl Prepared {
+    /// The table's values; only before the analysis is done.
+    pub fn stored(&self) -> &StoredValues {
+        self.values
+            .as_ref()
+            .expect("the values are kept until the analysis is done")
+    }
+}
+
+impl StoredValues {
     /// Where the store keeps the texts of table column `column`, if it does.
     pub fn text_index(&self, table: &Table, column: &str) -> Option<usize> {
         let c = table.columns.iter().position(|c| c.name == column)?;
@@ -170,18 +180,6 @@ pub fn rows_needing_values(diagnostics: &Diagnostics, plan: &Plan) -> Vec<usize>
     rows
 }
 
-/// Σᵢ zᵢⱼ² of each column, rows in order ([`crate::stages::scale::Squares`]).
-pub fn column_squares(z: &Matrix) -> Vec<f64> {
-    crate::stages::scale::Squares::of(z)
-}
-
-/// The scores of components `from..to` (each entry the same dot product as in
-/// [`crate::stages::decompose::scores`], so splitting the components changes
-/// no bit).
-pub fn scores_between(z: &Matrix, loadings: &Matrix, from: usize, to: usize) -> Matrix {
-    crate::linalg::crossprod::times(z, &loadings.columns(from, to))
-}
-
 /// How many loadings to compute before the number of components is chosen: the
 /// components reported, a fixed count and the highest component plotted (more
 /// are computed afterwards if the rule keeps more). Both engines ask for the
@@ -203,14 +201,6 @@ pub fn loadings_wanted(plan: &Plan) -> usize {
         .unwrap_or(DEFAULT_COMPUTE)
         .max(fixed)
         .max(highest_plot)
-}
-
-/// The texts of a table's text column in the given table rows.
-pub fn texts_of(prepared: &Prepared, column: &str, rows: &[usize]) -> Vec<String> {
-    match prepared.table.column(column).map(|c| &c.data) {
-        Some(ColumnData::Text(values)) => rows.iter().map(|&r| values[r].clone()).collect(),
-        _ => unreachable!("id and group columns are read as text"),
-    }
 }
 
 /// Where scratch files go: beside the results folder, like its staging folder.

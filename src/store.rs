@@ -54,6 +54,9 @@ pub struct Store {
     pub transformed: bool,
     /// Whether a pass took the held chunks' texts away ([`Store::pass_taking`]).
     pub texts_taken: bool,
+    /// Whether a model's fills replaced the missing cells (so the cells can
+    /// no longer be counted as missing: the table is preprocessed once).
+    pub cells_filled: bool,
 }
 
 /// The scratch file: chunks written one after the other, removed when dropped.
@@ -80,6 +83,7 @@ impl Store {
             rows: 0,
             transformed: false,
             texts_taken: false,
+            cells_filled: false,
         }
     }
 

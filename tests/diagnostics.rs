@@ -32,8 +32,9 @@ fn analysis(table: &Path, body: &str) -> (Preprocessed, Analysis) {
     )
     .unwrap();
     let prepared = prepare(&recipe).unwrap_or_else(|e| panic!("{e}"));
-    let pre = preprocess(&prepared).unwrap_or_else(|e| panic!("{e}"));
+    let mut pre = preprocess(&prepared).unwrap_or_else(|e| panic!("{e}"));
     let a = analyse(&prepared, &pre).unwrap_or_else(|e| panic!("{e}"));
+    sextant::run::hold_scaled_rows(&prepared, &mut pre).unwrap();
     (pre, a)
 }
 

@@ -100,8 +100,9 @@ fn run(file: &str, scaling: &str, keep: &str) -> Run {
     let recipe_path = dir.path().join("recipe.toml");
     std::fs::write(&recipe_path, recipe).unwrap();
     let prepared = prepare(&recipe_path).unwrap_or_else(|e| panic!("prepare {file}: {e}"));
-    let pre = preprocess(&prepared).unwrap_or_else(|e| panic!("preprocess {file}: {e}"));
+    let mut pre = preprocess(&prepared).unwrap_or_else(|e| panic!("preprocess {file}: {e}"));
     let analysis = analyse(&prepared, &pre).unwrap_or_else(|e| panic!("analyse {file}: {e}"));
+    sextant::run::hold_scaled_rows(&prepared, &mut pre).unwrap();
     Run { pre, analysis }
 }
 

@@ -420,7 +420,7 @@ mod tests {
             .collect();
         let z = Matrix::from_columns(&columns);
         let d = decompose(&z, true, None).unwrap();
-        let closed = correlations_of_centred(&crate::analysis::column_squares(&z), z.rows, &d, 2);
+        let closed = correlations_of_centred(&crate::stages::scale::Squares::of(&z), z.rows, &d, 2);
         let t = scores(&z, &d.loadings, 2);
         for j in 0..3 {
             for a in 0..2 {

@@ -6,7 +6,6 @@
 //! nearest rows (knn); see [`super::impute`]. Every filled cell is listed, and a
 //! filled value outside its feature's observed range is reported as a warning.
 
-use super::FeatureData;
 use super::accumulate::Statistic;
 use super::impute::{IterativeReport, iterative_pca, knn};
 use super::scale::{Moments, MomentsReport};
@@ -73,11 +72,10 @@ pub struct FilledCell {
     pub value: f64,
 }
 
-/// The recipe's missing-cell settings.
+/// The recipe's settings for the methods that fill from a model of the table.
 #[derive(Debug, Clone)]
-pub struct MissingSettings {
+pub struct ModelSettings {
     pub method: MissingMethod,
-    pub max_share: f64,
     pub iterative: RawIterative,
     pub knn: RawKnn,
     /// Components of the iterative PCA model (already resolved from the recipe).
@@ -86,131 +84,75 @@ pub struct MissingSettings {
     pub scaling: ScalingMethod,
 }
 
-/// Applies the recipe's missing-cell policy; the output has no `NaN`.
-pub fn handle_missing(
-    mut data: FeatureData,
-    settings: &MissingSettings,
-) -> Result<(FeatureData, MissingReport, Vec<FilledCell>, FillModel), Error> {
-    let n = data.n_rows();
-    let max_share = settings.max_share;
+/// The missing stage's first decision: which features miss too much (a report
+/// per feature, in order) and the indices of those kept. Refuses a table
+/// whose every feature is dropped.
+pub fn keep_features(
+    source: &str,
+    names: &[String],
+    observed: &[ObservedReport],
+    n: usize,
+    max_share: f64,
+) -> Result<(Vec<FeatureMissing>, Vec<usize>), Error> {
     let mut reports = Vec::new();
     let mut kept = Vec::new();
-    // Each kept feature's observed cells: the mean fill and the range filled
-    // values are compared with.
-    let mut observed = Vec::new();
-    for feature in data.features.drain(..) {
-        let mut counts = Observed::new();
-        counts.push(&feature.values);
-        let counts = counts.finish();
-        let report = FeatureMissing::counted(&feature.name, counts.missing, n, max_share);
+    for (j, (name, o)) in names.iter().zip(observed).enumerate() {
+        let report = FeatureMissing::counted(name, o.missing, n, max_share);
         if report.dropped.is_none() {
-            kept.push(feature);
-            observed.push(counts);
+            kept.push(j);
         }
         reports.push(report);
     }
-    data.features = kept;
-    if data.features.is_empty() {
-        return Err(every_feature_dropped(&data.source, max_share));
+    if kept.is_empty() {
+        return Err(every_feature_dropped(source, max_share));
     }
+    Ok((reports, kept))
+}
 
-    let gaps: Vec<Vec<bool>> = data
-        .features
-        .iter()
-        .map(|f| f.values.iter().map(|v| v.is_nan()).collect())
-        .collect();
-    let mut iterative_report = None;
-    let mut fill_model = FillModel::DropRows;
-    let mut rows_dropped = 0;
-    match settings.method {
-        MissingMethod::DropRows => rows_dropped = drop_incomplete_rows(&mut data),
-        MissingMethod::Mean | MissingMethod::Median => {
-            fill_model = FillModel::Constant(fill_constant(
-                &mut data,
-                &observed,
-                settings.method,
-                &mut reports,
-            ));
-        }
-        MissingMethod::IterativePca | MissingMethod::Knn => {
-            let mut columns: Vec<Vec<f64>> =
-                data.features.iter().map(|f| f.values.clone()).collect();
-            if settings.method == MissingMethod::Knn {
-                fill_model = FillModel::Knn {
-                    reference: columns.clone(),
-                };
-                knn(&mut columns, settings.knn.neighbours.0.get());
-            } else {
-                let (r, model) = iterative_pca(
-                    &mut columns,
-                    &settings.iterative,
-                    settings.components,
-                    settings.scaling,
-                )?;
-                fill_model = FillModel::Iterative(model);
-                if !r.converged && !settings.iterative.allow_unconverged {
-                    return Err(crate::error::AnalysisError::Imputation {
-                        reason: format!(
-                            "iterative PCA did not converge in {} iterations (last relative change {:e}, tolerance {:e}); raise max_iterations, lower components, or set allow_unconverged = true",
-                            r.iterations, r.final_change, r.tolerance
-                        ),
-                    }
-                    .into());
-                }
-                iterative_report = Some(r);
-            }
-            for (f, c) in data.features.iter_mut().zip(columns) {
-                f.values = c;
-            }
-        }
-    }
+/// What filling from a model gives besides the filled values.
+pub struct ModelFill {
+    pub model: FillModel,
+    pub iterative: Option<IterativeReport>,
+}
 
-    let mut filled_cells = Vec::new();
-    let mut warnings = Vec::new();
-    if settings.method != MissingMethod::DropRows {
-        for (j, f) in data.features.iter().enumerate() {
-            let report = reports
-                .iter_mut()
-                .find(|r| r.feature == f.name)
-                .expect("every kept feature has a report");
-            let (lo, hi) = (observed[j].moments.min, observed[j].moments.max);
-            let mut values = Filled::within(lo, hi);
-            let name: std::sync::Arc<str> = f.name.as_str().into();
-            for (i, &gap) in gaps[j].iter().enumerate() {
-                if gap {
-                    values.add(f.values[i]);
-                    filled_cells.push(FilledCell {
-                        row: data.rows[i],
-                        feature: name.clone(),
-                        value: f.values[i],
-                    });
-                }
-            }
-            report.record_fill(&values.finish(), &mut warnings);
+/// Fills the missing (`NaN`) cells of the kept features' columns, a matrix
+/// view of the whole table, by k nearest neighbours or iterative PCA.
+pub fn fill_by_model(
+    columns: &mut [Vec<f64>],
+    settings: &ModelSettings,
+) -> Result<ModelFill, Error> {
+    if settings.method == MissingMethod::Knn {
+        let reference = columns.to_vec();
+        knn(columns, settings.knn.neighbours.0.get());
+        return Ok(ModelFill {
+            model: FillModel::Knn { reference },
+            iterative: None,
+        });
+    }
+    let (r, model) = iterative_pca(
+        columns,
+        &settings.iterative,
+        settings.components,
+        settings.scaling,
+    )?;
+    if !r.converged && !settings.iterative.allow_unconverged {
+        return Err(crate::error::AnalysisError::Imputation {
+            reason: format!(
+                "iterative PCA did not converge in {} iterations (last relative change {:e}, tolerance {:e}); raise max_iterations, lower components, or set allow_unconverged = true",
+                r.iterations, r.final_change, r.tolerance
+            ),
         }
-        filled_cells.sort_by_key(|c| c.row);
+        .into());
     }
-    if data.n_rows() < 2 {
-        return Err(too_few_rows(&data.source, data.n_rows(), rows_dropped));
-    }
-    let cells_filled = reports.iter().map(|r| r.filled).sum();
-    Ok((
-        data,
-        MissingReport {
-            method: settings.method,
-            max_feature_missing: max_share,
-            rows_in: n,
-            rows_dropped,
-            cells_filled,
-            features: reports,
-            iterative_pca: iterative_report,
-            knn_neighbours: (settings.method == MissingMethod::Knn)
-                .then_some(settings.knn.neighbours.0.get()),
-            warnings,
-        },
-        filled_cells,
-        fill_model,
-    ))
+    Ok(ModelFill {
+        model: FillModel::Iterative(model),
+        iterative: Some(r),
+    })
+}
+
+/// The median fill of a feature: the median of its observed cells.
+pub fn median_fill(column: &[f64]) -> f64 {
+    median(column.iter().copied().filter(|v| !v.is_nan()).collect())
 }
 
 impl FeatureMissing {
@@ -426,60 +368,6 @@ impl Statistic for Filled {
     }
 }
 
-fn drop_incomplete_rows(data: &mut FeatureData) -> usize {
-    let n = data.n_rows();
-    let complete: Vec<bool> = (0..n)
-        .map(|i| data.features.iter().all(|f| !f.values[i].is_nan()))
-        .collect();
-    for f in &mut data.features {
-        retain_where(&mut f.values, &complete);
-    }
-    retain_where(&mut data.rows, &complete);
-    retain_where(&mut data.lines, &complete);
-    n - data.n_rows()
-}
-
-/// Keeps the items whose flag in `keep` is true.
-fn retain_where<T>(items: &mut Vec<T>, keep: &[bool]) {
-    let mut flags = keep.iter();
-    items.retain(|_| *flags.next().expect("one flag per item"));
-}
-
-/// Fills each feature's missing cells with one value, its mean or median, and
-/// returns those values.
-fn fill_constant(
-    data: &mut FeatureData,
-    observed: &[ObservedReport],
-    method: MissingMethod,
-    reports: &mut [FeatureMissing],
-) -> Vec<f64> {
-    let mut values = Vec::new();
-    for (feature, observed) in data.features.iter_mut().zip(observed) {
-        // The median needs a copy to sort.
-        let value = match method {
-            MissingMethod::Median => median(
-                feature
-                    .values
-                    .iter()
-                    .copied()
-                    .filter(|v| !v.is_nan())
-                    .collect(),
-            ),
-            _ => mean_fill(observed),
-        };
-        for v in feature.values.iter_mut().filter(|v| v.is_nan()) {
-            *v = value;
-        }
-        let report = reports
-            .iter_mut()
-            .find(|r| r.feature == feature.name)
-            .expect("every kept feature has a report");
-        report.fill_value = Some(value);
-        values.push(value);
-    }
-    values
-}
-
 /// The mean, summed in row order.
 pub fn mean(values: &[f64]) -> f64 {
     values.iter().sum::<f64>() / values.len() as f64
@@ -499,66 +387,29 @@ pub fn median(mut values: Vec<f64>) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::stages::Feature;
-
-    fn data(columns: Vec<Vec<f64>>) -> FeatureData {
-        let n = columns[0].len();
-        FeatureData {
-            features: columns
-                .into_iter()
-                .enumerate()
-                .map(|(j, values)| Feature {
-                    name: format!("f{j}"),
-                    values,
-                    transform: None,
-                })
-                .collect(),
-            rows: (0..n).collect(),
-            lines: (2..n as u64 + 2).collect(),
-            source: "t.csv".into(),
-        }
-    }
 
     const NA: f64 = f64::NAN;
 
-    fn settings(method: MissingMethod, max_share: f64) -> MissingSettings {
-        MissingSettings {
-            method,
-            max_share,
-            iterative: RawIterative::default(),
-            knn: RawKnn::default(),
-            components: 2,
-            scaling: ScalingMethod::UnitVariance,
-        }
+    #[test]
+    fn the_median_fill_skips_missing_cells() {
+        assert_eq!(median_fill(&[1.0, NA, 3.0, 10.0]), 3.0);
+        assert_eq!(median_fill(&[4.0, NA, 1.0, 2.0, 3.0]), 2.5);
     }
 
     #[test]
-    fn median_fill_and_counts() {
-        let d = data(vec![vec![1.0, NA, 3.0, 10.0], vec![1.0, 2.0, 3.0, 4.0]]);
-        let (out, report, filled, _) =
-            handle_missing(d, &settings(MissingMethod::Median, 0.5)).unwrap();
-        assert_eq!(
-            filled,
-            vec![FilledCell {
-                row: 1,
-                feature: "f0".into(),
-                value: 3.0
-            }]
-        );
-        assert_eq!(out.features[0].values, vec![1.0, 3.0, 3.0, 10.0]);
-        assert_eq!(report.features[0].filled, 1);
-        assert_eq!(report.cells_filled, 1);
-    }
-
-    #[test]
-    fn too_sparse_feature_is_dropped_then_rows() {
-        let d = data(vec![vec![NA, NA, 3.0, 1.0], vec![1.0, NA, 3.0, 4.0]]);
-        let (out, report, _, _) =
-            handle_missing(d, &settings(MissingMethod::DropRows, 0.3)).unwrap();
-        assert_eq!(out.features.len(), 1);
-        assert!(report.features[0].dropped.is_some());
-        assert_eq!(out.rows, vec![0, 2, 3]);
-        assert_eq!(out.lines, vec![2, 4, 5]);
-        assert_eq!(report.rows_dropped, 1);
+    fn features_missing_too_much_are_dropped_and_all_dropped_is_refused() {
+        let names = vec!["a".to_string(), "b".to_string()];
+        let counted = |values: &[f64]| {
+            let mut o = Observed::new();
+            o.push(values);
+            o.finish()
+        };
+        let observed = [counted(&[NA, NA, 3.0, 1.0]), counted(&[1.0, NA, 3.0, 4.0])];
+        let (reports, kept) = keep_features("t.csv", &names, &observed, 4, 0.3).unwrap();
+        assert_eq!(kept, vec![1]);
+        assert!(reports[0].dropped.is_some() && reports[1].dropped.is_none());
+        assert_eq!((reports[0].missing, reports[1].missing), (2, 1));
+        let e = keep_features("t.csv", &names, &observed, 4, 0.2).unwrap_err();
+        assert!(e.to_string().contains("max_feature_missing = 0.2"), "{e}");
     }
 }

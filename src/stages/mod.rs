@@ -1,11 +1,12 @@
 //! The pipeline stages. Each takes a typed input, returns a typed output and a
-//! report of what it did, and does no I/O:
-//!
-//! table → [`FeatureData`] → [`missing`] → [`transform`] → [`scale`] →
-//! [`decompose`] → [`select`].
+//! report of what it did, and does no I/O: [`transform`] → [`missing`] →
+//! [`scale`] → [`decompose`] → [`select`] → [`diagnose`].
 //!
 //! The statistics over rows they need are defined once, as accumulators
-//! ([`accumulate`]), which the passes engine feeds too.
+//! ([`accumulate`]), which the engine (`crate::stream::passes`) feeds from the
+//! row store, a chunk of rows at a time; the methods that need the whole
+//! matrix ([`impute`], [`parallel`], [`crossval`], the randomized and n × n
+//! routes of [`decompose`]) take a matrix view of the same store.
 
 pub mod accumulate;
 pub mod crossval;
@@ -18,8 +19,7 @@ pub mod scale;
 pub mod select;
 pub mod transform;
 
-use crate::recipe::plan::{Plan, Transform};
-use crate::table::{ColumnData, Table};
+use crate::recipe::plan::Transform;
 
 /// One feature column on its way through the stages.
 #[derive(Debug, Clone)]
@@ -45,30 +45,5 @@ pub struct FeatureData {
 impl FeatureData {
     pub fn n_rows(&self) -> usize {
         self.rows.len()
-    }
-
-    /// Takes the plan's features out of the table.
-    pub fn from_table(table: &Table, plan: &Plan) -> FeatureData {
-        let features = plan
-            .features
-            .iter()
-            .zip(&plan.transforms)
-            .map(|(name, transform)| {
-                let Some(ColumnData::Numeric(column)) = table.column(name).map(|c| &c.data) else {
-                    unreachable!("the plan only selects numeric columns")
-                };
-                Feature {
-                    name: name.clone(),
-                    values: column.values.clone(),
-                    transform: *transform,
-                }
-            })
-            .collect();
-        FeatureData {
-            features,
-            rows: (0..table.n_rows()).collect(),
-            lines: table.lines.clone(),
-            source: table.display.clone(),
-        }
     }
 }

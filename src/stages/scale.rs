@@ -38,12 +38,10 @@ pub struct ScaleReport {
 #[derive(Debug, Clone)]
 pub struct Scaled {
     pub names: Vec<String>,
-    /// The values, or `None` when the passes engine analysed the table in
-    /// passes without holding it (see [`crate::stream`]).
+    /// The scaled rows as one matrix, held only when a method needs the whole
+    /// matrix (see `needs_matrix` in the passes); otherwise every statistic is
+    /// taken in passes over the row store.
     pub matrix: Option<Matrix>,
-    /// Index in the table of each analysed row (empty in passes, where each
-    /// row's table row travels with its results).
-    pub rows: Vec<usize>,
     /// The number of analysed rows.
     pub analysed: usize,
 }
@@ -57,57 +55,88 @@ impl Scaled {
         self.names.len()
     }
 
-    /// The values held in memory; only the in-memory engine's stages call this.
+    /// The scaled rows, when they are held as one matrix.
     pub fn data(&self) -> &Matrix {
         self.matrix
             .as_ref()
-            .expect("the in-memory engine holds the scaled values")
+            .expect("the scaled rows are held for the whole-matrix methods")
     }
 }
 
-/// Centres and scales every feature. Each column feeds the scaling stage's
-/// statistics ([`Moments`], then [`Deviations`] about the mean) whole, the rows
-/// in order, as the passes engine feeds them chunk by chunk.
+/// Centres and scales features held as columns: [`FeatureScale::measure`]
+/// then the stage's decisions ([`decide`]), the same as the engine takes from
+/// the statistics it sums in passes. For tables built in tests.
 pub fn scale(
     data: FeatureData,
     method: ScalingMethod,
     constant: ConstantPolicy,
 ) -> Result<(Scaled, ScaleReport), Error> {
-    let mut report = ScaleReport::new(method, constant);
-    let mut columns = Vec::new();
-    let mut names = Vec::new();
-    for mut feature in data.features {
-        let stats = FeatureScale::measure(&feature.name, &feature.values, method);
-        if !report.admit(&data.source, &stats)? {
-            continue;
-        }
-        // In place: the unscaled values are not needed again.
-        for v in feature.values.iter_mut() {
-            *v = stats.apply(*v);
-        }
-        let mut squares = Square::new();
-        squares.push(&feature.values);
-        check_finite(
-            &data.source,
-            &feature.name,
-            &stats,
-            squares.finish(),
-            method,
-        )?;
-        columns.push(feature.values);
-        names.push(feature.name);
-        report.features.push(stats);
-    }
-    report.some_left(&data.source)?;
+    let stats = data
+        .features
+        .iter()
+        .map(|f| FeatureScale::measure(&f.name, &f.values, method))
+        .collect();
+    let (report, kept) = decide(&data.source, stats, method, constant)?;
+    let columns: Vec<Vec<f64>> = kept
+        .iter()
+        .zip(&report.features)
+        .map(|(&j, stats)| {
+            data.features[j]
+                .values
+                .iter()
+                .map(|&v| stats.apply(v))
+                .collect()
+        })
+        .collect();
+    let matrix = Matrix::from_columns(&columns);
+    check_squares(&data.source, &report, &Squares::of(&matrix))?;
     Ok((
         Scaled {
-            names,
-            matrix: Some(Matrix::from_columns(&columns)),
+            names: report.features.iter().map(|f| f.feature.clone()).collect(),
+            matrix: Some(matrix),
             analysed: data.rows.len(),
-            rows: data.rows,
         },
         report,
     ))
+}
+
+/// The scaling stage's decisions, feature by feature, from each feature's
+/// statistics: a constant feature is refused or dropped as the recipe says,
+/// and values whose mean or spread overflow are refused. Returns the report
+/// and the indices of the features kept.
+pub fn decide(
+    source: &str,
+    stats: Vec<FeatureScale>,
+    method: ScalingMethod,
+    constant: ConstantPolicy,
+) -> Result<(ScaleReport, Vec<usize>), Error> {
+    let mut report = ScaleReport::new(method, constant);
+    let mut kept = Vec::new();
+    for (j, stats) in stats.into_iter().enumerate() {
+        if !report.admit(source, &stats)? {
+            continue;
+        }
+        // The squares of the scaled values are checked once they are made
+        // ([`check_squares`]).
+        check_finite(source, &stats.feature, &stats, 0.0, method)?;
+        kept.push(j);
+        report.features.push(stats);
+    }
+    report.some_left(source)?;
+    Ok((report, kept))
+}
+
+/// Refuses scaled values whose squares overflow ([`check_finite`]); `squares`
+/// holds Σ z² of each kept feature.
+pub fn check_squares(
+    source: &str,
+    report: &ScaleReport,
+    squares: &[f64],
+) -> Result<(), AnalysisError> {
+    for (stats, &s) in report.features.iter().zip(squares) {
+        check_finite(source, &stats.feature, stats, s, report.method)?;
+    }
+    Ok(())
 }
 
 impl ScaleReport {

@@ -1,21 +1,22 @@
-//! The passes engine: the analysis of a large table without holding it as a
-//! matrix. The file is read once, in chunks (hashed and parsed at the same
-//! time); its numbers go to the row store ([`crate::store::Store`]), which stays
-//! in memory while it fits the memory budget and otherwise lives in a scratch
-//! file; then each statistic is computed in a pass over the store (see
-//! [`passes`]). The module keeps its old name, `stream`; in prose it is the
-//! passes engine.
+//! The engine: the analysis of a table read once, in chunks (hashed and
+//! parsed at the same time), into the row store ([`crate::store::Store`]);
+//! then each statistic is computed in a pass over the store (see [`passes`]),
+//! and the methods that need the whole matrix take a matrix view of it. The
+//! module keeps its old name, `stream`.
 //!
-//! Which engine runs is decided before the file is read ([`choose`]):
-//! - the in-memory engine for files under [`PASSES_FROM`] whose estimated need
-//!   ([`IN_MEMORY_FACTOR`] × the file size) fits the budget;
-//! - the passes engine for larger files, when the recipe allows it
-//!   ([`cannot_stream`]);
-//! - an error when the in-memory engine would pass the budget and the recipe
-//!   needs it: never a silent change of method.
+//! The two engines of the command line differ only in where the store lives
+//! ([`choose`], decided before the file is read):
+//! - in memory (`--engine in-memory`) for files under [`PASSES_FROM`] whose
+//!   estimated need ([`IN_MEMORY_FACTOR`] × the file size) fits the budget:
+//!   the whole store stays in memory;
+//! - in passes for larger files, when the recipe allows it ([`cannot_stream`]):
+//!   the store keeps what fits half the budget and the rest goes to a scratch
+//!   file;
+//! - an error when the recipe needs the whole matrix and it would pass the
+//!   budget: never a silent change of method.
 //!
-//! Both engines sum every number in the same order from the same start, so the
-//! results folders are byte-identical (tests/engines.rs).
+//! Either way the same code sums every number in the same order from the same
+//! start, so the results folders are byte-identical (tests/engines.rs).
 
 pub mod ingest;
 pub mod passes;
@@ -48,9 +49,10 @@ pub struct EngineOptions {
 /// below it the in-memory engine is as fast and needs little memory anyway.
 pub const PASSES_FROM: u64 = 32 << 20;
 
-/// The in-memory engine's peak memory is about this many times the size of the
-/// CSV file (measured on tables of numbers with 7–10 significant digits: the
-/// file's bytes, the parsed columns, the scaled matrix and the result tables).
+/// A run that holds the whole store (and for some methods a matrix view of it)
+/// needs up to about this many times the size of the CSV file (measured on
+/// tables of numbers with 7–10 significant digits, when the engine still held
+/// the parsed columns and the scaled matrix; a bound on the safe side now).
 pub const IN_MEMORY_FACTOR: u64 = 4;
 
 /// How the table will be analysed.
@@ -159,47 +161,6 @@ pub fn choose(raw: &RawRecipe, size: u64, options: &EngineOptions) -> Result<Cho
         ))),
         (Engine::Auto, _) => Ok(Choice::InMemory),
     }
-}
-
-/// The table with its numeric columns' values taken from the store (for a
-/// table read in chunks that only the in-memory engine can analyse).
-pub fn table_with_values(
-    mut table: crate::table::Table,
-    store: &store::Store,
-    numeric: &[usize],
-    text_columns: &[usize],
-) -> crate::table::Table {
-    let width = store.width();
-    let texts = store.text_width();
-    let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(store.rows()); width];
-    let mut cells: Vec<Vec<String>> = vec![Vec::with_capacity(store.rows()); texts];
-    let mut lines = Vec::with_capacity(store.rows());
-    store
-        .pass(|chunk: &store::Chunk| -> Result<(), std::io::Error> {
-            for row in chunk.values.chunks_exact(width.max(1)) {
-                for (column, &v) in columns.iter_mut().zip(row) {
-                    column.push(v);
-                }
-            }
-            for row in chunk.texts.chunks_exact(texts.max(1)) {
-                for (column, text) in cells.iter_mut().zip(row) {
-                    column.push(text.clone());
-                }
-            }
-            lines.extend_from_slice(&chunk.lines);
-            Ok(())
-        })
-        .expect("a store held in memory has no file to fail");
-    for (values, &c) in columns.into_iter().zip(numeric) {
-        if let crate::table::ColumnData::Numeric(column) = &mut table.columns[c].data {
-            column.values = values;
-        }
-    }
-    for (texts, &c) in cells.into_iter().zip(text_columns) {
-        table.columns[c].data = crate::table::ColumnData::Text(std::sync::Arc::new(texts));
-    }
-    table.lines = lines;
-    table
 }
 
 /// Bytes of ids the check of the id column holds at most before it sorts them

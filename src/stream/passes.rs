@@ -1,34 +1,40 @@
-//! The analysis in passes over the [`Store`]: each pass reads the rows in table
-//! order and feeds them, chunk by chunk, to the statistics the in-memory stages
-//! feed whole columns ([`crate::stages::accumulate`]), and takes the stages'
+//! The analysis in passes over the [`Store`], for both engines: each pass reads
+//! the rows in table order and feeds them, chunk by chunk, to the statistics
+//! of the stages ([`crate::stages::accumulate`]), and takes the stages'
 //! decisions through the stages' own functions (which feature is dropped, the
-//! fill value, a constant feature, the errors). So every number is summed in
-//! the same order, from the same start, by the same code as in memory. That is
-//! what makes the two engines give the same bits (tested on whole results
-//! folders in tests/engines.rs).
+//! fill value, a constant feature, the errors). The methods that need the
+//! whole matrix (median, kNN and iterative-PCA fills; the n × n and randomized
+//! routes, parallel analysis, cross-validation, uncentred data) take a matrix
+//! view of the store ([`matrix_view`], [`scaled_rows`]); a model's fills are
+//! written back into the store, so the later passes read them like any value.
 //!
 //! 1. transforms checked, missing cells counted, observed sums and ranges; then
 //!    the transforms applied to the store once, in place;
 //! 2. fill values; the scaling means and ranges of the filled values;
 //! 3. the sums of squared deviations (standard deviations);
-//! 4. the cross-products ZᵀZ in the same 1,024-row blocks, and Σ z²;
+//! 4. the cross-products ZᵀZ in the same 1,024-row blocks, and Σ z² (or the
+//!    scaled rows as one matrix, for the whole-matrix methods);
 //! 5. scores, T² and SPE, row by row;
 //! 6. the scaled values of the rows whose contributions are reported.
 
 use crate::analysis::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::error::Error;
 use crate::linalg::crossprod::{GramAccumulator, row_times};
+use crate::recipe::plan::MethodPlan;
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::MissingMethod;
+use crate::recipe::raw::{DEFAULT_COMPUTE, Keep};
 use crate::stages::accumulate::{PerFeature, Statistic, by_columns};
-use crate::stages::decompose::from_cross_products;
+use crate::stages::crossval::cross_validate;
+use crate::stages::decompose::{decompose_keeping, decompose_randomized, from_cross_products};
 use crate::stages::diagnose::{RowStatistics, residual_moments};
 use crate::stages::missing::{
-    FeatureMissing, FillModel, Filled, MissingReport, Observed, ObservedReport,
-    every_feature_dropped, mean_fill, too_few_rows,
+    FillModel, Filled, MissingReport, ModelSettings, Observed, ObservedReport, fill_by_model,
+    keep_features, mean_fill, median_fill, too_few_rows,
 };
+use crate::stages::parallel::parallel_analysis;
 use crate::stages::scale::{
-    Deviations, FeatureScale, Moments, ScaleReport, Scaled, Squares, check_finite, scale_value,
+    Deviations, FeatureScale, Moments, Scaled, Squares, check_squares, decide, scale_value,
 };
 use crate::stages::select::{Evidence, choose};
 use crate::stages::transform::{Applied, domain_error, transform_value};
@@ -178,6 +184,10 @@ pub fn preprocess(
     numeric: &[usize],
 ) -> Result<Preprocessed, Error> {
     let plan = &prepared.plan;
+    assert!(
+        !store.cells_filled,
+        "a model's fills replaced the missing cells: a store is preprocessed once"
+    );
     let table = &prepared.table;
     let source = table.display.clone();
     let n = table.n_rows();
@@ -272,32 +282,40 @@ pub fn preprocess(
     // The missing stage's decisions.
     let max_share = plan.max_feature_missing;
     let observed: Vec<ObservedReport> = first.iter().map(|f| f.observed.finish()).collect();
-    let mut reports = Vec::new();
-    let mut kept = Vec::new();
-    for (j, o) in observed.iter().enumerate() {
-        let report = FeatureMissing::counted(&plan.features[j], o.missing, n, max_share);
-        if report.dropped.is_none() {
-            kept.push(j);
+    let (mut reports, kept) = keep_features(&source, &plan.features, &observed, n, max_share)?;
+    let method = plan.missing_method;
+    let drop_incomplete = method == MissingMethod::DropRows;
+    let kept_columns: Vec<usize> = kept.iter().map(|&j| all_columns[j]).collect();
+    // The methods that need the whole table take a matrix view of the kept
+    // features (transformed, `NaN` where missing).
+    let (fill, by_model) = match method {
+        MissingMethod::DropRows => (vec![f64::NAN; kept.len()], None),
+        MissingMethod::Mean => (
+            kept.iter().map(|&j| mean_fill(&observed[j])).collect(),
+            None,
+        ),
+        MissingMethod::Median => (
+            matrix_view(store, &kept_columns)?
+                .iter()
+                .map(|c| median_fill(c))
+                .collect(),
+            None,
+        ),
+        MissingMethod::Knn | MissingMethod::IterativePca => {
+            let mut columns = matrix_view(store, &kept_columns)?;
+            let gaps: Vec<Vec<bool>> = columns
+                .iter()
+                .map(|c| c.iter().map(|v| v.is_nan()).collect())
+                .collect();
+            let done = fill_by_model(&mut columns, &model_settings(plan))?;
+            write_back(store, &kept_columns, &columns)?;
+            store.cells_filled = true;
+            (vec![f64::NAN; kept.len()], Some((done, columns, gaps)))
         }
-        reports.push(report);
-    }
-    if kept.is_empty() {
-        return Err(every_feature_dropped(&source, max_share));
-    }
-    let drop_incomplete = plan.missing_method == MissingMethod::DropRows;
-    let fill: Vec<f64> = kept
-        .iter()
-        .map(|&j| {
-            if drop_incomplete {
-                f64::NAN
-            } else {
-                mean_fill(&observed[j])
-            }
-        })
-        .collect();
+    };
     let features = Features {
         names: kept.iter().map(|&j| plan.features[j].clone()).collect(),
-        column: kept.iter().map(|&j| all_columns[j]).collect(),
+        column: kept_columns,
         fill,
         centre: Vec::new(),
         scale: Vec::new(),
@@ -315,6 +333,12 @@ pub fn preprocess(
         if store.spilled() { 0 } else { u64::MAX },
         &plan.output,
     );
+    if let Some((_, columns, gaps)) = &by_model {
+        // The filled cells, in row order (the store holds their values now).
+        filled
+            .push(&model_cells(&kept, columns, gaps))
+            .map_err(|e| scratch_error(prepared, e))?;
+    }
     let mut analysed = 0;
     let mut offset = 0;
     let (mut values, mut local) = (Vec::new(), Vec::new());
@@ -362,38 +386,48 @@ pub fn preprocess(
     let moments = filled_stats.finish();
     let rows_dropped = n - analysed;
     let mut warnings = Vec::new();
-    if !drop_incomplete {
-        for (k, &j) in kept.iter().enumerate() {
-            let value = features.fill[k];
-            let range = &observed[j].moments;
-            // Every missing cell of the feature took the one fill value.
-            let mut values = Filled::within(range.min, range.max);
-            for _ in 0..observed[j].missing {
-                values.add(value);
+    for (k, &j) in kept.iter().enumerate() {
+        let range = &observed[j].moments;
+        let mut values = Filled::within(range.min, range.max);
+        match &by_model {
+            _ if drop_incomplete => continue,
+            // Each filled cell's own value, in row order.
+            Some((_, columns, gaps)) => {
+                for (&v, &gap) in columns[k].iter().zip(&gaps[k]) {
+                    if gap {
+                        values.add(v);
+                    }
+                }
             }
-            let report = &mut reports[j];
-            report.fill_value = Some(value);
-            report.record_fill(&values.finish(), &mut warnings);
+            // Every missing cell of the feature took the one fill value.
+            None => {
+                let value = features.fill[k];
+                for _ in 0..observed[j].missing {
+                    values.add(value);
+                }
+                reports[j].fill_value = Some(value);
+            }
         }
+        reports[j].record_fill(&values.finish(), &mut warnings);
     }
     if analysed < 2 {
         return Err(too_few_rows(&source, analysed, rows_dropped));
     }
+    let (fill_model, iterative_pca) = match by_model {
+        Some((done, _, _)) => (done.model, done.iterative),
+        None if drop_incomplete => (FillModel::DropRows, None),
+        None => (FillModel::Constant(features.fill.clone()), None),
+    };
     let missing = MissingReport {
-        method: plan.missing_method,
+        method,
         max_feature_missing: max_share,
         rows_in: n,
         rows_dropped,
         cells_filled: reports.iter().map(|r| r.filled).sum(),
         features: reports,
-        iterative_pca: None,
-        knn_neighbours: None,
+        iterative_pca,
+        knn_neighbours: (method == MissingMethod::Knn).then_some(plan.knn.neighbours.0.get()),
         warnings,
-    };
-    let fill_model = if drop_incomplete {
-        FillModel::DropRows
-    } else {
-        FillModel::Constant(features.fill.clone())
     };
 
     let t = crate::timing::lap("  pass 2: filled sums and ranges", t);
@@ -411,20 +445,11 @@ pub fn preprocess(
     crate::timing::lap("  pass 3: squared deviations", t);
     // The scaling stage's decisions, feature by feature.
     let method = plan.scaling;
-    let mut scaling = ScaleReport::new(method, plan.constant_features);
-    let mut keep_scaled = Vec::new();
-    for j in 0..q {
-        let stats = FeatureScale::from_moments(&features.names[j], &moments[j], sds[j], method);
-        if !scaling.admit(&source, &stats)? {
-            continue;
-        }
-        // The sum of squares of the scaled values is checked after pass 4.
-        check_finite(&source, &stats.feature, &stats, 0.0, method)?;
-        keep_scaled.push(j);
-        scaling.features.push(stats);
-    }
-    scaling.some_left(&source)?;
-    let pre = Preprocessed {
+    let stats = (0..q)
+        .map(|j| FeatureScale::from_moments(&features.names[j], &moments[j], sds[j], method))
+        .collect();
+    let (scaling, keep_scaled) = decide(&source, stats, method, plan.constant_features)?;
+    let mut pre = Preprocessed {
         scaled: Scaled {
             analysed,
             names: keep_scaled
@@ -432,8 +457,6 @@ pub fn preprocess(
                 .map(|&j| features.names[j].clone())
                 .collect(),
             matrix: None,
-            // Each row's table row travels with its results instead.
-            rows: Vec::new(),
         },
         filled,
         fill_model,
@@ -441,7 +464,115 @@ pub fn preprocess(
         transforms,
         scaling,
     };
+    if needs_matrix(plan, analysed, keep_scaled.len()) {
+        let z = scaled_rows(prepared, &pre, store, numeric)?;
+        let squares = Squares::of(&z);
+        check_squares(&source, &pre.scaling, &squares)?;
+        pre.scaled.matrix = Some(z);
+    }
     Ok(pre)
+}
+
+/// Whether the analysis needs the scaled rows as one matrix: for the n × n
+/// route (fewer rows than features), uncentred data, the randomized method,
+/// parallel analysis and cross-validation. Otherwise passes over the store
+/// give everything.
+fn needs_matrix(plan: &crate::recipe::plan::Plan, n: usize, p: usize) -> bool {
+    n < p
+        || !plan.scaling.centers()
+        || matches!(plan.method, MethodPlan::Randomized(_))
+        || matches!(
+            plan.components.keep,
+            Keep::ParallelAnalysis | Keep::CrossValidation
+        )
+}
+
+/// A matrix view of the store: the values of `columns`, one vector per
+/// column, every row in order.
+fn matrix_view(store: &Store, columns: &[usize]) -> Result<Vec<Vec<f64>>, Error> {
+    let width = store.width();
+    let mut out: Vec<Vec<f64>> = vec![Vec::with_capacity(store.rows()); columns.len()];
+    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+        for row in chunk.values.chunks_exact(width.max(1)) {
+            for (column, &c) in out.iter_mut().zip(columns) {
+                column.push(row[c]);
+            }
+        }
+        Ok(())
+    })?;
+    Ok(out)
+}
+
+/// Writes the filled `values` (one vector per column, every row) back into
+/// the store's `columns`.
+fn write_back(store: &mut Store, columns: &[usize], values: &[Vec<f64>]) -> Result<(), Error> {
+    let width = store.width();
+    let mut first = 0;
+    store.update(|chunk| {
+        for (r, row) in chunk.values.chunks_exact_mut(width.max(1)).enumerate() {
+            for (&c, column) in columns.iter().zip(values) {
+                row[c] = column[first + r];
+            }
+        }
+        first += chunk.rows;
+    })?;
+    Ok(())
+}
+
+/// The cells filled by a model, in row order (features in order within a row).
+fn model_cells(
+    kept: &[usize],
+    columns: &[Vec<f64>],
+    gaps: &[Vec<bool>],
+) -> Vec<crate::row_results::CellIn> {
+    let n = columns.first().map_or(0, Vec::len);
+    let mut cells = Vec::new();
+    for i in 0..n {
+        for (k, &j) in kept.iter().enumerate() {
+            if gaps[k][i] {
+                cells.push(crate::row_results::CellIn {
+                    table_row: i,
+                    feature: j,
+                    value: columns[k][i],
+                });
+            }
+        }
+    }
+    cells
+}
+
+fn model_settings(plan: &crate::recipe::plan::Plan) -> ModelSettings {
+    ModelSettings {
+        method: plan.missing_method,
+        iterative: plan.iterative_pca.clone(),
+        knn: plan.knn.clone(),
+        components: plan.imputation_components,
+        scaling: plan.scaling,
+    }
+}
+
+/// The scaled values of every analysed row, rows × features: the matrix view
+/// the whole-matrix methods take.
+pub fn scaled_rows(
+    prepared: &Prepared,
+    pre: &Preprocessed,
+    store: &Store,
+    numeric: &[usize],
+) -> Result<crate::linalg::Matrix, Error> {
+    let features = Features::of(prepared, pre, numeric);
+    let (width, p) = (store.width(), features.width());
+    let mut data = Vec::with_capacity(pre.scaled.n_rows() * p);
+    let (mut z, mut local) = (Vec::new(), Vec::new());
+    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+        features.rows_of(chunk, width, true, &mut z, &mut local);
+        data.extend_from_slice(&z);
+        Ok(())
+    })?;
+    Ok(crate::linalg::Matrix {
+        rows: data.len() / p.max(1),
+        cols: p,
+        data,
+    })
 }
 
 /// Passes 4–6: the decomposition, the choice of k, scores and diagnostics.
@@ -461,47 +592,49 @@ pub fn analyse(
     let (n, p) = (pre.scaled.n_rows(), pre.scaled.n_features());
     let centred = plan.scaling.centers();
 
-    // Pass 4.
-    crate::progress::current().stage("pass 4 of 6: cross-products");
     let t = std::time::Instant::now();
-    let mut gram = GramAccumulator::new(p);
-    let mut squares = Squares::new(p);
-    let (mut z, mut local) = (Vec::new(), Vec::new());
-    store.pass(|chunk: &Chunk| -> Result<(), Error> {
-        features.rows_of(chunk, width, true, &mut z, &mut local);
-        let z = &z;
-        let ((), ()) = rayon::join(|| gram.add_rows(z), || squares.push(z));
-        Ok(())
-    })?;
-    let squares = squares.finish();
-    for (j, &s) in squares.iter().enumerate() {
-        let stats = &pre.scaling.features[j];
-        check_finite(
-            &prepared.table.display,
-            &stats.feature,
-            stats,
-            s,
-            pre.scaling.method,
-        )?;
-    }
-    let gram = gram.finish();
-    let t = crate::timing::lap("  pass 4: cross-products", t);
-    // The same loadings as the in-memory engine asks for (`run::analyse`).
-    let mut decomposition = from_cross_products(
-        &gram,
-        &squares,
-        n,
-        centred,
-        crate::analysis::loadings_wanted(plan),
-    )?;
-    let t = crate::timing::lap("  eigendecomposition", t);
-    decomposition.check_variance(&prepared.table.display)?;
+    let want = crate::analysis::loadings_wanted(plan);
+    let source = &prepared.table.display;
+    let mut evidence = Evidence::default();
+    let mut randomized = None;
+    let (mut decomposition, cross_products, squares) = match &pre.scaled.matrix {
+        Some(z) => {
+            let decomposition = match &plan.method {
+                MethodPlan::Exact => decompose_keeping(z, centred, None, want)?,
+                MethodPlan::Randomized(settings) => {
+                    let (d, report) = decompose_randomized(z, centred, want, settings)?;
+                    randomized = Some(report);
+                    d
+                }
+            };
+            decomposition.check_variance(source)?;
+            evidence = whole_matrix_evidence(plan, z, centred, decomposition.rank)?;
+            (decomposition, None, Squares::of(z))
+        }
+        None => {
+            // Pass 4.
+            crate::progress::current().stage("pass 4 of 6: cross-products");
+            let (gram, squares) = cross_products(features, store, p)?;
+            check_squares(source, &pre.scaling, &squares)?;
+            let decomposition = from_cross_products(&gram, &squares, n, centred, want)?;
+            decomposition.check_variance(source)?;
+            (decomposition, Some(gram), squares)
+        }
+    };
+    let t = crate::timing::lap("  cross-products and eigendecomposition", t);
+    // Loadings beyond those computed, when the rule keeps more: by the same
+    // route (the randomized method computes no more than it was asked for).
+    let more = |want: usize| match (&cross_products, &pre.scaled.matrix) {
+        (Some(gram), _) => from_cross_products(gram, &squares, n, centred, want),
+        (None, Some(z)) => decompose_keeping(z, centred, None, want),
+        (None, None) => unreachable!("one of the two routes ran"),
+    };
     let selection = choose(
         &mut decomposition,
         p,
         &plan.components,
-        Evidence::default(),
-        Some(|want: usize| from_cross_products(&gram, &squares, n, centred, want)),
+        evidence,
+        randomized.is_none().then_some(more),
         |e| crate::analysis::keep_error(prepared, pre, e.keep, e.available),
     )?;
     assert!(selection.computed <= decomposition.loadings.cols);
@@ -513,7 +646,7 @@ pub fn analyse(
     let v_kept = loadings.columns(0, kept).data;
     let v_more = loadings.columns(kept, computed).data;
     let statistics = RowStatistics::new(loadings, kept, &decomposition.eigenvalues);
-    let moments = residual_moments(&decomposition, kept, None, n);
+    let moments = residual_moments(&decomposition, kept, randomized.as_ref(), n);
     let mut diagnostics = crate::analysis::diagnostics_for(plan, n, kept, moments);
     let mut results = results_for(prepared, computed, store.spilled());
     let labels = label_texts(prepared);
@@ -523,6 +656,7 @@ pub fn analyse(
     let w = crate::row_results::RowResults::row_width(computed);
     let mut first = 0;
     let mut offset = 0;
+    let (mut z, mut local) = (Vec::new(), Vec::new());
     // The chunks' texts move on to the results (nothing reads them after this
     // pass): the labels are never copied.
     store.pass_taking(|chunk: &mut Chunk| -> Result<(), Error> {
@@ -600,8 +734,59 @@ pub fn analyse(
         column_squares: squares,
         rows: std::sync::Arc::new(results),
         details,
-        randomized: None,
+        randomized,
     })
+}
+
+/// Pass 4: the cross-products ZᵀZ in 1,024-row blocks, and each feature's Σ z².
+fn cross_products(
+    features: &Features,
+    store: &Store,
+    p: usize,
+) -> Result<(crate::linalg::Matrix, Vec<f64>), Error> {
+    let width = store.width();
+    let mut gram = GramAccumulator::new(p);
+    let mut squares = Squares::new(p);
+    let (mut z, mut local) = (Vec::new(), Vec::new());
+    store.pass(|chunk: &Chunk| -> Result<(), Error> {
+        features.rows_of(chunk, width, true, &mut z, &mut local);
+        let z = &z;
+        let ((), ()) = rayon::join(|| gram.add_rows(z), || squares.push(z));
+        Ok(())
+    })?;
+    Ok((gram.finish(), squares.finish()))
+}
+
+/// The evidence of the rules that refit the model on the whole matrix:
+/// parallel analysis and cross-validation.
+fn whole_matrix_evidence(
+    plan: &crate::recipe::plan::Plan,
+    z: &crate::linalg::Matrix,
+    centred: bool,
+    rank: usize,
+) -> Result<Evidence, Error> {
+    let components = &plan.components;
+    let mut evidence = Evidence::default();
+    match components.keep {
+        Keep::ParallelAnalysis => {
+            evidence.parallel = Some(parallel_analysis(
+                z,
+                centred,
+                &components.parallel_analysis,
+            )?);
+        }
+        Keep::CrossValidation => {
+            let max_k = components.compute.unwrap_or(DEFAULT_COMPUTE).min(rank);
+            evidence.cross_validation = Some(cross_validate(
+                z,
+                centred,
+                max_k,
+                &components.cross_validation,
+            )?);
+        }
+        _ => {}
+    }
+    Ok(evidence)
 }
 
 /// Where the rows' results go: in memory, or all to a scratch file beside the
@@ -625,7 +810,7 @@ fn results_for(
 /// columns, in that order.
 fn label_texts(prepared: &Prepared) -> Vec<usize> {
     let plan = &prepared.plan;
-    let data = prepared.passes.as_ref().expect("analysed in passes");
+    let data = prepared.stored();
     plan.input
         .id
         .iter()
