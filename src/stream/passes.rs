@@ -128,21 +128,17 @@ impl Features {
         let plan = &prepared.plan;
         let drop_incomplete = plan.missing_method == MissingMethod::DropRows;
         let names = pre.scaled.names.clone();
-        let in_plan = |name: &str| {
-            plan.features
-                .iter()
-                .position(|f| f == name)
-                .expect("analysed features are the plan's")
-        };
+        // By name, in O(p log p): wide tables have thousands of features.
+        let in_plan: std::collections::BTreeMap<&str, usize> = (plan.features.iter())
+            .enumerate()
+            .map(|(j, f)| (f.as_str(), j))
+            .collect();
         Features {
-            column: names
-                .iter()
-                .map(|n| store_column(prepared, numeric, n))
-                .collect(),
+            column: store_columns(prepared, numeric, &names),
             fill: names
                 .iter()
                 .map(|n| {
-                    pre.missing.features[in_plan(n)]
+                    pre.missing.features[in_plan[n.as_str()]]
                         .fill_value
                         .unwrap_or(f64::NAN)
                 })
@@ -155,18 +151,23 @@ impl Features {
     }
 }
 
-/// The store column holding a table column.
-fn store_column(prepared: &Prepared, numeric: &[usize], name: &str) -> usize {
-    let t = prepared
-        .table
-        .columns
+/// The store column holding each of the named table columns.
+fn store_columns(prepared: &Prepared, numeric: &[usize], names: &[String]) -> Vec<usize> {
+    let by_table_column: std::collections::BTreeMap<usize, usize> =
+        numeric.iter().enumerate().map(|(s, &t)| (t, s)).collect();
+    let by_name: std::collections::BTreeMap<&str, usize> = (prepared.table.columns.iter())
+        .enumerate()
+        .map(|(t, c)| (c.name.as_str(), t))
+        .collect();
+    names
         .iter()
-        .position(|c| c.name == name)
-        .expect("the plan's features are table columns");
-    numeric
-        .iter()
-        .position(|&c| c == t)
-        .expect("features are numeric columns")
+        .map(|name| {
+            let t = by_name[name.as_str()];
+            *by_table_column
+                .get(&t)
+                .expect("features are numeric columns")
+        })
+        .collect()
 }
 
 /// Per-feature state of pass 1: the missing stage's counts and observed sums,
@@ -195,11 +196,7 @@ pub fn preprocess(
         return Err(too_few_rows(&source, n, 0));
     }
     let width = store.width();
-    let all_columns: Vec<usize> = plan
-        .features
-        .iter()
-        .map(|f| store_column(prepared, numeric, f))
-        .collect();
+    let all_columns = store_columns(prepared, numeric, &plan.features);
 
     // Pass 1.
     crate::progress::current().stage("pass 1 of 6: missing cells and observed sums");
