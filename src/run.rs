@@ -328,6 +328,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
     let want = loadings_wanted(plan);
     let (mut decomposition, randomized) = match &plan.method {
         MethodPlan::Exact => (decompose_keeping(z, centred, None, want)?, None),
+        MethodPlan::Qr => (crate::stages::decompose::decompose_qr(z, centred)?, None),
         MethodPlan::Randomized(settings) => {
             let (d, report) =
                 crate::stages::decompose::decompose_randomized(z, centred, want, settings)?;

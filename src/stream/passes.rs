@@ -17,11 +17,11 @@
 
 use crate::analysis::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::error::Error;
-use crate::linalg::crossprod::{GramAccumulator, row_times};
+use crate::linalg::crossprod::row_times;
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::MissingMethod;
 use crate::stages::accumulate::{PerFeature, Statistic, by_columns};
-use crate::stages::decompose::from_cross_products;
+use crate::stages::decompose::RowsSummary;
 use crate::stages::diagnose::{RowStatistics, residual_moments};
 use crate::stages::missing::{
     FeatureMissing, FillModel, Filled, MissingReport, Observed, ObservedReport,
@@ -464,7 +464,7 @@ pub fn analyse(
     // Pass 4.
     crate::progress::current().stage("pass 4 of 6: cross-products");
     let t = std::time::Instant::now();
-    let mut gram = GramAccumulator::new(p);
+    let mut gram = RowsSummary::new(plan.method == crate::recipe::plan::MethodPlan::Qr, p);
     let mut squares = Squares::new(p);
     let (mut z, mut local) = (Vec::new(), Vec::new());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
@@ -487,13 +487,8 @@ pub fn analyse(
     let gram = gram.finish();
     let t = crate::timing::lap("  pass 4: cross-products", t);
     // The same loadings as the in-memory engine asks for (`run::analyse`).
-    let mut decomposition = from_cross_products(
-        &gram,
-        &squares,
-        n,
-        centred,
-        crate::analysis::loadings_wanted(plan),
-    )?;
+    let mut decomposition =
+        gram.decompose(&squares, n, centred, crate::analysis::loadings_wanted(plan))?;
     let t = crate::timing::lap("  eigendecomposition", t);
     decomposition.check_variance(&prepared.table.display)?;
     let selection = choose(
@@ -501,7 +496,7 @@ pub fn analyse(
         p,
         &plan.components,
         Evidence::default(),
-        Some(|want: usize| from_cross_products(&gram, &squares, n, centred, want)),
+        Some(|want: usize| gram.decompose(&squares, n, centred, want)),
         |e| crate::analysis::keep_error(prepared, pre, e.keep, e.available),
     )?;
     assert!(selection.computed <= decomposition.loadings.cols);
