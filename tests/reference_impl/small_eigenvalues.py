@@ -17,10 +17,12 @@ low-noise table) from the discarded eigenvalues, Jackson & Mudholkar (1979)
 scipy's normal quantile) and Box (1954) (g chi2_h, g = theta2/theta1,
 h = theta1^2/theta2, with scipy's chi-squared quantile).
 
-Run from the repository root:
+Run from the repository root; --write-table (re)makes the table first, which
+was done once (the bits of the table depend on numpy's generator and QR):
     python3 tests/reference_impl/small_eigenvalues.py tests/data/small_eigenvalues.csv \
-        > tests/data/small_eigenvalues_reference.json
-(.ci/run reruns it and compares the output with tests/reference_impl/same_numbers.py.)
+        [--write-table] > tests/data/small_eigenvalues_reference.json
+(.ci/run reruns it without --write-table and compares the output with
+tests/reference_impl/same_numbers.py.)
 """
 import csv
 import json
