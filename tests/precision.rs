@@ -30,7 +30,11 @@ fn numeric_columns(path: &Path) -> Vec<(String, Vec<f64>)> {
 
 fn run(dir: &Path, recipe: &str, engine: &str) {
     let out = sextant(dir, &["run", recipe, "--engine", engine]);
-    assert_eq!(out.code, 0, "{recipe} ({engine}): {}", out.stderr);
+    assert_eq!(
+        out.code, 0,
+        "{recipe} ({engine}): {}{}",
+        out.stdout, out.stderr
+    );
 }
 
 /// A table of `n` rows by 4 features whose values are multiples of 2⁻²⁰
@@ -83,8 +87,9 @@ fn shifted_table(n: usize, offset: f64) -> String {
 /// and SPE to 1e-12 relative of each column's spread.
 #[test]
 fn a_large_offset_moved_every_centred_value() {
-    let dir = tempfile::tempdir().unwrap();
-    let d = dir.path();
+    // A folder of its own (the shipped recipes and demo data beside it do no harm).
+    let ws = common::workspace();
+    let d = ws.path();
     // 2,500 rows: the passes engine runs several chunks and row blocks.
     let n = 2500;
     fs::write(d.join("plain.csv"), shifted_table(n, 0.0)).unwrap();
