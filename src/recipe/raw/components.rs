@@ -48,13 +48,13 @@ pub enum DecompositionMethod {
     /// of the components computed.
     #[default]
     Exact,
-    /// Only the leading components, from a seeded random sketch of the data
-    /// (Halko, Martinsson & Tropp 2011); for wide or large tables.
-    Randomized,
     /// Every eigenvalue and loading from the singular values of the scaled
     /// data (a QR in fixed row blocks, then the triangular factor's singular
     /// values): the smallest eigenvalues keep their digits.
     Qr,
+    /// Only the leading components, from a seeded random sketch of the data
+    /// (Halko, Martinsson & Tropp 2011); for wide or large tables.
+    Randomized,
 }
 
 impl DecompositionMethod {
