@@ -487,6 +487,10 @@ pub enum AnalysisError {
         "the eigenvalues did not converge within {sweeps} QL sweeps per eigenvalue; the scaled data may be degenerate"
     )]
     NoConvergence { sweeps: usize },
+    #[error(
+        "the singular values did not converge within {sweeps} Jacobi sweeps; the scaled data may be degenerate"
+    )]
+    JacobiNoConvergence { sweeps: usize },
 }
 
 /// What overflowed in [`AnalysisError::Overflow`].

@@ -416,7 +416,7 @@ fn recipe_errors_point_at_the_offending_line() {
             "method = \"fast\"",
             "spe_limit = \"box\"",
             "recipe.toml:8:10",
-            &["unknown choice `fast`, expected `exact` or `randomized`"],
+            &["unknown choice `fast`, expected one of `exact`, `qr`, `randomized`"],
         ),
         (
             "method = \"randomized\"\n\n[components.randomized]\noversampling = -1",

@@ -11,7 +11,9 @@
 pub mod crossprod;
 pub mod eigen;
 pub mod matrix;
+pub mod qr;
 pub mod random;
+pub mod sum;
 
 pub use matrix::Matrix;
 

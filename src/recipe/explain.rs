@@ -146,6 +146,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         .map_or(DecompositionMethod::Exact, |m| *m.get_ref());
     s.push(match method {
         DecompositionMethod::Exact => "Compute the eigenvalues and loadings of that matrix with divisor n − 1; make the largest loading of each component positive (ties go to the first feature).".into(),
+        DecompositionMethod::Qr => "Compute the eigenvalues and loadings of that matrix (divisor n − 1) from the singular values of the scaled data itself: a Householder QR of its rows in fixed blocks of 1,024, then the singular values and right singular vectors of the small triangular factor by one-sided Jacobi (Golub & Van Loan 2013, §5.4), so the smallest eigenvalues, and the SPE limits built on them, keep their digits (the cross-products route loses them below about 1e-8 of the largest); make the largest loading of each component positive (ties go to the first feature).".into(),
         DecompositionMethod::Randomized => {
             let r = raw
                 .components

@@ -71,6 +71,10 @@ pub enum MethodPlan {
     /// The leading components only, from a seeded sketch
     /// ([`crate::stages::decompose::decompose_randomized`]).
     Randomized(RawRandomized),
+    /// Every eigenvalue and loading from a QR of the scaled data and the
+    /// singular values of its triangular factor
+    /// ([`crate::stages::decompose::decompose_qr`]).
+    Qr,
 }
 
 /// Everything a run needs, checked.
@@ -517,6 +521,7 @@ pub fn method_plan(recipe: &LoadedRecipe) -> Result<MethodPlan, RecipeError> {
         // `[components.randomized]` under the exact method is refused when the
         // recipe is read (`super::applies`).
         DecompositionMethod::Exact => Ok(MethodPlan::Exact),
+        DecompositionMethod::Qr => Ok(MethodPlan::Qr),
         DecompositionMethod::Randomized => {
             if let Some(keep) = &c.keep
                 && let Some((rule, why)) = whole_spectrum_rule(*keep.get_ref())

@@ -7,7 +7,8 @@
 //! [`super::scale::Squares`]), and every engine feeds that one type: the
 //! in-memory stages a whole column at a time, the passes engine chunk by chunk
 //! of row-major rows ([`PerFeature`]). Each feature's sum still adds the rows in
-//! row order from [`crate::linalg::SUM_START`], so how the rows arrive never
+//! row order (from [`crate::linalg::SUM_START`], or in two doubles for the
+//! means: [`crate::linalg::sum::Sum`]), so how the rows arrive never
 //! changes a bit. Merging floating-point sums is not associative: parts are
 //! merged in the dataset's order (`self` holds the rows before `other`'s).
 

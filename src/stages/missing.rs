@@ -309,13 +309,13 @@ impl Statistic for Observed {
 }
 
 /// The values filled into one feature's cells: how many, their mean (summed
-/// in row order) and how many lie outside the observed range [low, high].
+/// in row order in two doubles, as [`Moments`]) and how many lie outside the observed range [low, high].
 #[derive(Debug, Clone, Copy)]
 pub struct Filled {
     low: f64,
     high: f64,
     count: usize,
-    sum: f64,
+    sum: crate::linalg::sum::Sum,
     outside: usize,
 }
 
@@ -336,7 +336,7 @@ impl Filled {
             low,
             high,
             count: 0,
-            sum: crate::linalg::SUM_START,
+            sum: crate::linalg::sum::Sum::new(),
             outside: 0,
         }
     }
@@ -347,20 +347,20 @@ impl Statistic for Filled {
 
     fn add(&mut self, v: f64) {
         self.count += 1;
-        self.sum += v;
+        self.sum.add(v);
         self.outside += usize::from(v < self.low || v > self.high);
     }
 
     fn merge(&mut self, other: &Filled) {
         self.count += other.count;
-        self.sum += other.sum;
+        self.sum.merge(&other.sum);
         self.outside += other.outside;
     }
 
     fn finish(&self) -> FilledReport {
         FilledReport {
             count: self.count,
-            mean: self.sum / self.count as f64,
+            mean: self.sum.mean(self.count),
             outside: self.outside,
             low: self.low,
             high: self.high,
@@ -368,9 +368,11 @@ impl Statistic for Filled {
     }
 }
 
-/// The mean, summed in row order.
+/// The mean, summed in row order in two doubles (within one rounding of the
+/// exact mean, as [`Moments`]): the start of iterative PCA and the centre of
+/// the neighbours' distances take it.
 pub fn mean(values: &[f64]) -> f64 {
-    values.iter().sum::<f64>() / values.len() as f64
+    crate::linalg::sum::mean(values)
 }
 
 /// The median; the mean of the two middle values when the count is even.

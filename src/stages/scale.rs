@@ -9,6 +9,7 @@ use super::FeatureData;
 use super::accumulate::Statistic;
 use crate::error::{AnalysisError, Error, InputError};
 use crate::linalg::Matrix;
+use crate::linalg::sum::Sum;
 use crate::recipe::raw::{ConstantPolicy, ScalingMethod};
 use serde::Serialize;
 
@@ -202,12 +203,14 @@ pub fn standardising_divisor(scale: f64) -> f64 {
 }
 
 /// The count, sum and range of a feature's values: their mean, minimum and
-/// maximum. Summed in row order from [`crate::linalg::SUM_START`], the start
-/// `iter().sum()` takes.
+/// maximum. Summed in row order in two doubles ([`crate::linalg::sum::Sum`]),
+/// so the mean is within one rounding of the exact mean however large the
+/// values' offset (a plain running sum was several units in the last place
+/// off for values near 1e8, and centring moved every value by that much).
 #[derive(Debug, Clone, Copy)]
 pub struct Moments {
     count: usize,
-    sum: f64,
+    sum: Sum,
     low: f64,
     high: f64,
 }
@@ -225,7 +228,7 @@ impl Moments {
     pub fn new() -> Moments {
         Moments {
             count: 0,
-            sum: crate::linalg::SUM_START,
+            sum: Sum::new(),
             low: f64::INFINITY,
             high: f64::NEG_INFINITY,
         }
@@ -244,14 +247,14 @@ impl Statistic for Moments {
     #[inline]
     fn add(&mut self, v: f64) {
         self.count += 1;
-        self.sum += v;
+        self.sum.add(v);
         self.low = self.low.min(v);
         self.high = self.high.max(v);
     }
 
     fn merge(&mut self, other: &Moments) {
         self.count += other.count;
-        self.sum += other.sum;
+        self.sum.merge(&other.sum);
         self.low = self.low.min(other.low);
         self.high = self.high.max(other.high);
     }
@@ -259,7 +262,7 @@ impl Statistic for Moments {
     fn finish(&self) -> MomentsReport {
         MomentsReport {
             count: self.count,
-            mean: self.sum / self.count as f64,
+            mean: self.sum.mean(self.count),
             min: self.low,
             max: self.high,
         }

@@ -111,7 +111,7 @@ pub fn cannot_stream(raw: &RawRecipe) -> Option<String> {
         .components
         .method
         .as_ref()
-        .is_some_and(|m| *m.get_ref() != DecompositionMethod::Exact)
+        .is_some_and(|m| *m.get_ref() == DecompositionMethod::Randomized)
     {
         return Some("components.method = \"randomized\" runs in memory".into());
     }

@@ -19,14 +19,15 @@
 
 use crate::analysis::{Analysis, Prepared, Preprocessed, rows_needing_values};
 use crate::error::Error;
-use crate::linalg::crossprod::{GramAccumulator, row_times};
+use crate::linalg::crossprod::row_times;
 use crate::recipe::plan::MethodPlan;
 use crate::recipe::plan::Transform;
 use crate::recipe::raw::MissingMethod;
 use crate::recipe::raw::{DEFAULT_COMPUTE, Keep};
 use crate::stages::accumulate::{PerFeature, Statistic, by_columns};
 use crate::stages::crossval::cross_validate;
-use crate::stages::decompose::{decompose_keeping, decompose_randomized, from_cross_products};
+use crate::stages::decompose::{RowsSummary, SummaryMatrix, decompose_qr};
+use crate::stages::decompose::{decompose_keeping, decompose_randomized};
 use crate::stages::diagnose::{RowStatistics, residual_moments};
 use crate::stages::missing::{
     FillModel, Filled, MissingReport, ModelSettings, Observed, ObservedReport, fill_by_model,
@@ -594,10 +595,11 @@ pub fn analyse(
     let source = &prepared.table.display;
     let mut evidence = Evidence::default();
     let mut randomized = None;
-    let (mut decomposition, cross_products, squares) = match &pre.scaled.matrix {
+    let (mut decomposition, summary, squares) = match &pre.scaled.matrix {
         Some(z) => {
             let decomposition = match &plan.method {
                 MethodPlan::Exact => decompose_keeping(z, centred, None, want)?,
+                MethodPlan::Qr => decompose_qr(z, centred)?,
                 MethodPlan::Randomized(settings) => {
                     let (d, report) = decompose_randomized(z, centred, want, settings)?;
                     randomized = Some(report);
@@ -611,18 +613,19 @@ pub fn analyse(
         None => {
             // Pass 4.
             crate::progress::current().stage("pass 4 of 6: cross-products");
-            let (gram, squares) = cross_products(features, store, p)?;
+            let accurate = plan.method == MethodPlan::Qr;
+            let (summary, squares) = summarise_rows(features, store, p, accurate)?;
             check_squares(source, &pre.scaling, &squares)?;
-            let decomposition = from_cross_products(&gram, &squares, n, centred, want)?;
+            let decomposition = summary.decompose(&squares, n, centred, want)?;
             decomposition.check_variance(source)?;
-            (decomposition, Some(gram), squares)
+            (decomposition, Some(summary), squares)
         }
     };
     let t = crate::timing::lap("  cross-products and eigendecomposition", t);
     // Loadings beyond those computed, when the rule keeps more: by the same
     // route (the randomized method computes no more than it was asked for).
-    let more = |want: usize| match (&cross_products, &pre.scaled.matrix) {
-        (Some(gram), _) => from_cross_products(gram, &squares, n, centred, want),
+    let more = |want: usize| match (&summary, &pre.scaled.matrix) {
+        (Some(summary), _) => summary.decompose(&squares, n, centred, want),
         (None, Some(z)) => decompose_keeping(z, centred, None, want),
         (None, None) => unreachable!("one of the two routes ran"),
     };
@@ -735,23 +738,26 @@ pub fn analyse(
     })
 }
 
-/// Pass 4: the cross-products ZᵀZ in 1,024-row blocks, and each feature's Σ z².
-fn cross_products(
+/// Pass 4: the summary of the scaled rows the decomposition needs (the
+/// cross-products ZᵀZ in 1,024-row blocks, or R of the QR route when
+/// `accurate`), and each feature's Σ z².
+fn summarise_rows(
     features: &Features,
     store: &Store,
     p: usize,
-) -> Result<(crate::linalg::Matrix, Vec<f64>), Error> {
+    accurate: bool,
+) -> Result<(SummaryMatrix, Vec<f64>), Error> {
     let width = store.width();
-    let mut gram = GramAccumulator::new(p);
+    let mut summary = RowsSummary::new(accurate, p);
     let mut squares = Squares::new(p);
     let (mut z, mut local) = (Vec::new(), Vec::new());
     store.pass(|chunk: &Chunk| -> Result<(), Error> {
         features.rows_of(chunk, width, true, &mut z, &mut local);
         let z = &z;
-        let ((), ()) = rayon::join(|| gram.add_rows(z), || squares.push(z));
+        let ((), ()) = rayon::join(|| summary.add_rows(z), || squares.push(z));
         Ok(())
     })?;
-    Ok((gram.finish(), squares.finish()))
+    Ok((summary.finish(), squares.finish()))
 }
 
 /// The evidence of the rules that refit the model on the whole matrix:

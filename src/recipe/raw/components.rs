@@ -48,6 +48,10 @@ pub enum DecompositionMethod {
     /// of the components computed.
     #[default]
     Exact,
+    /// Every eigenvalue and loading from the singular values of the scaled
+    /// data (a QR in fixed row blocks, then the triangular factor's singular
+    /// values): the smallest eigenvalues keep their digits.
+    Qr,
     /// Only the leading components, from a seeded random sketch of the data
     /// (Halko, Martinsson & Tropp 2011); for wide or large tables.
     Randomized,
@@ -58,6 +62,7 @@ impl DecompositionMethod {
         match self {
             DecompositionMethod::Exact => "exact",
             DecompositionMethod::Randomized => "randomized",
+            DecompositionMethod::Qr => "qr",
         }
     }
 }

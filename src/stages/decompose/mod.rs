@@ -22,7 +22,10 @@ use crate::recipe::raw::RawRandomized;
 pub use randomized::RandomizedReport;
 use serde::Serialize;
 
+pub mod qr;
 pub mod randomized;
+
+pub use qr::{RowsSummary, SummaryMatrix, decompose_qr, from_triangular};
 
 /// Which matrix was decomposed.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -35,6 +38,9 @@ pub enum Route {
     /// The leading components only, from a seeded random sketch of the data
     /// ([`decompose_randomized`]); chosen only when the recipe asks for it.
     Randomized,
+    /// Every component from the singular values of the scaled data
+    /// ([`decompose_qr`]); chosen only when the recipe asks for it.
+    Qr,
 }
 
 /// Eigenvalues and loadings of the scaled data.
@@ -96,6 +102,7 @@ pub fn decompose_keeping(
         Route::Randomized => {
             panic!("the randomized route needs its settings: call decompose_randomized")
         }
+        Route::Qr => return decompose_qr(z, centred),
         Route::Samples => {
             let mut g = gram_of_rows(z);
             g.data.iter_mut().for_each(|v| *v /= divisor);
