@@ -377,7 +377,7 @@ pub fn analyse(prepared: &Prepared, pre: &Preprocessed) -> Result<Analysis, Erro
         &scores,
         &decomposition.eigenvalues,
     );
-    let moments = residual_moments(&decomposition, kept, randomized.as_ref(), z.rows);
+    let moments = residual_moments(&decomposition, kept, randomized.as_ref().map(|r| (r, z)));
     let diagnostics = diagnose_all(diagnostics_for(plan, z.rows, kept, moments), &t2, &spe);
     let joined: Vec<f64> = (0..z.rows)
         .flat_map(|i| scores.row(i).iter().chain(more_scores.row(i)).copied())

@@ -178,17 +178,19 @@ impl Diagnostics {
 
 /// The moments of the residual eigenvalues after `kept` components, which the
 /// SPE limits take, as both engines compute them. After the randomized method
-/// (`randomized`, `rows` analysed) θ₁ and θ₂ come from the exact total and
-/// Σλ², not from the known eigenvalues alone (the plan allows only Box's limit
-/// there).
+/// (`randomized`: its report and the scaled data it decomposed) θ₁ and θ₂ come
+/// from the residual after the kept components, not from the known
+/// eigenvalues alone (the plan allows only Box's limit there).
 pub fn residual_moments(
     decomposition: &crate::stages::decompose::Decomposition,
     kept: usize,
-    randomized: Option<&crate::stages::decompose::randomized::RandomizedReport>,
-    rows: usize,
+    randomized: Option<(
+        &crate::stages::decompose::randomized::RandomizedReport,
+        &Matrix,
+    )>,
 ) -> Result<ResidualMoments, crate::stats::limits::LimitError> {
     match randomized {
-        Some(report) => match report.residual_sums(decomposition, kept, rows) {
+        Some((report, z)) => match report.residual_sums(z, decomposition, kept) {
             Some((theta1, theta2)) => ResidualMoments::from_first_two(theta1, theta2),
             None => Err(crate::stats::limits::LimitError::NoResidualEigenvalues),
         },

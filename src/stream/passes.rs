@@ -513,7 +513,7 @@ pub fn analyse(
     let v_kept = loadings.columns(0, kept).data;
     let v_more = loadings.columns(kept, computed).data;
     let statistics = RowStatistics::new(loadings, kept, &decomposition.eigenvalues);
-    let moments = residual_moments(&decomposition, kept, None, n);
+    let moments = residual_moments(&decomposition, kept, None);
     let mut diagnostics = crate::analysis::diagnostics_for(plan, n, kept, moments);
     let mut results = results_for(prepared, computed, store.spilled());
     let labels = label_texts(prepared);
