@@ -644,7 +644,7 @@ fn text_number(v: &serde_json::Value) -> f64 {
 
 /// Regression: θ₂ after the randomized method was Σλ² − Σ(kept λ²), a
 /// subtraction that lost the tail's digits: on the "small" table (unexplained
-/// share 2e-5) Box's limit came out about 1e-5 relative off, and on the
+/// share 2e-5) Box's limit came out 4e-7 to 5e-7 relative off, and on the
 /// "tiny" one (3e-10) no SPE limit was reported at all ("every component is
 /// kept") although 5 of 16 components were kept. θ₁, θ₂ and the limits must
 /// match the values by hand and scipy's χ² quantile to 1e-10 relative.

@@ -63,7 +63,7 @@ pub struct Diagnostics {
     pub limits: Vec<Limits>,
     pub spe_method: SpeLimit,
     pub moments: Option<ResidualMoments>,
-    /// Why a limit is missing, in plain words.
+    /// Why a limit is missing, or how far to trust it, in plain words.
     pub notes: Vec<String>,
     /// Rows flagged at any level.
     pub flagged: usize,
@@ -279,29 +279,39 @@ fn residual(zj: f64, t: &[f64], loadings: &Matrix, j: usize) -> f64 {
     zj - fitted
 }
 
+/// The note on uncentred data (`scaling.method = "none"`).
+pub const UNCENTRED_NOTE: &str = "the data are not centred (scaling.method = \"none\"): the T² and SPE limits assume centred data, with scores of mean zero and eigenvalues that are variances, so here they are rough guides, not calibrated limits";
+
 /// The limits at each confidence level for `n` rows and `k` kept components,
 /// with nothing counted yet; up to `keep` of the most unusual rows will be
-/// listed.
+/// listed. `centred` says whether the scaling centred the data; without it
+/// the limits are computed but a note says they are not calibrated.
 pub fn limits(
     n: usize,
     k: usize,
     moments: Result<ResidualMoments, crate::stats::limits::LimitError>,
-    confidences: &[f64],
+    (confidences, centred): (&[f64], bool),
     spe_method: SpeLimit,
     keep: usize,
 ) -> Diagnostics {
     let mut notes = Vec::new();
+    if !centred {
+        notes.push(UNCENTRED_NOTE.to_string());
+    }
     let moments = match moments {
         Ok(m) => Some(m),
         Err(e) => {
-            notes.push(format!("no SPE limit: {e}"));
+            notes.push(format!(
+                "no SPE limit: {e}; the SPE_above columns of scores.csv are left empty"
+            ));
             None
         }
     };
     let mut limits = Vec::new();
     for &c in confidences {
         let mut note = |what: &str, e: crate::stats::limits::LimitError| {
-            let line = format!("no {what} limit at {}: {e}", c);
+            let line =
+                format!("no {what} limit at {c}: {e}; its columns in scores.csv are left empty");
             if !notes.contains(&line) {
                 notes.push(line);
             }

@@ -20,8 +20,8 @@
 //! Stopping: after each fit, the change ‖F(x) − x‖₂ / ‖F(x)‖₂ over the filled
 //! cells is compared with the tolerance (default 1e-12), and the steps are
 //! accelerated by a fixed-order squared extrapolation ([`squarem`]), so the
-//! default fill lies within about 1e-12 relative of the fixed point in a
-//! couple of dozen fits on the test tables (tests/imputation.rs).
+//! default fill lies within about 1e-12 relative of the fixed point in 16 to
+//! 24 fits on the test tables (tests/imputation.rs).
 //!
 //! **Nearest neighbours.** Each feature is standardised by its observed mean and
 //! standard deviation. For a row with a missing cell, the distance to another
@@ -48,7 +48,7 @@ pub struct IterativeReport {
     pub max_iterations: usize,
     /// Fits of the S-component model (each one decomposition), all counted.
     pub iterations: usize,
-    /// Extrapolated steps that were kept ([`squarem`]).
+    /// Extrapolated steps taken ([`squarem`]).
     pub extrapolations: usize,
     /// ‖F(x) − x‖₂ / ‖F(x)‖₂ over the filled cells at the last fit.
     pub final_change: f64,
@@ -202,13 +202,13 @@ fn change(old: &[f64], new: &[f64]) -> f64 {
 /// Varadhan & Roland (2008), "Simple and globally convergent methods for
 /// accelerating the convergence of any EM algorithm", Scandinavian Journal of
 /// Statistics 35:335–353 (scheme S3). From x₀, two plain steps give
-/// x₁ = F(x₀), x₂ = F(x₁); with r = x₁ − x₀, v = x₂ − 2x₁ + x₀ and
-/// α = −‖r‖/‖v‖ (at most −1), x′ = x₀ − 2αr + α²v, and the cycle ends with the
-/// plain step F(x′). When that step moves the cells further than r did, the
-/// extrapolation overshot and the cycle continues from x₂ instead. α = −1 is
-/// two plain steps, so the scheme is never slower than plain iteration by more
-/// than one fit per cycle; every sum runs in cell order, so the result does
-/// not depend on threads.
+/// x₁ = F(x₀), x₂ = F(x₁); with r = x₁ − x₀, v = x₂ − 2x₁ + x₀ and the step
+/// length α = −‖r‖/‖v‖, x′ = x₀ − 2αr + α²v, and the cycle ends with the plain
+/// step x₀ ← F(x′). α is kept between −1 (which makes x′ = x₂, plain steps)
+/// and −[`STEP_CAP_START`]·4ᵐ, the cap growing fourfold each time it binds, so
+/// a slow fill earns long steps only after shorter ones worked; an
+/// extrapolation that is not finite falls back to x₂. Every sum runs in cell
+/// order, so the result does not depend on threads.
 ///
 /// After every fit, the change ‖F(x) − x‖₂ / ‖F(x)‖₂ is compared with the
 /// tolerance; the fill stops at the first fit below it (`converged`), or after
@@ -227,6 +227,7 @@ fn squarem(
         let done = report.converged || report.iterations >= report.max_iterations;
         Ok::<_, AnalysisError>((next, done))
     };
+    let mut cap = STEP_CAP_START;
     loop {
         let (x1, done) = step(fill, &x0, report)?;
         if done {
@@ -239,23 +240,30 @@ fn squarem(
         let r: Vec<f64> = x1.iter().zip(&x0).map(|(a, b)| a - b).collect();
         let v: Vec<f64> = (0..x0.len()).map(|c| x2[c] - x1[c] - r[c]).collect();
         let (nr, nv) = (norm(&r), norm(&v));
-        let alpha = if nv > 0.0 { (-nr / nv).min(-1.0) } else { -1.0 };
+        let mut alpha = if nv > 0.0 { (-nr / nv).min(-1.0) } else { -1.0 };
+        if alpha <= -cap {
+            alpha = -cap;
+            cap *= 4.0;
+        }
         let jump: Vec<f64> = (0..x0.len())
             .map(|c| x0[c] - 2.0 * alpha * r[c] + alpha * alpha * v[c])
             .collect();
-        let (x3, done) = step(fill, &jump, report)?;
+        let start = if jump.iter().all(|v| v.is_finite()) {
+            report.extrapolations += 1;
+            jump
+        } else {
+            x2
+        };
+        let (x3, done) = step(fill, &start, report)?;
         if done {
             return Ok(x3);
         }
-        let moved: Vec<f64> = x3.iter().zip(&jump).map(|(a, b)| a - b).collect();
-        x0 = if norm(&moved) > nr {
-            x2
-        } else {
-            report.extrapolations += 1;
-            x3
-        };
+        x0 = x3;
     }
 }
+
+/// The first cap on the extrapolation's step length |α| ([`squarem`]).
+const STEP_CAP_START: f64 = 1.0;
 
 /// The factor each kept singular value is multiplied by in the regularized
 /// fit, from the eigenvalues λ (divisor n − 1) of the completed, scaled table.
