@@ -509,6 +509,18 @@ pub fn fill_row_from_reference(row: &mut [f64], reference: &[Vec<f64>], k: usize
 mod tests {
     use super::*;
 
+    /// By hand: n = 10, p = 3, S = 1, λ = 4, 1, 0.5 (divisor n − 1). The
+    /// residual sum of squares is 9 · 1.5 = 13.5 over np − p − nS − pS + S² + S
+    /// = 16 degrees of freedom, σ̂² = 0.84375, and the kept term is shrunk by
+    /// 1 − σ̂²/λ₁ = 0.7890625 (all exact in binary).
+    #[test]
+    fn the_shrinkage_is_one_less_the_noise_over_the_eigenvalue() {
+        assert_eq!(degrees_of_freedom(10, 3, 1), 16.0);
+        assert_eq!(shrinkage(&[4.0, 1.0, 0.5], 10, 3, 1), vec![0.7890625]);
+        // Noise above an eigenvalue shrinks its term to nothing, never below.
+        assert_eq!(shrinkage(&[1.0, 1.0, 1.0], 4, 3, 1), vec![0.0]);
+    }
+
     #[test]
     fn knn_takes_the_nearest_rows_and_breaks_ties_by_row() {
         let nan = f64::NAN;
