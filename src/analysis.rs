@@ -235,7 +235,7 @@ pub fn diagnostics_for(
         n,
         kept,
         moments,
-        &plan.diagnostics.confidence.0,
+        (&plan.diagnostics.confidence.0, plan.scaling.centers()),
         plan.diagnostics.spe_limit,
         unusual_kept(plan),
     )

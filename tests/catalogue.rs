@@ -465,7 +465,7 @@ const CASES: &[Case] = &[
             "[missing]\nmethod = \"iterative-pca\"\n\n[missing.iterative_pca]\ntolerance = \"small\"",
         ),
         at: "recipe.toml:15:13:",
-        says: &["a small positive number such as 1e-9"],
+        says: &["a small positive number such as 1e-12"],
         ..BAD
     },
     Case {

@@ -803,7 +803,8 @@ fn fill_sentence_names_each_method_with_its_settings() {
         "[missing]\nmethod = \"iterative-pca\"\n[missing.iterative_pca]\ncomponents = 2",
     );
     assert!(
-        ipca.starts_with("6 missing cells were filled by iterative PCA with 2 components;"),
+        ipca.starts_with("6 missing cells were filled by iterative PCA with 2 components (")
+            && ipca.contains(" refits of the model; converged at a change of "),
         "{ipca}"
     );
     let mean = fill_sentence("[missing]\nmethod = \"mean\"");

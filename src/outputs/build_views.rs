@@ -180,14 +180,38 @@ pub fn summary(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> 
         s.reason
     ));
     for limit in &analysis.diagnostics.limits {
-        out.push(format!(
-            "At {} % confidence, {} row(s) are above the T² limit and {} above the SPE limit.",
-            super::tables::level_label(limit.confidence),
-            limit.t2_flagged,
-            limit.spe_flagged
-        ));
+        out.push(limit_sentence(limit));
     }
+    // Why a limit is missing, or how far to trust one.
+    out.extend(analysis.diagnostics.notes.iter().map(|n| {
+        let mut note = n.clone();
+        if let Some(first) = note.get(..1) {
+            note.replace_range(..1, &first.to_uppercase());
+        }
+        format!("{note}.")
+    }));
     out
+}
+
+/// How many rows are above the limits at one level; a limit that does not
+/// exist for the data is said to be missing, not counted as flagging nobody.
+fn limit_sentence(limit: &crate::stages::diagnose::Limits) -> String {
+    let level = super::tables::level_label(limit.confidence);
+    match (limit.t2, limit.spe) {
+        (Some(_), Some(_)) => format!(
+            "At {level} % confidence, {} row(s) are above the T² limit and {} above the SPE limit.",
+            limit.t2_flagged, limit.spe_flagged
+        ),
+        (Some(_), None) => format!(
+            "At {level} % confidence, {} row(s) are above the T² limit; there is no SPE limit.",
+            limit.t2_flagged
+        ),
+        (None, Some(_)) => format!(
+            "At {level} % confidence, there is no T² limit; {} row(s) are above the SPE limit.",
+            limit.spe_flagged
+        ),
+        (None, None) => format!("At {level} % confidence, there is no T² or SPE limit."),
+    }
 }
 
 /// What the missing stage did, in one sentence; a complete table says so.
@@ -204,9 +228,14 @@ fn missing_sentence(m: &crate::stages::missing::MissingReport) -> String {
         MissingMethod::Median => "with their feature's median".to_string(),
         MissingMethod::IterativePca => match &m.iterative_pca {
             Some(r) => format!(
-                "by iterative PCA with {} component{}",
+                "by iterative PCA with {} component{} ({} refit{} of the model; {} a change of {} against the tolerance {})",
                 r.components,
-                if r.components == 1 { "" } else { "s" }
+                if r.components == 1 { "" } else { "s" },
+                r.iterations,
+                if r.iterations == 1 { "" } else { "s" },
+                if r.converged { "converged at" } else { "NOT converged, stopped at" },
+                crate::text::number(r.final_change),
+                crate::text::number(r.tolerance)
             ),
             None => "by iterative PCA".to_string(),
         },

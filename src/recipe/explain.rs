@@ -109,9 +109,9 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         MissingMethod::IterativePca => {
             let it = &m.iterative();
             format!(
-                "Then fill the remaining missing cells by {} iterative PCA with {} component(s) (Josse & Husson 2012), starting from the feature {}s, until the filled cells change by less than {:e} (relative), at most {} iterations{}.",
+                "Then fill the remaining missing cells by {} iterative PCA with {} component(s) (Josse & Husson 2012), starting from the feature {}s: refit the model to the completed table and refill the cells, with a fixed-order squared extrapolation of the steps (Varadhan & Roland 2008), until one refit changes the filled cells by less than {:e} of their size (‖new − old‖ / ‖new‖ over the filled cells), at most {} refits{}.",
                 match it.variant {
-                    super::raw::IterativeVariant::Regularized => "regularized",
+                    super::raw::IterativeVariant::Regularized => "regularized (each kept component shrunk by 1 − σ̂²/λ, σ̂² the residual sum of squares over np − p − nS − pS + S² + S, λ with divisor n − 1)",
                     super::raw::IterativeVariant::Em => "plain EM",
                 },
                 super::plan::imputation_components(recipe),
@@ -125,7 +125,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
             )
         }
         MissingMethod::Knn => format!(
-            "Then fill each remaining missing cell with the mean of the {} nearest rows that observe it (distance over the standardised features both rows observe).",
+            "Then fill each remaining missing cell with the mean of the {} nearest rows that observe it; the distance between two rows is the root of the mean squared difference over the standardised features both observe (the mean, not the sum, so that rows sharing fewer observed features do not look nearer only for having fewer terms); ties go to the lower row.",
             m.knn().neighbours.0
         ),
     });
@@ -170,8 +170,8 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         None => format!("Keep {DEFAULT_KEEP} components (the default, as no rule is set); more than the data's rank stops the run."),
         Some(Keep::Count(k)) => format!("Keep {k} component(s); more than the data's rank stops the run."),
         Some(Keep::Variance(v)) => format!("Keep the fewest components whose cumulative share of the variance reaches {}.", percent_short(v.0)),
-        Some(Keep::Kaiser) => "Keep the components whose eigenvalue exceeds the mean eigenvalue (Kaiser's rule; the mean is 1 for a correlation matrix).".into(),
-        Some(Keep::BrokenStick) => "Keep the leading components that each explain more than the broken-stick expectation.".into(),
+        Some(Keep::Kaiser) => "Keep the components whose eigenvalue exceeds the mean eigenvalue (Kaiser's rule; the mean is the total variance over all p features, 1 for a correlation matrix, even when the data's rank is below p).".into(),
+        Some(Keep::BrokenStick) => "Keep the leading components that each explain more than the broken-stick expectation for a stick broken into p pieces, p the number of features, even when the data's rank is below p.".into(),
         Some(Keep::ParallelAnalysis) => {
             let pa = &c.parallel();
             format!(
@@ -209,7 +209,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         .map(|c| percent_short(*c))
         .collect();
     s.push(format!(
-        "For every row compute Hotelling's T² over the kept components and the squared prediction error (SPE) after them, and flag rows above their limits at {} confidence (T² by the Beta form for the analysed rows; SPE by the {} approximation); list each flagged row's feature contributions.",
+        "For every row compute Hotelling's T² over the kept components and the squared prediction error (SPE) after them, and flag rows above their limits at {} confidence (T² by the Beta form for the analysed rows; SPE by the {} approximation; where a limit does not exist for the data, its flag columns in scores.csv are left empty and the manifest and report say why); list each flagged row's feature contributions: signed per-feature terms of T², Σₐ (tₐ/λₐ) pⱼₐ zⱼ summed over the kept components, and squared residuals eⱼ² for SPE, each summing to the row's value (Westerhuis, Gurden & Smilde 2000).",
         join_words(&levels),
         match raw.diagnostics.spe_limit {
             super::raw::SpeLimit::JacksonMudholkar => "Jackson–Mudholkar",

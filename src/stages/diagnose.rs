@@ -63,7 +63,7 @@ pub struct Diagnostics {
     pub limits: Vec<Limits>,
     pub spe_method: SpeLimit,
     pub moments: Option<ResidualMoments>,
-    /// Why a limit is missing, in plain words.
+    /// Why a limit is missing, or how far to trust it, in plain words.
     pub notes: Vec<String>,
     /// Rows flagged at any level.
     pub flagged: usize,
@@ -178,17 +178,19 @@ impl Diagnostics {
 
 /// The moments of the residual eigenvalues after `kept` components, which the
 /// SPE limits take, as both engines compute them. After the randomized method
-/// (`randomized`, `rows` analysed) θ₁ and θ₂ come from the exact total and
-/// Σλ², not from the known eigenvalues alone (the plan allows only Box's limit
-/// there).
+/// (`randomized`: its report and the scaled data it decomposed) θ₁ and θ₂ come
+/// from the residual after the kept components, not from the known
+/// eigenvalues alone (the plan allows only Box's limit there).
 pub fn residual_moments(
     decomposition: &crate::stages::decompose::Decomposition,
     kept: usize,
-    randomized: Option<&crate::stages::decompose::randomized::RandomizedReport>,
-    rows: usize,
+    randomized: Option<(
+        &crate::stages::decompose::randomized::RandomizedReport,
+        &Matrix,
+    )>,
 ) -> Result<ResidualMoments, crate::stats::limits::LimitError> {
     match randomized {
-        Some(report) => match report.residual_sums(decomposition, kept, rows) {
+        Some((report, z)) => match report.residual_sums(z, decomposition, kept) {
             Some((theta1, theta2)) => ResidualMoments::from_first_two(theta1, theta2),
             None => Err(crate::stats::limits::LimitError::NoResidualEigenvalues),
         },
@@ -277,29 +279,39 @@ fn residual(zj: f64, t: &[f64], loadings: &Matrix, j: usize) -> f64 {
     zj - fitted
 }
 
+/// The note on uncentred data (`scaling.method = "none"`).
+pub const UNCENTRED_NOTE: &str = "the data are not centred (scaling.method = \"none\"): the T² and SPE limits assume centred data, with scores of mean zero and eigenvalues that are variances, so here they are rough guides, not calibrated limits";
+
 /// The limits at each confidence level for `n` rows and `k` kept components,
 /// with nothing counted yet; up to `keep` of the most unusual rows will be
-/// listed.
+/// listed. `centred` says whether the scaling centred the data; without it
+/// the limits are computed but a note says they are not calibrated.
 pub fn limits(
     n: usize,
     k: usize,
     moments: Result<ResidualMoments, crate::stats::limits::LimitError>,
-    confidences: &[f64],
+    (confidences, centred): (&[f64], bool),
     spe_method: SpeLimit,
     keep: usize,
 ) -> Diagnostics {
     let mut notes = Vec::new();
+    if !centred {
+        notes.push(UNCENTRED_NOTE.to_string());
+    }
     let moments = match moments {
         Ok(m) => Some(m),
         Err(e) => {
-            notes.push(format!("no SPE limit: {e}"));
+            notes.push(format!(
+                "no SPE limit: {e}; the SPE_above columns of scores.csv are left empty"
+            ));
             None
         }
     };
     let mut limits = Vec::new();
     for &c in confidences {
         let mut note = |what: &str, e: crate::stats::limits::LimitError| {
-            let line = format!("no {what} limit at {}: {e}", c);
+            let line =
+                format!("no {what} limit at {c}: {e}; its columns in scores.csv are left empty");
             if !notes.contains(&line) {
                 notes.push(line);
             }

@@ -6,23 +6,30 @@
 //! **Iterative PCA** (Josse & Husson 2012, "Handling missing values in exploratory
 //! multivariate data analysis methods", Journal de la Société Française de
 //! Statistique 153(2):79–99). Start from each feature's mean (or median); then
-//! repeat: centre and scale the completed table by the recipe's scaling rule,
-//! fit S components, and replace the missing cells by the fitted values, until
-//! the relative change of the filled cells, Σ(new − old)² / Σ old², falls below
-//! the tolerance. The fit uses the decomposition Z = Σₛ dₛ uₛ vₛᵀ:
+//! repeat the step F: centre and scale the completed table by the recipe's
+//! scaling rule, fit S components, and replace the missing cells by the fitted
+//! values. The fill is the fixed point x = F(x). The fit uses the
+//! decomposition Z = Σₛ dₛ uₛ vₛᵀ:
 //! - the plain EM variant keeps the first S terms as they are;
-//! - the regularized variant (the paper's default) shrinks each kept singular
-//!   value, dₛ → dₛ (1 − n σ̂² / dₛ²), where
-//!   σ̂² = Σ_{s>S} dₛ² / (np − p − nS − pS + S² + S) estimates the noise variance
-//!   per cell with the degrees of freedom of the paper. Shrinking keeps noise
-//!   out of the filled values, which the EM fit overfits when S is large or many
-//!   cells are missing.
+//! - the regularized variant (the paper's default) shrinks each kept term by
+//!   1 − σ̂²/λₛ, with σ̂² the noise variance per cell over the paper's residual
+//!   degrees of freedom and λₛ on the n − 1 scale ([`shrinkage`]). Shrinking
+//!   keeps noise out of the filled values, which the EM fit overfits when S is
+//!   large or many cells are missing.
+//!
+//! Stopping: after each fit, the change ‖F(x) − x‖₂ / ‖F(x)‖₂ over the filled
+//! cells is compared with the tolerance (default 1e-12), and the steps are
+//! accelerated by a fixed-order squared extrapolation ([`squarem`]), so the
+//! default fill lies within about 1e-12 relative of the fixed point in 16 to
+//! 24 fits on the test tables (tests/imputation.rs).
 //!
 //! **Nearest neighbours.** Each feature is standardised by its observed mean and
 //! standard deviation. For a row with a missing cell, the distance to another
-//! row with that feature observed is the root mean square difference over the
-//! features both rows observe; the k nearest (ties to the lower row number) give
-//! the mean of their values for the cell.
+//! row with that feature observed is the root of the *mean* squared difference
+//! over the features both rows observe (a sum would make rows that share more
+//! observed features look farther apart only because more terms were added);
+//! the k nearest (ties to the lower row number) give the mean of their values
+//! for the cell.
 
 use crate::error::AnalysisError;
 use crate::linalg::Matrix;
@@ -39,7 +46,11 @@ pub struct IterativeReport {
     pub start: StartValue,
     pub tolerance: f64,
     pub max_iterations: usize,
+    /// Fits of the S-component model (each one decomposition), all counted.
     pub iterations: usize,
+    /// Extrapolated steps taken ([`squarem`]).
+    pub extrapolations: usize,
+    /// ‖F(x) − x‖₂ / ‖F(x)‖₂ over the filled cells at the last fit.
     pub final_change: f64,
     pub converged: bool,
 }
@@ -87,9 +98,7 @@ pub fn iterative_pca(
     let p = columns.len();
     let n = columns.first().map_or(0, Vec::len);
     let s = components;
-    let dof =
-        (n * p) as f64 - p as f64 - (n * s) as f64 - (p * s) as f64 + (s * s) as f64 + s as f64;
-    if s == 0 || s >= p.min(n.saturating_sub(1)) || dof <= 0.0 {
+    if s == 0 || s >= p.min(n.saturating_sub(1)) || degrees_of_freedom(n, p, s) <= 0.0 {
         let rows_less_one = n.saturating_sub(1);
         return Err(AnalysisError::ImputationComponents {
             components: s,
@@ -112,35 +121,171 @@ pub fn iterative_pca(
         tolerance: settings.tolerance.0,
         max_iterations: settings.max_iterations.0.get(),
         iterations: 0,
+        extrapolations: 0,
         final_change: 0.0,
         converged: missing.is_empty(),
+    };
+    let mut fill = Fill {
+        columns,
+        missing: &missing,
+        s,
+        scaling,
+        variant: settings.variant,
+        model: ImputationModel::default(),
     };
     if missing.is_empty() {
         // Nothing to fill, but new rows scored by `apply` may have missing
         // cells: the complete table's model is fitted once for them.
-        let (_, model) = fit(columns, s, scaling, settings.variant)?;
-        return Ok((report, model));
+        fill.map(&[])?;
+        return Ok((report, fill.model));
     }
-    let mut model = ImputationModel::default();
-    while report.iterations < report.max_iterations {
+    let start: Vec<f64> = missing.iter().map(|&(i, j)| fill.columns[j][i]).collect();
+    let last = squarem(&mut fill, start, &mut report)?;
+    fill.set(&last);
+    Ok((report, fill.model))
+}
+
+/// The paper's residual degrees of freedom, np − p − nS − pS + S² + S
+/// (Josse & Husson 2012, §2.2): n·p cells less p means less the
+/// nS + pS − S² − S free parameters of a rank-S fit.
+fn degrees_of_freedom(n: usize, p: usize, s: usize) -> f64 {
+    (n * p) as f64 - p as f64 - (n * s) as f64 - (p * s) as f64 + (s * s) as f64 + s as f64
+}
+
+/// One step of the fill, x ↦ F(x): the missing cells set to `x`, the
+/// S-component fit of the completed table read back at those cells. Its fixed
+/// point is the iterative-PCA fill.
+struct Fill<'a> {
+    columns: &'a mut [Vec<f64>],
+    missing: &'a [(usize, usize)],
+    s: usize,
+    scaling: ScalingMethod,
+    variant: IterativeVariant,
+    /// The model of the latest fit.
+    model: ImputationModel,
+}
+
+impl Fill<'_> {
+    fn set(&mut self, x: &[f64]) {
+        for (&(i, j), &v) in self.missing.iter().zip(x) {
+            self.columns[j][i] = v;
+        }
+    }
+
+    fn map(&mut self, x: &[f64]) -> Result<Vec<f64>, AnalysisError> {
+        self.set(x);
+        let (fitted, model) = fit(self.columns, self.s, self.scaling, self.variant)?;
+        self.model = model;
+        Ok(self.missing.iter().map(|&(i, j)| fitted[j][i]).collect())
+    }
+}
+
+/// ‖x‖₂, summed in cell order.
+fn norm(x: &[f64]) -> f64 {
+    x.iter()
+        .fold(crate::linalg::SUM_START, |sum, v| sum + v * v)
+        .sqrt()
+}
+
+/// ‖new − old‖₂ / ‖new‖₂ (the difference alone when the new values are all 0).
+fn change(old: &[f64], new: &[f64]) -> f64 {
+    let diff: Vec<f64> = new.iter().zip(old).map(|(a, b)| a - b).collect();
+    let size = norm(new);
+    if size > 0.0 {
+        norm(&diff) / size
+    } else {
+        norm(&diff)
+    }
+}
+
+/// Iterates the fill to its fixed point with the squared extrapolation of
+/// Varadhan & Roland (2008), "Simple and globally convergent methods for
+/// accelerating the convergence of any EM algorithm", Scandinavian Journal of
+/// Statistics 35:335–353 (scheme S3). From x₀, two plain steps give
+/// x₁ = F(x₀), x₂ = F(x₁); with r = x₁ − x₀, v = x₂ − 2x₁ + x₀ and the step
+/// length α = −‖r‖/‖v‖, x′ = x₀ − 2αr + α²v, and the cycle ends with the plain
+/// step x₀ ← F(x′). α is kept between −1 (which makes x′ = x₂, plain steps)
+/// and −[`STEP_CAP_START`]·4ᵐ, the cap growing fourfold each time it binds, so
+/// a slow fill earns long steps only after shorter ones worked; an
+/// extrapolation that is not finite falls back to x₂. Every sum runs in cell
+/// order, so the result does not depend on threads.
+///
+/// After every fit, the change ‖F(x) − x‖₂ / ‖F(x)‖₂ is compared with the
+/// tolerance; the fill stops at the first fit below it (`converged`), or after
+/// `max_iterations` fits. Returns the last fitted values.
+fn squarem(
+    fill: &mut Fill,
+    mut x0: Vec<f64>,
+    report: &mut IterativeReport,
+) -> Result<Vec<f64>, AnalysisError> {
+    // One fit: counted, and checked against the tolerance.
+    let step = |fill: &mut Fill, x: &[f64], report: &mut IterativeReport| {
+        let next = fill.map(x)?;
         report.iterations += 1;
-        let (fitted, last) = fit(columns, s, scaling, settings.variant)?;
-        model = last;
-        let (mut change, mut size) = (0.0, 0.0);
-        for &(i, j) in &missing {
-            let old = columns[j][i];
-            let new = fitted[j][i];
-            change += (new - old) * (new - old);
-            size += old * old;
-            columns[j][i] = new;
+        report.final_change = change(x, &next);
+        report.converged = report.final_change < report.tolerance;
+        let done = report.converged || report.iterations >= report.max_iterations;
+        Ok::<_, AnalysisError>((next, done))
+    };
+    let mut cap = STEP_CAP_START;
+    loop {
+        let (x1, done) = step(fill, &x0, report)?;
+        if done {
+            return Ok(x1);
         }
-        report.final_change = if size > 0.0 { change / size } else { change };
-        if report.final_change < report.tolerance {
-            report.converged = true;
-            break;
+        let (x2, done) = step(fill, &x1, report)?;
+        if done {
+            return Ok(x2);
         }
+        let r: Vec<f64> = x1.iter().zip(&x0).map(|(a, b)| a - b).collect();
+        let v: Vec<f64> = (0..x0.len()).map(|c| x2[c] - x1[c] - r[c]).collect();
+        let (nr, nv) = (norm(&r), norm(&v));
+        let mut alpha = if nv > 0.0 { (-nr / nv).min(-1.0) } else { -1.0 };
+        if alpha <= -cap {
+            alpha = -cap;
+            cap *= 4.0;
+        }
+        let jump: Vec<f64> = (0..x0.len())
+            .map(|c| x0[c] - 2.0 * alpha * r[c] + alpha * alpha * v[c])
+            .collect();
+        let start = if jump.iter().all(|v| v.is_finite()) {
+            report.extrapolations += 1;
+            jump
+        } else {
+            x2
+        };
+        let (x3, done) = step(fill, &start, report)?;
+        if done {
+            return Ok(x3);
+        }
+        x0 = x3;
     }
-    Ok((report, model))
+}
+
+/// The first cap on the extrapolation's step length |α| ([`squarem`]).
+const STEP_CAP_START: f64 = 1.0;
+
+/// The factor each kept singular value is multiplied by in the regularized
+/// fit, from the eigenvalues λ (divisor n − 1) of the completed, scaled table.
+///
+/// Josse & Husson (2012), §2.2, fit the missing cells with
+/// x̂ᵢⱼ = Σₛ (√λₛ − σ̂²/√λₛ) uᵢₛ vⱼₛ, i.e. each kept term shrunk by
+/// (1 − σ̂²/λₛ), with the noise variance per cell
+/// σ̂² = ‖X − X̂_S‖² / (np − p − nS − pS + S² + S), the residual sum of squares
+/// over the residual degrees of freedom. Here ‖X − X̂_S‖² = Σ_{s>S} dₛ²
+/// = (n − 1) Σ_{s>S} λₛ, and λₛ is on sextant's n − 1 scale (the eigenvalue
+/// reported everywhere else), so the factor is
+/// 1 − σ̂²/λₛ = 1 − (n − 1) σ̂² / dₛ², floored at 0.
+fn shrinkage(eigenvalues: &[f64], n: usize, p: usize, s: usize) -> Vec<f64> {
+    let rows_less_one = (n - 1) as f64;
+    let residual = eigenvalues[s..]
+        .iter()
+        .fold(crate::linalg::SUM_START, |sum, l| sum + l * rows_less_one);
+    let sigma2 = residual / degrees_of_freedom(n, p, s);
+    eigenvalues[..s]
+        .iter()
+        .map(|&l| (1.0 - sigma2 / l).max(0.0))
+        .collect()
 }
 
 /// The S-component fit of the completed columns, back in the columns' units.
@@ -160,20 +305,9 @@ fn fit(
     let z = Matrix::from_columns(&scaled);
     let d = decompose_keeping(&z, scaling.centers(), None, s)?;
     let s = s.min(d.rank);
-    // dₛ² = (n − 1) λₛ for the eigenvalues λ (divisor n − 1).
-    let sq: Vec<f64> = d.eigenvalues.iter().map(|l| l * (n - 1) as f64).collect();
     let factors: Vec<f64> = match variant {
         IterativeVariant::Em => vec![1.0; s],
-        IterativeVariant::Regularized => {
-            let dof = (n * p) as f64 - p as f64 - (n * s) as f64 - (p * s) as f64
-                + (s * s) as f64
-                + s as f64;
-            let sigma2 = sq[s..].iter().sum::<f64>() / dof;
-            sq[..s]
-                .iter()
-                .map(|&d2| (1.0 - n as f64 * sigma2 / d2).max(0.0))
-                .collect()
-        }
+        IterativeVariant::Regularized => shrinkage(&d.eigenvalues, n, p, s),
     };
     let scores = crate::stages::decompose::scores(&z, &d.loadings, s);
     let model = ImputationModel {
@@ -374,6 +508,18 @@ pub fn fill_row_from_reference(row: &mut [f64], reference: &[Vec<f64>], k: usize
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// By hand: n = 10, p = 3, S = 1, λ = 4, 1, 0.5 (divisor n − 1). The
+    /// residual sum of squares is 9 · 1.5 = 13.5 over np − p − nS − pS + S² + S
+    /// = 16 degrees of freedom, σ̂² = 0.84375, and the kept term is shrunk by
+    /// 1 − σ̂²/λ₁ = 0.7890625 (all exact in binary).
+    #[test]
+    fn the_shrinkage_is_one_less_the_noise_over_the_eigenvalue() {
+        assert_eq!(degrees_of_freedom(10, 3, 1), 16.0);
+        assert_eq!(shrinkage(&[4.0, 1.0, 0.5], 10, 3, 1), vec![0.7890625]);
+        // Noise above an eigenvalue shrinks its term to nothing, never below.
+        assert_eq!(shrinkage(&[1.0, 1.0, 1.0], 4, 3, 1), vec![0.0]);
+    }
 
     #[test]
     fn knn_takes_the_nearest_rows_and_breaks_ties_by_row() {

@@ -98,7 +98,11 @@ pub fn select(
 }
 
 /// [`select`] when only the leading `eigenvalues` of `p` are known (the
-/// randomized method): the broken stick and the mean eigenvalue still use p.
+/// randomized method). The broken stick and Kaiser's mean eigenvalue always
+/// use p, the number of features, even when the rank is lower (a constant
+/// combination of features, or fewer rows than features): the rules compare
+/// each component with a share of all p dimensions, as their authors state
+/// them, and the README and `explain` say so.
 pub fn select_among(
     eigenvalues: &[f64],
     p: usize,

@@ -646,7 +646,11 @@ pub fn analyse(
     let v_kept = loadings.columns(0, kept).data;
     let v_more = loadings.columns(kept, computed).data;
     let statistics = RowStatistics::new(loadings, kept, &decomposition.eigenvalues);
-    let moments = residual_moments(&decomposition, kept, randomized.as_ref(), n);
+    let moments = residual_moments(
+        &decomposition,
+        kept,
+        randomized.as_ref().zip(pre.scaled.matrix.as_ref()),
+    );
     let mut diagnostics = crate::analysis::diagnostics_for(plan, n, kept, moments);
     let mut results = results_for(prepared, computed, store.spilled());
     let labels = label_texts(prepared);

@@ -4,8 +4,8 @@
 //! whole in memory. The tests hold each to the serial writer it replaced.
 
 use super::{
-    CsvOut, Scratch, TableSink, component_names, header_and_rows_into, header_into, level_label,
-    rows_into, yes_no_str,
+    CsvOut, Scratch, TableSink, above_text, component_names, header_and_rows_into, header_into,
+    level_label, rows_into,
 };
 use crate::analysis::RowDetail;
 use crate::row_results::{FilledCells, RowResults};
@@ -91,10 +91,9 @@ pub fn scores_csv_into(
             let (t2, spe) = (b.t2(i), b.spe(i));
             scratch.number(out, t2);
             scratch.number(out, spe);
-            for level in 0..diagnostics.limits.len() {
-                let (a, b) = diagnostics.flags(t2, spe, level);
-                out.field(yes_no_str(a));
-                out.field(yes_no_str(b));
+            for l in &diagnostics.limits {
+                out.field(above_text(l.t2, t2));
+                out.field(above_text(l.spe, spe));
             }
         };
         rows_into(b.len(), write_row, sink);
@@ -191,7 +190,7 @@ pub fn contributions_csv_into(
 
 #[cfg(test)]
 mod tests {
-    use super::super::{BLOCK_ROWS, yes_no};
+    use super::super::BLOCK_ROWS;
     use super::*;
     use crate::linalg::Matrix;
     use crate::recipe::raw::SpeLimit;
@@ -220,9 +219,9 @@ mod tests {
             let mut fields = label_fields(labels, row);
             fields.extend(scores.row(i).iter().map(|&v| number(v)));
             fields.extend([number(t2[i]), number(spe[i])]);
-            for level in 0..diagnostics.limits.len() {
-                let (t2, spe) = diagnostics.flags(t2[i], spe[i], level);
-                fields.extend([yes_no(t2), yes_no(spe)]);
+            for l in &diagnostics.limits {
+                fields
+                    .extend([above_text(l.t2, t2[i]), above_text(l.spe, spe[i])].map(String::from));
             }
             out.row(&fields);
         }

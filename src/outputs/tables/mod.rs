@@ -176,6 +176,14 @@ fn yes_no_str(flag: bool) -> &'static str {
     if flag { "yes" } else { "no" }
 }
 
+/// Whether `value` is above `limit`, for scores.csv: empty when the limit is
+/// not defined for this data (for example Jackson–Mudholkar with h₀ ≤ 0),
+/// since "no" would claim the row was checked and passed; the manifest's and
+/// the report's notes say why the limit is missing.
+fn above_text(limit: Option<f64>, value: f64) -> &'static str {
+    limit.map_or("", |u| yes_no_str(value > u))
+}
+
 /// loadings.csv: one line per feature, one column per computed component.
 pub fn loadings_csv(names: &[String], d: &Decomposition, computed: usize) -> Vec<u8> {
     let mut out = CsvOut::new();

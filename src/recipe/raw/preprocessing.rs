@@ -91,7 +91,7 @@ pub struct RawIterative {
     pub components: Option<Count>,
     #[serde(default)]
     pub variant: IterativeVariant,
-    /// Stop when the relative change of the filled cells falls below this.
+    /// Stop when ‖F(x) − x‖₂ / ‖F(x)‖₂ over the filled cells falls below this.
     #[serde(default = "default_tolerance")]
     pub tolerance: Tolerance,
     #[serde(default = "default_max_iterations")]
@@ -119,7 +119,7 @@ impl Default for RawIterative {
 }
 
 fn default_tolerance() -> Tolerance {
-    Tolerance(1e-9)
+    Tolerance(1e-12)
 }
 
 fn default_max_iterations() -> Count {
@@ -172,11 +172,14 @@ pub struct Tolerance(pub f64);
 
 impl<'de> Deserialize<'de> for Tolerance {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
-        deserializer.deserialize_any(NumberVisitor("a small positive number such as 1e-9", |v| {
-            (v > 0.0 && v < 1.0)
-                .then_some(Tolerance(v))
-                .ok_or_else(|| format!("{v} is not a tolerance; expected a number between 0 and 1"))
-        }))
+        deserializer.deserialize_any(NumberVisitor(
+            "a small positive number such as 1e-12",
+            |v| {
+                (v > 0.0 && v < 1.0).then_some(Tolerance(v)).ok_or_else(|| {
+                    format!("{v} is not a tolerance; expected a number between 0 and 1")
+                })
+            },
+        ))
     }
 }
 

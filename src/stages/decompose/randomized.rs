@@ -29,10 +29,12 @@
 //! eigenvalues are returned (the oversampled ones are less accurate and are
 //! dropped, as Halko et al. advise). The total Σλ = trace C is exact, as in the
 //! exact method, and the sum of squares Σλ² = ‖C‖²_F is computed exactly from
-//! the Gram matrix of the smaller side. From these, θ₁ and θ₂ of the eigenvalues
-//! after any k kept components follow exactly up to rounding
-//! ([`RandomizedReport::residual_sums`]), which is what Box's SPE limit needs;
-//! nothing else about the tail is known, and no eigenvalue is made up for it.
+//! the Gram matrix of the smaller side. θ₁ and θ₂ of the eigenvalues after the
+//! k kept components, which Box's SPE limit needs, come from the residual
+//! after those components itself ([`RandomizedReport::residual_sums`]), not
+//! from those totals less the kept eigenvalues: that subtraction lost the
+//! digits of a small tail. Nothing else about the tail is known, and no
+//! eigenvalue is made up for it.
 //! A rank deficiency shows in the sketch itself: a Gaussian Ω hits every
 //! direction of the row space with probability one, so when the data have rank
 //! r < l the sketch has exactly r eigenvalues above the rank tolerance.
@@ -74,20 +76,58 @@ pub struct RandomizedReport {
 }
 
 impl RandomizedReport {
-    /// θ₁ = Σ_{j>k} λⱼ and θ₂ = Σ_{j>k} λⱼ² over the eigenvalues after the first
-    /// `k`, as the exact total and sum of squares minus the first k computed
-    /// eigenvalues. `None` when k exceeds the computed eigenvalues, or when
-    /// either sum is not clearly above the rounding error of that subtraction
-    /// (max(n, p)·ε of the whole, the rank rule's tolerance): the data then have
-    /// no residual variance to speak of, and an SPE limit would be noise.
-    pub fn residual_sums(&self, d: &Decomposition, k: usize, n: usize) -> Option<(f64, f64)> {
-        let kept = d.eigenvalues.get(..k)?;
-        let theta1 = d.total_variance - kept.iter().sum::<f64>();
-        let theta2 = self.sum_of_squares - kept.iter().map(|l| l * l).sum::<f64>();
-        let scale = n.max(self.features) as f64 * f64::EPSILON;
-        (theta1 > d.total_variance * scale && theta2 > self.sum_of_squares * scale)
-            .then_some((theta1, theta2))
+    /// θ₁ = Σ_{j>k} λⱼ and θ₂ = Σ_{j>k} λⱼ² of the eigenvalues after the first
+    /// `k`, from the residual itself: E = Z − Z Vₖ Vₖᵀ after the first k
+    /// loadings, θ₁ = ‖E‖²_F / (n − 1) and θ₂ = ‖EᵀE‖²_F / (n − 1)² (or
+    /// ‖EEᵀ‖²_F, the same number, when n < p), each summed in a fixed order.
+    /// The eigenvalues of EᵀE/(n − 1) are the dropped ones, so both sums are
+    /// as accurate as the residual's entries, however small the unexplained
+    /// share: no total is subtracted from.
+    ///
+    /// `None` when k exceeds the components with loadings, or when even the
+    /// largest residual eigenvalue (at most √θ₂) is below the exact method's
+    /// rank tolerance ([`rank_tolerance`]): the residual is then rounding, and
+    /// the exact method would find no residual eigenvalue either.
+    pub fn residual_sums(&self, z: &Matrix, d: &Decomposition, k: usize) -> Option<(f64, f64)> {
+        if k > d.loadings.cols {
+            return None;
+        }
+        let (n, p) = (z.rows, z.cols);
+        let divisor = (n - 1) as f64;
+        let e = residual(z, &d.loadings, k);
+        let theta1 = e
+            .data
+            .iter()
+            .fold(crate::linalg::SUM_START, |s, v| s + v * v)
+            / divisor;
+        let gram = if p <= n {
+            gram_of_columns(&e)
+        } else {
+            gram_of_columns(&e.transpose())
+        };
+        let theta2 = gram.data.iter().fold(crate::linalg::SUM_START, |s, g| {
+            let c = g / divisor;
+            s + c * c
+        });
+        let largest = d.eigenvalues.first().copied().unwrap_or(0.0);
+        (theta1 > 0.0 && theta2.sqrt() > rank_tolerance(largest, n, p)).then_some((theta1, theta2))
     }
+}
+
+/// E = Z − T Vₖᵀ with T = Z Vₖ, the residual after the first `k` columns of
+/// `loadings`; each fitted value sums its k terms in component order.
+fn residual(z: &Matrix, loadings: &Matrix, k: usize) -> Matrix {
+    let t = crate::stages::decompose::scores(z, loadings, k);
+    let mut e = Matrix::zeros(z.rows, z.cols);
+    for i in 0..z.rows {
+        for j in 0..z.cols {
+            let fitted = (0..k).fold(crate::linalg::SUM_START, |s, a| {
+                s + t.get(i, a) * loadings.get(j, a)
+            });
+            e.set(i, j, z.get(i, j) - fitted);
+        }
+    }
+    e
 }
 
 /// The leading `wanted` components of the scaled data `z` (n × p) by the
@@ -314,7 +354,7 @@ mod tests {
             assert!(rel < 1e-12, "eigenvalue {a}: {rel}");
         }
         // Nothing is left after three components, so there is no residual to bound.
-        assert_eq!(report.residual_sums(&d, 3, 60), None);
+        assert_eq!(report.residual_sums(&z, &d, 3), None);
     }
 
     #[test]
@@ -326,13 +366,13 @@ mod tests {
         assert!((report.sum_of_squares - sq).abs() < 1e-12 * sq);
         assert_eq!(d.total_variance.to_bits(), exact.total_variance.to_bits());
         let k = 2;
-        let (t1, t2) = report.residual_sums(&d, k, 50).unwrap();
+        let (t1, t2) = report.residual_sums(&z, &d, k).unwrap();
         let rest = &exact.eigenvalues[k..exact.rank];
         let e1: f64 = rest.iter().sum();
         let e2: f64 = rest.iter().map(|l| l * l).sum();
         assert!((t1 - e1).abs() < 1e-9 * e1, "{t1} {e1}");
         assert!((t2 - e2).abs() < 1e-9 * e2, "{t2} {e2}");
-        assert_eq!(report.residual_sums(&d, 6, 50), None);
+        assert_eq!(report.residual_sums(&z, &d, 6), None);
     }
 
     #[test]
