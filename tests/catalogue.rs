@@ -816,7 +816,18 @@ const CASES: &[Case] = &[
             "[missing]\nmethod = \"iterative-pca\"\n\n[missing.iterative_pca]\ntolerance = 0",
         ),
         at: "recipe.toml:15:13:",
-        says: &["between 0 and 1"],
+        says: &["from 1e-15", "up to 1"],
+        ..BAD
+    },
+    // A tolerance below rounding would make every fill run to max_iterations
+    // and fail; it is refused where it is written.
+    Case {
+        name: "tolerance below rounding",
+        recipe: Section(
+            "[missing]\nmethod = \"iterative-pca\"\n\n[missing.iterative_pca]\ntolerance = 1e-24",
+        ),
+        at: "recipe.toml:15:13:",
+        says: &["1e-24 is not a tolerance", "from 1e-15"],
         ..BAD
     },
     Case {

@@ -166,18 +166,30 @@ fn default_neighbours() -> Count {
     Count(NonZeroUsize::new(5).expect("non-zero"))
 }
 
-/// A positive tolerance below 1.
+/// A tolerance from [`Tolerance::SMALLEST`] up to (not including) 1.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Tolerance(pub f64);
+
+impl Tolerance {
+    /// A relative change below this is rounding (a few units in the last place
+    /// of a double): a smaller tolerance could never be met.
+    pub const SMALLEST: f64 = 1e-15;
+}
 
 impl<'de> Deserialize<'de> for Tolerance {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
         deserializer.deserialize_any(NumberVisitor(
             "a small positive number such as 1e-12",
             |v| {
-                (v > 0.0 && v < 1.0).then_some(Tolerance(v)).ok_or_else(|| {
-                    format!("{v} is not a tolerance; expected a number between 0 and 1")
-                })
+                (Tolerance::SMALLEST..1.0)
+                    .contains(&v)
+                    .then_some(Tolerance(v))
+                    .ok_or_else(|| {
+                        format!(
+                            "{} is not a tolerance; expected a number from 1e-15 (below it, rounding would never let the fill stop) up to 1",
+                            crate::text::number(v)
+                        )
+                    })
             },
         ))
     }
