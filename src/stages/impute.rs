@@ -336,15 +336,19 @@ fn fit(
 /// The mean and standard deviation (n − 1) of a column's observed cells; a
 /// spread of 0 is taken as 1 so that standardising never divides by zero.
 fn observed_mean_sd(column: &[f64]) -> (f64, f64) {
-    let observed: Vec<f64> = column.iter().copied().filter(|v| !v.is_nan()).collect();
-    let mean = super::missing::mean(&observed);
-    let m = observed.len() as f64;
-    let sd = (observed
-        .iter()
-        .map(|v| (v - mean) * (v - mean))
-        .sum::<f64>()
-        / (m - 1.0).max(1.0))
-    .sqrt();
+    use super::accumulate::Statistic;
+    // The missing stage's and the scaling stage's own statistics.
+    let mut observed = super::missing::Observed::new();
+    observed.push(column);
+    let mean = observed.finish().moments.mean;
+    let mut deviations = super::scale::Deviations::about(mean);
+    let mut count = 0;
+    for &v in column.iter().filter(|v| !v.is_nan()) {
+        deviations.add(v);
+        count += 1;
+    }
+    // One observed cell has no spread; standardising then divides by 1.
+    let sd = if count > 1 { deviations.finish() } else { 0.0 };
     (mean, standardising_divisor(sd))
 }
 
