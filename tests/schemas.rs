@@ -93,7 +93,9 @@ fn recipe_schema_accepts_every_fill_method_and_its_settings() {
         "[missing]\nmethod = \"knn\"\n[missing.knn]\nneighbours = 3",
         "[missing]\nmethod = \"iterative-pca\"\n[missing.iterative_pca]\ncomponents = 2\nvariant = \"em\"\ntolerance = 1e-10\nmax_iterations = 50\nstart = \"median\"\nallow_unconverged = true",
     ];
-    let start = base.find("[missing]").expect("the demo recipe has [missing]");
+    let start = base
+        .find("[missing]")
+        .expect("the demo recipe has [missing]");
     let end = base[start + 1..]
         .find("\n[")
         .map_or(base.len(), |e| start + 1 + e);

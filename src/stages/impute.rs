@@ -13,13 +13,13 @@
 //! - the plain EM variant keeps the first S terms as they are;
 //! - the regularized variant (the paper's default) shrinks each kept term by
 //!   1 − σ̂²/λₛ, with σ̂² the noise variance per cell over the paper's residual
-//!   degrees of freedom and λₛ on the n − 1 scale ([`shrinkage`]). Shrinking
+//!   degrees of freedom and λₛ on the n − 1 scale (`shrinkage`). Shrinking
 //!   keeps noise out of the filled values, which the EM fit overfits when S is
 //!   large or many cells are missing.
 //!
 //! Stopping: after each fit, the change ‖F(x) − x‖₂ / ‖F(x)‖₂ over the filled
 //! cells is compared with the tolerance (default 1e-12), and the steps are
-//! accelerated by a fixed-order squared extrapolation ([`squarem`]), so the
+//! accelerated by a fixed-order squared extrapolation (`squarem`), so the
 //! default fill lies within about 1e-12 relative of the fixed point in 16 to
 //! 24 fits on the test tables (tests/imputation.rs).
 //!
@@ -48,7 +48,7 @@ pub struct IterativeReport {
     pub max_iterations: usize,
     /// Fits of the S-component model (each one decomposition), all counted.
     pub iterations: usize,
-    /// Extrapolated steps taken ([`squarem`]).
+    /// Extrapolated steps taken (`squarem`).
     pub extrapolations: usize,
     /// ‖F(x) − x‖₂ / ‖F(x)‖₂ over the filled cells at the last fit.
     pub final_change: f64,
@@ -262,7 +262,7 @@ fn squarem(
     }
 }
 
-/// The first cap on the extrapolation's step length |α| ([`squarem`]).
+/// The first cap on the extrapolation's step length |α| (`squarem`).
 const STEP_CAP_START: f64 = 1.0;
 
 /// The factor each kept singular value is multiplied by in the regularized

@@ -5,7 +5,7 @@
 //! fill value, a constant feature, the errors). The methods that need the
 //! whole matrix (median, kNN and iterative-PCA fills; the n × n and randomized
 //! routes, parallel analysis, cross-validation, uncentred data) take a matrix
-//! view of the store ([`matrix_view`], [`scaled_rows`]); a model's fills are
+//! view of the store (`matrix_view`, [`scaled_rows`]); a model's fills are
 //! written back into the store, so the later passes read them like any value.
 //!
 //! 1. transforms checked, missing cells counted, observed sums and ranges; then
