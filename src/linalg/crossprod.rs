@@ -18,6 +18,34 @@ pub fn gram_of_columns(x: &Matrix) -> Matrix {
     gram.finish()
 }
 
+/// Feeds `rows` (row-major, `p` values each) after the rows in `pending` to
+/// `combine` as runs of whole `BLOCK_ROWS`-row blocks, and keeps in `pending`
+/// the rows that do not make a whole block yet. So the blocks are the same
+/// whatever runs the rows arrive in (the accumulators' bits depend only on
+/// the blocks and their order).
+pub fn whole_blocks(
+    pending: &mut Vec<f64>,
+    rows: &[f64],
+    p: usize,
+    mut combine: impl FnMut(&[f64]),
+) {
+    let block = BLOCK_ROWS * p.max(1);
+    let mut rows = rows;
+    if !pending.is_empty() {
+        let take = (block - pending.len()).min(rows.len());
+        pending.extend_from_slice(&rows[..take]);
+        rows = &rows[take..];
+        if pending.len() < block {
+            return;
+        }
+        combine(pending);
+        pending.clear();
+    }
+    let whole = rows.len() / block * block;
+    combine(&rows[..whole]);
+    pending.extend_from_slice(&rows[whole..]);
+}
+
 /// XᵀX of rows fed in order, a run at a time: the same blocks, the same order of
 /// combination and so the same bits as [`gram_of_columns`] of all the rows at once.
 pub struct GramAccumulator {
@@ -38,21 +66,9 @@ impl GramAccumulator {
 
     /// Adds rows (row-major, `p` values each), in table order.
     pub fn add_rows(&mut self, rows: &[f64]) {
-        let block = BLOCK_ROWS * self.p.max(1);
-        let mut rows = rows;
-        if !self.pending.is_empty() {
-            let take = (block - self.pending.len()).min(rows.len());
-            self.pending.extend_from_slice(&rows[..take]);
-            rows = &rows[take..];
-            if self.pending.len() < block {
-                return;
-            }
-            let full = std::mem::take(&mut self.pending);
-            self.combine(&full);
-        }
-        let whole = rows.len() / block * block;
-        self.combine(&rows[..whole]);
-        self.pending.extend_from_slice(&rows[whole..]);
+        let mut pending = std::mem::take(&mut self.pending);
+        whole_blocks(&mut pending, rows, self.p, |blocks| self.combine(blocks));
+        self.pending = pending;
     }
 
     /// Adds the partials of whole blocks (the last one may be short) in order.

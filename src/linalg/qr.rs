@@ -23,7 +23,7 @@
 //! every pair is orthogonal to working precision.
 
 use super::Matrix;
-use super::crossprod::BLOCK_ROWS;
+use super::crossprod::{BLOCK_ROWS, whole_blocks};
 use crate::error::AnalysisError;
 use rayon::prelude::*;
 
@@ -48,21 +48,9 @@ impl QrAccumulator {
 
     /// Adds rows (row-major, `p` values each), in table order.
     pub fn add_rows(&mut self, rows: &[f64]) {
-        let block = BLOCK_ROWS * self.p.max(1);
-        let mut rows = rows;
-        if !self.pending.is_empty() {
-            let take = (block - self.pending.len()).min(rows.len());
-            self.pending.extend_from_slice(&rows[..take]);
-            rows = &rows[take..];
-            if self.pending.len() < block {
-                return;
-            }
-            let full = std::mem::take(&mut self.pending);
-            self.combine(&full);
-        }
-        let whole = rows.len() / block * block;
-        self.combine(&rows[..whole]);
-        self.pending.extend_from_slice(&rows[whole..]);
+        let mut pending = std::mem::take(&mut self.pending);
+        whole_blocks(&mut pending, rows, self.p, |blocks| self.combine(blocks));
+        self.pending = pending;
     }
 
     /// Reduces whole blocks (the last may be short) each to its own R, on any
