@@ -66,8 +66,7 @@ impl RowResults {
         }
     }
 
-    /// Results held in memory, from whole columns (for the in-memory engine and
-    /// for tests): `table_rows` holds the table row of each row, `scores` is
+    /// Results held in memory, from whole columns (for `apply` and for tests): `table_rows` holds the table row of each row, `scores` is
     /// rows × `cols`; `ids` and each group hold a text per row.
     pub fn from_parts(
         cols: usize,
@@ -305,7 +304,7 @@ impl FilledCells {
         }
     }
 
-    /// The cells of the in-memory stages, held in memory.
+    /// Cells filled all at once (by `apply`), held in memory.
     pub fn from_cells(
         cells: &[crate::stages::missing::FilledCell],
         features: &[String],

@@ -6,28 +6,9 @@
 #[allow(dead_code)] // only `sextant` is used here
 mod common;
 
-use common::sextant;
+use common::{hadamard, sextant};
 use std::fs;
 use std::path::Path;
-
-/// The Sylvester–Hadamard matrix of order `n` (a power of 2), entries ±1.
-fn hadamard(n: usize) -> Vec<Vec<f64>> {
-    let mut h = vec![vec![1.0]];
-    while h.len() < n {
-        let m = h.len();
-        let mut next = vec![vec![0.0; 2 * m]; 2 * m];
-        for i in 0..m {
-            for j in 0..m {
-                next[i][j] = h[i][j];
-                next[i][j + m] = h[i][j];
-                next[i + m][j] = h[i][j];
-                next[i + m][j + m] = -h[i][j];
-            }
-        }
-        h = next;
-    }
-    h
-}
 
 /// 64 rows × 32 features, Σₖ cₖ uₖ vₖᵀ with uₖ column k + 1 of the order-64
 /// Hadamard matrix (centred, orthogonal) and vₖ column k of the order-32 one,

@@ -18,13 +18,9 @@ fn reference() -> Value {
     serde_json::from_slice(&fs::read(path).unwrap()).unwrap()
 }
 
-/// Wine with the reference's cells emptied, written into `dir`.
-fn holed_wine(dir: &Path) -> Vec<(usize, usize)> {
-    let text =
-        fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/wine.csv"))
-            .unwrap();
-    let cells: Vec<(usize, usize)> = reference()["cells"]
-        .as_array()
+/// The (row, column) pairs of a reference's list of emptied cells.
+fn cells_of(list: &serde_json::Value) -> Vec<(usize, usize)> {
+    list.as_array()
         .unwrap()
         .iter()
         .map(|c| {
@@ -33,7 +29,15 @@ fn holed_wine(dir: &Path) -> Vec<(usize, usize)> {
                 c[1].as_u64().unwrap() as usize,
             )
         })
-        .collect();
+        .collect()
+}
+
+/// Wine with the reference's cells emptied, written into `dir`.
+fn holed_wine(dir: &Path) -> Vec<(usize, usize)> {
+    let text =
+        fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/wine.csv"))
+            .unwrap();
+    let cells = cells_of(&reference()["cells"]);
     let mut lines: Vec<Vec<String>> = text
         .lines()
         .map(|l| l.split(',').map(String::from).collect())
@@ -315,17 +319,7 @@ fn holed_table(dir: &Path, table: &Value) -> Vec<(usize, usize)> {
         Path::new(env!("CARGO_MANIFEST_DIR")).join(format!("tests/data/{file}.csv")),
     )
     .unwrap();
-    let cells: Vec<(usize, usize)> = table["cells"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|c| {
-            (
-                c[0].as_u64().unwrap() as usize,
-                c[1].as_u64().unwrap() as usize,
-            )
-        })
-        .collect();
+    let cells = cells_of(&table["cells"]);
     let mut lines: Vec<Vec<String>> = text
         .lines()
         .take(rows + 1)

@@ -20,7 +20,7 @@
 #[allow(dead_code)] // only `sextant` is used here
 mod common;
 
-use common::sextant;
+use common::{hadamard, sextant};
 use nalgebra::DMatrix;
 use sextant::linalg::Matrix;
 use sextant::linalg::random::Stream;
@@ -571,25 +571,6 @@ fn crossover_timings() {
 fn spe_tail_reference() -> serde_json::Value {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/spe_tail_reference.json");
     serde_json::from_slice(&fs::read(path).unwrap()).unwrap()
-}
-
-/// The Sylvester–Hadamard matrix of order `n` (a power of 2), entries ±1.
-fn hadamard(n: usize) -> Vec<Vec<f64>> {
-    let mut h = vec![vec![1.0]];
-    while h.len() < n {
-        let m = h.len();
-        let mut next = vec![vec![0.0; 2 * m]; 2 * m];
-        for i in 0..m {
-            for j in 0..m {
-                next[i][j] = h[i][j];
-                next[i][j + m] = h[i][j];
-                next[i + m][j] = h[i][j];
-                next[i + m][j + m] = -h[i][j];
-            }
-        }
-        h = next;
-    }
-    h
 }
 
 /// The script's table: 64 × 16, Σₖ cₖ uₖ vₖᵀ with uₖ column k + 1 of the

@@ -67,8 +67,8 @@ pub fn plot_view(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -
     let correlations = if prepared.plan.scaling.centers() {
         correlations_of_centred(&analysis.column_squares, n, d, computed)
     } else {
-        // Uncentred data: the closed form does not hold; correlate directly (only
-        // the in-memory engine analyses uncentred data).
+        // Uncentred data: the closed form does not hold; correlate directly (the
+        // analysis holds uncentred data as one matrix, see `needs_matrix`).
         let z = pre.scaled.data();
         let mut score_columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n); computed];
         analysis.rows.scan(|b| {

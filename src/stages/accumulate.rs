@@ -4,9 +4,9 @@
 //! Each statistic is defined once, in the stage that owns its rule
 //! ([`super::missing::Observed`], [`super::missing::Filled`],
 //! [`super::scale::Moments`], [`super::scale::Deviations`],
-//! [`super::scale::Squares`]), and every engine feeds that one type: the
-//! in-memory stages a whole column at a time, the passes engine chunk by chunk
-//! of row-major rows ([`PerFeature`]). Each feature's sum still adds the rows in
+//! [`super::scale::Squares`]), and the analysis (`crate::stream::passes`) feeds
+//! that one type chunk by chunk of row-major rows ([`PerFeature`]); a stage's
+//! own tests may feed it a whole column. Each feature's sum still adds the rows in
 //! row order (from [`crate::linalg::SUM_START`], or in two doubles for the
 //! means: [`crate::linalg::sum::Sum`]), so how the rows arrive never
 //! changes a bit. Merging floating-point sums is not associative: parts are

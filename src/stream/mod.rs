@@ -169,8 +169,7 @@ fn id_run_bytes(store: &store::Store) -> usize {
     (store.limit() / 8).clamp(1 << 20, 64 << 20) as usize
 }
 
-/// The check of `run::check_ids` (ids present and unique) on ids kept in the
-/// store, in memory bounded by an eighth of the budget (an external merge sort,
+/// Ids present and unique, checked on the ids kept in the store, in memory bounded by an eighth of the budget (an external merge sort,
 /// [`unique`]); the first problem in row order is reported with its lines.
 pub fn check_ids(
     table: &crate::table::Table,

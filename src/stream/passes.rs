@@ -668,7 +668,8 @@ pub fn analyse(
         let m = z.len() / p;
         let mut laid = vec![0.0; m * w];
         // Rows are independent: blocks of them in parallel, each row's numbers
-        // written in place (the same per-row arithmetic as the in-memory stages).
+        // written in place (the per-row arithmetic of `decompose::scores` and
+        // `diagnose::row_statistics`, which `apply` uses).
         const ROWS: usize = 256;
         let jobs: Vec<_> = z
             .chunks(ROWS * p)

@@ -7,7 +7,8 @@
 //! then they are sorted by (id, row) and written as a *run* to a scratch file.
 //! At the end the runs are merged, and since a repeat shows up as two equal ids
 //! next to each other in that order, the merge only keeps the previous (id, row).
-//! The answer is the one `run::check_ids` gives for the whole column in memory.
+//! The answer is the one sorting the whole column in memory would give (the
+//! tests' `reference`).
 
 use std::cmp::Reverse;
 use std::collections::BinaryHeap;
@@ -15,8 +16,7 @@ use std::fs::File;
 use std::io::{self, BufWriter, Read, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 
-/// What is wrong with an id column: the first problem in row order, as
-/// `run::check_ids` reports it.
+/// What is wrong with an id column: the first problem in row order.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum IdProblem {
     /// Row `row` (0-based) has an empty id.
@@ -340,7 +340,8 @@ impl RunReader {
 mod tests {
     use super::*;
 
-    /// `run::check_ids`'s logic, in memory, on plain strings: the reference.
+    /// The check done in memory on plain strings, sorting the whole column:
+    /// the reference.
     fn reference(ids: &[String]) -> Option<IdProblem> {
         let empty = ids.iter().position(String::is_empty);
         let mut order: Vec<usize> = (0..ids.len()).collect();
@@ -388,8 +389,8 @@ mod tests {
 
     #[test]
     fn hand_cases_match_check_ids() {
-        // The cases of the test of `run::check_ids`, with the rows it reports
-        // (its lines minus 2), under every budget and batch size.
+        // Hand-made cases with the rows each must report, under every budget and
+        // batch size.
         use IdProblem::*;
         let cases: [(&[&str], Option<IdProblem>); 6] = [
             (&["a", "b", "c"], None),

@@ -55,3 +55,23 @@ pub fn hidden_entries(dir: &Path) -> Vec<String> {
     names.sort();
     names
 }
+
+/// The Sylvester–Hadamard matrix of order `n` (a power of 2), entries ±1.
+#[allow(dead_code)] // only the tests built from exact orthogonal factors use it
+pub fn hadamard(n: usize) -> Vec<Vec<f64>> {
+    let mut h = vec![vec![1.0]];
+    while h.len() < n {
+        let m = h.len();
+        let mut next = vec![vec![0.0; 2 * m]; 2 * m];
+        for i in 0..m {
+            for j in 0..m {
+                next[i][j] = h[i][j];
+                next[i][j + m] = h[i][j];
+                next[i + m][j] = h[i][j];
+                next[i + m][j + m] = -h[i][j];
+            }
+        }
+        h = next;
+    }
+    h
+}
