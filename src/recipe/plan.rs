@@ -77,6 +77,17 @@ pub enum MethodPlan {
     Qr,
 }
 
+impl MethodPlan {
+    /// The recipe's name for the method, without its settings.
+    pub fn kind(&self) -> DecompositionMethod {
+        match self {
+            MethodPlan::Exact => DecompositionMethod::Exact,
+            MethodPlan::Qr => DecompositionMethod::Qr,
+            MethodPlan::Randomized(_) => DecompositionMethod::Randomized,
+        }
+    }
+}
+
 /// Everything a run needs, checked.
 #[derive(Debug, Clone)]
 pub struct Plan {

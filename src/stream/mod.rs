@@ -24,7 +24,7 @@ pub mod unique;
 
 use crate::store;
 
-use crate::recipe::raw::{DecompositionMethod, Keep, MissingMethod, RawRecipe};
+use crate::recipe::raw::{DecompositionMethod, Keep, MissingMethod, RawRecipe, ScalingMethod};
 
 /// Which engine analyses the table.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -86,13 +86,29 @@ pub fn cannot_stream(raw: &RawRecipe) -> Option<String> {
             missing.name()
         ));
     }
-    if !raw.scaling.method.centers() {
+    let method = raw.components.method.as_ref().map(|m| *m.get_ref());
+    matrix_reason(
+        raw.scaling.method,
+        method.unwrap_or_default(),
+        raw.components.keep.as_ref().map(|k| k.get_ref()),
+    )
+}
+
+/// Why the analysis needs the scaled rows as one matrix, if it does: the rule
+/// both [`cannot_stream`] (before the table is read) and the passes (which
+/// also take the matrix for a table with fewer rows than features) apply.
+pub fn matrix_reason(
+    scaling: ScalingMethod,
+    method: DecompositionMethod,
+    keep: Option<&Keep>,
+) -> Option<String> {
+    if !scaling.centers() {
         return Some(format!(
             "scaling.method = \"{}\" needs the table in memory (every centred scaling works in passes)",
-            raw.scaling.method.name()
+            scaling.name()
         ));
     }
-    match raw.components.keep.as_ref().map(|k| k.get_ref()) {
+    match keep {
         Some(Keep::ParallelAnalysis) => {
             return Some(
                 "components.keep = \"parallel-analysis\" permutes the whole table and needs it in memory"
@@ -107,12 +123,7 @@ pub fn cannot_stream(raw: &RawRecipe) -> Option<String> {
         }
         _ => {}
     }
-    if raw
-        .components
-        .method
-        .as_ref()
-        .is_some_and(|m| *m.get_ref() == DecompositionMethod::Randomized)
-    {
+    if method == DecompositionMethod::Randomized {
         return Some("components.method = \"randomized\" runs in memory".into());
     }
     None

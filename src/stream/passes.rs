@@ -472,17 +472,13 @@ pub fn preprocess(
 }
 
 /// Whether the analysis needs the scaled rows as one matrix: for the n × n
-/// route (fewer rows than features), uncentred data, the randomized method,
-/// parallel analysis and cross-validation. Otherwise passes over the store
-/// give everything.
+/// route (fewer rows than features), and for what the recipe rules out of
+/// passes ([`super::matrix_reason`]: uncentred data, the randomized method,
+/// parallel analysis, cross-validation). Otherwise passes over the store give
+/// everything.
 fn needs_matrix(plan: &crate::recipe::plan::Plan, n: usize, p: usize) -> bool {
-    n < p
-        || !plan.scaling.centers()
-        || matches!(plan.method, MethodPlan::Randomized(_))
-        || matches!(
-            plan.components.keep,
-            Keep::ParallelAnalysis | Keep::CrossValidation
-        )
+    let method = plan.method.kind();
+    n < p || super::matrix_reason(plan.scaling, method, Some(&plan.components.keep)).is_some()
 }
 
 /// A matrix view of the store: the values of `columns`, one vector per
