@@ -159,6 +159,34 @@ pub fn pow10(e: i32) -> f64 {
     v
 }
 
+// ---------------------------------------------------------------- for people
+
+/// The standard precision of a number meant for people (summary lines, report
+/// prose, `explain`, `diff`): four significant digits. Machine files keep the
+/// shortest round-trip form of [`number`].
+pub fn readable(v: f64) -> String {
+    significant(v, 4)
+}
+
+/// A probability for people: below 1e-16 (where a double near 1 can no longer
+/// tell 1 − p from 1) it reads "< 1e-16" instead of a misleading 0.
+pub fn p_value(p: f64) -> String {
+    if p.is_finite() && p < 1e-16 {
+        "< 1e-16".to_string()
+    } else {
+        significant(p, 3)
+    }
+}
+
+/// A count with its noun in the right number: `1 row`, `0 rows`, `3 rows`.
+pub fn count(n: usize, singular: &str, plural: &str) -> String {
+    if n == 1 {
+        format!("1 {singular}")
+    } else {
+        format!("{n} {plural}")
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -210,5 +238,17 @@ mod tests {
         assert_eq!(fixed(-0.0001, 3), "0.000");
         assert_eq!(fixed(-0.4126, 3), "-0.413");
         assert_eq!(trimmed(2.50000001, 4), "2.5");
+    }
+
+    #[test]
+    fn numbers_for_people() {
+        assert_eq!(readable(0.123456789), "0.1235");
+        assert_eq!(readable(12345.678), "12346");
+        assert_eq!(p_value(0.0), "< 1e-16");
+        assert_eq!(p_value(3e-20), "< 1e-16");
+        assert_eq!(p_value(0.04567), "0.0457");
+        assert_eq!(count(1, "row", "rows"), "1 row");
+        assert_eq!(count(0, "row", "rows"), "0 rows");
+        assert_eq!(count(2, "component", "components"), "2 components");
     }
 }
