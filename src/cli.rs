@@ -13,7 +13,7 @@ use std::path::PathBuf;
 #[derive(Debug, Parser)]
 #[command(name = "sextant", version, about, long_about = None)]
 #[command(
-    after_help = "Exit codes: 0 success, 1 the analysis failed, 2 the recipe or an input is invalid."
+    after_help = "Exit codes: 0 success, 1 the analysis failed, 2 the recipe or an input is invalid, 130 interrupted (Ctrl-C, SIGTERM or SIGHUP; unfinished results removed)."
 )]
 pub struct Cli {
     #[command(subcommand)]

@@ -358,7 +358,7 @@ pub enum InputError {
         id: String,
         first_line: u64,
     },
-    #[error("{path}: {rows} usable row(s){why}; at least 2 are needed")]
+    #[error("{path}: {}{why}; at least 2 are needed", counted(.rows, "usable row", "usable rows"))]
     TooFewRows {
         path: String,
         rows: usize,
@@ -446,7 +446,8 @@ pub enum AnalysisError {
     #[error("missing cells cannot be filled: {reason}")]
     Imputation { reason: String },
     #[error(
-        "missing cells cannot be filled: iterative PCA with {components} component(s) needs fewer components than both the features ({features}) and the rows minus one ({rows_less_one}), and leaving residual degrees of freedom; set a lower missing.iterative_pca.components or another missing.method"
+        "missing cells cannot be filled: iterative PCA with {} needs fewer components than both the features ({features}) and the rows minus one ({rows_less_one}), and leaving residual degrees of freedom; set a lower missing.iterative_pca.components or another missing.method",
+        counted(.components, "component", "components")
     )]
     ImputationComponents {
         components: usize,
@@ -640,4 +641,9 @@ mod tests {
         assert_eq!(&lines[2][caret..caret + 1], "=", "{text}");
         assert!(caret > code);
     }
+}
+
+/// A count and its noun for a message field (thiserror passes fields by reference).
+fn counted(n: &usize, singular: &str, plural: &str) -> String {
+    crate::text::count(*n, singular, plural)
 }

@@ -163,9 +163,23 @@ pub fn pow10(e: i32) -> f64 {
 
 /// The standard precision of a number meant for people (summary lines, report
 /// prose, `explain`, `diff`): four significant digits. Machine files keep the
-/// shortest round-trip form of [`number`].
+/// shortest round-trip form of [`number`]. Zeros that only pad the four
+/// digits are cut (`6.7`, not `6.700`; `1e-12`, not `1.000e-12`).
 pub fn readable(v: f64) -> String {
-    significant(v, 4)
+    let s = significant(v, 4);
+    let (mantissa, exponent) = match s.split_once('e') {
+        Some((m, e)) => (m, Some(e)),
+        None => (s.as_str(), None),
+    };
+    let mantissa = if mantissa.contains('.') {
+        mantissa.trim_end_matches('0').trim_end_matches('.')
+    } else {
+        mantissa
+    };
+    match exponent {
+        Some(e) => format!("{mantissa}e{e}"),
+        None => mantissa.to_string(),
+    }
 }
 
 /// A probability for people: below 1e-16 (where a double near 1 can no longer
@@ -244,6 +258,10 @@ mod tests {
     fn numbers_for_people() {
         assert_eq!(readable(0.123456789), "0.1235");
         assert_eq!(readable(12345.678), "12346");
+        assert_eq!(readable(6.70021), "6.7");
+        assert_eq!(readable(1e-12), "1e-12");
+        assert_eq!(readable(-2.5e9), "-2.5e9");
+        assert_eq!(readable(120.0), "120");
         assert_eq!(p_value(0.0), "< 1e-16");
         assert_eq!(p_value(3e-20), "< 1e-16");
         assert_eq!(p_value(0.04567), "0.0457");

@@ -1317,14 +1317,14 @@ const CASES: &[Case] = &[
         name: "header only",
         data: Data::Text("sample,group,a,b,c\n"),
         at: "data.csv:",
-        says: &["0 usable row(s)", "at least 2"],
+        says: &["0 usable rows", "at least 2"],
         ..BAD
     },
     Case {
         name: "one data row",
         data: Data::Text("sample,group,a,b,c\ns1,x,1,2,3\n"),
         at: "data.csv:",
-        says: &["1 usable row(s)", "at least 2"],
+        says: &["1 usable row", "at least 2"],
         ..BAD
     },
     Case {
@@ -1721,7 +1721,7 @@ const CASES: &[Case] = &[
         ),
         cmd: Cmd::Run,
         says: &[
-            "iterative PCA with 3 component(s) needs fewer components than both the features (3)",
+            "iterative PCA with 3 components needs fewer components than both the features (3)",
             "set a lower missing.iterative_pca.components",
         ],
         ..BAD

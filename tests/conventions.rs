@@ -191,3 +191,30 @@ fn explain_left_the_conventions_loose() {
         "{stick}"
     );
 }
+
+/// Regression: sentences for people wrote "1 component(s)", "1 row(s) are" and
+/// "components 1 to 1 each explain"; counts now take the right number, and
+/// values for people carry four significant digits (Kaiser's mean eigenvalue
+/// was cut to four decimals, "0.0001" for a tiny spectrum).
+#[test]
+fn sentences_for_people_count_in_the_right_number() {
+    let dir = tempfile::tempdir().unwrap();
+    write_unequal_residual_table(dir.path());
+    let body = "groups = [\"f31\"]\n[components]\nkeep = 1\n";
+    fs::write(
+        dir.path().join("r.toml"),
+        format!("format = 1\n[input]\nfile = \"data.csv\"\n{body}\n[output]\nfolder = \"out\"\n"),
+    )
+    .unwrap();
+    let explained = sextant(dir.path(), &["explain", "r.toml"]);
+    assert_eq!(explained.code, 0, "{}", explained.stderr);
+    let text = explained.stdout;
+    assert!(text.contains("Keep 1 component;"), "{text}");
+    assert!(text.contains("Carry the group column `f31`"), "{text}");
+    assert!(text.contains("it takes no part"), "{text}");
+    assert!(!text.contains("(s)"), "{text}");
+    run(dir.path(), body);
+    let report = fs::read_to_string(dir.path().join("out/report.html")).unwrap();
+    assert!(report.contains("1 component was kept"), "{report}");
+    assert!(!report.contains("(s)"));
+}

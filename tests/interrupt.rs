@@ -281,3 +281,23 @@ fn a_second_run_is_refused_while_the_first_holds_the_lock() {
     assert_eq!(out.status.code(), Some(0), "{:?}", out);
     assert_eq!(common::hidden_entries(dir), Vec::<String>::new());
 }
+
+/// The top-level help listed exit codes 0, 1 and 2 but not 130, which every
+/// interrupted command returns; the README's install line was missing too.
+#[test]
+fn help_and_readme_name_exit_130_and_the_install_command() {
+    let out = Command::new(env!("CARGO_BIN_EXE_sextant"))
+        .arg("--help")
+        .output()
+        .unwrap();
+    let help = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success());
+    assert!(
+        help.contains("130 interrupted"),
+        "help lacks exit 130:\n{help}"
+    );
+    let readme =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("README.md")).unwrap();
+    assert!(readme.contains("cargo install --path . --locked"));
+    assert!(readme.contains("**130**"));
+}

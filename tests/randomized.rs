@@ -308,7 +308,7 @@ fn a_recipe_with_the_randomized_method_runs_and_records_its_settings() {
     assert!(
         explain
             .stdout
-            .contains("10 random normal direction(s) more than the components wanted, drawn from seed 7, refine with 2 power iteration(s)"),
+            .contains("10 random normal directions more than the components wanted, drawn from seed 7, refine with 2 power iterations"),
         "{}",
         explain.stdout
     );

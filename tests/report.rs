@@ -216,8 +216,8 @@ fn demo_report_is_listed_and_shows_every_part() {
         "178 missing cells were filled with their feature&#39;s mean",
         "Transformed before scaling: somatic_cells_k_ml (log10)",
         "Scaling: unit-variance, so the loadings are eigenvectors of the correlation matrix.",
-        "2 component(s) were kept by the rule <code>broken-stick</code>, explaining 57.1 % of the variance",
-        "At 95 % confidence, 21 row(s) are above the T² limit and 11 above the SPE limit.",
+        "2 components were kept by the rule <code>broken-stick</code>, explaining 57.1 % of the variance",
+        "At 95 % confidence, 21 rows are above the T² limit and 11 above the SPE limit.",
     ] {
         assert!(
             summary.contains(fragment),

@@ -173,8 +173,11 @@ pub fn summary(prepared: &Prepared, pre: &Preprocessed, analysis: &Analysis) -> 
     ));
     let kept_share: f64 = d.eigenvalues[..s.kept].iter().sum::<f64>() / d.total_variance;
     out.push(format!(
-        "{} component(s) were kept by the rule `{}`, explaining {} % of the variance: {}.",
-        s.kept,
+        "{} kept by the rule `{}`, explaining {} % of the variance: {}.",
+        match s.kept {
+            1 => "1 component was".to_string(),
+            k => format!("{k} components were"),
+        },
         s.rule,
         pct(kept_share),
         s.reason
@@ -199,18 +202,27 @@ fn limit_sentence(limit: &crate::stages::diagnose::Limits) -> String {
     let level = super::tables::level_label(limit.confidence);
     match (limit.t2, limit.spe) {
         (Some(_), Some(_)) => format!(
-            "At {level} % confidence, {} row(s) are above the T² limit and {} above the SPE limit.",
-            limit.t2_flagged, limit.spe_flagged
-        ),
-        (Some(_), None) => format!(
-            "At {level} % confidence, {} row(s) are above the T² limit; there is no SPE limit.",
-            limit.t2_flagged
-        ),
-        (None, Some(_)) => format!(
-            "At {level} % confidence, there is no T² limit; {} row(s) are above the SPE limit.",
+            "At {level} % confidence, {} above the T² limit and {} above the SPE limit.",
+            rows_are(limit.t2_flagged),
             limit.spe_flagged
         ),
+        (Some(_), None) => format!(
+            "At {level} % confidence, {} above the T² limit; there is no SPE limit.",
+            rows_are(limit.t2_flagged)
+        ),
+        (None, Some(_)) => format!(
+            "At {level} % confidence, there is no T² limit; {} above the SPE limit.",
+            rows_are(limit.spe_flagged)
+        ),
         (None, None) => format!("At {level} % confidence, there is no T² or SPE limit."),
+    }
+}
+
+/// "1 row is" or "n rows are".
+fn rows_are(n: usize) -> String {
+    match n {
+        1 => "1 row is".to_string(),
+        _ => format!("{n} rows are"),
     }
 }
 
@@ -234,8 +246,8 @@ fn missing_sentence(m: &crate::stages::missing::MissingReport) -> String {
                 r.iterations,
                 if r.iterations == 1 { "" } else { "s" },
                 if r.converged { "converged at" } else { "NOT converged, stopped at" },
-                crate::text::number(r.final_change),
-                crate::text::number(r.tolerance)
+                crate::text::readable(r.final_change),
+                crate::text::readable(r.tolerance)
             ),
             None => "by iterative PCA".to_string(),
         },

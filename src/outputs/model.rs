@@ -308,15 +308,16 @@ impl Model {
         if k == 0 || k > p {
             return Err(problem(
                 "kept",
-                format!("is {k}; it must be at least 1 and at most the {p} feature(s)"),
+                format!("is {k}; it must be at least 1 and at most the number of features, {p}"),
             ));
         }
         if self.rows < 2 || self.rows <= k {
             return Err(problem(
                 "rows",
                 format!(
-                    "is {}; an analysis of {k} component(s) had at least 2 rows and more than {k}",
-                    self.rows
+                    "is {}; an analysis of {} had at least 2 rows and more than {k}",
+                    self.rows,
+                    crate::text::count(k, "component", "components")
                 ),
             ));
         }
@@ -467,7 +468,8 @@ impl Model {
                     return Err(problem(
                         "fill.model.loadings",
                         format!(
-                            "has {s} component(s); an imputation model has at least 1 and fewer than the {p} feature(s)"
+                            "has {}; an imputation model has at least 1 and fewer than the number of features, {p}",
+                            crate::text::count(s, "component", "components")
                         ),
                     ));
                 }
@@ -502,7 +504,7 @@ impl Model {
                     return Err(problem(
                         "fill.neighbours",
                         format!(
-                            "is {neighbours}; it must be at least 1 and at most the {n} reference row(s)"
+                            "is {neighbours}; it must be at least 1 and at most the number of reference rows, {n}"
                         ),
                     ));
                 }

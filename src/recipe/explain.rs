@@ -62,8 +62,18 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
     }
     if !raw.input.groups.is_empty() {
         s.push(format!(
-            "Carry the group column(s) {} into the results; they take no part in the analysis.",
-            list(&raw.input.groups)
+            "Carry the group {} {} into the results; {} no part in the analysis.",
+            if raw.input.groups.len() == 1 {
+                "column"
+            } else {
+                "columns"
+            },
+            list(&raw.input.groups),
+            if raw.input.groups.len() == 1 {
+                "it takes"
+            } else {
+                "they take"
+            }
         ));
     }
     let mut features = match &raw.input.features {
@@ -109,12 +119,12 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         MissingMethod::IterativePca => {
             let it = &m.iterative();
             format!(
-                "Then fill the remaining missing cells by {} iterative PCA with {} component(s) (Josse & Husson 2012), starting from the feature {}s: refit the model to the completed table and refill the cells, with a fixed-order squared extrapolation of the steps (Varadhan & Roland 2008), until one refit changes the filled cells by less than {:e} of their size (‖new − old‖ / ‖new‖ over the filled cells), at most {} refits{}.",
+                "Then fill the remaining missing cells by {} iterative PCA with {} (Josse & Husson 2012), starting from the feature {}s: refit the model to the completed table and refill the cells, with a fixed-order squared extrapolation of the steps (Varadhan & Roland 2008), until one refit changes the filled cells by less than {:e} of their size (‖new − old‖ / ‖new‖ over the filled cells), at most {} refits{}.",
                 match it.variant {
                     super::raw::IterativeVariant::Regularized => "regularized (each kept component shrunk by 1 − σ̂²/λ, σ̂² the residual sum of squares over np − p − nS − pS + S² + S, λ with divisor n − 1)",
                     super::raw::IterativeVariant::Em => "plain EM",
                 },
-                super::plan::imputation_components(recipe),
+                crate::text::count(super::plan::imputation_components(recipe), "component", "components"),
                 match it.start {
                     super::raw::StartValue::Mean => "mean",
                     super::raw::StartValue::Median => "median",
@@ -155,8 +165,10 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
                 .map(|r| r.get_ref().clone())
                 .unwrap_or_default();
             format!(
-                "Compute only the leading eigenvalues and loadings of that matrix (divisor n − 1) by the randomized method of Halko, Martinsson & Tropp (2011): multiply the data by {} random normal direction(s) more than the components wanted, drawn from seed {}, refine with {} power iteration(s), and solve the small eigenproblem of that sketch; the rest of the spectrum is known only through its sum and sum of squares, so T² and SPE are exact but the SPE limit uses Box's approximation. Make the largest loading of each component positive (ties go to the first feature).",
-                r.oversampling.0, r.seed, r.power_iterations.0
+                "Compute only the leading eigenvalues and loadings of that matrix (divisor n − 1) by the randomized method of Halko, Martinsson & Tropp (2011): multiply the data by {} more than the components wanted, drawn from seed {}, refine with {}, and solve the small eigenproblem of that sketch; the rest of the spectrum is known only through its sum and sum of squares, so T² and SPE are exact but the SPE limit uses Box's approximation. Make the largest loading of each component positive (ties go to the first feature).",
+                crate::text::count(r.oversampling.0, "random normal direction", "random normal directions"),
+                r.seed,
+                crate::text::count(r.power_iterations.0, "power iteration", "power iterations")
             )
         }
     });
@@ -168,7 +180,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
     let keep = c.keep.as_ref().map(|k| *k.get_ref());
     s.push(match keep {
         None => format!("Keep {DEFAULT_KEEP} components (the default, as no rule is set); more than the data's rank stops the run."),
-        Some(Keep::Count(k)) => format!("Keep {k} component(s); more than the data's rank stops the run."),
+        Some(Keep::Count(k)) => format!("Keep {}; more than the data's rank stops the run.", crate::text::count(k.get(), "component", "components")),
         Some(Keep::Variance(v)) => format!("Keep the fewest components whose cumulative share of the variance reaches {}.", percent_short(v.0)),
         Some(Keep::Kaiser) => "Keep the components whose eigenvalue exceeds the mean eigenvalue (Kaiser's rule; the mean is the total variance over all p features, 1 for a correlation matrix, even when the data's rank is below p).".into(),
         Some(Keep::BrokenStick) => "Keep the leading components that each explain more than the broken-stick expectation for a stick broken into p pieces, p the number of features, even when the data's rank is below p.".into(),
@@ -218,8 +230,8 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
     ));
     s.push(format!("Report {compute} components in the variance and loadings tables (fewer if the data's rank is lower, more if more are kept)."));
     s.push(format!(
-        "Write scores, loadings, variance, preprocessing, the filled cells, the contributions of flagged rows, the model for scoring new rows, {} plot(s), a report page and a manifest with SHA-256 hashes to `{}`, replacing an earlier folder only if it came from the same recipe and inputs.",
-        raw.plots.len(),
+        "Write scores, loadings, variance, preprocessing, the filled cells, the contributions of flagged rows, the model for scoring new rows, {}, a report page and a manifest with SHA-256 hashes to `{}`, replacing an earlier folder only if it came from the same recipe and inputs.",
+        crate::text::count(raw.plots.len(), "plot", "plots"),
         raw.output.folder.get_ref()
     ));
     s

@@ -138,8 +138,10 @@ pub fn fill_by_model(
     if !r.converged && !settings.iterative.allow_unconverged {
         return Err(crate::error::AnalysisError::Imputation {
             reason: format!(
-                "iterative PCA did not converge in {} iterations (last relative change {:e}, tolerance {:e}); raise max_iterations, lower components, or set allow_unconverged = true",
-                r.iterations, r.final_change, r.tolerance
+                "iterative PCA did not converge in {} (last relative change {}, tolerance {}); raise max_iterations, lower components, or set allow_unconverged = true",
+                crate::text::count(r.iterations, "iteration", "iterations"),
+                crate::text::readable(r.final_change),
+                crate::text::readable(r.tolerance)
             ),
         }
         .into());
@@ -196,11 +198,13 @@ impl FeatureMissing {
 
 /// The warning for filled values outside a feature's observed range [lo, hi].
 fn outside_range_warning(count: usize, feature: &str, lo: f64, hi: f64) -> String {
-    use crate::text::number;
+    use crate::text::{count as counted, readable};
+    let values = counted(count, "filled value", "filled values");
+    let verb = if count == 1 { "lies" } else { "lie" };
     format!(
-        "{count} filled value(s) of `{feature}` lie outside its observed range [{}, {}]",
-        number(lo),
-        number(hi)
+        "{values} of `{feature}` {verb} outside its observed range [{}, {}]",
+        readable(lo),
+        readable(hi)
     )
 }
 
@@ -235,7 +239,10 @@ pub fn too_few_rows(source: &str, rows: usize, dropped: usize) -> Error {
         path: source.to_string(),
         rows,
         why: if dropped > 0 {
-            format!(" after dropping {dropped} row(s) with missing cells")
+            format!(
+                " after dropping {} with missing cells",
+                crate::text::count(dropped, "row", "rows")
+            )
         } else {
             String::new()
         },

@@ -14,7 +14,7 @@ use super::crossval::CvEvidence;
 use super::parallel::ParallelEvidence;
 use crate::recipe::plan::ComponentsPlan;
 use crate::recipe::raw::{DEFAULT_COMPUTE, Keep};
-use crate::text::{percent_figure, trimmed};
+use crate::text::{percent_figure, readable, trimmed};
 use serde::Serialize;
 
 /// Evidence computed from the data for the rules that need more than eigenvalues.
@@ -138,8 +138,12 @@ pub fn select_among(
                 .take_while(|&&v| v > mean_eigenvalue)
                 .count();
             let why = format!(
-                "{k} eigenvalue(s) exceed the mean eigenvalue {} (Kaiser 1960)",
-                trimmed(mean_eigenvalue, 4)
+                "{} the mean eigenvalue {} (Kaiser 1960)",
+                match k {
+                    1 => "1 eigenvalue exceeds".to_string(),
+                    _ => format!("{k} eigenvalues exceed"),
+                },
+                readable(mean_eigenvalue)
             );
             ("kaiser", k, why)
         }
@@ -156,12 +160,16 @@ pub fn select_among(
                     percent_figure(*b)
                 ),
                 (Some(s), Some(b)) => format!(
-                    "components 1 to {k} each explain more than the broken-stick expectation; component {} explains {} % against {} %",
+                    "{} more than the broken-stick expectation; component {} explains {} % against {} %",
+                    first_components(k, "explains", "each explain"),
                     k + 1,
                     percent_figure(*s),
                     percent_figure(*b)
                 ),
-                _ => format!("all {k} components explain more than the broken-stick expectation"),
+                _ => format!(
+                    "{} more than the broken-stick expectation",
+                    all_of(k, "component", "explains", "explain")
+                ),
             };
             ("broken-stick", k, why)
         }
@@ -178,23 +186,27 @@ pub fn select_among(
             let why = match (eigenvalues.get(k), pa.thresholds.get(k)) {
                 (Some(v), Some(t)) if k == 0 => format!(
                     "not even the first eigenvalue ({}) exceeds the {}th percentile of {} random tables ({}) (Horn 1965, seed {})",
-                    trimmed(*v, 4),
+                    readable(*v),
                     trimmed(pa.percentile, 4),
                     pa.replicates,
-                    trimmed(*t, 4),
+                    readable(*t),
                     pa.seed
                 ),
                 (Some(v), Some(t)) => format!(
-                    "components 1 to {k} have eigenvalues above the {}th percentile of {} random tables ({}); component {} has {} against {} (Horn 1965, seed {})",
+                    "{} above the {}th percentile of {} random tables ({}); component {} has {} against {} (Horn 1965, seed {})",
+                    first_components(k, "has an eigenvalue", "have eigenvalues"),
                     trimmed(pa.percentile, 4),
                     pa.replicates,
                     random_words(pa),
                     k + 1,
-                    trimmed(*v, 4),
-                    trimmed(*t, 4),
+                    readable(*v),
+                    readable(*t),
                     pa.seed
                 ),
-                _ => format!("all {k} eigenvalues exceed the random tables' threshold"),
+                _ => format!(
+                    "{} the random tables' threshold",
+                    all_of(k, "eigenvalue", "exceeds", "exceed")
+                ),
             };
             ("parallel-analysis", k, why)
         }
@@ -208,15 +220,20 @@ pub fn select_among(
                 (1..cv.press.len()).fold(1, |b, j| if cv.press[j] < cv.press[b] { j } else { b });
             let why = match cv.choose {
                 crate::recipe::raw::CvChoice::Minimum => format!(
-                    "{k} component(s) give the smallest PRESS ({}) over {} folds (Bro et al. 2008)",
-                    trimmed(cv.press[k], 4),
+                    "{} the smallest PRESS ({}) over {} folds (Bro et al. 2008)",
+                    match k {
+                        1 => "1 component gives".to_string(),
+                        _ => format!("{k} components give"),
+                    },
+                    readable(cv.press[k]),
                     cv.folds
                 ),
                 crate::recipe::raw::CvChoice::OneStandardError => format!(
-                    "{k} is the fewest components with PRESS ({}) within one standard error of the smallest ({} at {best}, standard error {}), over {} folds (Bro et al. 2008)",
-                    trimmed(cv.press[k], 4),
-                    trimmed(cv.press[best], 4),
-                    trimmed(cv.standard_error[best], 4),
+                    "{k} is the fewest {} with PRESS ({}) within one standard error of the smallest ({} at {best}, standard error {}), over {} folds (Bro et al. 2008)",
+                    if k == 1 { "component" } else { "components" },
+                    readable(cv.press[k]),
+                    readable(cv.press[best]),
+                    readable(cv.standard_error[best]),
                     cv.folds
                 ),
             };
@@ -267,8 +284,11 @@ fn by_variance(shares: &[f64], target: f64, rank: usize) -> (&'static str, usize
         cumulative += s;
         if cumulative >= target - SHARE_TOLERANCE {
             let why = format!(
-                "the first {} component(s) explain {} % of the variance, the fewest to reach {} %",
-                i + 1,
+                "{} {} % of the variance, the fewest to reach {} %",
+                match i {
+                    0 => "the first component explains".to_string(),
+                    _ => format!("the first {} components explain", i + 1),
+                },
                 percent_figure(cumulative),
                 percent_figure(target)
             );
@@ -314,6 +334,25 @@ pub fn bartlett_rest(
     let df = ((q + 2) * (q - 1) / 2) as f64;
     let p_value = crate::stats::distributions::chi2_sf(chi2, df).ok()?;
     Some((chi2, df, p_value))
+}
+
+/// "component 1 explains" or "components 1 to k each explain": the subject of
+/// a rule's reason, in the right number.
+fn first_components(k: usize, one: &str, many: &str) -> String {
+    if k == 1 {
+        format!("component 1 {one}")
+    } else {
+        format!("components 1 to {k} {many}")
+    }
+}
+
+/// "the only component explains" or "all k components explain".
+fn all_of(k: usize, noun: &str, one: &str, many: &str) -> String {
+    if k == 1 {
+        format!("the only {noun} {one}")
+    } else {
+        format!("all {k} {noun}s {many}")
+    }
 }
 
 #[cfg(test)]
