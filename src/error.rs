@@ -612,6 +612,11 @@ impl From<std::io::Error> for Error {
     }
 }
 
+/// A count and its noun for a message field (thiserror passes fields by reference).
+fn counted(n: &usize, singular: &str, plural: &str) -> String {
+    crate::text::count(*n, singular, plural)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -641,9 +646,4 @@ mod tests {
         assert_eq!(&lines[2][caret..caret + 1], "=", "{text}");
         assert!(caret > code);
     }
-}
-
-/// A count and its noun for a message field (thiserror passes fields by reference).
-fn counted(n: &usize, singular: &str, plural: &str) -> String {
-    crate::text::count(*n, singular, plural)
 }
