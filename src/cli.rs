@@ -3,7 +3,7 @@
 use crate::analysis::{Prepared, Preprocessed, matrix_name};
 use crate::error::Error;
 use crate::run::{self, RunOptions, RunSummary};
-use crate::text::percent_figure;
+use crate::text::{count, percent_figure};
 use clap::{Parser, Subcommand};
 use std::fmt::Write;
 use std::path::PathBuf;
@@ -316,21 +316,25 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
     let _ = match m.method {
         crate::recipe::raw::MissingMethod::DropRows => writeln!(
             out,
-            "missing    {missing_cells} cells in used features; {} rows with a missing cell dropped, {} rows left",
-            m.rows_dropped,
-            pre.scaled.n_rows()
+            "missing    {} in used features; {} with a missing cell dropped, {} left",
+            count(missing_cells, "cell", "cells"),
+            count(m.rows_dropped, "row", "rows"),
+            count(pre.scaled.n_rows(), "row", "rows")
         ),
         method => {
             let how = match method {
                 crate::recipe::raw::MissingMethod::Median => "with the feature median".to_string(),
                 crate::recipe::raw::MissingMethod::IterativePca => match &m.iterative_pca {
                     Some(r) if r.iterations == 0 => {
-                        format!("by iterative PCA ({} components)", r.components)
+                        format!(
+                            "by iterative PCA ({})",
+                            count(r.components, "component", "components")
+                        )
                     }
                     Some(r) => format!(
-                        "by iterative PCA ({} components, {} iterations, {})",
-                        r.components,
-                        r.iterations,
+                        "by iterative PCA ({}, {}, {})",
+                        count(r.components, "component", "components"),
+                        count(r.iterations, "iteration", "iterations"),
                         if r.converged {
                             "converged"
                         } else {
@@ -339,9 +343,10 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
                     ),
                     None => "by iterative PCA".to_string(),
                 },
-                crate::recipe::raw::MissingMethod::Knn => {
-                    format!("from the {} nearest rows", m.knn_neighbours.unwrap_or(0))
-                }
+                crate::recipe::raw::MissingMethod::Knn => match m.knn_neighbours.unwrap_or(0) {
+                    1 => "from the nearest row".to_string(),
+                    k => format!("from the {k} nearest rows"),
+                },
                 _ => "with the feature mean".to_string(),
             };
             if missing_cells == 0 {
@@ -352,7 +357,8 @@ fn describe_input(out: &mut String, prepared: &Prepared, pre: &Preprocessed) {
             } else {
                 writeln!(
                     out,
-                    "missing    {missing_cells} cells in used features filled {how}"
+                    "missing    {} in used features filled {how}",
+                    count(missing_cells, "cell", "cells")
                 )
             }
         }
@@ -425,8 +431,8 @@ pub fn describe_run(s: &RunSummary) -> String {
     }
     let _ = writeln!(
         out,
-        "           {} rows above a limit at some level; contributions.csv says which features made them so",
-        s.analysis.diagnostics.flagged
+        "           {} above a limit at some level; contributions.csv says which features made them so",
+        count(s.analysis.diagnostics.flagged, "row", "rows")
     );
     for note in &s.analysis.diagnostics.notes {
         let _ = writeln!(out, "  note     {note}");
