@@ -229,8 +229,11 @@ fn markers(doc: &roxmltree::Document) -> Vec<(f64, f64, f64)> {
     out
 }
 
+/// A label's text and its box in pixels (left, top, right, bottom).
+type Labelled = (String, (f64, f64, f64, f64));
+
 /// Each label of the classes given: its text and box, as the figures reckon it.
-fn label_boxes(doc: &roxmltree::Document, classes: &[&str]) -> Vec<(String, (f64, f64, f64, f64))> {
+fn label_boxes(doc: &roxmltree::Document, classes: &[&str]) -> Vec<Labelled> {
     let mut out = Vec::new();
     for class in classes {
         for g in with_class(doc, class) {
@@ -246,7 +249,7 @@ fn label_boxes(doc: &roxmltree::Document, classes: &[&str]) -> Vec<(String, (f64
 }
 
 /// Every pair of labels whose boxes overlap.
-fn overlapping(boxes: &[(String, (f64, f64, f64, f64))]) -> Vec<(String, String)> {
+fn overlapping(boxes: &[Labelled]) -> Vec<(String, String)> {
     let mut out = Vec::new();
     for (i, (a, p)) in boxes.iter().enumerate() {
         for (b, q) in &boxes[i + 1..] {
@@ -275,7 +278,10 @@ fn listed_after(caption: &str, lead: &str) -> Vec<String> {
     };
     let rest = &caption[at + lead.len()..];
     let end = rest.find(". ").unwrap_or(rest.len() - 1);
-    rest[..end].split(", ").map(|s| s.trim().to_string()).collect()
+    rest[..end]
+        .split(", ")
+        .map(|s| s.trim().to_string())
+        .collect()
 }
 
 // --------------------------------------------------------------- tests ----
@@ -328,19 +334,29 @@ fn outlier_map_at_110k_rows_counts_every_row_once_by_kind_without_an_edge() {
     // No edge: every row drawn as a point lies in a density square (it is
     // counted there too), planted rows far beyond the limits included.
     let points = markers(&doc);
-    assert!(!points.is_empty() && points.len() <= LIMIT, "{}", points.len());
+    assert!(
+        !points.is_empty() && points.len() <= LIMIT,
+        "{}",
+        points.len()
+    );
     let all: Vec<&Square> = cells.values().flatten().collect();
     for &(x, y, _) in &points {
         assert!(
-            all.iter()
-                .any(|c| x >= c.x - 0.2 && x <= c.x + c.w + 0.2 && y >= c.y - 0.2 && y <= c.y + c.h + 0.2),
+            all.iter().any(|c| x >= c.x - 0.2
+                && x <= c.x + c.w + 0.2
+                && y >= c.y - 0.2
+                && y <= c.y + c.h + 0.2),
             "the point at ({x}, {y}) has no density square under it"
         );
     }
     // Labels: at most the limit, never overlapping, the rest named in the caption.
     let labels = label_boxes(&doc, &["labels"]);
     assert!(labels.len() <= LIMIT, "{} labels", labels.len());
-    assert!(overlapping(&labels).is_empty(), "{:?}", overlapping(&labels));
+    assert!(
+        overlapping(&labels).is_empty(),
+        "{:?}",
+        overlapping(&labels)
+    );
     let caption = caption(&doc);
     let left_out = listed_after(&caption, "Left out where the label would overlap another: ");
     let flagged: BTreeSet<&str> = rows
@@ -359,7 +375,10 @@ fn outlier_map_at_110k_rows_counts_every_row_once_by_kind_without_an_edge() {
         let id = format!("s{:06}", planted.0);
         assert!(named.contains(id.as_str()), "{id} not labelled nor listed");
     }
-    assert!(caption.contains(&format!("at most {LIMIT} per plot")), "{caption}");
+    assert!(
+        caption.contains(&format!("at most {LIMIT} per plot")),
+        "{caption}"
+    );
 }
 
 #[test]
@@ -376,7 +395,11 @@ fn score_plot_at_110k_rows_keeps_the_density_visible_under_flagged_rows() {
     let rows = score_rows(&folder);
     let flagged = rows.iter().filter(|r| r.3 || r.4).count();
     let cells = density(&doc);
-    let count = |name: &str| cells.get(name).map_or(0, |c| c.iter().map(|c| c.n).sum::<usize>());
+    let count = |name: &str| {
+        cells
+            .get(name)
+            .map_or(0, |c| c.iter().map(|c| c.n).sum::<usize>())
+    };
     assert_eq!(count("within the limits"), ROWS - flagged);
     assert_eq!(count("above a limit"), flagged);
     for c in &cells["above a limit"] {
@@ -394,10 +417,18 @@ fn score_plot_at_110k_rows_keeps_the_density_visible_under_flagged_rows() {
                 .any(|p| (x - p.0).abs() < p.2 && (y - p.1).abs() < p.2)
         })
         .count();
-    assert!(hidden <= points.len() && hidden * 10 <= within.len(), "{hidden} of {}", within.len());
+    assert!(
+        hidden <= points.len() && hidden * 10 <= within.len(),
+        "{hidden} of {}",
+        within.len()
+    );
     let labels = label_boxes(&doc, &["labels"]);
     assert!(labels.len() <= LIMIT);
-    assert!(overlapping(&labels).is_empty(), "{:?}", overlapping(&labels));
+    assert!(
+        overlapping(&labels).is_empty(),
+        "{:?}",
+        overlapping(&labels)
+    );
 }
 
 /// Runs a biplot and a correlation circle of a data set in tests/data and
@@ -405,7 +436,9 @@ fn score_plot_at_110k_rows_keeps_the_density_visible_under_flagged_rows() {
 /// the caption as left out.
 fn labels_stay_apart(data: &str, group: &str) {
     let dir = tempfile::tempdir().unwrap();
-    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data").join(data);
+    let src = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/data")
+        .join(data);
     fs::copy(&src, dir.path().join(data)).unwrap();
     fs::write(
         dir.path().join("r.toml"),
@@ -433,7 +466,10 @@ fn labels_stay_apart(data: &str, group: &str) {
         assert!(clashes.is_empty(), "{data} {file}: {clashes:?}");
         let caption = caption(&doc);
         let drawn = label_boxes(&doc, &["arrow-labels"]);
-        let left_out = listed_after(&caption, "Feature names left out where they would overlap another: ");
+        let left_out = listed_after(
+            &caption,
+            "Feature names left out where they would overlap another: ",
+        );
         // A long name is drawn cut short with an ellipsis.
         let full = |t: String| match t.strip_suffix('…') {
             Some(cut) => features

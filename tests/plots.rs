@@ -446,7 +446,10 @@ fn scores_show_every_row_with_groups_labels_and_ellipse() {
     p.labels = PointLabels::All;
     let doc_svg = plots::render(&p, &v);
     let labelled = texts(&parse(&doc_svg), "labels").len();
-    assert!(labelled <= MAX_LABELS && labelled > MAX_LABELS / 2, "{labelled}");
+    assert!(
+        labelled <= MAX_LABELS && labelled > MAX_LABELS / 2,
+        "{labelled}"
+    );
     assert!(plots::caption(&p, &v).contains("40 more are not"));
     p.max_labels = 60;
     let doc_svg = plots::render(&p, &v);
@@ -739,7 +742,12 @@ fn density_replaces_points_above_the_threshold() {
         let svg = plots::render(&p, &v);
         let doc = parse(&svg);
         // Only the labelled rows are drawn as points on top of the density.
-        assert_eq!(marks(&doc, "points"), flagged.min(MAX_LABELS), "{}", kind.name());
+        assert_eq!(
+            marks(&doc, "points"),
+            flagged.min(MAX_LABELS),
+            "{}",
+            kind.name()
+        );
         assert_eq!(with_class(&doc, "flagged").len(), flagged.min(MAX_LABELS));
         assert!(marks(&doc, "density") > 10, "{}", kind.name());
         assert!(texts(&doc, "legend").iter().any(|t| t == "rows per square"));
@@ -832,7 +840,12 @@ fn row_layers_count_every_row_once_at_110k_rows() {
     // The score plot: two kinds (within, above a limit), every row counted.
     p = plan(PlotKind::Scores, 1, 2);
     let layers = plots::row_layers(&p, &v).expect("density mode");
-    let above = layers.cells.iter().flatten().filter(|c| c.category == 1).count();
+    let above = layers
+        .cells
+        .iter()
+        .flatten()
+        .filter(|c| c.category == 1)
+        .count();
     let flagged = flags(&v).iter().filter(|&&f| f).count();
     assert_eq!(above, flagged);
     assert_eq!(layers.cells.iter().flatten().count(), 110_000);
@@ -1235,7 +1248,9 @@ fn the_demo_run_draws_every_kind() {
                 let left_out = caption
                     .split("Left out where the label would overlap another: ")
                     .nth(1)
-                    .map_or(0, |rest| rest.split(". ").next().unwrap().split(", ").count());
+                    .map_or(0, |rest| {
+                        rest.split(". ").next().unwrap().split(", ").count()
+                    });
                 assert_eq!(texts(&doc, "labels").len() + left_out, MAX_LABELS.min(rows));
             }
             _ => unreachable!(),

@@ -237,9 +237,9 @@ fn label_sentence(raw: &super::raw::RawRecipe) -> Option<String> {
         .map(|p| p.get_ref())
         .filter(|p| matches!(p.kind, Scores | Biplot | OutlierMap))
         .map(|p| {
-            p.max_labels.as_ref().map_or(super::plots::DEFAULT_MAX_LABELS, |m| {
-                m.get_ref().0.get()
-            })
+            p.max_labels
+                .as_ref()
+                .map_or(super::plots::DEFAULT_MAX_LABELS, |m| m.get_ref().0.get())
         })
         .collect();
     let (least, most) = (limits.iter().min()?, limits.iter().max()?);

@@ -246,7 +246,12 @@ fn figure(view: &PlotView, p: &OutlierScan) -> Figure {
 
 /// Gives `f` the binning of the rows into the density: cell borders on the
 /// limit lines, each row kept on its side of them.
-fn with_binning<R>(view: &PlotView, p: &OutlierScan, fig: &Figure, f: impl FnOnce(&Binning) -> R) -> R {
+fn with_binning<R>(
+    view: &PlotView,
+    p: &OutlierScan,
+    fig: &Figure,
+    f: impl FnOnce(&Binning) -> R,
+) -> R {
     let panel = &fig.panel;
     let at = coords(p.root_x, p.root_y);
     let pixel = |batch: &Batch, i: usize| {
@@ -263,7 +268,11 @@ fn with_binning<R>(view: &PlotView, p: &OutlierScan, fig: &Figure, f: impl FnOnc
         (kind_of(a, b) as usize, sides)
     };
     let binning = Binning {
-        grid: Grid::new(panel, fig.lx.map(|l| panel.px(l)), fig.ly.map(|l| panel.py(l))),
+        grid: Grid::new(
+            panel,
+            fig.lx.map(|l| panel.px(l)),
+            fig.ly.map(|l| panel.py(l)),
+        ),
         categories: kind_categories(),
         pixel: &pixel,
         category: &category,
@@ -278,7 +287,9 @@ pub fn layers(plan: &PlotPlan, view: &PlotView) -> Option<RowLayers> {
         return None;
     }
     let fig = figure(view, &p);
-    Some(with_binning(view, &p, &fig, |b| scatter::row_layers(view, b, &p.sel)))
+    Some(with_binning(view, &p, &fig, |b| {
+        scatter::row_layers(view, b, &p.sel)
+    }))
 }
 
 fn render_prepared(
@@ -476,13 +487,23 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan, fig: &Fig
     let _ = write!(
         s,
         " {} tell the rows within both limits ({}), above the T² limit only ({}), above the SPE limit only ({}) and above both ({}).",
-        if p.sel.density { "Colours" } else { "Colour and shape" },
-        p.groups.counts[0], p.groups.counts[1], p.groups.counts[2], p.groups.counts[3]
+        if p.sel.density {
+            "Colours"
+        } else {
+            "Colour and shape"
+        },
+        p.groups.counts[0],
+        p.groups.counts[1],
+        p.groups.counts[2],
+        p.groups.counts[3]
     );
     s.push(' ');
-    let mut words = p
-        .sel
-        .describe("rows", plan.density_above, labelling(plan), &fig.labels.left_out);
+    let mut words = p.sel.describe(
+        "rows",
+        plan.density_above,
+        labelling(plan),
+        &fig.labels.left_out,
+    );
     // Flagged rows here are told apart by colour, not by an outline.
     words = words.replace(" Rows above the T² or SPE limit have a dark outline.", "");
     s.push_str(&words);

@@ -166,7 +166,10 @@ impl Legend {
         if names.len() > 1 {
             self.heading("rows (squares)");
             for (k, name) in names.iter().enumerate() {
-                self.swatch(&drawn.shades[k][mid], &format!("{name} ({})", drawn.counts[k]));
+                self.swatch(
+                    &drawn.shades[k][mid],
+                    &format!("{name} ({})", drawn.counts[k]),
+                );
             }
             self.gap();
         }

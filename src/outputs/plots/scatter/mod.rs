@@ -26,8 +26,7 @@ mod selection;
 pub use density::{Binning, Category, Cell, Grid, Sides, draw_density};
 pub use groups::{Colour, Groups};
 pub use labels::{
-    Box2, HALO, Placement, Placements, Spot, draw_labels, place_apart, place_rows,
-    write_labels,
+    Box2, HALO, Placement, Placements, Spot, draw_labels, place_apart, place_rows, write_labels,
 };
 pub use layers::{RowLayers, flag_categories, flag_category, row_layers};
 pub use legend::Legend;
