@@ -502,3 +502,23 @@ fn biplot_and_circle_labels_of_wine_do_not_overlap() {
     // row labels of the biplot placed around the names.
     labels_stay_apart("wine.csv", "class");
 }
+
+#[test]
+fn max_labels_is_explained_and_refused_where_no_rows_are_drawn() {
+    // The key is new: explain states the limit, and a plot without rows
+    // refuses it, naming the key (exit 2, nothing written).
+    let dir = large_run();
+    let out = sextant(dir, &["explain", "large.toml"]);
+    assert_eq!(out.code, 0, "{}", out.stderr);
+    assert!(
+        out.stdout.contains(&format!("at most {LIMIT} rows per plot")),
+        "{}",
+        out.stdout
+    );
+    let recipe = "format = 1\n[input]\nfile = \"large.csv\"\n[[plot]]\nkind = \"scree\"\nmax_labels = 5\n[output]\nfolder = \"scree-out\"\n";
+    fs::write(dir.join("scree.toml"), recipe).unwrap();
+    let out = sextant(dir, &["run", "scree.toml"]);
+    assert_eq!(out.code, 2, "{}", out.stderr);
+    assert!(out.stderr.contains("max_labels"), "{}", out.stderr);
+    assert!(!dir.join("scree-out").exists());
+}
