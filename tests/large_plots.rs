@@ -511,7 +511,8 @@ fn max_labels_is_explained_and_refused_where_no_rows_are_drawn() {
     let out = sextant(dir, &["explain", "large.toml"]);
     assert_eq!(out.code, 0, "{}", out.stderr);
     assert!(
-        out.stdout.contains(&format!("at most {LIMIT} rows per plot")),
+        out.stdout
+            .contains(&format!("at most {LIMIT} rows per plot")),
         "{}",
         out.stdout
     );
