@@ -229,12 +229,40 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         }
     ));
     s.push(format!("Report {compute} components in the variance and loadings tables (fewer if the data's rank is lower, more if more are kept)."));
+    if let Some(sentence) = label_sentence(raw) {
+        s.push(sentence);
+    }
     s.push(format!(
         "Write scores, loadings, variance, preprocessing, the filled cells, the contributions of flagged rows, the model for scoring new rows, {}, a report page and a manifest with SHA-256 hashes to `{}`, replacing an earlier folder only if it came from the same recipe and inputs.",
         crate::text::count(raw.plots.len(), "plot", "plots"),
         raw.output.folder.get_ref()
     ));
     s
+}
+
+/// How the scatter plots label rows, when the recipe draws any.
+fn label_sentence(raw: &super::raw::RawRecipe) -> Option<String> {
+    use super::raw::PlotKind::{Biplot, OutlierMap, Scores};
+    let limits: Vec<usize> = raw
+        .plots
+        .iter()
+        .map(|p| p.get_ref())
+        .filter(|p| matches!(p.kind, Scores | Biplot | OutlierMap))
+        .map(|p| {
+            p.max_labels
+                .as_ref()
+                .map_or(super::plots::DEFAULT_MAX_LABELS, |m| m.get_ref().0.get())
+        })
+        .collect();
+    let (least, most) = (limits.iter().min()?, limits.iter().max()?);
+    let count = if least == most {
+        format!("{most}")
+    } else {
+        format!("{least} to {most} (each plot's `max_labels`)")
+    };
+    Some(format!(
+        "On the score plots, biplots and outlier maps, write the ids of at most {count} rows per plot (the rows farthest beyond their limits first); a label that would overlap another is left out and named in the caption, and above `density_above` rows every row is drawn as a density coloured by whether it is above a limit."
+    ))
 }
 
 /// The explanation as printed: the title, then the numbered sentences.

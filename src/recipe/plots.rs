@@ -10,6 +10,10 @@ use toml::Spanned;
 /// The number of points above which scatter plots bin points by default.
 pub const DEFAULT_DENSITY_ABOVE: usize = 20_000;
 
+/// The number of rows a scatter plot labels at most by default: enough to name
+/// the rows worth a look, few enough to stay readable.
+pub const DEFAULT_MAX_LABELS: usize = 20;
+
 /// A checked plot.
 #[derive(Debug, Clone, PartialEq)]
 pub struct PlotPlan {
@@ -23,6 +27,8 @@ pub struct PlotPlan {
     pub y: usize,
     pub color: Option<String>,
     pub labels: PointLabels,
+    /// At most this many rows are labelled, the most severe first.
+    pub max_labels: usize,
     pub ellipse: Option<f64>,
     pub density_above: usize,
     /// Where the plot's table starts in the recipe, for errors found later.
@@ -112,6 +118,9 @@ fn one_plot(
         if let Some(d) = &raw.density_above {
             return Err(err(d.span(), not_for("density_above")));
         }
+        if let Some(m) = &raw.max_labels {
+            return Err(err(m.span(), not_for("max_labels")));
+        }
     }
 
     let index =
@@ -187,6 +196,10 @@ fn one_plot(
             .labels
             .as_ref()
             .map_or(PointLabels::default(), |l| *l.get_ref()),
+        max_labels: raw
+            .max_labels
+            .as_ref()
+            .map_or(DEFAULT_MAX_LABELS, |m| m.get_ref().0.get()),
         ellipse: raw.ellipse.as_ref().map(|e| e.get_ref().0),
         density_above: raw
             .density_above

@@ -135,6 +135,7 @@ fn plots_value(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
             }
             if matches!(p.kind, Scores | Biplot | OutlierMap) {
                 m.insert("labels".into(), json!(p.labels));
+                m.insert("max_labels".into(), json!(p.max_labels));
                 m.insert("density_above".into(), json!(p.density_above));
             }
             v

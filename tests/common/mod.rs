@@ -9,6 +9,7 @@ use std::process::Command;
 pub const BIN: &str = env!("CARGO_BIN_EXE_sextant");
 
 /// A temporary copy of recipes/ and demo-data/, so results land inside it.
+#[allow(dead_code)] // the tests that make their own tables do not use it
 pub fn workspace() -> tempfile::TempDir {
     let dir = tempfile::tempdir().unwrap();
     let repo = PathBuf::from(env!("CARGO_MANIFEST_DIR"));

@@ -6,9 +6,10 @@
 //! scaling, the arrows' coordinates are the correlations of the features with
 //! the components), and angles between arrows approximate correlations.
 
-use super::circle::draw_arrows;
-use super::frame::{self, Extent, Frame, Step};
-use super::scatter::{self, Colour, Groups, Legend, PointSelection};
+use super::circle::{arrow_labels, draw_arrows, left_out_sentence};
+use super::frame::{self, Extent, Frame, Panel, Step};
+use super::scatter::{self, Colour, Groups, Legend, Placements, PointSelection, RowLayers};
+use super::scores::{DENSITY_NAMES, DENSITY_WORDS, labelling, with_binning};
 use super::svg::{self, NEUTRAL};
 use super::{LEGEND_X, equal_axes, scatter_layout, title};
 use crate::outputs::view::PlotView;
@@ -68,7 +69,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> BiplotScan {
     let g = scatter::gather(
         view,
         colour,
-        plan.labels,
+        labelling(plan),
         plan.density_above,
         coords(plan, view),
         |_, _| {},
@@ -100,8 +101,16 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> BiplotScan {
     }
 }
 
-fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan, caption: &str) -> String {
-    let (a, b) = (plan.x - 1, plan.y - 1);
+/// The drawing area, the arrows' tips and where the names go, known before
+/// the caption (which names the labels left out).
+struct Figure {
+    panel: Panel,
+    tips: Vec<(f64, f64)>,
+    names: Placements,
+    labels: Placements,
+}
+
+fn figure(view: &PlotView, p: &BiplotScan) -> Figure {
     let layout = scatter_layout();
     let tips: Vec<(f64, f64)> = p
         .tips
@@ -118,36 +127,57 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan, caption: &s
     let yr = p.y.padded(&include_y, 0.08);
     let (xa, ya) = equal_axes(&layout, xr, yr);
     let panel = layout.panel(xa, ya);
+    let bounds = (panel.left, panel.top, panel.right, panel.bottom);
+    let names = arrow_labels(&panel, &tips, &view.features, bounds);
+    let labels = scatter::place_rows(&panel, &p.sel, &names.boxes());
+    Figure {
+        panel,
+        tips,
+        names,
+        labels,
+    }
+}
+
+/// Each row's layer, in density mode.
+pub fn layers(plan: &PlotPlan, view: &PlotView) -> Option<RowLayers> {
+    let p = prepare(plan, view);
+    if !p.sel.density {
+        return None;
+    }
+    let fig = figure(view, &p);
+    Some(with_binning(view, &fig.panel, coords(plan, view), |b| {
+        scatter::row_layers(view, b, &p.sel)
+    }))
+}
+
+fn render_prepared(
+    plan: &PlotPlan,
+    view: &PlotView,
+    p: &BiplotScan,
+    fig: &Figure,
+    caption: &str,
+) -> String {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let layout = scatter_layout();
+    let panel = &fig.panel;
     let t = title(plan, view);
     let x_title = format!("{}, score / √λ", super::axis_title(view, a));
     let y_title = format!("{}, score / √λ", super::axis_title(view, b));
-    let back = frame::backdrop(&t, &[Frame::new(layout, &panel, x_title, y_title)]);
+    let back = frame::backdrop(&t, &[Frame::new(layout, panel, x_title, y_title)]);
 
     let mut body = String::new();
     let mut density = None;
     if p.sel.density {
-        density = Some(scatter::draw_density(
-            &mut body,
-            &panel,
-            view,
-            &p.sel,
-            coords(plan, view),
-        ));
+        density = Some(with_binning(view, panel, coords(plan, view), |b| {
+            scatter::draw_density(&mut body, view, b)
+        }));
     }
-    scatter::draw_points(&mut body, &panel, &p.sel, &p.groups);
-    let names = draw_arrows(
-        &mut body,
-        &panel,
-        &tips,
-        &view.features,
-        ARROW,
-        (panel.left, panel.top, panel.right, panel.bottom),
-        true,
-    );
-    scatter::label_rows(&mut body, &panel, &p.sel, &names);
+    scatter::draw_points(&mut body, panel, &p.sel, &p.groups);
+    draw_arrows(&mut body, panel, &fig.tips, ARROW, true, &fig.names);
+    scatter::write_labels(&mut body, "labels", svg::INK, &fig.labels);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
-    legend.groups(&p.groups, 5 + if p.sel.density { 9 } else { 0 });
+    legend.groups(&p.groups, 5 + if p.sel.density { 14 } else { 0 });
     if p.groups.column.is_none() && !p.sel.density {
         legend.marker(NEUTRAL, svg::Shape::Circle, false, "row");
     }
@@ -160,14 +190,14 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan, caption: &s
         significant_plain(p.stretch, 3)
     ));
     legend.gap();
-    if let Some((classes, colours)) = &density {
-        legend.density(classes, colours);
+    if let Some(drawn) = &density {
+        legend.density(drawn, &DENSITY_NAMES);
     }
     body.push_str(&legend.finish());
     frame::finish(back, &t, caption, &body)
 }
 
-fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan) -> String {
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan, fig: &Figure) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let mut s = format!(
         "{}. A biplot (Gabriel 1971) of PC{} ({}) and PC{} ({}) in the covariance form: each point is a row's scores divided by √λ of the component (so both axes have unit variance), and each arrow is a feature's loadings multiplied by √λ",
@@ -202,15 +232,25 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &BiplotScan) -> String 
         );
     }
     s.push(' ');
-    s.push_str(&p.sel.describe("rows", plan.density_above, plan.labels));
+    s.push_str(&p.sel.describe(
+        "rows",
+        plan.density_above,
+        labelling(plan),
+        &fig.labels.left_out,
+    ));
+    if p.sel.density {
+        s.push_str(DENSITY_WORDS);
+    }
+    s.push_str(&left_out_sentence(&fig.names.left_out));
     s
 }
 
 /// The figure and its caption from one reading of the rows.
 pub fn draw(plan: &PlotPlan, view: &PlotView) -> (String, String) {
     let p = prepare(plan, view);
-    let caption = caption_prepared(plan, view, &p);
-    (render_prepared(plan, view, &p, &caption), caption)
+    let fig = figure(view, &p);
+    let caption = caption_prepared(plan, view, &p, &fig);
+    (render_prepared(plan, view, &p, &fig, &caption), caption)
 }
 
 pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
@@ -218,5 +258,6 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
 }
 
 pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
-    caption_prepared(plan, view, &prepare(plan, view))
+    let p = prepare(plan, view);
+    caption_prepared(plan, view, &p, &figure(view, &p))
 }

@@ -2,7 +2,7 @@
 //! an arrow inside the unit circle.
 
 use super::frame::{self, Axis, Frame, LABEL_SIZE, Layout, Panel, Step, TOP};
-use super::scatter::{Box2, Placement, Spot, place_labels};
+use super::scatter::{Box2, Placement, Placements, Spot, place_apart, write_labels};
 use super::svg::{self, Anchor, MUTED, N};
 use super::title;
 use crate::outputs::view::PlotView;
@@ -13,31 +13,30 @@ use std::fmt::Write;
 /// Arrow colour.
 const ARROW: &str = "#0072B2";
 
-/// Draws arrows from the origin to each tip, with the feature names beyond the
-/// tips (`arrows` and `arrow-labels` groups, one path and one text per feature).
-/// Names are placed longest arrow first, each where it overlaps the fewest
-/// names already placed, inside `bounds`. Returns the boxes the names take.
-pub fn draw_arrows(
-    out: &mut String,
+/// A tip that can be drawn: non-finite ones at the origin.
+fn finite(&(x, y): &(f64, f64)) -> (f64, f64) {
+    if x.is_finite() && y.is_finite() {
+        (x, y)
+    } else {
+        (0.0, 0.0)
+    }
+}
+
+/// Places the feature names beyond the arrows' tips, longest arrow first
+/// (ties by feature order), each clear of the names already placed and inside
+/// `bounds`; a name with no free spot is left out (see `place_apart`).
+pub fn arrow_labels(
     panel: &Panel,
     tips: &[(f64, f64)],
     names: &[String],
-    colour: &str,
     bounds: (f64, f64, f64, f64),
-    casing: bool,
-) -> Vec<Box2> {
+) -> Placements {
     let (ox, oy) = (panel.px(0.0), panel.py(0.0));
-    let mut paths = String::new();
     let mut items: Vec<(f64, Placement)> = Vec::new();
     let mut obstacles = Vec::new();
-    for (j, &(x, y)) in tips.iter().enumerate() {
-        let (x, y) = if x.is_finite() && y.is_finite() {
-            (x, y)
-        } else {
-            (0.0, 0.0)
-        };
+    for (j, tip) in tips.iter().enumerate() {
+        let (x, y) = finite(tip);
         let (tx, ty) = (panel.px(x), panel.py(y));
-        svg::arrow(&mut paths, ox, oy, tx, ty, 7.0, "");
         obstacles.push(Box2::around(tx, ty, 2.0));
         let (dx, dy) = (tx - ox, ty - oy);
         let len = (dx * dx + dy * dy).sqrt();
@@ -54,7 +53,7 @@ pub fn draw_arrows(
             Anchor::Middle
         };
         let mut spots = Vec::new();
-        for along in [5.0, 14.0] {
+        for along in [5.0, 14.0, 26.0] {
             let lx = tx + ux * along;
             let ly = ty + uy * along + 0.35 * LABEL_SIZE + uy * 0.45 * LABEL_SIZE;
             for shift in [0.0, -1.0, 1.0, -2.0, 2.0, -3.0, 3.0] {
@@ -73,6 +72,29 @@ pub fn draw_arrows(
             },
         ));
     }
+    // Longest first (ties by feature order: the sort is stable).
+    items.sort_by(|a, b| b.0.total_cmp(&a.0));
+    let items: Vec<Placement> = items.into_iter().map(|(_, p)| p).collect();
+    place_apart(&items, &obstacles, &[], bounds)
+}
+
+/// Draws arrows from the origin to each tip, then the placed feature names
+/// (`arrows` and `arrow-labels` groups, one path per feature and one text per
+/// placed name).
+pub fn draw_arrows(
+    out: &mut String,
+    panel: &Panel,
+    tips: &[(f64, f64)],
+    colour: &str,
+    casing: bool,
+    labels: &Placements,
+) {
+    let (ox, oy) = (panel.px(0.0), panel.py(0.0));
+    let mut paths = String::new();
+    for tip in tips {
+        let (x, y) = finite(tip);
+        svg::arrow(&mut paths, ox, oy, panel.px(x), panel.py(y), 7.0, "");
+    }
     if casing {
         // A white casing under the arrows keeps them visible over points and
         // density cells.
@@ -89,13 +111,29 @@ pub fn draw_arrows(
     );
     out.push_str(&paths);
     out.push_str("</g>\n");
-    // Longest first (ties by feature order: the sort is stable).
-    items.sort_by(|a, b| b.0.total_cmp(&a.0));
-    let items: Vec<Placement> = items.into_iter().map(|(_, p)| p).collect();
-    place_labels(out, "arrow-labels", colour, &items, &obstacles, &[], bounds)
+    write_labels(out, "arrow-labels", colour, labels);
 }
 
-pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+/// Names left out of a figure for want of room, as a caption sentence.
+pub fn left_out_sentence(left_out: &[String]) -> String {
+    if left_out.is_empty() {
+        return String::new();
+    }
+    format!(
+        " Feature names left out where they would overlap another: {}.",
+        left_out.join(", ")
+    )
+}
+
+/// The circle's plotting area, its arrows' tips and where their names go.
+struct Figure {
+    layout: Layout,
+    panel: Panel,
+    tips: Vec<(f64, f64)>,
+    labels: Placements,
+}
+
+fn figure(plan: &PlotPlan, view: &PlotView) -> Figure {
     let (a, b) = (plan.x - 1, plan.y - 1);
     // A square plotting area, centred.
     let side = 440;
@@ -117,10 +155,35 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
     let xa = Axis::with_step(-1.1, 1.1, step);
     let ya = Axis::with_step(-1.1, 1.1, step);
     let panel = layout.panel(xa, ya);
+    let tips: Vec<(f64, f64)> = view
+        .correlations
+        .iter()
+        .take(view.features.len())
+        .map(|r| (r[a], r[b]))
+        .collect();
+    let canvas = (
+        4.0,
+        f64::from(TOP),
+        f64::from(svg::WIDTH) - 4.0,
+        f64::from(svg::HEIGHT) - 4.0,
+    );
+    let labels = arrow_labels(&panel, &tips, &view.features, canvas);
+    Figure {
+        layout,
+        panel,
+        tips,
+        labels,
+    }
+}
+
+pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let fig = figure(plan, view);
+    let (layout, panel) = (fig.layout, &fig.panel);
     let t = title(plan, view);
     let mut fr = Frame::new(
         layout,
-        &panel,
+        panel,
         format!("correlation with {}", super::axis_title(view, a)),
         format!("correlation with {}", super::axis_title(view, b)),
     );
@@ -163,27 +226,7 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
         N(r1 * std::f64::consts::FRAC_1_SQRT_2)
     );
     body.push_str("</g>\n");
-    let tips: Vec<(f64, f64)> = view
-        .correlations
-        .iter()
-        .take(view.features.len())
-        .map(|r| (r[a], r[b]))
-        .collect();
-    let canvas = (
-        4.0,
-        f64::from(TOP),
-        f64::from(svg::WIDTH) - 4.0,
-        f64::from(svg::HEIGHT) - 4.0,
-    );
-    draw_arrows(
-        &mut body,
-        &panel,
-        &tips,
-        &view.features,
-        ARROW,
-        canvas,
-        false,
-    );
+    draw_arrows(&mut body, panel, &fig.tips, ARROW, false, &fig.labels);
     frame::finish(back, &t, &caption(plan, view), &body)
 }
 
@@ -212,5 +255,6 @@ pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
             significant_plain(len, 2)
         );
     }
+    s.push_str(&left_out_sentence(&figure(plan, view).labels.left_out));
     s
 }

@@ -9,7 +9,7 @@
 //! | class | what |
 //! |---|---|
 //! | `points` | one marker per individually drawn row or feature, in `group` subgroups (`data-group`); `flagged` on rows above a limit |
-//! | `density` | rows binned in density mode: one `rect` per occupied cell, in `density-class` subgroups (`data-from`) |
+//! | `density` | every row binned in density mode: `density-category` groups (`data-category`) of `density-class` subgroups (`data-from`), one `rect` per occupied cell with its rows as `data-n` |
 //! | `labels`, `arrow-labels` | row ids beside points; feature names beside arrows |
 //! | `arrows` | one `path` per feature (shaft and head), biplot and correlation circle |
 //! | `bars` | one `rect` per bar; in the scree `bar`, plus `kept` for kept components |
@@ -41,7 +41,37 @@ use crate::recipe::raw::PlotKind;
 use frame::{Axis, Layout, Step, TOP};
 use svg::{HEIGHT, WIDTH};
 
-pub use scatter::{MAX_FLAGGED_LABELS, MAX_INDIVIDUAL};
+pub use scatter::{Cell, RowLayers};
+
+/// In which layer each row of a scatter plot (scores, biplot, outlier map) is
+/// drawn, when the plot shows a density (`None` otherwise): every finite row
+/// in exactly one density cell of one category, the labelled rows also drawn
+/// as points on top. The figure's density is counted by the same rule.
+pub fn row_layers(plan: &PlotPlan, view: &PlotView) -> Option<RowLayers> {
+    if missing_data(plan, view).is_some() {
+        return None;
+    }
+    match plan.kind {
+        PlotKind::Scores => scores::layers(plan, view),
+        PlotKind::Biplot => biplot::layers(plan, view),
+        PlotKind::OutlierMap => outliers::layers(plan, view),
+        _ => None,
+    }
+}
+
+/// The box a label's text takes in pixels (left, top, right, bottom), as the
+/// figures reckon it when keeping labels apart: `anchor` is the text's
+/// `text-anchor` ("start", "middle" or "end").
+pub fn label_box(x: f64, y: f64, anchor: &str, text: &str) -> (f64, f64, f64, f64) {
+    let anchor = match anchor {
+        "end" => svg::Anchor::End,
+        "middle" => svg::Anchor::Middle,
+        _ => svg::Anchor::Start,
+    };
+    let w = svg::text_width(text, frame::LABEL_SIZE);
+    let b = scatter::Spot { x, y, anchor }.bounds(w);
+    (b.x0, b.y0, b.x1, b.y1)
+}
 
 /// Draws one plot as an SVG document.
 pub fn render(plan: &PlotPlan, view: &PlotView) -> String {

@@ -6,9 +6,17 @@
 //! largest value is more than [`ROOT_ABOVE`] times its limit, that axis gets a
 //! square-root scale (ticks still in the statistic's own units), and the
 //! caption says so.
+//!
+//! Above `density_above` rows, every row is counted in a density whose cell
+//! borders fall on the limit lines, so each cell holds rows of one kind only
+//! (within, above T², above SPE, above both) and is shaded in that kind's
+//! colour; only the labelled rows are drawn as points on top.
 
-use super::frame::{self, Axis, Extent, Frame};
-use super::scatter::{self, Colour, Groups, Legend, PointSelection};
+use super::frame::{self, Axis, Extent, Frame, Panel};
+use super::scatter::{
+    self, Binning, Category, Colour, Grid, Groups, Labelling, Legend, Placements, PointSelection,
+    RowLayers, Sides,
+};
 use super::svg::{self, MUTED, NEUTRAL, Shape};
 use super::{LEGEND_X, scatter_layout, title};
 use crate::outputs::view::PlotView;
@@ -60,17 +68,29 @@ fn coords(root_x: bool, root_y: bool) -> impl Fn(&Batch, usize) -> (f64, f64) {
     }
 }
 
+/// Whether a row is above the T² limit and above the SPE limit.
+fn above(view: &PlotView, batch: &Batch, i: usize) -> (bool, bool) {
+    let over = |v: f64, l: Option<f64>| l.is_some_and(|l| v > l);
+    (
+        over(batch.t2(i), view.t2_limit),
+        over(batch.spe(i), view.spe_limit),
+    )
+}
+
+/// A row's kind: 0 within, 1 above T² only, 2 above SPE only, 3 above both.
+fn kind_of(a: bool, b: bool) -> u32 {
+    match (a, b) {
+        (false, false) => 0,
+        (true, false) => 1,
+        (false, true) => 2,
+        (true, true) => 3,
+    }
+}
+
 fn prepare(plan: &PlotPlan, view: &PlotView) -> OutlierScan {
-    let above = |v: f64, l: Option<f64>| l.is_some_and(|l| v > l);
     let kind = |batch: &Batch, i: usize| -> u32 {
-        let a = above(batch.t2(i), view.t2_limit);
-        let b = above(batch.spe(i), view.spe_limit);
-        match (a, b) {
-            (false, false) => 0,
-            (true, false) => 1,
-            (false, true) => 2,
-            (true, true) => 3,
-        }
+        let (a, b) = above(view, batch, i);
+        kind_of(a, b)
     };
     // Whether an axis gets a root scale is known only once every row is read,
     // so the same reading also folds the extents of the square roots.
@@ -94,7 +114,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> OutlierScan {
     let mut g = scatter::gather(
         view,
         colour,
-        plan.labels,
+        labelling(plan),
         plan.density_above,
         coords(false, false),
         watch,
@@ -174,7 +194,35 @@ fn style(kind: usize) -> (&'static str, Shape) {
     [WITHIN, T2_ONLY, SPE_ONLY, BOTH][kind.min(3)]
 }
 
-fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan, caption: &str) -> String {
+fn labelling(plan: &PlotPlan) -> Labelling {
+    Labelling {
+        which: plan.labels,
+        most: plan.max_labels,
+    }
+}
+
+/// The density's categories, one per kind of row, in the kinds' colours.
+fn kind_categories() -> Vec<Category> {
+    let mut categories = scatter::flag_categories();
+    categories.truncate(1);
+    categories[0].name = KIND_NAMES[0];
+    for k in 1..4 {
+        categories.push(Category::tinted(KIND_NAMES[k], style(k).0, false));
+    }
+    categories
+}
+
+/// The drawing area and the labels' places, known before the caption (which
+/// names the labels left out).
+struct Figure {
+    panel: Panel,
+    /// The limits in plotted units, when defined.
+    lx: Option<f64>,
+    ly: Option<f64>,
+    labels: Placements,
+}
+
+fn figure(view: &PlotView, p: &OutlierScan) -> Figure {
     let layout = scatter_layout();
     let lx = view.t2_limit.filter(|l| l.is_finite());
     let ly = view.spe_limit.filter(|l| l.is_finite());
@@ -187,12 +235,79 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan, caption: &
     let xa = stat_axis(xhi, p.root_x, layout.plot_width(), 80.0);
     let ya = stat_axis(yhi, p.root_y, layout.plot_height(), 55.0);
     let panel = layout.panel(xa, ya);
+    let labels = scatter::place_rows(&panel, &p.sel, &[]);
+    Figure {
+        panel,
+        lx,
+        ly,
+        labels,
+    }
+}
+
+/// Gives `f` the binning of the rows into the density: cell borders on the
+/// limit lines, each row kept on its side of them.
+fn with_binning<R>(
+    view: &PlotView,
+    p: &OutlierScan,
+    fig: &Figure,
+    f: impl FnOnce(&Binning) -> R,
+) -> R {
+    let panel = &fig.panel;
+    let at = coords(p.root_x, p.root_y);
+    let pixel = |batch: &Batch, i: usize| {
+        let (x, y) = at(batch, i);
+        (panel.px(x), panel.py(y))
+    };
+    let (has_x, has_y) = (fig.lx.is_some(), fig.ly.is_some());
+    let category = |batch: &Batch, i: usize| {
+        let (a, b) = above(view, batch, i);
+        let sides = Sides {
+            right: has_x.then_some(a),
+            above: has_y.then_some(b),
+        };
+        (kind_of(a, b) as usize, sides)
+    };
+    let binning = Binning {
+        grid: Grid::new(
+            panel,
+            fig.lx.map(|l| panel.px(l)),
+            fig.ly.map(|l| panel.py(l)),
+        ),
+        categories: kind_categories(),
+        pixel: &pixel,
+        category: &category,
+    };
+    f(&binning)
+}
+
+/// Each row's layer, in density mode.
+pub fn layers(plan: &PlotPlan, view: &PlotView) -> Option<RowLayers> {
+    let p = prepare(plan, view);
+    if !p.sel.density {
+        return None;
+    }
+    let fig = figure(view, &p);
+    Some(with_binning(view, &p, &fig, |b| {
+        scatter::row_layers(view, b, &p.sel)
+    }))
+}
+
+fn render_prepared(
+    plan: &PlotPlan,
+    view: &PlotView,
+    p: &OutlierScan,
+    fig: &Figure,
+    caption: &str,
+) -> String {
+    let layout = scatter_layout();
+    let panel = &fig.panel;
+    let (lx, ly) = (fig.lx, fig.ly);
     let t = title(plan, view);
     let back = frame::backdrop(
         &t,
         &[Frame::new(
             layout,
-            &panel,
+            panel,
             format!(
                 "Hotelling's T² ({} kept components){}",
                 view.kept,
@@ -208,13 +323,9 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan, caption: &
     let mut body = String::new();
     let mut density = None;
     if p.sel.density {
-        density = Some(scatter::draw_density(
-            &mut body,
-            &panel,
-            view,
-            &p.sel,
-            coords(p.root_x, p.root_y),
-        ));
+        density = Some(with_binning(view, p, fig, |b| {
+            scatter::draw_density(&mut body, view, b)
+        }));
     }
     // The limits.
     let rule = format!("stroke=\"{MUTED}\" stroke-width=\"1.2\" stroke-dasharray=\"6 4\"");
@@ -245,19 +356,24 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan, caption: &
     body.push_str("</g>\n");
 
     // Points: coloured by which limits they exceed (not by a group column).
-    draw_kinds(&mut body, &panel, p);
-    scatter::label_rows(&mut body, &panel, &p.sel, &[]);
+    draw_kinds(&mut body, panel, p);
+    scatter::write_labels(&mut body, "labels", svg::INK, &fig.labels);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
-    legend.heading("rows");
-    for k in 0..4 {
-        if k == 0 && p.sel.density {
-            continue;
+    match &density {
+        Some(drawn) => {
+            let names: Vec<&str> = (0..4).map(short).collect();
+            legend.density(drawn, &names);
         }
-        let (colour, shape) = style(k);
-        legend.counted(colour, shape, short(k), p.groups.counts[k]);
+        None => {
+            legend.heading("rows");
+            for k in 0..4 {
+                let (colour, shape) = style(k);
+                legend.counted(colour, shape, short(k), p.groups.counts[k]);
+            }
+            legend.gap();
+        }
     }
-    legend.gap();
     legend.heading(&format!("limits at {level}"));
     legend.rule(MUTED, Some("6 4"), 1.2, "limit");
     match view.t2_limit {
@@ -267,10 +383,6 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan, caption: &
     match view.spe_limit {
         Some(l) => legend.note(&format!("SPE: {}", significant_plain(l, 4))),
         None => legend.note("SPE: not defined"),
-    }
-    if let Some((classes, colours)) = &density {
-        legend.gap();
-        legend.density(classes, colours);
     }
     body.push_str(&legend.finish());
     frame::finish(back, &t, caption, &body)
@@ -323,7 +435,7 @@ fn draw_kinds(out: &mut String, panel: &frame::Panel, p: &OutlierScan) {
     out.push_str("</g>\n");
 }
 
-fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan) -> String {
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan, fig: &Figure) -> String {
     let level = crate::text::percent_or_undefined(view.confidence);
     let mut s = format!(
         "{}. Each row's Hotelling T² (distance within the model of {} kept components, horizontal) against its squared prediction error SPE (distance from the model, vertical).",
@@ -374,14 +486,30 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan) -> String
     }
     let _ = write!(
         s,
-        " Colour and shape tell the rows within both limits ({}), above the T² limit only ({}), above the SPE limit only ({}) and above both ({}).",
-        p.groups.counts[0], p.groups.counts[1], p.groups.counts[2], p.groups.counts[3]
+        " {} tell the rows within both limits ({}), above the T² limit only ({}), above the SPE limit only ({}) and above both ({}).",
+        if p.sel.density {
+            "Colours"
+        } else {
+            "Colour and shape"
+        },
+        p.groups.counts[0],
+        p.groups.counts[1],
+        p.groups.counts[2],
+        p.groups.counts[3]
     );
     s.push(' ');
-    let mut words = p.sel.describe("rows", plan.density_above, plan.labels);
+    let mut words = p.sel.describe(
+        "rows",
+        plan.density_above,
+        labelling(plan),
+        &fig.labels.left_out,
+    );
     // Flagged rows here are told apart by colour, not by an outline.
     words = words.replace(" Rows above the T² or SPE limit have a dark outline.", "");
     s.push_str(&words);
+    if p.sel.density {
+        s.push_str(" The squares' borders fall on the limit lines, so each square holds rows of one kind only.");
+    }
     if plan.labels == PointLabels::None {
         s.push_str(" No rows are labelled.");
     }
@@ -391,8 +519,9 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &OutlierScan) -> String
 /// The figure and its caption from one reading of the rows.
 pub fn draw(plan: &PlotPlan, view: &PlotView) -> (String, String) {
     let p = prepare(plan, view);
-    let caption = caption_prepared(plan, view, &p);
-    (render_prepared(plan, view, &p, &caption), caption)
+    let fig = figure(view, &p);
+    let caption = caption_prepared(plan, view, &p, &fig);
+    (render_prepared(plan, view, &p, &fig, &caption), caption)
 }
 
 pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
@@ -400,5 +529,6 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
 }
 
 pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
-    caption_prepared(plan, view, &prepare(plan, view))
+    let p = prepare(plan, view);
+    caption_prepared(plan, view, &p, &figure(view, &p))
 }

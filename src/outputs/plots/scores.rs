@@ -1,8 +1,15 @@
 //! Scores of two components, coloured by a group column, with an optional
 //! Hotelling T² ellipse.
+//!
+//! Above `density_above` rows, every row is counted in a density: rows within
+//! the limits in grey-blue squares, rows above a limit in smaller vermilion
+//! squares in their cells' middle (so the grey density under them still
+//! shows); only the labelled rows are drawn as points on top.
 
-use super::frame::{self, Extent, Frame};
-use super::scatter::{self, Colour, Groups, Legend, PointSelection};
+use super::frame::{self, Extent, Frame, Panel};
+use super::scatter::{
+    self, Binning, Colour, Grid, Groups, Labelling, Legend, Placements, PointSelection, RowLayers,
+};
 use super::svg::{self, MUTED, N, NEUTRAL};
 use super::{LEGEND_X, equal_axes, scatter_layout, title};
 use crate::outputs::view::PlotView;
@@ -42,7 +49,7 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> ScoreScan {
     let g = scatter::gather(
         view,
         colour,
-        plan.labels,
+        labelling(plan),
         plan.density_above,
         coords(plan),
         |_, _| {},
@@ -66,8 +73,21 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> ScoreScan {
     }
 }
 
-fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan, caption: &str) -> String {
-    let (a, b) = (plan.x - 1, plan.y - 1);
+pub(super) fn labelling(plan: &PlotPlan) -> Labelling {
+    Labelling {
+        which: plan.labels,
+        most: plan.max_labels,
+    }
+}
+
+/// The drawing area and the labels' places, known before the caption (which
+/// names the labels left out).
+struct Figure {
+    panel: Panel,
+    labels: Placements,
+}
+
+fn figure(p: &ScoreScan) -> Figure {
     let layout = scatter_layout();
     let (ex, ey) = match &p.ellipse {
         Some(Ok((_, ex, ey))) => (*ex, *ey),
@@ -77,12 +97,62 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan, caption: &st
     let yr = p.y.padded(&[-ey, ey, 0.0], 0.05);
     let (xa, ya) = equal_axes(&layout, xr, yr);
     let panel = layout.panel(xa, ya);
+    let labels = scatter::place_rows(&panel, &p.sel, &[]);
+    Figure { panel, labels }
+}
+
+/// Gives `f` the binning of the rows into the density (by flag, no splits).
+pub(super) fn with_binning<R>(
+    view: &PlotView,
+    panel: &Panel,
+    at: impl Fn(&Batch, usize) -> (f64, f64),
+    f: impl FnOnce(&Binning) -> R,
+) -> R {
+    let pixel = |batch: &Batch, i: usize| {
+        let (x, y) = at(batch, i);
+        (panel.px(x), panel.py(y))
+    };
+    let category = scatter::flag_category(view);
+    let binning = Binning {
+        grid: Grid::new(panel, None, None),
+        categories: scatter::flag_categories(),
+        pixel: &pixel,
+        category: &category,
+    };
+    f(&binning)
+}
+
+/// Each row's layer, in density mode.
+pub fn layers(plan: &PlotPlan, view: &PlotView) -> Option<RowLayers> {
+    let p = prepare(plan, view);
+    if !p.sel.density {
+        return None;
+    }
+    let fig = figure(&p);
+    Some(with_binning(view, &fig.panel, coords(plan), |b| {
+        scatter::row_layers(view, b, &p.sel)
+    }))
+}
+
+/// The legend's names of the density's categories.
+pub(super) const DENSITY_NAMES: [&str; 2] = ["within limits", "above a limit"];
+
+fn render_prepared(
+    plan: &PlotPlan,
+    view: &PlotView,
+    p: &ScoreScan,
+    fig: &Figure,
+    caption: &str,
+) -> String {
+    let (a, b) = (plan.x - 1, plan.y - 1);
+    let layout = scatter_layout();
+    let panel = &fig.panel;
     let t = title(plan, view);
     let back = frame::backdrop(
         &t,
         &[Frame::new(
             layout,
-            &panel,
+            panel,
             super::axis_title(view, a),
             super::axis_title(view, b),
         )],
@@ -90,17 +160,13 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan, caption: &st
 
     let mut body = String::new();
     // Zero lines through the origin (the scores' mean).
-    frame::origin_lines(&mut body, &panel);
+    frame::origin_lines(&mut body, panel);
 
     let mut density = None;
     if p.sel.density {
-        density = Some(scatter::draw_density(
-            &mut body,
-            &panel,
-            view,
-            &p.sel,
-            coords(plan),
-        ));
+        density = Some(with_binning(view, panel, coords(plan), |b| {
+            scatter::draw_density(&mut body, view, b)
+        }));
     }
     if let Some(Ok((_, ex, ey))) = &p.ellipse {
         let _ = writeln!(
@@ -112,11 +178,11 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan, caption: &st
             N(ey * panel.y_scale())
         );
     }
-    scatter::draw_points(&mut body, &panel, &p.sel, &p.groups);
-    scatter::label_rows(&mut body, &panel, &p.sel, &[]);
+    scatter::draw_points(&mut body, panel, &p.sel, &p.groups);
+    scatter::write_labels(&mut body, "labels", svg::INK, &fig.labels);
 
     let mut legend = Legend::new(LEGEND_X, f64::from(frame::TOP), panel.bottom);
-    let reserve = 3 + if p.sel.density { 9 } else { 0 } + usize::from(p.ellipse.is_some()) * 2;
+    let reserve = 3 + if p.sel.density { 14 } else { 0 } + usize::from(p.ellipse.is_some()) * 2;
     legend.groups(&p.groups, reserve);
     if p.groups.column.is_none() && !p.sel.density {
         legend.marker(NEUTRAL, svg::Shape::Circle, false, "row");
@@ -137,14 +203,14 @@ fn render_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan, caption: &st
         );
         legend.gap();
     }
-    if let Some((classes, colours)) = &density {
-        legend.density(classes, colours);
+    if let Some(drawn) = &density {
+        legend.density(drawn, &DENSITY_NAMES);
     }
     body.push_str(&legend.finish());
     frame::finish(back, &t, caption, &body)
 }
 
-fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan) -> String {
+fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan, fig: &Figure) -> String {
     let (a, b) = (plan.x - 1, plan.y - 1);
     let mut s = format!(
         "{}. Scores of the rows on PC{} ({} of the variance, horizontal) and PC{} ({}, vertical), with one score unit the same length on both axes.",
@@ -163,7 +229,15 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan) -> String {
         );
     }
     s.push(' ');
-    s.push_str(&p.sel.describe("rows", plan.density_above, plan.labels));
+    s.push_str(&p.sel.describe(
+        "rows",
+        plan.density_above,
+        labelling(plan),
+        &fig.labels.left_out,
+    ));
+    if p.sel.density {
+        s.push_str(DENSITY_WORDS);
+    }
     match &p.ellipse {
         None => {}
         Some(Ok((l, _, _))) => {
@@ -187,11 +261,15 @@ fn caption_prepared(plan: &PlotPlan, view: &PlotView, p: &ScoreScan) -> String {
     s
 }
 
+/// How the density of a score plot or biplot reads, for its caption.
+pub(super) const DENSITY_WORDS: &str = " Grey-blue squares count the rows within the limits; smaller vermilion squares in a square's middle count the rows above a T² or SPE limit there, so the grey under them still shows.";
+
 /// The figure and its caption from one reading of the rows.
 pub fn draw(plan: &PlotPlan, view: &PlotView) -> (String, String) {
     let p = prepare(plan, view);
-    let caption = caption_prepared(plan, view, &p);
-    (render_prepared(plan, view, &p, &caption), caption)
+    let fig = figure(&p);
+    let caption = caption_prepared(plan, view, &p, &fig);
+    (render_prepared(plan, view, &p, &fig, &caption), caption)
 }
 
 pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
@@ -199,5 +277,6 @@ pub fn render(plan: &PlotPlan, view: &PlotView) -> String {
 }
 
 pub fn caption(plan: &PlotPlan, view: &PlotView) -> String {
-    caption_prepared(plan, view, &prepare(plan, view))
+    let p = prepare(plan, view);
+    caption_prepared(plan, view, &p, &figure(&p))
 }

@@ -66,6 +66,8 @@ pub struct RawPlot {
     pub color: Option<Spanned<String>>,
     /// Which points get their id written beside them.
     pub labels: Option<Spanned<PointLabels>>,
+    /// At most this many rows get their id written (the most severe first).
+    pub max_labels: Option<Spanned<Count>>,
     /// Draw the Hotelling T² ellipse at this confidence (scores plots).
     pub ellipse: Option<Spanned<Confidence>>,
     /// Above this many points, scatter plots draw a density of binned points

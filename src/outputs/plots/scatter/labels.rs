@@ -1,5 +1,7 @@
 //! Point labels: each id is placed at the first free spot around its point, so
-//! labels overlap neither each other nor what is drawn.
+//! labels overlap neither each other nor what is drawn. The scatter plots and
+//! the arrows place theirs strictly ([`place_apart`]): a label with no free
+//! spot is left out and named in the caption instead.
 
 use super::MARK;
 use super::selection::{Point, PointSelection};
@@ -17,7 +19,7 @@ pub struct Box2 {
 }
 
 impl Box2 {
-    fn overlaps(&self, o: &Box2) -> bool {
+    pub fn overlaps(&self, o: &Box2) -> bool {
         self.x0 < o.x1 && o.x0 < self.x1 && self.y0 < o.y1 && o.y0 < self.y1
     }
 
@@ -41,7 +43,7 @@ pub struct Spot {
 }
 
 impl Spot {
-    fn bounds(&self, width: f64) -> Box2 {
+    pub fn bounds(&self, width: f64) -> Box2 {
         let (x0, x1) = match self.anchor {
             Anchor::Start => (self.x, self.x + width),
             Anchor::End => (self.x - width, self.x),
@@ -121,6 +123,92 @@ pub fn place_labels(
     placed.split_off(taken.len())
 }
 
+/// A label given its place: where its text goes and the box it takes.
+#[derive(Clone, Debug)]
+pub struct Placed {
+    pub spot: Spot,
+    pub text: String,
+    pub bounds: Box2,
+}
+
+/// What strict placement gives: the labels placed, and the full texts of those
+/// left out for want of a free spot (in the order given).
+#[derive(Clone, Debug, Default)]
+pub struct Placements {
+    pub placed: Vec<Placed>,
+    pub left_out: Vec<String>,
+}
+
+impl Placements {
+    /// The boxes the placed labels take.
+    pub fn boxes(&self) -> Vec<Box2> {
+        self.placed.iter().map(|p| p.bounds).collect()
+    }
+}
+
+/// Places labels one after another in the given order (so the result is
+/// deterministic and earlier labels win room), each at the spot that stays
+/// inside `bounds`, overlaps no label already placed nor any box in `taken`,
+/// and covers the fewest `obstacles`; ties go to the earlier spot. A label
+/// with no such spot is left out.
+pub fn place_apart(
+    items: &[Placement],
+    obstacles: &[Box2],
+    taken: &[Box2],
+    bounds: (f64, f64, f64, f64),
+) -> Placements {
+    let (bx0, by0, bx1, by1) = bounds;
+    let mut out = Placements::default();
+    let mut placed: Vec<Box2> = taken.to_vec();
+    for item in items {
+        let label = svg::clip_text(&item.text, 24);
+        let w = text_width(&label, LABEL_SIZE);
+        let mut best: Option<(usize, Spot, Box2)> = None;
+        for spot in &item.spots {
+            let b = spot.bounds(w);
+            let outside = b.x0 < bx0 || b.x1 > bx1 || b.y0 < by0 || b.y1 > by1;
+            if outside || placed.iter().any(|p| p.overlaps(&b)) {
+                continue;
+            }
+            let cost = obstacles.iter().filter(|p| p.overlaps(&b)).count();
+            if best.as_ref().is_none_or(|(c, _, _)| cost < *c) {
+                best = Some((cost, *spot, b));
+            }
+            if cost == 0 {
+                break;
+            }
+        }
+        match best {
+            Some((_, spot, bounds)) => {
+                placed.push(bounds);
+                out.placed.push(Placed {
+                    spot,
+                    text: label,
+                    bounds,
+                });
+            }
+            None => out.left_out.push(item.text.clone()),
+        }
+    }
+    out
+}
+
+/// Writes placed labels in a group of class `class` (nothing when none is placed).
+pub fn write_labels(out: &mut String, class: &str, colour: &str, labels: &Placements) {
+    if labels.placed.is_empty() {
+        return;
+    }
+    let _ = writeln!(
+        out,
+        "<g class=\"{class}\" font-size=\"{}\" fill=\"{colour}\" {HALO}>",
+        N(LABEL_SIZE)
+    );
+    for p in &labels.placed {
+        text(out, p.spot.x, p.spot.y, p.spot.anchor, &p.text, "");
+    }
+    out.push_str("</g>\n");
+}
+
 /// The eight spots around a marker at (x, y): right, left, above, below, then
 /// the corners.
 pub fn spots_around(x: f64, y: f64) -> Vec<Spot> {
@@ -196,26 +284,33 @@ pub fn draw_labels(
     place_labels(out, "labels", INK, &items, &obstacles, taken, bounds);
 }
 
-/// Writes the ids of the selected rows beside their markers.
-pub fn label_rows(out: &mut String, panel: &Panel, sel: &PointSelection, taken: &[Box2]) {
-    if sel.labelled.is_empty() {
-        return;
-    }
+/// Places the ids of the labelled rows beside their markers, clear of each
+/// other and of `taken` (labels placed before), the most severe first.
+pub fn place_rows(panel: &Panel, sel: &PointSelection, taken: &[Box2]) -> Placements {
     let at = |p: &Point| (panel.px(p.x), panel.py(p.y));
-    let labelled: Vec<(f64, f64, String)> = sel
+    let items: Vec<Placement> = sel
         .labelled
         .iter()
         .map(|&k| {
             let (x, y) = at(&sel.points[k]);
-            (x, y, sel.points[k].label.clone())
+            Placement {
+                text: sel.points[k].label.clone(),
+                spots: spots_around(x, y),
+            }
         })
         .collect();
-    let marks: Vec<(f64, f64)> = sel.points.iter().map(at).collect();
-    draw_labels(
-        out,
-        &labelled,
-        &marks,
+    let obstacles: Vec<Box2> = sel
+        .points
+        .iter()
+        .map(|p| {
+            let (x, y) = at(p);
+            Box2::around(x, y, MARK)
+        })
+        .collect();
+    place_apart(
+        &items,
+        &obstacles,
         taken,
         (panel.left, panel.top, panel.right, panel.bottom),
-    );
+    )
 }

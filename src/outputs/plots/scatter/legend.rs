@@ -2,6 +2,7 @@
 //! when the column is full.
 
 use super::MARK;
+use super::density::Drawn;
 use super::groups::Groups;
 use crate::outputs::plots::svg::{self, Anchor, INK, MUTED, N, Shape, text};
 use std::fmt::Write;
@@ -158,19 +159,57 @@ impl Legend {
         self.gap();
     }
 
-    /// The density classes.
-    pub fn density(&mut self, classes: &[usize], colours: &[String]) {
+    /// The density: each category with its rows (a middle shade) when there
+    /// are several, then the count classes, one swatch per category a line.
+    pub fn density(&mut self, drawn: &Drawn, names: &[&str]) {
+        let mid = drawn.classes.len() / 2;
+        if names.len() > 1 {
+            self.heading("rows (squares)");
+            for (k, name) in names.iter().enumerate() {
+                self.swatch(
+                    &drawn.shades[k][mid],
+                    &format!("{name} ({})", drawn.counts[k]),
+                );
+            }
+            self.gap();
+        }
         self.heading("rows per square");
-        for (c, colour) in colours.iter().enumerate() {
-            let lo = classes[c];
+        let classes = &drawn.classes;
+        for (c, &lo) in classes.iter().enumerate() {
             let label = match classes.get(c + 1) {
                 Some(&next) if next - 1 > lo => format!("{lo}–{}", next - 1),
                 Some(_) => format!("{lo}"),
                 None => format!("{lo} or more"),
             };
-            self.swatch(colour, &label);
+            let colours: Vec<&str> = drawn.shades.iter().map(|s| s[c].as_str()).collect();
+            self.swatches(&colours, &label);
         }
         self.gap();
+    }
+
+    /// An entry with filled squares side by side, then its text.
+    fn swatches(&mut self, colours: &[&str], label: &str) {
+        for (k, colour) in colours.iter().enumerate() {
+            let x = self.x + 1.0 + 12.0 * k as f64;
+            svg::rect(
+                &mut self.body,
+                x,
+                self.y + 2.0,
+                x + 10.0,
+                self.y + 12.0,
+                &format!("fill=\"{colour}\""),
+            );
+        }
+        let shift = 12.0 * colours.len().saturating_sub(1) as f64;
+        text(
+            &mut self.body,
+            self.x + 18.0 + shift,
+            self.y + 10.8,
+            Anchor::Start,
+            &svg::clip_text(label, legend_chars(self.x + shift)),
+            "",
+        );
+        self.y += LEGEND_ROW;
     }
 
     pub fn finish(mut self) -> String {

@@ -1,6 +1,8 @@
-//! Which rows a scatter plot draws one by one: all of them up to a bound, then
-//! the most severe flagged rows; the rest are binned into the density. Also the
-//! labelled rows and the drawing of the chosen points.
+//! Which rows a scatter plot draws one by one: every row up to
+//! `density_above`; above it, only the labelled rows, drawn on top of a
+//! density that counts every row (so no row is missing from the density and
+//! no edge appears where the drawn points start). Also which rows are
+//! labelled: at most `max_labels`, the most severe first.
 
 use super::MARK;
 use super::density::CELL;
@@ -13,16 +15,9 @@ use crate::row_results::Batch;
 use std::cmp::Ordering;
 use std::fmt::Write;
 
-/// At most this many rows are drawn one by one in density mode (the most
-/// extreme flagged rows first); the others join the density.
-pub const MAX_INDIVIDUAL: usize = 2_000;
-/// With `labels = "flagged"`, at most this many rows get their id written (the
-/// most extreme first), so labels stay readable.
-pub const MAX_FLAGGED_LABELS: usize = 40;
-
 /// How far beyond its limits a row with this T² and SPE is: the larger of
 /// T²/limit and SPE/limit (the raw T² when neither limit is defined). Used to
-/// pick the most extreme flagged rows when not all can be drawn or labelled.
+/// pick the most extreme rows when not all can be labelled.
 pub fn severity(view: &PlotView, t2: f64, spe: f64) -> f64 {
     let a = view.t2_limit.filter(|l| *l > 0.0).map(|l| t2 / l);
     let b = view.spe_limit.filter(|l| *l > 0.0).map(|l| spe / l);
@@ -45,6 +40,8 @@ pub struct Point {
     pub flagged: bool,
     pub group: u32,
     severity: f64,
+    /// Whether the row may be labelled (`labels` chooses it).
+    named: bool,
     /// The row's label, kept only when it may be written.
     pub label: String,
 }
@@ -60,25 +57,32 @@ fn most_severe(points: &mut Vec<Point>, keep: usize) {
     points.truncate(keep);
 }
 
-/// Which rows are drawn one by one, which are binned, which are labelled.
+/// How a plot labels its rows: which rows may be labelled, and how many at most.
+#[derive(Clone, Copy, Debug)]
+pub struct Labelling {
+    pub which: PointLabels,
+    pub most: usize,
+}
+
+/// Which rows are drawn one by one, which are labelled.
 pub struct PointSelection {
     /// Rows with finite coordinates.
     pub n_finite: usize,
     /// Rows left out for a non-finite coordinate.
     pub n_nonfinite: usize,
-    /// Whether the plot shows a density instead of every point.
+    /// Whether the plot shows a density of every row under the points.
     pub density: bool,
-    /// Rows drawn individually, in drawing order (unflagged first).
+    /// Rows drawn individually, in drawing order (unflagged first): every
+    /// finite row, or in density mode only the labelled rows.
     pub points: Vec<Point>,
-    /// The rows of `points`, ascending (to tell the binned rows).
-    drawn_rows: Vec<usize>,
     /// Rows flagged in all, and flagged rows drawn individually.
     pub flagged_total: usize,
     pub flagged_drawn: usize,
-    /// The points whose label is written (indices into `points`).
+    /// The points whose label is written if it finds room (indices into
+    /// `points`), the most severe first.
     pub labelled: Vec<usize>,
-    /// Flagged rows that would be labelled but are not, for the cap.
-    pub labels_capped: usize,
+    /// Rows that `labels` chooses.
+    pub candidates: usize,
 }
 
 /// What one reading of every row gives a scatter plot.
@@ -96,22 +100,23 @@ pub struct Gathered {
 /// coordinates, `watch` sees them for every row in row order (for what a plot
 /// folds besides). Memory stays bounded whatever the number of rows: at most
 /// `density_above` points while every finite row may still be drawn, then only
-/// the flagged rows, pruned to the [`MAX_INDIVIDUAL`] most severe whenever
-/// twice as many are held (a row pruned then has that many more severe rows
-/// ahead of it, so it could not be among the drawn).
+/// the rows that may be labelled, pruned to the `labelling.most` most severe
+/// whenever twice as many are held (a row pruned then has that many more
+/// severe rows ahead of it, so it could not be among the labelled).
 pub fn gather(
     view: &PlotView,
     colour: Colour,
-    labels: PointLabels,
+    labelling: Labelling,
     density_above: usize,
     coords: impl Fn(&Batch, usize) -> (f64, f64),
     mut watch: impl FnMut(f64, f64),
 ) -> Gathered {
     let mut groups = GroupCount::new(colour);
     let (mut x, mut y) = (Extent::default(), Extent::default());
-    let (mut rows, mut n_finite, mut flagged_total) = (0, 0, 0);
+    let (mut rows, mut n_finite, mut flagged_total, mut candidates) = (0, 0, 0, 0);
     let mut density = false;
     let mut kept: Vec<Point> = Vec::new();
+    let most = labelling.most.max(1);
     view.rows.scan(|batch| {
         for i in 0..batch.len() {
             let (px, py) = coords(batch, i);
@@ -127,18 +132,19 @@ pub fn gather(
             let (t2, spe) = (batch.t2(i), batch.spe(i));
             let flagged = view.is_flagged(t2, spe);
             flagged_total += usize::from(flagged);
-            if !density && n_finite > density_above {
-                density = true;
-                kept.retain(|p| p.flagged);
-            }
-            if density && !flagged {
-                continue;
-            }
-            let named = match labels {
+            let named = match labelling.which {
                 PointLabels::All => true,
                 PointLabels::Flagged => flagged,
                 PointLabels::None => false,
             };
+            candidates += usize::from(named);
+            if !density && n_finite > density_above {
+                density = true;
+                kept.retain(|p| p.named);
+            }
+            if density && !named {
+                continue;
+            }
             kept.push(Point {
                 row: batch.first + i,
                 x: px,
@@ -146,28 +152,29 @@ pub fn gather(
                 flagged,
                 group,
                 severity: severity(view, t2, spe),
+                named,
                 label: if named {
                     batch.label(i).into_owned()
                 } else {
                     String::new()
                 },
             });
-            if density && kept.len() > 2 * MAX_INDIVIDUAL {
-                most_severe(&mut kept, MAX_INDIVIDUAL);
+            if density && kept.len() > 2 * most {
+                most_severe(&mut kept, most);
             }
         }
     });
-    if density && kept.len() > MAX_INDIVIDUAL {
-        most_severe(&mut kept, MAX_INDIVIDUAL);
+    if density && kept.len() > labelling.most {
+        most_severe(&mut kept, labelling.most);
     }
     let (groups, remap) = groups.finish();
     for p in &mut kept {
         p.group = remap[p.group as usize];
     }
-    let sel = PointSelection::new(kept, labels, density, n_finite, rows, flagged_total);
+    let sel = PointSelection::new(kept, labelling, density, n_finite, rows, flagged_total);
     Gathered {
         groups,
-        sel,
+        sel: PointSelection { candidates, ..sel },
         x,
         y,
         rows,
@@ -178,7 +185,7 @@ impl PointSelection {
     /// Orders the drawn points and chooses the labelled ones.
     fn new(
         mut points: Vec<Point>,
-        labels: PointLabels,
+        labelling: Labelling,
         density: bool,
         n_finite: usize,
         rows: usize,
@@ -186,40 +193,23 @@ impl PointSelection {
     ) -> PointSelection {
         // Drawing order: unflagged, then flagged on top; by group, then row.
         points.sort_by_key(|p| (p.flagged, p.group, p.row));
-        let mut drawn_rows: Vec<usize> = points.iter().map(|p| p.row).collect();
-        drawn_rows.sort_unstable();
         let flagged_drawn = points.iter().filter(|p| p.flagged).count();
-        let (labelled, labels_capped) = match labels {
-            PointLabels::None => (Vec::new(), 0),
-            PointLabels::All => ((0..points.len()).collect(), 0),
-            PointLabels::Flagged => {
-                let mut chosen: Vec<usize> =
-                    (0..points.len()).filter(|&k| points[k].flagged).collect();
-                let capped = chosen.len().saturating_sub(MAX_FLAGGED_LABELS);
-                if capped > 0 {
-                    chosen.sort_by(|&a, &b| by_severity(&points[a], &points[b]));
-                    chosen.truncate(MAX_FLAGGED_LABELS);
-                    chosen.sort_unstable_by_key(|&k| points[k].row);
-                }
-                (chosen, capped)
-            }
-        };
+        let mut labelled: Vec<usize> = (0..points.len()).filter(|&k| points[k].named).collect();
+        // The most severe first: they are placed first, so they keep their
+        // labels when room runs out.
+        labelled.sort_by(|&a, &b| by_severity(&points[a], &points[b]));
+        let named = labelled.len();
+        labelled.truncate(labelling.most);
         PointSelection {
             n_finite,
             n_nonfinite: rows - n_finite,
             density,
             points,
-            drawn_rows,
             flagged_total,
             flagged_drawn,
             labelled,
-            labels_capped,
+            candidates: named,
         }
-    }
-
-    /// Whether the row is drawn one by one.
-    pub(super) fn is_drawn(&self, row: usize) -> bool {
-        self.drawn_rows.binary_search(&row).is_ok()
     }
 
     /// Changes the drawn points' coordinates (as when an axis gets another scale).
@@ -228,60 +218,67 @@ impl PointSelection {
             (p.x, p.y) = f(p.x, p.y);
         }
     }
-    /// Plain words about what the points are, for a caption.
-    pub fn describe(&self, what: &str, density_above: usize, labels: PointLabels) -> String {
+
+    /// Rows that `labels` chooses but the limit leaves out.
+    pub fn capped(&self) -> usize {
+        self.candidates - self.labelled.len()
+    }
+
+    /// Plain words about what the points are, for a caption: `left_out` are
+    /// the labels left out because they would overlap others.
+    pub fn describe(
+        &self,
+        what: &str,
+        density_above: usize,
+        labelling: Labelling,
+        left_out: &[String],
+    ) -> String {
         let mut s = String::new();
         if self.density {
-            let binned = self.n_finite - self.points.len();
             let _ = write!(
                 s,
-                "With {} {what} (more than {}), the plot shows how many fall in each {}-pixel square (shade, counts in the legend) instead of every point; ",
+                "With {} {what} (more than {}), the plot shows how many fall in each {}-pixel square (shade, counts in the legend) instead of every point: every row is counted in exactly one square, rows above a limit included, so the density has no gap where they begin; only the labelled rows are also drawn as points on top ({}).",
                 self.n_finite,
                 density_above,
-                N(CELL)
+                N(CELL),
+                self.points.len()
             );
-            if self.flagged_drawn == self.flagged_total {
-                let _ = write!(
-                    s,
-                    "the {} flagged rows are drawn one by one on top and {} rows are binned.",
-                    self.flagged_total, binned
-                );
+        } else {
+            let _ = write!(s, "Each of the {} {what} is a point.", self.n_finite);
+            if self.flagged_total > 0 {
+                s.push_str(" Rows above the T² or SPE limit have a dark outline.");
+            }
+        }
+        let whom = match labelling.which {
+            PointLabels::None => None,
+            PointLabels::All => Some("rows"),
+            PointLabels::Flagged => Some("flagged rows"),
+        };
+        if let Some(whom) = whom
+            && !self.labelled.is_empty()
+        {
+            let drawn = self.labelled.len() - left_out.len();
+            let all_shown = self.capped() == 0 && left_out.is_empty();
+            if all_shown && labelling.which == PointLabels::All {
+                let _ = write!(s, " {drawn} points are labelled with their id.");
+            } else if all_shown {
+                let _ = write!(s, " Flagged rows are labelled with their id ({drawn}).");
             } else {
                 let _ = write!(
                     s,
-                    "the {} most extreme of the {} flagged rows are drawn one by one on top and the other {} rows are binned.",
-                    self.flagged_drawn, self.flagged_total, binned
+                    " The {drawn} most severe {whom} are labelled with their id (at most {} per plot",
+                    labelling.most
                 );
+                if self.capped() > 0 {
+                    let _ = write!(s, "; {} more are not", self.capped());
+                }
+                s.push_str(").");
             }
-        } else {
-            let _ = write!(s, "Each of the {} {what} is a point.", self.n_finite);
-        }
-        if self.flagged_total > 0 {
-            s.push_str(" Rows above the T² or SPE limit have a dark outline.");
-        }
-        match labels {
-            PointLabels::None => {}
-            PointLabels::All => {
+            if !left_out.is_empty() {
                 let _ = write!(
                     s,
-                    " {} points are labelled with their id.",
-                    self.labelled.len()
-                );
-            }
-            PointLabels::Flagged if self.labelled.is_empty() => {}
-            PointLabels::Flagged if self.labels_capped > 0 => {
-                let _ = write!(
-                    s,
-                    " The {} most extreme flagged rows are labelled with their id ({} more are not, to keep the labels readable).",
-                    self.labelled.len(),
-                    self.labels_capped
-                );
-            }
-            PointLabels::Flagged => {
-                let _ = write!(
-                    s,
-                    " Flagged rows are labelled with their id ({}).",
-                    self.labelled.len()
+                    " Left out where the label would overlap another: {}.",
+                    left_out.join(", ")
                 );
             }
         }
