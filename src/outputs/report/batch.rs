@@ -15,7 +15,7 @@ use crate::outputs::tables::level_label;
 use crate::text::{count, readable};
 
 /// "95 %".
-fn percent_or_undefined(confidence: f64) -> String {
+fn level(confidence: f64) -> String {
     format!("{} %", level_label(confidence))
 }
 
@@ -81,11 +81,7 @@ fn header(out: &mut String, view: &BatchView) {
         "<p class=\"sx-notes\">Scored with the model of <code>{}</code>.</p>\n",
         escape(&view.results)
     ));
-    let levels: Vec<String> = view
-        .limits
-        .iter()
-        .map(|l| percent_or_undefined(l.confidence))
-        .collect();
+    let levels: Vec<String> = view.limits.iter().map(|l| level(l.confidence)).collect();
     out.push_str("<ul class=\"sx-facts\">\n");
     let fact = |out: &mut String, big: String, words: &str| {
         out.push_str(&format!(
@@ -198,7 +194,7 @@ fn flagged_row(out: &mut String, row: &BatchFlagged) {
         row.above
             .iter()
             .filter(|a| pick(a))
-            .map(|a| percent_or_undefined(a.0))
+            .map(|a| level(a.0))
             .collect()
     };
     let mut above = Vec::new();
