@@ -132,6 +132,18 @@ fn the_batch_report_charts_both_statistics_with_every_limit_and_lists_the_flagge
         listed["sha256"],
         sextant::outputs::hashing::sha256_hex(&bytes)
     );
+    // The manifest, with how the batch was read, keeps to the published schema.
+    let schema: serde_json::Value = serde_json::from_str(
+        &fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("src/schemas/manifest.schema.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    let validator = jsonschema::draft202012::new(&schema).unwrap();
+    let problems: Vec<String> = validator.iter_errors(&m).map(|e| e.to_string()).collect();
+    assert!(problems.is_empty(), "{problems:?}");
+    assert_eq!(m["batch"]["delimiter"], ",");
 
     // Self-contained: nothing is loaded.
     for loads in ["<script", "<link", "src=", "href=\"http", "url("] {
