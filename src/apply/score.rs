@@ -128,10 +128,10 @@ pub fn score(
         ));
     }
     let mut text_columns: Vec<String> = id.iter().cloned().chain(groups.iter().cloned()).collect();
-    if let Some(order) = options.order.as_ref().filter(|o| !is_feature(o)) {
-        if !text_columns.contains(order) {
-            text_columns.push(order.clone());
-        }
+    if let Some(order) = options.order.as_ref().filter(|o| !is_feature(o))
+        && !text_columns.contains(order)
+    {
+        text_columns.push(order.clone());
     }
     let read = batch::read_batch(
         bytes,
