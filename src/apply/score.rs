@@ -214,11 +214,13 @@ pub fn score(
         x.push(row);
     }
     if skipped > 0 {
+        let rows = crate::text::count(skipped, "row", "rows");
+        let were = if skipped == 1 { "was" } else { "were" };
         notes.push(match model.fill {
-            Fill::DropRows => format!(
-                "{skipped} row(s) with missing cells were not scored (the model drops such rows)"
-            ),
-            _ => format!("{skipped} row(s) with no observed feature were not scored"),
+            Fill::DropRows => {
+                format!("{rows} with missing cells {were} not scored (the model drops such rows)")
+            }
+            _ => format!("{rows} with no observed feature {were} not scored"),
         });
     }
     if scored_rows.is_empty() {
