@@ -247,7 +247,7 @@ fn control_caption(view: &BatchView, panels: &[Series; 2]) -> String {
                 .collect();
             let _ = write!(
                 s,
-                " Dashed lines: the {} limits {}.",
+                " Dashed lines: the {} limit {}.",
                 p.name,
                 each.join(", ")
             );
@@ -467,7 +467,7 @@ fn scores_caption(view: &BatchView, training: usize, labelled: usize) -> String 
         if flagged > labelled {
             let _ = write!(
                 s,
-                " ({} more are listed in the table below)",
+                " ({} more are not labelled; the table below lists the most severe)",
                 flagged - labelled
             );
         }
