@@ -142,6 +142,19 @@ pub enum Command {
         /// Replace an existing folder made from another model or table.
         #[arg(long)]
         replace: bool,
+        /// The table's field delimiter (one character, or `tab`) [default: the
+        /// analysis' delimiter, or another found in the header when only it
+        /// gives the model's features].
+        #[arg(long, value_name = "CHAR", value_parser = crate::apply::parse_delimiter)]
+        delimiter: Option<u8>,
+        /// The table's decimal mark, `.` or `,` [default: `.`, or `,` when the
+        /// features' cells are written with decimal commas and no points].
+        #[arg(long, value_name = "MARK", value_parser = crate::apply::parse_decimal)]
+        decimal: Option<u8>,
+        /// A column (a date, a time or a sequence number) that orders the rows
+        /// on the report's control chart [default: file order].
+        #[arg(long, value_name = "COLUMN")]
+        order: Option<String>,
     },
     /// Write the input table's current SHA-256 into the recipe (input.sha256).
     ///
@@ -232,11 +245,23 @@ pub fn execute(cli: Cli) -> Result<Outcome, Error> {
             table,
             out,
             replace,
+            delimiter,
+            decimal,
+            order,
         } => {
+            let batch = crate::apply::BatchOptions {
+                delimiter,
+                decimal,
+                order,
+            };
             let s = crate::apply::apply(
                 &results,
                 &table,
-                &crate::apply::ApplyOptions { out, replace },
+                &crate::apply::ApplyOptions {
+                    out,
+                    replace,
+                    batch,
+                },
             )?;
             describe_apply(&s).into()
         }

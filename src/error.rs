@@ -386,6 +386,36 @@ pub enum InputError {
         value: String,
         scaling: &'static str,
     },
+    #[error(
+        "{path}: none of the model's {features} is in the table's header; read with the delimiter {delimiter}, the header gives {fields}. The delimiter may be wrong: pass --delimiter (for example --delimiter \";\")"
+    )]
+    NoModelFeatures {
+        path: String,
+        /// "18 features", from `text::count`.
+        features: String,
+        /// "`,`" or "tab".
+        delimiter: String,
+        /// The header's fields as read, quoted and cut short.
+        fields: String,
+    },
+    #[error(
+        "{path}:{line}: column `{column}` has `{text}`, which is not a number written with the decimal mark `{decimal}` the batch is read with; pass --decimal with the mark the file uses, or fix the cell"
+    )]
+    DecimalMark {
+        path: String,
+        line: u64,
+        column: String,
+        text: String,
+        decimal: char,
+    },
+    #[error(
+        "{path}: the order column `{column}` is not in the table's header (it has {names}); pass --order with one of them"
+    )]
+    NoOrderColumn {
+        path: String,
+        column: String,
+        names: String,
+    },
 }
 
 impl InputError {

@@ -472,6 +472,7 @@ fn apply_in_memory(
         &model,
         &settings,
         settings.delimiter,
+        &Default::default(),
         &corpus.new_table,
         "new.csv",
     )?;

@@ -46,11 +46,16 @@ pub struct ManifestBody {
 
 /// The fingerprint of what a run was asked to do: the resolved recipe and the
 /// inputs' hashes. Two runs with equal fingerprints may replace each other.
+/// A folder written by `apply` has no recipe: the model and how the batch was
+/// read stand in for it ([`apply_key`]).
 pub fn fingerprint(manifest: &Value) -> Option<(String, Vec<String>)> {
-    let recipe = manifest
-        .pointer("/recipe/resolved_sha256")?
-        .as_str()?
-        .to_string();
+    let recipe = match manifest.pointer("/recipe/resolved_sha256") {
+        Some(sha) => sha.as_str()?.to_string(),
+        None => apply_key(
+            manifest.pointer("/model/sha256")?.as_str()?,
+            manifest.get("batch")?,
+        ),
+    };
     let inputs = manifest
         .get("inputs")?
         .as_array()?
@@ -58,6 +63,15 @@ pub fn fingerprint(manifest: &Value) -> Option<(String, Vec<String>)> {
         .map(|i| i.get("sha256").and_then(Value::as_str).map(str::to_string))
         .collect::<Option<Vec<_>>>()?;
     Some((recipe, inputs))
+}
+
+/// What stands for the recipe of an `apply` folder: the model's SHA-256 and
+/// the settings the batch was read and ordered with (`batch` in its manifest).
+pub fn apply_key(model_sha256: &str, batch: &Value) -> String {
+    format!(
+        "apply {model_sha256} {}",
+        sha256_hex(batch.to_string().as_bytes())
+    )
 }
 
 /// The digest a manifest should carry: SHA-256 of its compact JSON without

@@ -1,6 +1,7 @@
 //! Everything written to the results folder: tables, the manifest, hashes, and the
 //! all-or-nothing move of a finished folder into place.
 
+pub mod batch_view;
 pub mod build_views;
 pub mod debris;
 pub mod folder;

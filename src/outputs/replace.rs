@@ -26,12 +26,42 @@ const MANIFEST_LIMIT: u64 = 64 << 20;
 /// How many unexpected entries a refusal names before it counts the rest.
 const NAMED_AT_MOST: usize = 5;
 
+/// The command that writes a folder: the option that names the folder, the
+/// words for results it may not replace, and which results folders it may
+/// replace at all (`apply` replaces only its own earlier results, never a run's).
+#[derive(Debug, Clone, Copy)]
+pub struct Writer {
+    pub option: &'static str,
+    pub different: &'static str,
+    pub own: fn(&Value) -> bool,
+    pub not_own: &'static str,
+}
+
+/// `sextant run`: any sextant results folder may be replaced.
+pub const RUN: Writer = Writer {
+    option: "output.folder",
+    different: "a different recipe or input",
+    own: |_| true,
+    not_own: "",
+};
+
 /// Decides whether `target` may be replaced by results with `new_fingerprint`.
 pub fn check_replaceable(
     target: &Path,
     new_fingerprint: &(String, Vec<String>),
     replace: bool,
 ) -> Result<(), OutputError> {
+    check_replaceable_by(target, new_fingerprint, replace, &RUN)
+}
+
+/// [`check_replaceable`] for the command `writer`.
+pub fn check_replaceable_by(
+    target: &Path,
+    new_fingerprint: &(String, Vec<String>),
+    replace: bool,
+    writer: &Writer,
+) -> Result<(), OutputError> {
+    let option = writer.option;
     let refuse = |reason: String| OutputError::Refused {
         path: target.display().to_string(),
         reason,
@@ -47,9 +77,9 @@ pub fn check_replaceable(
         ));
     }
     if !meta.is_dir() {
-        return Err(refuse(
-            "exists and is not a folder; choose another output.folder".into(),
-        ));
+        return Err(refuse(format!(
+            "exists and is not a folder; choose another {option}"
+        )));
     }
     let Some(old) = sextant_manifest(target) else {
         let empty = fs::read_dir(target)
@@ -89,13 +119,19 @@ pub fn check_replaceable(
             if unexpected.len() == 1 { "it" } else { "them" }
         )));
     }
+    if !(writer.own)(&old) {
+        return Err(refuse(format!(
+            "{}, so nothing was deleted; choose another {option}",
+            writer.not_own
+        )));
+    }
     if replace || fingerprint(&old).as_ref() == Some(new_fingerprint) {
         return Ok(());
     }
-    Err(refuse(
-        "holds results of a different recipe or input; pass --replace to replace them, or choose another output.folder"
-            .into(),
-    ))
+    Err(refuse(format!(
+        "holds results of {}; pass --replace to replace them, or choose another {option}",
+        writer.different
+    )))
 }
 
 /// The folder's manifest.json, if it is a regular file holding a JSON object

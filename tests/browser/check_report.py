@@ -3,6 +3,13 @@
 
 Usage: tests/browser/check_report.py RESULTS_FOLDER
 
+A folder written by `sextant apply` (its manifest names a model and no recipe)
+gets the checks of a batch report instead (see check_batch): the file loads
+nothing, the browser builds the control chart with a T² and an SPE limit line
+per confidence level, the score plot, the flagged rows and the provenance with
+the model's and the batch's SHA-256, makes no request and logs nothing, and a
+screenshot of the chart alone shows its coloured points.
+
 With networking cut off (every request goes to a closed local proxy port), it
 opens report.html from the file system and checks:
 
@@ -477,6 +484,69 @@ def expectations(folder, markup):
     }
 
 
+def check_batch_dom(dom, manifest, where):
+    root = parse(dom)
+    h1 = next(root.all("h1"), None)
+    table = manifest["inputs"][0]["path"].rsplit("/", 1)[-1]
+    if h1 is None or table not in h1.text():
+        fail(f"{where}: the heading {h1.text() if h1 else None!r} does not name the batch {table!r}")
+    control = root.by_id("control")
+    svg = next(control.all("svg"), None) if control is not None else None
+    if svg is None:
+        fail(f"{where}: the control chart has no <svg>")
+    levels = manifest["steps"]["limits"]
+    for series, limit, key in [("control-t2", "t2-limit", "t2"), ("control-spe", "spe-limit", "spe")]:
+        g = next(svg.all("g", series), None)
+        if g is None:
+            fail(f"{where}: the control chart has no {series} group")
+        lines = [n.attrs.get("data-confidence") for n in g.all("line", limit)]
+        expected = [str(l["confidence"]) for l in levels if l.get(key) is not None]
+        if lines != expected:
+            fail(f"{where}: {series} has limit lines at {lines}, the manifest has {expected}")
+        if next(g.all("polyline", "series"), None) is None:
+            fail(f"{where}: {series} has no line through the rows")
+    scores = root.by_id("scores")
+    if scores is None or next(scores.all("svg"), None) is None:
+        fail(f"{where}: the score plot is missing")
+    if root.by_id("flagged") is None or root.by_id("fills") is None:
+        fail(f"{where}: the flagged rows or the filled cells are missing")
+    provenance = root.by_id("provenance")
+    for what, sha in [("model", manifest["model"]["sha256"]), ("batch", manifest["inputs"][0]["sha256"])]:
+        if provenance is None or sha not in provenance.text():
+            fail(f"{where}: the provenance does not show the {what}'s SHA-256 {sha}")
+    ok(f"{where}: heading, control chart with {len(levels)} levels of T² and SPE limits, "
+       "score plot, flagged rows, fills, provenance with both SHA-256")
+
+
+def check_batch(folder, markup, chromium):
+    """The report of a scored batch (an apply folder): it has no script."""
+    manifest = json.loads((folder / "manifest.json").read_text("utf-8"))
+    if "report.html" not in {o["path"] for o in manifest["outputs"]}:
+        fail("manifest.json does not list report.html")
+    check_file(markup)
+    if "<script" in markup.lower():
+        fail("the batch report has a script")
+    url = (folder / "report.html").as_uri()
+    with tempfile.TemporaryDirectory(prefix="sextant-browser-") as work:
+        dom, err, netlog = run_chromium(chromium, url, ["--dump-dom"], work)
+        check_batch_dom(dom, manifest, "as the browser built it")
+        check_quiet(err, netlog, url, "batch report")
+        top = os.path.join(work, "top.png")
+        _, err, netlog = run_chromium(chromium, url, [f"--screenshot={top}"], work)
+        check_quiet(err, netlog, url, "screenshot")
+        check_screenshot(top, "top of the batch report")
+        alone = pathlib.Path(work) / "chart-alone.html"
+        alone.write_text(markup.replace(
+            "</head>", "<style>main > :not(#control){display:none!important}</style>\n</head>", 1), "utf-8")
+        shot = os.path.join(work, "chart.png")
+        _, err, netlog = run_chromium(chromium, alone.as_uri(), [f"--screenshot={shot}"], work)
+        check_quiet(err, netlog, alone.as_uri(), "screenshot of the control chart")
+        saturated = check_screenshot(shot, "the control chart alone")
+        if saturated < 40:
+            fail(f"the control chart shows only {saturated} sampled pixels of saturated colour; its points are not drawn")
+        ok(f"the control chart's points are drawn ({saturated} sampled pixels of saturated colour)")
+
+
 def main(argv):
     if len(argv) != 2 or argv[1] in ("-h", "--help"):
         print(__doc__.strip(), file=sys.stderr)
@@ -489,6 +559,11 @@ def main(argv):
             fail(f"{report} does not exist (run the recipe first)")
         markup = report.read_text("utf-8")
         chromium = find_chromium()
+        written = json.loads((folder / "manifest.json").read_text("utf-8"))
+        if "model" in written and "recipe" not in written:
+            check_batch(folder, markup, chromium)
+            print("report.html of the batch passed every browser check")
+            return 0
         expected = expectations(folder, markup)
         check_file(markup)
         url = report.as_uri()

@@ -25,6 +25,7 @@
 //! `sans-serif` family; no font is embedded. Each document carries its title
 //! and caption as `<title>` and `<desc>`.
 
+pub mod batch;
 mod biplot;
 mod circle;
 mod frame;

@@ -139,12 +139,12 @@ fn prepare(plan: &PlotPlan, view: &PlotView) -> OutlierScan {
 
 /// √v, with negative values (rounding noise) at 0 and non-finite values kept
 /// non-finite so they are left out.
-fn root(v: f64) -> f64 {
+pub(super) fn root(v: f64) -> f64 {
     if v.is_finite() { v.max(0.0).sqrt() } else { v }
 }
 
 /// Whether an axis whose largest finite value (or 0) is `top` gets a root scale.
-fn wants_root(top: f64, limit: Option<f64>) -> bool {
+pub(super) fn wants_root(top: f64, limit: Option<f64>) -> bool {
     let Some(limit) = limit.filter(|l| l.is_finite() && *l > 0.0) else {
         return false;
     };
@@ -154,7 +154,7 @@ fn wants_root(top: f64, limit: Option<f64>) -> bool {
 /// An axis from 0 to `hi` (in plotted units). On a root scale, ticks sit at
 /// 1, 2 or 5 × 10ᵉ in the statistic's own units, at least `gap` pixels apart
 /// over `pixels`.
-fn stat_axis(hi: f64, rooted: bool, pixels: f64, gap: f64) -> Axis {
+pub(super) fn stat_axis(hi: f64, rooted: bool, pixels: f64, gap: f64) -> Axis {
     if !rooted {
         return Axis::nice(0.0, hi, pixels / gap);
     }

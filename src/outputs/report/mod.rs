@@ -18,6 +18,7 @@
 //! with ids that cannot clash; the style sheet and the view's script are the
 //! files `style.css` and `view3d.js` beside this one.
 
+pub mod batch;
 mod closing;
 mod figures;
 mod html;

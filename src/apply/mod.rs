@@ -14,24 +14,21 @@
 //! ([`crate::outputs::model::parse`]) before a row is read. Loading
 //! ([`load_model`]), scoring ([`score`], no I/O) and writing are separate steps.
 
+mod batch;
+mod report;
+mod score;
+
+pub use batch::{BatchOptions, parse_decimal, parse_delimiter};
+pub use score::{Scored, ScoredRows, score};
+
 use crate::error::{Error, InputError, OutputError};
-use crate::linalg::Matrix;
 use crate::outputs::folder::write_folder;
 use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, RunInfo};
 use crate::outputs::model::{Fill, Model};
 use crate::outputs::reading;
-use crate::outputs::replace::check_replaceable;
-use crate::outputs::tables;
-use crate::row_results::RowResults;
-use crate::stages::decompose::scores;
-use crate::stages::diagnose::{Limits, contributions, diagnose_all, row_statistics, with_limits};
-use crate::stages::impute::{fill_row_from_model, fill_row_from_reference};
-use crate::stages::missing::FilledCell;
-use crate::stages::scale::scale_value;
-use crate::stages::transform::apply_transforms;
-use crate::stages::{Feature, FeatureData};
-use crate::table::{ColumnData, ReadOptions, read_header, read_table};
+use crate::outputs::replace::{Writer, check_replaceable_by};
+use crate::stages::FeatureData;
 use crate::verify::read_trusted_manifest;
 use serde_json::{Value, json};
 use std::path::{Path, PathBuf};
@@ -43,7 +40,18 @@ pub struct ApplyOptions {
     /// The folder to write; default `<results>-apply-<table name>` beside the results.
     pub out: Option<PathBuf>,
     pub replace: bool,
+    /// How the batch is read and ordered.
+    pub batch: BatchOptions,
 }
+
+/// `apply` replaces only its own earlier results: a folder whose manifest
+/// names the model it used and no recipe.
+const APPLY: Writer = Writer {
+    option: "--out",
+    different: "a different model, table or reading of the table (--delimiter, --decimal, --order)",
+    own: |old| old.pointer("/model/sha256").is_some() && old.get("recipe").is_none(),
+    not_own: "holds the results of a run, not of apply; apply replaces only its own earlier results, even with --replace",
+};
 
 /// What `apply` reports.
 #[derive(Debug, Clone)]
@@ -193,254 +201,6 @@ impl ScoreSettings {
     }
 }
 
-/// The scores of a new table, ready to be written.
-#[derive(Debug, Clone)]
-pub struct Scored {
-    /// scores.csv, contributions.csv and imputed.csv.
-    pub files: Vec<(String, Vec<u8>)>,
-    pub rows_in: usize,
-    pub rows_scored: usize,
-    pub columns: usize,
-    pub notes: Vec<String>,
-    pub limits: Vec<Limits>,
-    pub filled: usize,
-}
-
-/// Scores the rows of a table (`bytes`, shown as `shown`) with a checked model.
-/// No file is read or written.
-pub fn score(
-    model: &Model,
-    settings: &ScoreSettings,
-    delimiter: u8,
-    bytes: &[u8],
-    shown: &str,
-) -> Result<Scored, Error> {
-    let header = read_header(bytes, shown, delimiter)?;
-    let absent: Vec<String> = model
-        .features
-        .iter()
-        .map(|f| f.name.clone())
-        .filter(|n| !header.names.contains(n))
-        .collect();
-    if !absent.is_empty() {
-        return Err(InputError::MissingFeatures {
-            path: shown.to_string(),
-            names: absent.join(", "),
-        }
-        .into());
-    }
-    let mut notes = Vec::new();
-    let id = model.id.clone().filter(|id| header.names.contains(id));
-    if let (Some(want), None) = (&model.id, &id) {
-        notes.push(format!(
-            "the id column `{want}` is not in the table; rows are labelled by number"
-        ));
-    }
-    let groups: Vec<String> = model
-        .groups
-        .iter()
-        .filter(|g| header.names.contains(g))
-        .cloned()
-        .collect();
-    let known = |n: &String| {
-        model.features.iter().any(|f| &f.name == n) || id.as_ref() == Some(n) || groups.contains(n)
-    };
-    let ignored: Vec<String> = header.names.iter().filter(|n| !known(n)).cloned().collect();
-    if !ignored.is_empty() {
-        notes.push(format!(
-            "ignored columns that are not in the model: {}",
-            ignored.join(", ")
-        ));
-    }
-    let text_columns: Vec<String> = id.iter().cloned().chain(groups.iter().cloned()).collect();
-    let table = read_table(
-        bytes,
-        shown,
-        &ReadOptions {
-            delimiter,
-            missing_tokens: settings.missing_tokens.clone(),
-            text_columns,
-        },
-    )?;
-    let rows_in = table.n_rows();
-
-    // The features in the model's order, as numbers, transformed like the training rows.
-    let mut features = Vec::new();
-    for f in &model.features {
-        // The model's check keeps the id and groups (read as text) apart from the features.
-        let Some(ColumnData::Numeric(column)) = table.column(&f.name).map(|c| &c.data) else {
-            unreachable!("a checked model's features are numeric columns of the table")
-        };
-        if let Some((line, text)) = column.first_bad.clone() {
-            return Err(InputError::bad_cell(shown, line, &f.name, text).into());
-        }
-        features.push(Feature {
-            name: f.name.clone(),
-            values: column.values.clone(),
-            transform: f.transform,
-        });
-    }
-    let data = FeatureData {
-        features,
-        rows: (0..rows_in).collect(),
-        lines: table.lines.clone(),
-        source: shown.to_string(),
-    };
-    let (data, _) = apply_transforms(data)?;
-    notes.extend(range_notes(model, &data));
-
-    // Fill missing cells row by row from the training model.
-    let p = model.features.len();
-    let mut scored_rows = Vec::new();
-    let mut filled = Vec::new();
-    let mut skipped = 0;
-    let mut x: Vec<Vec<f64>> = Vec::new();
-    for i in 0..rows_in {
-        let mut row: Vec<f64> = data.features.iter().map(|f| f.values[i]).collect();
-        let gaps: Vec<usize> = (0..p).filter(|&j| row[j].is_nan()).collect();
-        if !gaps.is_empty() {
-            let ok = match &model.fill {
-                Fill::DropRows => None,
-                Fill::Constant { values } => {
-                    gaps.iter().for_each(|&j| row[j] = values[j]);
-                    Some(())
-                }
-                Fill::IterativePca { model: m } => fill_row_from_model(&mut row, m),
-                Fill::Knn {
-                    neighbours,
-                    reference,
-                } => {
-                    let reference: Vec<Vec<f64>> = reference
-                        .iter()
-                        .map(|c| c.iter().map(|v| v.unwrap_or(f64::NAN)).collect())
-                        .collect();
-                    fill_row_from_reference(&mut row, &reference, *neighbours)
-                }
-            };
-            if ok.is_none() {
-                skipped += 1;
-                continue;
-            }
-            filled.extend(gaps.iter().map(|&j| FilledCell {
-                row: i,
-                feature: model.features[j].name.as_str().into(),
-                value: row[j],
-            }));
-        }
-        scored_rows.push(i);
-        x.push(row);
-    }
-    if skipped > 0 {
-        notes.push(match model.fill {
-            Fill::DropRows => format!(
-                "{skipped} row(s) with missing cells were not scored (the model drops such rows)"
-            ),
-            _ => format!("{skipped} row(s) with no observed feature were not scored"),
-        });
-    }
-    if scored_rows.is_empty() {
-        return Err(InputError::TooFewRows {
-            path: shown.to_string(),
-            rows: 0,
-            why: " that can be scored".into(),
-        }
-        .into());
-    }
-
-    // Centre, scale, project: the same arithmetic as the analysis.
-    let n = scored_rows.len();
-    let mut z = Matrix::zeros(n, p);
-    for (r, row) in x.iter().enumerate() {
-        for (j, f) in model.features.iter().enumerate() {
-            z.set(r, j, scale_value(row[j], f.centre, f.scale));
-        }
-    }
-    let k = model.kept;
-    let mut loadings = Matrix::zeros(p, k);
-    for j in 0..p {
-        for a in 0..k {
-            loadings.set(j, a, model.loadings[j][a]);
-        }
-    }
-    let t = scores(&z, &loadings, k);
-    let (t2, spe) = row_statistics(&z, &loadings, &t, &model.eigenvalues);
-    let limits: Vec<Limits> = model
-        .limits
-        .iter()
-        // New rows are flagged by the new-row T² limit; counted with the rows below.
-        .map(|l| Limits::uncounted(l.confidence, l.t2_new_rows, l.t2_new_rows, l.spe))
-        .collect();
-    let spe_method = model.spe_limit;
-    // More rows than are scored cannot be listed.
-    let max_rows = settings.contributions_max_rows.min(n);
-    let diagnostics = diagnose_all(
-        with_limits(limits, spe_method, None, Vec::new(), max_rows),
-        &t2,
-        &spe,
-    );
-
-    // Result files.
-    let text_of = |name: &str| match table.column(name).map(|c| &c.data) {
-        Some(ColumnData::Text(v)) => v.as_slice(),
-        _ => unreachable!("id and group columns are read as text"),
-    };
-    let feature_names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
-    let filled = crate::row_results::FilledCells::from_cells(&filled, &feature_names);
-    let texts = |name: &str| -> Vec<String> {
-        let values = text_of(name);
-        scored_rows.iter().map(|&r| values[r].clone()).collect()
-    };
-    let rows = RowResults::from_parts(
-        k,
-        &scored_rows,
-        &t.data,
-        &t2,
-        &spe,
-        id.as_deref().map(|n| (n.to_string(), texts(n))),
-        groups.iter().map(|g| (g.clone(), texts(g))).collect(),
-    );
-    let mut chosen = diagnostics.most_unusual(max_rows);
-    chosen.sort_unstable();
-    let mut details = crate::analysis::row_details(&rows, k, &chosen)?;
-    for (&i, row) in &mut details {
-        row.z = z.row(i).to_vec();
-    }
-    let flagged: Vec<(&crate::analysis::RowDetail, Vec<(f64, f64)>)> = details
-        .values()
-        .map(|d| {
-            (
-                d,
-                contributions(&d.z, &loadings, &d.scores, &model.eigenvalues),
-            )
-        })
-        .collect();
-    let files: Vec<(String, Vec<u8>)> = vec![
-        (
-            "scores.csv".into(),
-            tables::scores_csv(&rows, k, &diagnostics)
-                .map_err(|e| crate::error::OutputError::io(Path::new("a scratch file"), e))?,
-        ),
-        (
-            "contributions.csv".into(),
-            tables::contributions_csv(&rows, &feature_names, &flagged),
-        ),
-        (
-            "imputed.csv".into(),
-            tables::imputed_csv(&filled, &rows)
-                .map_err(|e| crate::error::OutputError::io(Path::new("a scratch file"), e))?,
-        ),
-    ];
-    Ok(Scored {
-        files,
-        rows_in,
-        rows_scored: n,
-        columns: table.columns.len(),
-        notes,
-        limits: diagnostics.limits,
-        filled: filled.len(),
-    })
-}
-
 /// Scores the rows of `table_path` with the model in `results`.
 pub fn apply(
     results: &Path,
@@ -468,23 +228,53 @@ pub fn apply(
         &model,
         &settings,
         settings.delimiter_for(table_path),
+        &options.batch,
         &bytes,
         &shown,
     )?;
     let Scored {
-        files,
+        mut files,
         rows_in,
         rows_scored: n,
         columns,
         notes,
         limits,
         filled,
+        delimiter,
+        decimal,
+        rows,
     } = scored;
     let mut notes = notes;
     let lock = crate::outputs::lock::lock(&folder)?;
     notes.extend(lock.notes.iter().cloned());
-    let fingerprint = (model_sha.clone(), vec![table_sha.clone()]);
-    check_replaceable(&folder, &fingerprint, options.replace)?;
+    // How the batch was read and ordered: with the model, it stands for the
+    // recipe, so a rerun with the same model, table and reading replaces it.
+    let reading = json!({
+        "delimiter": String::from(char::from(delimiter)),
+        "decimal": String::from(char::from(decimal)),
+        "order": rows.order.as_ref().map(|o| o.0.clone()),
+    });
+    let fingerprint = (
+        manifest::apply_key(&model_sha, &reading),
+        vec![table_sha.clone()],
+    );
+    check_replaceable_by(&folder, &fingerprint, options.replace, &APPLY)?;
+    let view = report::view(report::Parts {
+        results,
+        folder: &folder,
+        table: &shown,
+        table_sha: &table_sha,
+        model: &model,
+        model_sha: &model_sha,
+        source: &source,
+        rows_in,
+        rows,
+        notes: &notes,
+    });
+    files.push((
+        "report.html".into(),
+        crate::outputs::report::batch::render(&view).into_bytes(),
+    ));
     let outputs: Vec<FileRecord> = files
         .iter()
         .map(|(path, b)| FileRecord {
@@ -505,6 +295,7 @@ pub fn apply(
             "sha256": model_sha,
             "made_by_digest": source.get("digest").cloned().unwrap_or(Value::Null),
         },
+        "batch": reading,
         "inputs": [InputRecord {
             path: crate::paths::relative(&folder, table_path),
             bytes: bytes.len() as u64,
@@ -516,12 +307,7 @@ pub fn apply(
             "rows_in": rows_in,
             "rows_scored": n,
             "cells_filled": filled,
-            "fill": match &model.fill {
-                Fill::DropRows => "drop-rows",
-                Fill::Constant { .. } => "training fill values",
-                Fill::IterativePca { .. } => "projection on the training imputation model",
-                Fill::Knn { .. } => "nearest training rows",
-            },
+            "fill": fill_words(&model.fill),
             "t2_limit": "new-observation F form (NIST/SEMATECH e-Handbook 6.5.4.3.4), saved with the model",
             "limits": limits,
             "notes": notes,
@@ -551,6 +337,16 @@ pub fn apply(
         filled,
         digest,
     })
+}
+
+/// How the model fills the missing cells of new rows, in words.
+fn fill_words(fill: &Fill) -> &'static str {
+    match fill {
+        Fill::DropRows => "drop-rows",
+        Fill::Constant { .. } => "training fill values",
+        Fill::IterativePca { .. } => "projection on the training imputation model",
+        Fill::Knn { .. } => "nearest training rows",
+    }
 }
 
 /// Notes for new values far outside a feature's analysed range: more than the
