@@ -642,9 +642,14 @@ impl From<std::io::Error> for Error {
     }
 }
 
-/// A count and its noun for a message field (thiserror passes fields by reference).
+/// A count and its noun for a message field (thiserror passes fields by
+/// reference); the same rule as `text::count`, which sits on this floor.
 fn counted(n: &usize, singular: &str, plural: &str) -> String {
-    crate::text::count(*n, singular, plural)
+    if *n == 1 {
+        format!("1 {singular}")
+    } else {
+        format!("{n} {plural}")
+    }
 }
 
 #[cfg(test)]
