@@ -247,10 +247,7 @@ fn diff_after_a_change_of_scaling() {
         .lines()
         .find(|l| l.contains("scaling.method"))
         .expect("a scaling line");
-    assert!(
-        line.contains("unit-variance → pareto"),
-        "{line}"
-    );
+    assert!(line.contains("unit-variance → pareto"), "{line}");
     assert!(
         out.stdout.contains("Features whose loadings moved most"),
         "{}",
@@ -321,10 +318,7 @@ fn diff_after_a_change_of_keep() {
         .lines()
         .find(|l| l.contains("components.keep"))
         .expect("a keep line");
-    assert!(
-        line.contains("broken-stick → 4"),
-        "{line}"
-    );
+    assert!(line.contains("broken-stick → 4"), "{line}");
     // The two kept components are shared: their angles are 0, the other two 90°.
     assert!(
         out.stdout

@@ -103,7 +103,11 @@ fn diff_exit_codes_say_same_different_or_invalid() {
             "recipes/b.toml",
         ],
     );
-    assert_eq!(different.code, 1, "{}{}", different.stdout, different.stderr);
+    assert_eq!(
+        different.code, 1,
+        "{}{}",
+        different.stdout, different.stderr
+    );
     assert!(
         different.stdout.contains("the analyses differ"),
         "{}",
@@ -184,7 +188,11 @@ fn diff_reads_a_recipe_from_a_git_revision() {
     git(w, &["commit", "-q", "-m", "recipes and data"]);
     let recipe = w.join("recipes/dairy-march.toml");
     let text = fs::read_to_string(&recipe).unwrap();
-    fs::write(&recipe, text.replacen("ellipse = 0.95", "ellipse = 0.99", 1)).unwrap();
+    fs::write(
+        &recipe,
+        text.replacen("ellipse = 0.95", "ellipse = 0.99", 1),
+    )
+    .unwrap();
 
     let out = sextant(
         w,
@@ -224,7 +232,11 @@ fn diff_reads_a_recipe_from_a_git_revision() {
         &["diff", "HEAD:recipes/none.toml", "recipes/dairy-march.toml"],
     );
     assert_eq!(out.code, 2, "{}{}", out.stdout, out.stderr);
-    assert!(out.stderr.contains("HEAD:recipes/none.toml"), "{}", out.stderr);
+    assert!(
+        out.stderr.contains("HEAD:recipes/none.toml"),
+        "{}",
+        out.stderr
+    );
 }
 
 /// Bug: a committed recipe whose input has since gone (never committed,
@@ -235,7 +247,15 @@ fn diff_from_git_says_what_it_read_when_the_old_input_is_gone() {
     let w = ws.path();
     git(w, &["init", "-q"]);
     git(w, &["add", "recipes"]);
-    git(w, &["commit", "-q", "-m", "recipes only; the data stays out of git"]);
+    git(
+        w,
+        &[
+            "commit",
+            "-q",
+            "-m",
+            "recipes only; the data stays out of git",
+        ],
+    );
     fs::rename(
         w.join("demo-data/dairy-lab-2026-03.csv"),
         w.join("demo-data/march.csv"),
@@ -354,7 +374,8 @@ fn a_run_after_pin_says_the_results_predate_the_pin() {
     let out = sextant(w, &["run", "recipes/dairy-march.toml"]);
     assert_eq!(out.code, 2, "{}{}", out.stdout, out.stderr);
     assert!(
-        out.stderr.contains("before `sextant pin` added input.sha256")
+        out.stderr
+            .contains("before `sextant pin` added input.sha256")
             && out.stderr.contains("--replace"),
         "{}",
         out.stderr
@@ -412,7 +433,10 @@ fn verify_rerun_on_a_changed_pinned_input_reports_it_changed() {
     );
     let all = format!("{}{}", out.stdout, out.stderr);
     for advice in ["update the pin", "sextant pin", "input.sha256"] {
-        assert!(!all.contains(advice), "advice about the pin in an audit:\n{all}");
+        assert!(
+            !all.contains(advice),
+            "advice about the pin in an audit:\n{all}"
+        );
     }
 }
 

@@ -107,8 +107,11 @@ fn folders(spec: &str) -> Result<(PathBuf, PathBuf), Error> {
         }
         .into()
     };
-    let top = git(&["rev-parse", "--show-toplevel"])
-        .map_err(|e| fail(format!("the current folder is not in a git repository ({e})")))?;
+    let top = git(&["rev-parse", "--show-toplevel"]).map_err(|e| {
+        fail(format!(
+            "the current folder is not in a git repository ({e})"
+        ))
+    })?;
     let top = PathBuf::from(String::from_utf8_lossy(&top).trim());
     let here = std::env::current_dir()
         .and_then(std::fs::canonicalize)
@@ -194,7 +197,7 @@ pub(super) fn load_revision(
             notes.push(format!(
                 "input `{shown_input}` is no longer present (not in the working tree, not in git at {}): this side was computed on the input of {label}, `{}`, instead, so only the recipe's changes are compared",
                 revision.rev,
-                other.display()
+                crate::paths::relative(&here, other)
             ));
             (Some(other.to_path_buf()), false)
         }

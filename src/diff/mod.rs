@@ -75,7 +75,12 @@ pub fn diff(request: &DiffRequest) -> Result<(Side, Side, Comparison), Error> {
     // B first: a recipe from a revision whose input is gone is computed on
     // B's input instead.
     let sb = load(&b, None)?;
-    let sa = load(&a, sb.input_file.as_ref().map(|f| (f.as_path(), sb.label.as_str())))?;
+    let sa = load(
+        &a,
+        sb.input_file
+            .as_ref()
+            .map(|f| (f.as_path(), sb.label.as_str())),
+    )?;
     let c = compare(&sa, &sb);
     Ok((sa, sb, c))
 }
@@ -125,7 +130,9 @@ fn side_of_recipe(
     shown: &dyn Fn(&str) -> String,
 ) -> Result<Side, Error> {
     let prepared = prepare_recipe(recipe)?;
-    let input_file = crate::recipe::plan::input_plan(&prepared.recipe).file;
+    // Absolute: another recipe, in another folder, may be pointed at it.
+    let input_file =
+        crate::paths::normalize(&crate::recipe::plan::input_plan(&prepared.recipe).file);
     let (_, _, computed) = compute(&prepared)?;
     let run = RunInfo {
         started_utc: String::new(),

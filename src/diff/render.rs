@@ -81,7 +81,10 @@ fn headline(c: &Comparison) -> Vec<(String, String)> {
         if c.kept.0 == c.kept.1 && c.rules.0 == c.rules.1 {
             format!("{} ({}), unchanged", c.kept.0, c.rules.0)
         } else {
-            format!("{} ({}) → {} ({})", c.kept.0, c.rules.0, c.kept.1, c.rules.1)
+            format!(
+                "{} ({}) → {} ({})",
+                c.kept.0, c.rules.0, c.kept.1, c.rules.1
+            )
         },
     ));
     let shown = c.kept.0.max(c.kept.1).min(c.variance.len());
@@ -322,7 +325,11 @@ fn components_body(c: &Comparison, md: bool) -> String {
 }
 
 fn subspaces_body(c: &Comparison) -> String {
-    let angles: Vec<String> = c.angles.iter().map(|a| format!("{}°", degrees(*a))).collect();
+    let angles: Vec<String> = c
+        .angles
+        .iter()
+        .map(|a| format!("{}°", degrees(*a)))
+        .collect();
     format!(
         "principal angles on {}: {}\n",
         count(c.common_features, "shared feature", "shared features"),

@@ -208,16 +208,12 @@ mod tests {
 
     #[test]
     fn settings_without_effect_are_not_differences() {
-        let mean = |tolerance: f64| {
-            json!({"missing": {"method": "mean", "iterative_pca": {"tolerance": tolerance}}})
-        };
+        let mean = |tolerance: f64| json!({"missing": {"method": "mean", "iterative_pca": {"tolerance": tolerance}}});
         assert!(paths(mean(1e-12), mean(1e-6)).is_empty());
-        let iterative = |tolerance: f64| {
-            json!({"missing": {"method": "iterative-pca", "iterative_pca": {"tolerance": tolerance}}})
-        };
+        let iterative = |tolerance: f64| json!({"missing": {"method": "iterative-pca", "iterative_pca": {"tolerance": tolerance}}});
         assert_eq!(
             paths(iterative(1e-12), iterative(1e-6)),
-            ["missing.iterative_pca.tolerance 1e-12 → 0.000001"]
+            ["missing.iterative_pca.tolerance 1e-12 → 1e-6"]
         );
     }
 }
