@@ -145,6 +145,10 @@ pub(super) fn load_revision(
         }
         .into()
     };
+    // git would read `-…` as an option of its own (`--output=…` writes a file).
+    if revision.rev.starts_with('-') {
+        return Err(fail("a revision cannot start with `-`".into()));
+    }
     let (top, here) = folders(&spec)?;
     let own_path = if revision.from_current || Path::new(&revision.path).is_absolute() {
         crate::paths::tidy(&here.join(&revision.path))
