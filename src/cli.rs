@@ -109,20 +109,42 @@ pub enum Command {
     },
     /// Compare two analyses for a reviewer: settings, inputs, components, scores.
     ///
-    /// Each side is a results folder or a recipe (a recipe is run in memory and
-    /// nothing is written). Shows recipe settings that differ after defaults are
-    /// resolved, inputs whose hash changed, the number of kept components,
-    /// eigenvalues and shares side by side, principal angles between the kept
-    /// loading subspaces, the largest score change and the features whose
+    /// Each side is a results folder, a recipe (run in memory; nothing is
+    /// written), or a recipe as committed in git: `REV:PATH` (PATH from the
+    /// repository's top folder, or from the current folder when it starts with
+    /// ./ or ../), or --rev REV with one recipe to compare its committed version
+    /// with the working file. A committed recipe's relative paths start from its
+    /// own folder; its input is the file committed at REV, else the working
+    /// file, else (when it is gone) the other side's input, and a note says
+    /// which was read.
+    ///
+    /// Opens with a headline (verdict, kept components, eigenvalues, largest
+    /// principal angle, largest score change, flagged rows that entered or
+    /// left), then one line per recipe setting in effect that differs
+    /// (`plot[2].ellipse  0.95 → 0.99`; settings without effect under the
+    /// recipe's choices are left out), inputs whose hash changed, eigenvalues
+    /// and shares side by side, principal angles and the features whose
     /// loadings moved most.
+    ///
+    /// Exit codes: 0 when the comparison was made (with --exit-code: 0 when the
+    /// analyses are the same, 1 when they differ: a setting in effect other than
+    /// output.folder, an input or a result); 2 when a side is not a results
+    /// folder or a valid recipe, or git cannot give the recipe; 1 also when a
+    /// side's analysis fails (the message says so).
     Diff {
-        /// The earlier analysis: a results folder or a recipe file.
+        /// The earlier analysis: a results folder, a recipe file or REV:PATH.
         a: PathBuf,
-        /// The later analysis: a results folder or a recipe file.
-        b: PathBuf,
+        /// The later analysis: a results folder, a recipe file or REV:PATH.
+        b: Option<PathBuf>,
+        /// Compare the recipe A as committed at this git revision with the file.
+        #[arg(long, value_name = "REV")]
+        rev: Option<String>,
         /// Output style.
         #[arg(long, value_enum, default_value = "text")]
         format: crate::diff::DiffFormat,
+        /// Exit with 1 when the analyses differ and 0 when they are the same.
+        #[arg(long)]
+        exit_code: bool,
     },
     /// Score new rows with the model saved in a results folder.
     ///
@@ -235,10 +257,22 @@ pub fn execute(cli: Cli) -> Result<Outcome, Error> {
                 code,
             }
         }
-        Command::Diff { a, b, format } => {
-            let (sa, sb) = (crate::diff::load_side(&a)?, crate::diff::load_side(&b)?);
-            let c = crate::diff::compare(&sa, &sb);
-            crate::diff::render_comparison(&sa, &sb, &c, format).into()
+        Command::Diff {
+            a,
+            b,
+            rev,
+            format,
+            exit_code,
+        } => {
+            let (sa, sb, c) = crate::diff::diff(&crate::diff::DiffRequest { a, b, rev })?;
+            Outcome {
+                text: crate::diff::render_comparison(&sa, &sb, &c, format),
+                code: if exit_code && c.differ {
+                    crate::diff::EXIT_DIFFERENT
+                } else {
+                    crate::error::EXIT_OK
+                },
+            }
         }
         Command::Apply {
             results,
@@ -470,10 +504,16 @@ pub fn describe_run(s: &RunSummary) -> String {
     }
     let _ = writeln!(
         out,
-        "results    {} ({} files and manifest.json, digest {})",
+        "results    {} ({} files and manifest.json)",
         s.prepared.plan.output.display(),
         s.outputs.len(),
-        s.digest
+    );
+    // Two digests, each under the name it has where it is stored.
+    let _ = writeln!(
+        out,
+        "digests    manifest digest {} (manifest.json's `digest`: recipe, inputs and every file)\n           results digest {} (shown in report.html: every file but the report and manifest)",
+        s.digest,
+        crate::outputs::render::results_digest(&s.outputs)
     );
     let _ = writeln!(out, "time       {:.3} s", s.seconds);
     for note in &s.notes {

@@ -34,7 +34,9 @@ impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
             Error::Recipe(_) | Error::Input(_) | Error::Engine(_) => EXIT_INVALID,
-            Error::Output(OutputError::Refused { .. }) => EXIT_INVALID,
+            Error::Output(OutputError::Refused { .. } | OutputError::PinnedSince { .. }) => {
+                EXIT_INVALID
+            }
             // The recipe asks more of the table than it can give: a bad input.
             Error::Analysis(AnalysisError::ImputationComponents { .. }) => EXIT_INVALID,
             Error::Analysis(_) | Error::Output(_) => EXIT_FAILED,
@@ -416,6 +418,8 @@ pub enum InputError {
         column: String,
         names: String,
     },
+    #[error("{spec}: {reason}")]
+    GitRevision { spec: String, reason: String },
 }
 
 impl InputError {
@@ -585,6 +589,10 @@ pub enum OutputError {
     },
     #[error("{path}: {reason}")]
     Refused { path: String, reason: String },
+    #[error(
+        "{path}: holds the results of this recipe from before `sextant pin` added input.sha256: the same analysis of the same input, recorded without the pin; pass --replace to replace them with results that record the pin"
+    )]
+    PinnedSince { path: String },
 }
 
 impl OutputError {

@@ -246,6 +246,25 @@ pub fn analyse_all(prepared: &Prepared) -> Result<(Preprocessed, Analysis), Erro
     Ok((pre, analysis))
 }
 
+/// Refuses a folder that may not be replaced; when it holds this recipe's
+/// results from before `sextant pin` added the pin (the same analysis of the
+/// same input), the refusal says so, since "a different recipe" would send the
+/// user looking for a change they did not make.
+fn check_replaceable_after_pin(prepared: &Prepared, replace: bool) -> Result<(), Error> {
+    let target = &prepared.plan.output;
+    let refused = check_replaceable(target, &fingerprint(prepared), replace);
+    if refused.is_err()
+        && let Some(unpinned) = crate::outputs::render::fingerprint_without_pin(prepared)
+        && check_replaceable(target, &unpinned, false).is_ok()
+    {
+        return Err(crate::error::OutputError::PinnedSince {
+            path: target.display().to_string(),
+        }
+        .into());
+    }
+    Ok(refused?)
+}
+
 /// Runs a recipe end to end and writes its results folder.
 pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error> {
     let start = Instant::now();
@@ -256,11 +275,7 @@ pub fn run(recipe_path: &Path, options: &RunOptions) -> Result<RunSummary, Error
     let lock = crate::outputs::lock::lock(&output)?;
     let mut prepared = prepare_recipe_with(recipe, &options.engine)?;
     // A folder that may not be replaced is refused before the long part.
-    check_replaceable(
-        &prepared.plan.output,
-        &fingerprint(&prepared),
-        options.replace,
-    )?;
+    check_replaceable_after_pin(&prepared, options.replace)?;
     let (pre, analysis) = analyse_all(&prepared)?;
     // The table's values are not needed for the outputs: free them first.
     prepared.values = None;

@@ -389,13 +389,21 @@ fn rerun_refusal(manifest: &Value, report: &Verification) -> Option<String> {
     if !report.digest_ok {
         return Some("the manifest's digest does not match".into());
     }
-    let inputs_ok = report
+    // An audit reports a changed input; it never suggests re-pinning it.
+    if let Some(f) = report
         .files
         .iter()
-        .filter(|f| f.role == "input")
-        .all(|f| f.state == FileState::Unchanged);
-    if !inputs_ok {
-        return Some("the recorded input is not the file that was analysed".into());
+        .find(|f| f.role == "input" && f.state != FileState::Unchanged)
+    {
+        let how = match f.state {
+            FileState::Changed { .. } => "changed since the analysis",
+            FileState::Missing => "is missing",
+            _ => "could not be checked",
+        };
+        return Some(format!(
+            "input {} {how}, so a rerun would not read the data these results came from",
+            f.path
+        ));
     }
     let recorded = manifest.pointer("/inputs/0/path").and_then(Value::as_str);
     let resolved = manifest

@@ -110,6 +110,35 @@ pub fn fingerprint(prepared: &Prepared) -> (String, Vec<String>) {
     )
 }
 
+/// [`fingerprint`] of the same recipe without its `input.sha256` pin, when it
+/// has one: what the results of this recipe carried before `sextant pin`.
+pub fn fingerprint_without_pin(prepared: &Prepared) -> Option<(String, Vec<String>)> {
+    let (mut resolved, _) = resolved_with_hash(prepared);
+    let pin = resolved.pointer_mut("/input/sha256")?;
+    if pin.is_null() {
+        return None;
+    }
+    *pin = Value::Null;
+    let sha = sha256_hex(&serde_json::to_vec(&resolved).expect("JSON values serialise"));
+    Some((sha, vec![prepared.input.sha256.clone()]))
+}
+
+/// The results digest the report shows and `run` prints: the SHA-256 of the
+/// lines "sha256  path" of every output but report.html, in order. (The
+/// manifest's own `digest` covers the report too, so the report cannot show
+/// that one.)
+pub fn results_digest(outputs: &[FileRecord]) -> String {
+    let listing: String = outputs
+        .iter()
+        .filter(|r| r.path != REPORT)
+        .map(|r| format!("{}  {}\n", r.sha256, r.path))
+        .collect();
+    sha256_hex(listing.as_bytes())
+}
+
+/// The report's file name.
+const REPORT: &str = "report.html";
+
 /// The resolved recipe (every default filled in) and its SHA-256.
 fn resolved_with_hash(prepared: &Prepared) -> (Value, String) {
     let resolved = resolved_recipe(&prepared.recipe, &prepared.plan.input);
@@ -402,10 +431,6 @@ fn finish_report(
     outputs: &[FileRecord],
     resolved_sha: &str,
 ) -> (String, Content) {
-    let listing: String = outputs
-        .iter()
-        .map(|r| format!("{}  {}\n", r.sha256, r.path))
-        .collect();
     report_view.provenance = vec![
         (
             "tool".into(),
@@ -424,10 +449,10 @@ fn finish_report(
             "input".into(),
             format!("{} (sha256 {})", prepared.input.path, prepared.input.sha256),
         ),
-        ("results digest".into(), sha256_hex(listing.as_bytes())),
+        ("results digest".into(), results_digest(outputs)),
     ];
     (
-        "report.html".into(),
+        REPORT.into(),
         Content::Bytes(crate::outputs::report::render(&report_view).into_bytes()),
     )
 }

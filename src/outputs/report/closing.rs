@@ -21,5 +21,10 @@ pub(super) fn provenance(out: &mut String, pairs: &[(String, String)]) {
             escape(value)
         ));
     }
-    out.push_str("</tbody></table></div>\n</section>\n");
+    out.push_str("</tbody></table></div>\n");
+    if pairs.iter().any(|(what, _)| what == "results digest") {
+        // `run` prints two digests; the reader of the report sees one.
+        out.push_str("<p>The results digest is the SHA-256 of the list of every other output's SHA-256 and path; <code>sextant run</code> prints it under the same name. The manifest digest that <code>run</code> also prints covers this report as well, so it cannot appear in it.</p>\n");
+    }
+    out.push_str("</section>\n");
 }
