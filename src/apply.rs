@@ -31,6 +31,7 @@ use crate::stages::missing::FilledCell;
 use crate::stages::scale::scale_value;
 use crate::stages::transform::apply_transforms;
 use crate::stages::{Feature, FeatureData};
+use crate::table::read::MissingCode;
 use crate::table::{ColumnData, ReadOptions, read_header, read_table};
 use crate::verify::read_trusted_manifest;
 use serde_json::{Value, json};
@@ -125,6 +126,11 @@ pub struct ScoreSettings {
     /// The recipe's delimiter (a `.tsv` or `.tab` table is read with tabs).
     pub delimiter: u8,
     pub missing_tokens: Vec<String>,
+    /// The training table's decimal mark and thousands separator.
+    pub decimal: u8,
+    pub thousands: Option<u8>,
+    /// The training recipe's missing codes of single columns.
+    pub missing_per_column: Vec<(String, Vec<crate::table::read::MissingCode>)>,
     pub contributions_max_rows: usize,
 }
 
@@ -172,9 +178,13 @@ impl ScoreSettings {
             .pointer("/recipe/resolved/diagnostics/contributions_max_rows")
             .and_then(Value::as_u64)
             .map_or(1000, |m| usize::try_from(m).unwrap_or(usize::MAX));
+        let (decimal, thousands, missing_per_column) = number_marks(results, input)?;
         Ok(ScoreSettings {
             delimiter,
             missing_tokens,
+            decimal,
+            thousands,
+            missing_per_column,
             contributions_max_rows,
         })
     }
@@ -191,6 +201,43 @@ impl ScoreSettings {
             _ => self.delimiter,
         }
     }
+}
+
+/// The decimal mark, thousands separator and missing codes of single columns
+/// the manifest records (absent: a decimal point, no separator, no codes).
+type NumberMarks = (u8, Option<u8>, Vec<(String, Vec<MissingCode>)>);
+
+fn number_marks(results: &Path, input: &Value) -> Result<NumberMarks, Error> {
+    let bad = |key: &str, why: String| {
+        not_results(
+            results,
+            format!("manifest.json: recipe.resolved.input.{key}: {why}"),
+        )
+    };
+    let decimal = match &input["decimal"] {
+        Value::Null => b'.',
+        v => serde_json::from_value::<crate::recipe::raw::DecimalMark>(v.clone())
+            .map_err(|e| bad("decimal", e.to_string()))?
+            .0,
+    };
+    let thousands = match &input["thousands"] {
+        Value::Null => None,
+        v => Some(
+            serde_json::from_value::<crate::recipe::raw::Thousands>(v.clone())
+                .map_err(|e| bad("thousands", e.to_string()))?
+                .0,
+        ),
+    };
+    let codes = match &input["missing_per_column"] {
+        Value::Null => Vec::new(),
+        v => serde_json::from_value::<std::collections::BTreeMap<String, Vec<MissingCode>>>(
+            v.clone(),
+        )
+        .map_err(|e| bad("missing_per_column", e.to_string()))?
+        .into_iter()
+        .collect(),
+    };
+    Ok((decimal, thousands, codes))
 }
 
 /// The scores of a new table, ready to be written.
@@ -258,7 +305,10 @@ pub fn score(
         shown,
         &ReadOptions {
             delimiter,
+            decimal: settings.decimal,
+            thousands: settings.thousands,
             missing_tokens: settings.missing_tokens.clone(),
+            missing_per_column: settings.missing_per_column.clone(),
             text_columns,
         },
     )?;

@@ -242,6 +242,23 @@ pub enum RecipeProblem {
         expected: String,
         found: String,
     },
+    #[error(
+        "input.{key} = \"{mark}\" is also the field delimiter, so a cell such as {example} would be split in two; {fix}"
+    )]
+    MarkIsDelimiter {
+        key: &'static str,
+        mark: char,
+        example: &'static str,
+        fix: &'static str,
+    },
+    #[error(
+        "input.thousands and input.decimal are both \"{mark}\"; a number such as 1.234,5 needs two different marks"
+    )]
+    ThousandsIsDecimal { mark: char },
+    #[error(
+        "`{key}` is defined twice; its first definition is on line {first}: keep one (to add settings to a table, write them under its first header)"
+    )]
+    DefinedTwice { key: String, first: usize },
 }
 
 fn did_you_mean(suggestion: &Option<String>) -> String {

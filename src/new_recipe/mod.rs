@@ -183,14 +183,14 @@ fn read(data: &Path) -> Result<Loaded, Error> {
         }
     }
     let header = read_header(&bytes, &display, delimiter)?;
-    let options = ReadOptions {
+    let options = ReadOptions::new(
         delimiter,
-        missing_tokens: DEFAULT_MISSING_TOKENS
+        DEFAULT_MISSING_TOKENS
             .iter()
             .map(|s| s.to_string())
             .collect(),
-        text_columns: header.names.clone(),
-    };
+        header.names.clone(),
+    );
     let table = read_table(&bytes, &display, &options)?;
     let mut names = Vec::new();
     let mut cells = Vec::new();

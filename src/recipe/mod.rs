@@ -96,6 +96,7 @@ pub fn parse(path: &Path, text: String) -> Result<LoadedRecipe, RecipeError> {
         ));
     }
     applies::check_applicable(&loaded)?;
+    plan::check_number_marks(&loaded)?;
     Ok(loaded)
 }
 
