@@ -32,7 +32,7 @@ use crate::stages::scale::scale_value;
 use crate::stages::transform::apply_transforms;
 use crate::stages::{Feature, FeatureData};
 use crate::table::read::MissingCode;
-use crate::table::{ColumnData, ReadOptions, read_header, read_table};
+use crate::table::{ColumnData, ReadOptions, read_header, read_table_parallel};
 use crate::verify::read_trusted_manifest;
 use serde_json::{Value, json};
 use std::path::{Path, PathBuf};
@@ -300,7 +300,7 @@ pub fn score(
         ));
     }
     let text_columns: Vec<String> = id.iter().cloned().chain(groups.iter().cloned()).collect();
-    let table = read_table(
+    let table = read_table_parallel(
         bytes,
         shown,
         &ReadOptions {
@@ -436,6 +436,7 @@ pub fn score(
     };
     let feature_names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
     let filled = crate::row_results::FilledCells::from_cells(&filled, &feature_names);
+    let transforms: Vec<_> = model.features.iter().map(|f| f.transform).collect();
     let texts = |name: &str| -> Vec<String> {
         let values = text_of(name);
         scored_rows.iter().map(|&r| values[r].clone()).collect()
@@ -476,7 +477,7 @@ pub fn score(
         ),
         (
             "imputed.csv".into(),
-            tables::imputed_csv(&filled, &rows)
+            tables::imputed_csv(&filled, &transforms, &rows)
                 .map_err(|e| crate::error::OutputError::io(Path::new("a scratch file"), e))?,
         ),
     ];

@@ -42,7 +42,7 @@ mod recipe_text;
 
 use crate::error::{Error, InputError, OutputError};
 use crate::recipe::raw::DEFAULT_MISSING_TOKENS;
-use crate::table::{ColumnData, ReadOptions, read_header, read_table};
+use crate::table::{ColumnData, ReadOptions, read_header, read_table_parallel};
 use inspect::{Inspection, Role, inspect};
 use recipe_text::{counted, delimiter_text, plain, recipe_text, results_folder, toml_str};
 use std::collections::BTreeSet;
@@ -191,7 +191,7 @@ fn read(data: &Path) -> Result<Loaded, Error> {
             .collect(),
         header.names.clone(),
     );
-    let table = read_table(&bytes, &display, &options)?;
+    let table = read_table_parallel(&bytes, &display, &options)?;
     let mut names = Vec::new();
     let mut cells = Vec::new();
     for column in table.columns {
