@@ -137,6 +137,8 @@ struct Loaded {
     delimiter: u8,
     /// Whether `delimiter` differs from the one the file's extension implies.
     delimiter_written: bool,
+    /// The decimal mark the numbers are written with.
+    decimal: u8,
     names: Vec<String>,
     cells: Vec<Vec<String>>,
     lines: Vec<u64>,
@@ -201,6 +203,7 @@ fn read(data: &Path) -> Result<Loaded, Error> {
         names.push(column.name);
         cells.push(std::sync::Arc::unwrap_or_clone(values));
     }
+    let decimal = inspect::decimal_mark(&cells, delimiter);
     if table.lines.len() < 2 {
         return Err(InputError::TooFewRows {
             path: display,
@@ -217,6 +220,7 @@ fn read(data: &Path) -> Result<Loaded, Error> {
         display,
         delimiter,
         delimiter_written: delimiter != default,
+        decimal,
         names,
         cells,
         lines: table.lines,
@@ -294,11 +298,16 @@ fn summary(table: &Loaded, inspection: &Inspection, target: &Path, replaced: boo
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "table      {}: {}, {}, delimiter {}",
+        "table      {}: {}, {}, delimiter {}{}",
         table.display,
         counted(rows, "row"),
         counted(table.names.len(), "column"),
-        delimiter_text(table.delimiter)
+        delimiter_text(table.delimiter),
+        if table.decimal == b',' {
+            ", decimal comma"
+        } else {
+            ""
+        }
     );
     let width = inspection
         .columns

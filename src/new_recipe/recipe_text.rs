@@ -208,6 +208,13 @@ fn input_section(out: &mut String, table: &Loaded, inspection: &Inspection, inpu
             ),
         );
     }
+    if table.decimal != b'.' {
+        setting(
+            out,
+            &format!("decimal = {}", toml_str(&(table.decimal as char).to_string())),
+            "numbers are written with a decimal comma, as in 3,14",
+        );
+    }
     match inspection.id() {
         Some(d) => setting(out, &format!("id = {}", toml_str(&d.name)), &d.reason),
         None => comment(
@@ -313,7 +320,7 @@ fn missing_section(out: &mut String, table: &Loaded, inspection: &Inspection) {
             .map(|j| &table.cells[j])
             .collect();
         let complete = (0..rows)
-            .filter(|&r| columns.iter().all(|c| parse_number(&c[r]).is_some()))
+            .filter(|&r| columns.iter().all(|c| parse_number(&c[r], table.decimal).is_some()))
             .count();
         comment(
             out,
