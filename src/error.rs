@@ -256,7 +256,8 @@ pub enum RecipeProblem {
     )]
     ThousandsIsDecimal { mark: char },
     #[error(
-        "`{key}` is defined twice; its first definition is on line {first}: keep one (to add settings to a table, write them under its first header)"
+        "`{key}` is defined twice; its first definition is on line {first}: {}",
+        if .key.starts_with('[') { "move these settings under the first header and remove this one" } else { "keep one of the two" }
     )]
     DefinedTwice { key: String, first: usize },
 }

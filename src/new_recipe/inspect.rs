@@ -154,6 +154,20 @@ impl Inspection {
         self.with_role(Role::Id).next()
     }
 
+    /// The group column most likely to matter for colouring scores: the first
+    /// whose name says it is a grouping, else the one with the fewest values
+    /// (the first of those).
+    pub(super) fn likeliest_group(&self) -> Option<&Decision> {
+        let values = |d: &Decision| match &d.kind {
+            Kind::Text(t) => t.distinct,
+            Kind::Numeric(n) => n.distinct,
+            _ => usize::MAX,
+        };
+        self.with_role(Role::Group)
+            .find(|d| name_has(&d.name, GROUP_WORDS))
+            .or_else(|| self.with_role(Role::Group).min_by_key(|d| values(d)))
+    }
+
     /// Features with their numbers and missing share.
     pub(super) fn features(&self, rows: usize) -> Vec<(&Decision, &Numbers, f64)> {
         self.with_role(Role::Feature)
@@ -481,7 +495,7 @@ fn role_of(
     match kind {
         Kind::Empty => excluded("every cell is empty or marks a missing value".into()),
         Kind::DecimalComma { example } => excluded(format!(
-            "numbers written with a decimal comma (`{}`); sextant reads a point as the decimal mark",
+            "numbers written with a decimal comma (`{}`) while the table's other numbers use a point; input.decimal sets one mark for the whole table",
             plain(example)
         )),
         Kind::Stray {
