@@ -216,9 +216,11 @@ fn number_marks(results: &Path, input: &Value) -> Result<NumberMarks, Error> {
     };
     let decimal = match &input["decimal"] {
         Value::Null => b'.',
-        v => serde_json::from_value::<crate::recipe::raw::DecimalMark>(v.clone())
-            .map_err(|e| bad("decimal", e.to_string()))?
-            .0,
+        v => {
+            serde_json::from_value::<crate::recipe::raw::DecimalMark>(v.clone())
+                .map_err(|e| bad("decimal", e.to_string()))?
+                .0
+        }
     };
     let thousands = match &input["thousands"] {
         Value::Null => None,

@@ -376,7 +376,7 @@ pub enum InputError {
         id: String,
         first_line: u64,
     },
-    #[error("{path}: {rows} usable row(s){why}; at least 2 are needed")]
+    #[error("{path}: {}{why}; at least 2 are needed", crate::text::count(*.rows, "usable row", "usable rows"))]
     TooFewRows {
         path: String,
         rows: usize,
@@ -413,14 +413,17 @@ impl InputError {
         let (path, column) = (path.to_string(), column.to_string());
         let spelt = text.trim_start_matches(['+', '-']).to_ascii_lowercase();
         let named = spelt.starts_with("inf") || spelt.starts_with("nan");
-        if text.parse::<f64>().is_ok() && !named {
+        // A finite number here is bad only in the table's number format (a
+        // point under a decimal comma, say): `describe_cell` says so.
+        let overflow = text.parse::<f64>().is_ok_and(f64::is_infinite);
+        if overflow && !named {
             InputError::OutOfRange {
                 path,
                 line,
                 column,
                 text,
             }
-        } else if text.parse::<f64>().is_ok() {
+        } else if named && text.parse::<f64>().is_ok() {
             InputError::NonFinite {
                 path,
                 line,
@@ -449,7 +452,11 @@ fn describe_cell(text: &str) -> String {
         )
     } else if text.contains(',') && text.replace(',', ".").parse::<f64>().is_ok() {
         format!(
-            "a non-numeric cell `{text}` (it looks like a decimal comma: sextant reads a point as the decimal mark)"
+            "a non-numeric cell `{text}` (it looks like a decimal comma: set input.decimal = \",\" to read the table's numbers that way)"
+        )
+    } else if text.parse::<f64>().is_ok_and(f64::is_finite) {
+        format!(
+            "a non-numeric cell `{text}`: not a number in the table's format (input.decimal and input.thousands); fix the cell, or add it to input.missing if it means missing"
         )
     } else {
         format!(

@@ -585,7 +585,7 @@ fn table_cases() -> Vec<Case> {
             .err(&["data.csv: the file is empty"]),
         case("header only", BASE)
             .data("sample,group,a,b,c\n")
-            .err(&["data.csv: 0 usable row(s)", "at least 2"]),
+            .err(&["data.csv: 0 usable rows", "at least 2"]),
         case("ragged row", BASE)
             .data("sample,group,a,b,c\ns1,x,1,2,3\ns2,x,2,3,4\ns3,y,3,4,5,6\ns4,y,1,1,1\n")
             .err(&["data.csv:4: the row has 6 fields but the header has 5"]),
@@ -692,7 +692,7 @@ fn table_cases() -> Vec<Case> {
             .err(&["data.csv: no usable features", "no numeric column"]),
         case("one data row", BASE)
             .data("sample,group,a,b,c\ns1,x,1,2,3\n")
-            .err(&["data.csv: 1 usable row(s)", "at least 2"]),
+            .err(&["data.csv: 1 usable row", "at least 2"]),
     ]
 }
 
@@ -816,7 +816,7 @@ fn plan_cases() -> Vec<Case> {
         )
         .data("sample,group,a,b,c\ns1,x,NA,2,1\ns2,x,2.5,NA,2\ns3,y,3,4,\ns4,y,1,5,4\ns5,z,-,6,5\n")
         .err(&[
-            "data.csv: 1 usable row(s)",
+            "data.csv: 1 usable row",
             "after dropping 4 row(s)",
             "at least 2",
         ]),

@@ -10,11 +10,11 @@ use sextant::table::parallel::{read_table_by_rows, read_table_in_pieces, read_ta
 use sextant::table::{ColumnData, ReadOptions, Table, read_table};
 
 fn options() -> ReadOptions {
-    ReadOptions {
-        delimiter: b',',
-        missing_tokens: vec!["".into(), "NA".into()],
-        text_columns: vec!["id".into(), "note".into()],
-    }
+    ReadOptions::new(
+        b',',
+        vec!["".into(), "NA".into()],
+        vec!["id".into(), "note".into()],
+    )
 }
 
 /// A comparable summary of a table (NaN compared by bits), without line numbers.

@@ -503,7 +503,8 @@ fn role_of(
             first_line,
             first_text,
         } => excluded(format!(
-            "numbers, but {texts} cell(s) hold text, first `{}` on line {first_line}; fix them, or add the text to missing if it means missing, then take the column out of this list",
+            "numbers, but {} text, first `{}` on line {first_line}; fix them, or add the text to missing if it means missing, then take the column out of this list",
+            crate::text::count(*texts, "cell holds", "cells hold"),
             plain(first_text)
         )),
         Kind::Text(t) if t.dates => excluded("dates or times, not measurements".into()),
@@ -514,7 +515,10 @@ fn role_of(
         )),
         Kind::Text(t) if t.distinct <= group_limit => {
             let empty = if t.empty > 0 {
-                format!(", {} empty cell(s)", t.empty)
+                format!(
+                    ", {}",
+                    crate::text::count(t.empty, "empty cell", "empty cells")
+                )
             } else {
                 String::new()
             };
@@ -529,7 +533,7 @@ fn role_of(
             if s.min == s.max {
                 excluded(format!(
                     "the same number ({}) in every row that has one: no variance to analyse",
-                    crate::text::number(s.min)
+                    crate::text::readable(s.min)
                 ))
             } else if n.integer
                 && n.missing == 0

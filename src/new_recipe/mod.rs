@@ -342,16 +342,17 @@ fn summary(table: &Loaded, inspection: &Inspection, target: &Path, replaced: boo
     for (token, columns) in &inspection.extra_missing {
         let _ = writeln!(
             out,
-            "missing    {} is read as missing (seen in {} numeric column(s))",
+            "missing    {} is read as missing (seen in {})",
             toml_str(token),
-            columns.len()
+            crate::text::count(columns.len(), "numeric column", "numeric columns")
         );
     }
     let usable = inspection.usable(rows).len();
     let features = inspection.features(rows).len();
     let _ = writeln!(
         out,
-        "features   {features} numeric column(s), {usable} kept after max_feature_missing = {MAX_FEATURE_MISSING}"
+        "features   {}, {usable} kept after max_feature_missing = {MAX_FEATURE_MISSING}",
+        crate::text::count(features, "numeric column", "numeric columns")
     );
     let shown = target.display().to_string();
     let _ = writeln!(

@@ -217,7 +217,10 @@ fn input_section(out: &mut String, table: &Loaded, inspection: &Inspection, inpu
     if table.decimal != b'.' {
         setting(
             out,
-            &format!("decimal = {}", toml_str(&(table.decimal as char).to_string())),
+            &format!(
+                "decimal = {}",
+                toml_str(&(table.decimal as char).to_string())
+            ),
             "numbers are written with a decimal comma, as in 3,14",
         );
     }
@@ -326,7 +329,11 @@ fn missing_section(out: &mut String, table: &Loaded, inspection: &Inspection) {
             .map(|j| &table.cells[j])
             .collect();
         let complete = (0..rows)
-            .filter(|&r| columns.iter().all(|c| parse_number(&c[r], table.decimal).is_some()))
+            .filter(|&r| {
+                columns
+                    .iter()
+                    .all(|c| parse_number(&c[r], table.decimal).is_some())
+            })
             .count();
         comment(
             out,
@@ -527,11 +534,7 @@ fn plot_section(out: &mut String, inspection: &Inspection, compute: usize) {
                 "No group column to colour the points by: color = \"column\" takes one of input.groups.",
             ),
         }
-        setting(
-            out,
-            "ellipse = 0.95",
-            "Hotelling's T² limit at 95 %",
-        );
+        setting(out, "ellipse = 0.95", "Hotelling's T² limit at 95 %");
     } else {
         comment(
             out,

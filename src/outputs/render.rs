@@ -509,6 +509,11 @@ fn filled_transforms(
 ) -> Vec<Option<crate::recipe::plan::Transform>> {
     features
         .iter()
-        .map(|f| applied.iter().find(|a| &a.feature == f).map(|a| a.transform))
+        .map(|f| {
+            applied
+                .iter()
+                .find(|a| &a.feature == f)
+                .map(|a| a.transform)
+        })
         .collect()
 }

@@ -117,6 +117,9 @@ mod tests {
             Some(("[input]".into(), 2))
         );
         let in_string = "notes = \"\"\"\n[input]\n\"\"\"\n[input]\n";
-        assert_eq!(first_definition(in_string, in_string.rfind("[input]").unwrap()), None);
+        assert_eq!(
+            first_definition(in_string, in_string.rfind("[input]").unwrap()),
+            None
+        );
     }
 }

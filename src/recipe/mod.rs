@@ -78,8 +78,8 @@ pub fn parse(path: &Path, text: String) -> Result<LoadedRecipe, RecipeError> {
             };
         }
         // The crate names neither the key nor where it was first defined.
-        let twice = e.message().starts_with("duplicate key")
-            || e.message().starts_with("duplicate table");
+        let twice =
+            e.message().starts_with("duplicate key") || e.message().starts_with("duplicate table");
         let first = e
             .span()
             .filter(|_| twice)

@@ -89,7 +89,10 @@ fn number_marks(input: &InputPlan) -> Vec<(String, Value)> {
     let options = &input.options;
     let mut keys = Vec::new();
     if options.decimal != b'.' {
-        keys.push(("decimal".into(), json!((options.decimal as char).to_string())));
+        keys.push((
+            "decimal".into(),
+            json!((options.decimal as char).to_string()),
+        ));
     }
     if let Some(t) = options.thousands {
         keys.push(("thousands".into(), json!((t as char).to_string())));

@@ -238,7 +238,11 @@ mod tests {
             (point, "0.1", "0.1"),
         ] {
             let want: f64 = standard.parse().unwrap();
-            assert_eq!(format.parse(text).map(f64::to_bits), Some(want.to_bits()), "{text}");
+            assert_eq!(
+                format.parse(text).map(f64::to_bits),
+                Some(want.to_bits()),
+                "{text}"
+            );
         }
         for (format, text) in [
             (comma, "3.14"),

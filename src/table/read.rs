@@ -279,11 +279,7 @@ mod tests {
     use crate::table::ColumnData;
 
     fn options() -> ReadOptions {
-        ReadOptions::new(
-            b',',
-            vec!["".into(), "NA".into()],
-            vec!["id".into()],
-        )
+        ReadOptions::new(b',', vec!["".into(), "NA".into()], vec!["id".into()])
     }
 
     #[test]

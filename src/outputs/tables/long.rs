@@ -10,8 +10,8 @@ use super::{
 use crate::analysis::RowDetail;
 use crate::recipe::plan::Transform;
 use crate::row_results::{FilledCells, RowResults};
-use crate::stages::transform::original_value;
 use crate::stages::diagnose::Diagnostics;
+use crate::stages::transform::original_value;
 use std::io;
 
 /// Row labels by table row, for the serial writers in the tests.
@@ -508,7 +508,9 @@ mod tests {
         let rows_whole = results(&labels, &no_scores, (&zeros, &zeros), None);
         let whole = FilledCells::from_cells(&filled, &features);
         for threads in [1, 2, 8] {
-            let got = on_threads(threads, || imputed_csv(&whole, &transforms, &rows_whole).unwrap());
+            let got = on_threads(threads, || {
+                imputed_csv(&whole, &transforms, &rows_whole).unwrap()
+            });
             assert!(got == reference, "imputed.csv differs on {threads} threads");
         }
         assert_eq!(
@@ -516,7 +518,8 @@ mod tests {
                 &FilledCells::from_cells(&[], &features),
                 &transforms,
                 &rows_whole
-            ).unwrap(),
+            )
+            .unwrap(),
             imputed_csv_serial(&labels, &[])
         );
         // Cells and rows read back from scratch files, in runs of 1,000 cells
