@@ -376,7 +376,7 @@ pub enum InputError {
         id: String,
         first_line: u64,
     },
-    #[error("{path}: {}{why}; at least 2 are needed", crate::text::count(*.rows, "usable row", "usable rows"))]
+    #[error("{path}: {rows} usable {}{why}; at least 2 are needed", if *.rows == 1 { "row" } else { "rows" })]
     TooFewRows {
         path: String,
         rows: usize,

@@ -300,7 +300,7 @@ mod tests {
         out.row(&header);
         for cell in filled {
             let mut fields = label_fields(labels, cell.row);
-            let (original, name) = match cell.feature.as_str() {
+            let (original, name) = match &*cell.feature {
                 "x" => (libm::exp(cell.value), "ln"),
                 _ => (cell.value, "none"),
             };
