@@ -257,8 +257,8 @@ mod tests {
         ] {
             assert_eq!(format.parse(text), None, "{text}");
         }
-        assert_eq!(plain_decimal_with(b"3,14", b','), Some(3.14));
-        assert_eq!(plain_decimal_with(b"3.14", b','), None);
+        assert_eq!(plain_decimal_with(b"2,75", b','), Some(2.75));
+        assert_eq!(plain_decimal_with(b"2.75", b','), None);
     }
 
     #[test]
