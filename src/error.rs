@@ -244,6 +244,24 @@ pub enum RecipeProblem {
         expected: String,
         found: String,
     },
+    #[error(
+        "input.{key} = \"{mark}\" is also the field delimiter, so a cell such as {example} would be split in two; {fix}"
+    )]
+    MarkIsDelimiter {
+        key: &'static str,
+        mark: char,
+        example: &'static str,
+        fix: &'static str,
+    },
+    #[error(
+        "input.thousands and input.decimal are both \"{mark}\"; a number such as 1.234,5 needs two different marks"
+    )]
+    ThousandsIsDecimal { mark: char },
+    #[error(
+        "`{key}` is defined twice; its first definition is on line {first}: {}",
+        if .key.starts_with('[') { "move these settings under the first header and remove this one" } else { "keep one of the two" }
+    )]
+    DefinedTwice { key: String, first: usize },
 }
 
 fn did_you_mean(suggestion: &Option<String>) -> String {
@@ -429,14 +447,17 @@ impl InputError {
         let (path, column) = (path.to_string(), column.to_string());
         let spelt = text.trim_start_matches(['+', '-']).to_ascii_lowercase();
         let named = spelt.starts_with("inf") || spelt.starts_with("nan");
-        if text.parse::<f64>().is_ok() && !named {
+        // A finite number here is bad only in the table's number format (a
+        // point under a decimal comma, say): `describe_cell` says so.
+        let overflow = text.parse::<f64>().is_ok_and(f64::is_infinite);
+        if overflow && !named {
             InputError::OutOfRange {
                 path,
                 line,
                 column,
                 text,
             }
-        } else if text.parse::<f64>().is_ok() {
+        } else if named && text.parse::<f64>().is_ok() {
             InputError::NonFinite {
                 path,
                 line,
@@ -465,7 +486,11 @@ fn describe_cell(text: &str) -> String {
         )
     } else if text.contains(',') && text.replace(',', ".").parse::<f64>().is_ok() {
         format!(
-            "a non-numeric cell `{text}` (it looks like a decimal comma: sextant reads a point as the decimal mark)"
+            "a non-numeric cell `{text}` (it looks like a decimal comma: set input.decimal = \",\" to read the table's numbers that way)"
+        )
+    } else if text.parse::<f64>().is_ok_and(f64::is_finite) {
+        format!(
+            "a non-numeric cell `{text}`: not a number in the table's format (input.decimal and input.thousands); fix the cell, or add it to input.missing if it means missing"
         )
     } else {
         format!(

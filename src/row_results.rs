@@ -396,7 +396,12 @@ impl<'a> CellBatch<'a> {
 
     /// The name of cell `i`'s feature.
     pub fn feature(&self, i: usize) -> &'a str {
-        &self.features[self.chunk.values[3 * i + 1] as usize]
+        &self.features[self.feature_index(i)]
+    }
+
+    /// The index of cell `i`'s feature in [`FilledCells::features`].
+    pub fn feature_index(&self, i: usize) -> usize {
+        self.chunk.values[3 * i + 1] as usize
     }
 
     /// The value filled into cell `i`.

@@ -320,9 +320,13 @@ fn model_based_fills_are_used_for_new_rows() {
         let imputed = table(&ws.path().join(method).join("imputed.csv"));
         assert_eq!(imputed.len(), 20);
         // Filled values are numbers in their feature's plausible range (the
-        // log-scaled counts are filled on the log scale).
+        // log-scaled counts are filled on the log scale: the transformed value).
+        let at = imputed[0]
+            .iter()
+            .position(|c| c == "transformed_value")
+            .unwrap();
         for row in &imputed[1..] {
-            let v: f64 = row.last().unwrap().parse().unwrap();
+            let v: f64 = row[at].parse().unwrap();
             assert!(
                 v.is_finite() && v > -10.0 && v < 2000.0,
                 "{method}: {row:?}"

@@ -185,14 +185,14 @@ const CASES: &[Case] = &[
         name: "duplicate key",
         recipe: Input("id = \"sample\""),
         at: "recipe.toml:7:1:",
-        says: &["duplicate key"],
+        says: &["`input.id` is defined twice; its first definition is on line 5"],
         ..BAD
     },
     Case {
         name: "duplicate table",
         recipe: Section("[output]\nfolder = \"other\""),
         at: "recipe.toml:11:",
-        says: &["duplicate"],
+        says: &["`[output]` is defined twice; its first definition is on line 8"],
         ..BAD
     },
     Case {

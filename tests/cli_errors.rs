@@ -537,8 +537,10 @@ fn recipe_cases() -> Vec<Case> {
             "format = 1\n\n[input]\nfile = \"data.csv\"\nid = \"sample\"\n",
         )
         .err(&["recipe.toml:1:1:", "missing field `output`"]),
-        case("duplicate key", format!("format = 1\n{BASE}"))
-            .err(&["recipe.toml:2:1:", "duplicate key"]),
+        case("duplicate key", format!("format = 1\n{BASE}")).err(&[
+            "recipe.toml:2:1:",
+            "`format` is defined twice; its first definition is on line 1",
+        ]),
         case("sha256 pin is not a digest", with_input("sha256 = \"abc\"")).err(&[
             "recipe.toml:7:10:",
             "`abc` is not a SHA-256 digest",

@@ -223,7 +223,9 @@ fn demo_tables_give_working_recipes_with_the_documented_roles() {
                 .is_none()
         );
         // …and enabling it gives a recipe that still passes check.
-        let enabled = text.replace("# log10 = [", "log10 = [");
+        let enabled = text
+            .replace("# [transform]\n", "[transform]\n")
+            .replace("# log10 = [", "log10 = [");
         let stem = name.trim_end_matches(".csv");
         write(dir.path(), &format!("{stem}-log.toml"), &enabled);
         let check = sextant(&["check", &format!("{stem}-log.toml")], dir.path());

@@ -8,14 +8,11 @@
 //! before; another delimiter is taken only when it alone gives every feature
 //! of the model. A decimal comma is taken only when the features' cells read
 //! as numbers with it and never hold a point.
-//!
-//! The table reader reads points only; a decimal comma is read here, from the
-//! features kept as text (`comma_number`), until the reader has a decimal
-//! setting of its own.
 
 use crate::error::{Error, InputError};
 use crate::outputs::model::Model;
-use crate::table::{ColumnData, ReadOptions, Table, read_header, read_table};
+use super::ScoreSettings;
+use crate::table::{ColumnData, ReadOptions, Table, read_header, read_table_parallel};
 
 /// Delimiters tried when the analysis' own gives none of the model's features.
 const CANDIDATES: [u8; 4] = [b',', b';', b'\t', b'|'];
@@ -152,50 +149,60 @@ fn clip(text: &str, max: usize) -> String {
 }
 
 /// Reads the batch with `delimiter`: the model's features as numbers with the
-/// decimal mark given, or found (a comma only when every feature cell reads
-/// with it and none holds a point); `text_columns` kept as text.
+/// decimal mark given, else the training table's, else a comma found in the
+/// file (only when the delimiter is not a comma and a feature cell that fails
+/// with a point holds a comma, and every feature cell then reads); the
+/// training table's thousands separator only under its own decimal mark;
+/// `text_columns` kept as text.
 pub fn read_batch(
     bytes: &[u8],
     shown: &str,
     model: &Model,
     delimiter: u8,
     asked_decimal: Option<u8>,
-    missing_tokens: &[String],
+    settings: &ScoreSettings,
     text_columns: Vec<String>,
 ) -> Result<Batch, Error> {
-    let options = |text_columns: Vec<String>| ReadOptions {
-        delimiter,
-        missing_tokens: missing_tokens.to_vec(),
-        text_columns,
+    let read = |decimal: u8| {
+        read_table_parallel(
+            bytes,
+            shown,
+            &ReadOptions {
+                delimiter,
+                decimal,
+                thousands: settings.thousands.filter(|_| decimal == settings.decimal),
+                missing_tokens: settings.missing_tokens.clone(),
+                missing_per_column: settings.missing_per_column.clone(),
+                text_columns: text_columns.clone(),
+            },
+        )
     };
     let names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
-    let with_features_as_text = || {
-        let mut all = text_columns.clone();
-        all.extend(names.iter().cloned());
-        read_table(bytes, shown, &options(all))
+    let first = asked_decimal.unwrap_or(settings.decimal);
+    let table = read(first)?;
+    let bad = match numeric_features(&table, &names) {
+        Ok(features) => return Ok(batch(table, features, delimiter, first, Vec::new())),
+        Err(bad) => bad,
     };
-    if asked_decimal == Some(b',') {
-        let table = with_features_as_text()?;
-        let features = comma_features(&table, &names, missing_tokens, shown)?;
-        return Ok(batch(table, features, delimiter, b',', Vec::new()));
-    }
-    let table = read_table(bytes, shown, &options(text_columns.clone()))?;
-    match point_features(&table, &names, shown) {
-        Ok(features) => Ok(batch(table, features, delimiter, b'.', Vec::new())),
-        Err((error, comma_like)) => {
-            if asked_decimal.is_some() || delimiter == b',' || !comma_like {
-                return Err(error.into());
-            }
-            let table = with_features_as_text()?;
-            match comma_features(&table, &names, missing_tokens, shown) {
-                Ok(features) => {
-                    let note = "the table writes decimal commas (3,14 is read as 3.14); pass --decimal to choose".to_string();
-                    Ok(batch(table, features, delimiter, b',', vec![note]))
-                }
-                Err(_) => Err(error.into()),
-            }
+    if asked_decimal.is_none() && first == b'.' && delimiter != b',' && bad.text.contains(',') {
+        let table = read(b',')?;
+        if let Ok(features) = numeric_features(&table, &names) {
+            let note = "the table writes decimal commas (3,14 is read as 3.14); pass --decimal to choose".to_string();
+            return Ok(batch(table, features, delimiter, b',', vec![note]));
         }
     }
+    Err(if asked_decimal.is_some() || first != b'.' {
+        InputError::DecimalMark {
+            path: shown.to_string(),
+            line: bad.line,
+            column: bad.column,
+            text: bad.text,
+            decimal: char::from(first),
+        }
+    } else {
+        InputError::bad_cell(shown, bad.line, &bad.column, bad.text)
+    }
+    .into())
 }
 
 fn batch(
@@ -214,13 +221,15 @@ fn batch(
     }
 }
 
-/// The features read as numbers with a decimal point; on a bad cell, its
-/// error and whether the cell looks like a decimal comma.
-fn point_features(
-    table: &Table,
-    names: &[String],
-    shown: &str,
-) -> Result<Vec<Vec<f64>>, (InputError, bool)> {
+/// The first cell of a feature that is not a number in the batch's format.
+struct BadCell {
+    line: u64,
+    column: String,
+    text: String,
+}
+
+/// The features as numbers, or the first bad cell.
+fn numeric_features(table: &Table, names: &[String]) -> Result<Vec<Vec<f64>>, BadCell> {
     let mut out = Vec::with_capacity(names.len());
     for name in names {
         // The model's check keeps the id and groups (read as text) apart from the features.
@@ -228,44 +237,13 @@ fn point_features(
             unreachable!("a checked model's features are numeric columns of the table")
         };
         if let Some((line, text)) = column.first_bad.clone() {
-            let comma_like = text.contains(',');
-            return Err((InputError::bad_cell(shown, line, name, text), comma_like));
+            return Err(BadCell {
+                line,
+                column: name.clone(),
+                text,
+            });
         }
         out.push(column.values.clone());
-    }
-    Ok(out)
-}
-
-/// The features, kept as text, read as numbers with a decimal comma.
-fn comma_features(
-    table: &Table,
-    names: &[String],
-    missing_tokens: &[String],
-    shown: &str,
-) -> Result<Vec<Vec<f64>>, InputError> {
-    let mut out = Vec::with_capacity(names.len());
-    for name in names {
-        let Some(ColumnData::Text(cells)) = table.column(name).map(|c| &c.data) else {
-            unreachable!("the features were read as text")
-        };
-        let mut values = Vec::with_capacity(cells.len());
-        for (i, cell) in cells.iter().enumerate() {
-            if missing_tokens.iter().any(|m| m == cell) {
-                values.push(f64::NAN);
-                continue;
-            }
-            let Some(v) = comma_number(cell) else {
-                return Err(InputError::DecimalMark {
-                    path: shown.to_string(),
-                    line: table.lines[i],
-                    column: name.clone(),
-                    text: cell.clone(),
-                    decimal: ',',
-                });
-            };
-            values.push(v);
-        }
-        out.push(values);
     }
     Ok(out)
 }

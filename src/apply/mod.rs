@@ -27,6 +27,7 @@ use crate::outputs::hashing::sha256_hex;
 use crate::outputs::manifest::{self, FileRecord, InputRecord, RunInfo};
 use crate::outputs::model::{Fill, Model};
 use crate::outputs::reading;
+use crate::table::read::MissingCode;
 use crate::outputs::replace::{Writer, check_replaceable_by};
 use crate::stages::FeatureData;
 use crate::verify::read_trusted_manifest;
@@ -133,6 +134,11 @@ pub struct ScoreSettings {
     /// The recipe's delimiter (a `.tsv` or `.tab` table is read with tabs).
     pub delimiter: u8,
     pub missing_tokens: Vec<String>,
+    /// The training table's decimal mark and thousands separator.
+    pub decimal: u8,
+    pub thousands: Option<u8>,
+    /// The training recipe's missing codes of single columns.
+    pub missing_per_column: Vec<(String, Vec<MissingCode>)>,
     pub contributions_max_rows: usize,
 }
 
@@ -180,9 +186,13 @@ impl ScoreSettings {
             .pointer("/recipe/resolved/diagnostics/contributions_max_rows")
             .and_then(Value::as_u64)
             .map_or(1000, |m| usize::try_from(m).unwrap_or(usize::MAX));
+        let (decimal, thousands, missing_per_column) = number_marks(results, input)?;
         Ok(ScoreSettings {
             delimiter,
             missing_tokens,
+            decimal,
+            thousands,
+            missing_per_column,
             contributions_max_rows,
         })
     }
@@ -199,6 +209,45 @@ impl ScoreSettings {
             _ => self.delimiter,
         }
     }
+}
+
+/// The decimal mark, thousands separator and missing codes of single columns
+/// the manifest records (absent: a decimal point, no separator, no codes).
+type NumberMarks = (u8, Option<u8>, Vec<(String, Vec<MissingCode>)>);
+
+fn number_marks(results: &Path, input: &Value) -> Result<NumberMarks, Error> {
+    let bad = |key: &str, why: String| {
+        not_results(
+            results,
+            format!("manifest.json: recipe.resolved.input.{key}: {why}"),
+        )
+    };
+    let decimal = match &input["decimal"] {
+        Value::Null => b'.',
+        v => {
+            serde_json::from_value::<crate::recipe::raw::DecimalMark>(v.clone())
+                .map_err(|e| bad("decimal", e.to_string()))?
+                .0
+        }
+    };
+    let thousands = match &input["thousands"] {
+        Value::Null => None,
+        v => Some(
+            serde_json::from_value::<crate::recipe::raw::Thousands>(v.clone())
+                .map_err(|e| bad("thousands", e.to_string()))?
+                .0,
+        ),
+    };
+    let codes = match &input["missing_per_column"] {
+        Value::Null => Vec::new(),
+        v => serde_json::from_value::<std::collections::BTreeMap<String, Vec<MissingCode>>>(
+            v.clone(),
+        )
+        .map_err(|e| bad("missing_per_column", e.to_string()))?
+        .into_iter()
+        .collect(),
+    };
+    Ok((decimal, thousands, codes))
 }
 
 /// Scores the rows of `table_path` with the model in `results`.

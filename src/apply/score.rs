@@ -139,7 +139,7 @@ pub fn score(
         model,
         delimiter,
         options.decimal,
-        &settings.missing_tokens,
+        settings,
         text_columns,
     )?;
     notes.extend(read.notes.iter().cloned());
@@ -271,6 +271,7 @@ pub fn score(
     };
     let feature_names: Vec<String> = model.features.iter().map(|f| f.name.clone()).collect();
     let filled_cells = crate::row_results::FilledCells::from_cells(&filled, &feature_names);
+    let transforms: Vec<_> = model.features.iter().map(|f| f.transform).collect();
     let texts = |name: &str| -> Vec<String> {
         let values = text_of(name);
         scored_rows.iter().map(|&r| values[r].clone()).collect()
@@ -311,7 +312,7 @@ pub fn score(
         ),
         (
             "imputed.csv".into(),
-            tables::imputed_csv(&filled_cells, &rows).map_err(io)?,
+            tables::imputed_csv(&filled_cells, &transforms, &rows).map_err(io)?,
         ),
     ];
 

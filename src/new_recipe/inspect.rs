@@ -154,6 +154,20 @@ impl Inspection {
         self.with_role(Role::Id).next()
     }
 
+    /// The group column most likely to matter for colouring scores: the first
+    /// whose name says it is a grouping, else the one with the fewest values
+    /// (the first of those).
+    pub(super) fn likeliest_group(&self) -> Option<&Decision> {
+        let values = |d: &Decision| match &d.kind {
+            Kind::Text(t) => t.distinct,
+            Kind::Numeric(n) => n.distinct,
+            _ => usize::MAX,
+        };
+        self.with_role(Role::Group)
+            .find(|d| name_has(&d.name, GROUP_WORDS))
+            .or_else(|| self.with_role(Role::Group).min_by_key(|d| values(d)))
+    }
+
     /// Features with their numbers and missing share.
     pub(super) fn features(&self, rows: usize) -> Vec<(&Decision, &Numbers, f64)> {
         self.with_role(Role::Feature)
@@ -191,8 +205,30 @@ fn is_missing_like(cell: &str) -> bool {
     MISSING_LIKE.contains(&lower.as_str())
 }
 
-pub(super) fn parse_number(cell: &str) -> Option<f64> {
-    cell.parse::<f64>().ok().filter(|v| v.is_finite())
+/// The value of a cell under the table's decimal mark, if it is a finite number.
+pub(super) fn parse_number(cell: &str, decimal: u8) -> Option<f64> {
+    let format = crate::table::number::NumberFormat {
+        decimal,
+        thousands: None,
+    };
+    format.parse(cell).filter(|v| v.is_finite())
+}
+
+/// The decimal mark the cells use: a comma when some cell is a number only
+/// when read with a decimal comma (`3,14`) and none only with a point
+/// (`3.14`); a comma-separated table always has a point.
+pub(super) fn decimal_mark(columns: &[Vec<String>], delimiter: u8) -> u8 {
+    if delimiter == b',' {
+        return b'.';
+    }
+    let (mut comma, mut point) = (0usize, 0usize);
+    for cell in columns.iter().flatten() {
+        let as_comma = parse_number(cell, b',').is_some();
+        let as_point = parse_number(cell, b'.').is_some();
+        comma += usize::from(as_comma && !as_point);
+        point += usize::from(as_point && !as_comma);
+    }
+    if comma > 0 && point == 0 { b',' } else { b'.' }
 }
 
 /// A date or time such as 2025-06-02, 02.06.2025, 6/2/25 14:05 or 14:05:30.
@@ -237,7 +273,7 @@ fn name_has(name: &str, list: &[&str]) -> bool {
     name_words(name).iter().any(|w| list.contains(&w.as_str()))
 }
 
-fn kind_of(cells: &[String], lines: &[u64]) -> Kind {
+fn kind_of(cells: &[String], lines: &[u64], decimal: u8) -> Kind {
     let mut values = Vec::new();
     let mut missing = 0;
     let mut tokens: BTreeMap<String, usize> = BTreeMap::new();
@@ -245,7 +281,7 @@ fn kind_of(cells: &[String], lines: &[u64]) -> Kind {
     for (cell, &line) in cells.iter().zip(lines) {
         if DEFAULT_MISSING_TOKENS.contains(&cell.as_str()) {
             missing += 1;
-        } else if let Some(v) = parse_number(cell) {
+        } else if let Some(v) = parse_number(cell, decimal) {
             values.push(v);
         } else if is_missing_like(cell) {
             missing += 1;
@@ -271,8 +307,8 @@ fn kind_of(cells: &[String], lines: &[u64]) -> Kind {
             stats,
         });
     }
-    let comma = |t: &str| t.contains(',') && parse_number(&t.replacen(',', ".", 1)).is_some();
-    if others.iter().all(|(_, t)| comma(t)) {
+    let comma = |t: &str| t.contains(',') && parse_number(t, b',').is_some();
+    if decimal == b'.' && others.iter().all(|(_, t)| comma(t)) {
         return Kind::DecimalComma {
             example: others[0].1.to_string(),
         };
@@ -340,7 +376,7 @@ pub(super) fn inspect(table: &Loaded) -> Result<Inspection, Error> {
     let kinds: Vec<Kind> = table
         .cells
         .iter()
-        .map(|cells| kind_of(cells, &table.lines))
+        .map(|cells| kind_of(cells, &table.lines, table.decimal))
         .collect();
 
     // The id: label-like name first, then the first text column, then row numbers.
@@ -459,7 +495,7 @@ fn role_of(
     match kind {
         Kind::Empty => excluded("every cell is empty or marks a missing value".into()),
         Kind::DecimalComma { example } => excluded(format!(
-            "numbers written with a decimal comma (`{}`); sextant reads a point as the decimal mark",
+            "numbers written with a decimal comma (`{}`) while the table's other numbers use a point; input.decimal sets one mark for the whole table",
             plain(example)
         )),
         Kind::Stray {
@@ -467,7 +503,8 @@ fn role_of(
             first_line,
             first_text,
         } => excluded(format!(
-            "numbers, but {texts} cell(s) hold text, first `{}` on line {first_line}; fix them, or add the text to missing if it means missing, then take the column out of this list",
+            "numbers, but {} text, first `{}` on line {first_line}; fix them, or add the text to missing if it means missing, then take the column out of this list",
+            crate::text::count(*texts, "cell holds", "cells hold"),
             plain(first_text)
         )),
         Kind::Text(t) if t.dates => excluded("dates or times, not measurements".into()),
@@ -478,7 +515,10 @@ fn role_of(
         )),
         Kind::Text(t) if t.distinct <= group_limit => {
             let empty = if t.empty > 0 {
-                format!(", {} empty cell(s)", t.empty)
+                format!(
+                    ", {}",
+                    crate::text::count(t.empty, "empty cell", "empty cells")
+                )
             } else {
                 String::new()
             };
@@ -493,7 +533,7 @@ fn role_of(
             if s.min == s.max {
                 excluded(format!(
                     "the same number ({}) in every row that has one: no variance to analyse",
-                    crate::text::number(s.min)
+                    crate::text::readable(s.min)
                 ))
             } else if n.integer
                 && n.missing == 0
@@ -570,7 +610,7 @@ mod tests {
     fn missing_stand_ins_are_recognised() {
         let cells: Vec<String> = ["1.5", "ND", "2", "", "3", "nd"].map(String::from).to_vec();
         let lines: Vec<u64> = (2..8).collect();
-        match kind_of(&cells, &lines) {
+        match kind_of(&cells, &lines, b'.') {
             Kind::Numeric(n) => {
                 assert_eq!(n.missing, 3);
                 assert_eq!(n.tokens.keys().collect::<Vec<_>>(), ["ND", "nd"]);
@@ -579,12 +619,12 @@ mod tests {
         }
         let cells: Vec<String> = ["1.5", "2,5", "3"].map(String::from).to_vec();
         assert!(matches!(
-            kind_of(&cells, &lines[..3]),
+            kind_of(&cells, &lines[..3], b'.'),
             Kind::DecimalComma { .. }
         ));
         let cells: Vec<String> = ["1.5", "oops", "3"].map(String::from).to_vec();
         assert!(matches!(
-            kind_of(&cells, &lines[..3]),
+            kind_of(&cells, &lines[..3], b'.'),
             Kind::Stray { first_line: 3, .. }
         ));
     }

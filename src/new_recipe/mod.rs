@@ -42,7 +42,7 @@ mod recipe_text;
 
 use crate::error::{Error, InputError, OutputError};
 use crate::recipe::raw::DEFAULT_MISSING_TOKENS;
-use crate::table::{ColumnData, ReadOptions, read_header, read_table};
+use crate::table::{ColumnData, ReadOptions, read_header, read_table_parallel};
 use inspect::{Inspection, Role, inspect};
 use recipe_text::{counted, delimiter_text, plain, recipe_text, results_folder, toml_str};
 use std::collections::BTreeSet;
@@ -137,6 +137,8 @@ struct Loaded {
     delimiter: u8,
     /// Whether `delimiter` differs from the one the file's extension implies.
     delimiter_written: bool,
+    /// The decimal mark the numbers are written with.
+    decimal: u8,
     names: Vec<String>,
     cells: Vec<Vec<String>>,
     lines: Vec<u64>,
@@ -183,15 +185,15 @@ fn read(data: &Path) -> Result<Loaded, Error> {
         }
     }
     let header = read_header(&bytes, &display, delimiter)?;
-    let options = ReadOptions {
+    let options = ReadOptions::new(
         delimiter,
-        missing_tokens: DEFAULT_MISSING_TOKENS
+        DEFAULT_MISSING_TOKENS
             .iter()
             .map(|s| s.to_string())
             .collect(),
-        text_columns: header.names.clone(),
-    };
-    let table = read_table(&bytes, &display, &options)?;
+        header.names.clone(),
+    );
+    let table = read_table_parallel(&bytes, &display, &options)?;
     let mut names = Vec::new();
     let mut cells = Vec::new();
     for column in table.columns {
@@ -201,6 +203,7 @@ fn read(data: &Path) -> Result<Loaded, Error> {
         names.push(column.name);
         cells.push(std::sync::Arc::unwrap_or_clone(values));
     }
+    let decimal = inspect::decimal_mark(&cells, delimiter);
     if table.lines.len() < 2 {
         return Err(InputError::TooFewRows {
             path: display,
@@ -217,6 +220,7 @@ fn read(data: &Path) -> Result<Loaded, Error> {
         display,
         delimiter,
         delimiter_written: delimiter != default,
+        decimal,
         names,
         cells,
         lines: table.lines,
@@ -294,11 +298,16 @@ fn summary(table: &Loaded, inspection: &Inspection, target: &Path, replaced: boo
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "table      {}: {}, {}, delimiter {}",
+        "table      {}: {}, {}, delimiter {}{}",
         table.display,
         counted(rows, "row"),
         counted(table.names.len(), "column"),
-        delimiter_text(table.delimiter)
+        delimiter_text(table.delimiter),
+        if table.decimal == b',' {
+            ", decimal comma"
+        } else {
+            ""
+        }
     );
     let width = inspection
         .columns
@@ -333,16 +342,17 @@ fn summary(table: &Loaded, inspection: &Inspection, target: &Path, replaced: boo
     for (token, columns) in &inspection.extra_missing {
         let _ = writeln!(
             out,
-            "missing    {} is read as missing (seen in {} numeric column(s))",
+            "missing    {} is read as missing (seen in {})",
             toml_str(token),
-            columns.len()
+            crate::text::count(columns.len(), "numeric column", "numeric columns")
         );
     }
     let usable = inspection.usable(rows).len();
     let features = inspection.features(rows).len();
     let _ = writeln!(
         out,
-        "features   {features} numeric column(s), {usable} kept after max_feature_missing = {MAX_FEATURE_MISSING}"
+        "features   {}, {usable} kept after max_feature_missing = {MAX_FEATURE_MISSING}",
+        crate::text::count(features, "numeric column", "numeric columns")
     );
     let shown = target.display().to_string();
     let _ = writeln!(

@@ -162,6 +162,11 @@ pub(super) fn recipe_text(
         &mut out,
         "Next: `sextant check` on this file reads the table and tries every step except the decomposition; `sextant run` on it writes the results folder.",
     );
+    let _ = writeln!(out, "#");
+    comment(
+        &mut out,
+        "The steps run in this order, whatever the order of the tables below: read the table; transform the features listed in [transform] (observed cells only); drop features missing more than max_feature_missing; fill or drop the remaining missing cells (on the transformed scale); scale; compute the components; flag unusual rows; draw the [[plot]] figures.",
+    );
     let _ = writeln!(out, "format = 1");
     setting(
         &mut out,
@@ -177,10 +182,11 @@ pub(super) fn recipe_text(
     );
 
     input_section(&mut out, table, inspection, input_file);
-    missing_section(&mut out, table, inspection);
     transform_section(&mut out, inspection, rows);
+    missing_section(&mut out, table, inspection);
     scaling_section(&mut out, inspection, rows);
-    components_section(&mut out, inspection, rows);
+    let compute = components_section(&mut out, inspection, rows);
+    plot_section(&mut out, inspection, compute);
 
     let _ = writeln!(out, "\n[output]");
     comment(
@@ -206,6 +212,16 @@ fn input_section(out: &mut String, table: &Loaded, inspection: &Inspection, inpu
                 "the header splits into columns at {}",
                 delimiter_text(table.delimiter)
             ),
+        );
+    }
+    if table.decimal != b'.' {
+        setting(
+            out,
+            &format!(
+                "decimal = {}",
+                toml_str(&(table.decimal as char).to_string())
+            ),
+            "numbers are written with a decimal comma, as in 3,14",
         );
     }
     match inspection.id() {
@@ -313,7 +329,11 @@ fn missing_section(out: &mut String, table: &Loaded, inspection: &Inspection) {
             .map(|j| &table.cells[j])
             .collect();
         let complete = (0..rows)
-            .filter(|&r| columns.iter().all(|c| parse_number(&c[r]).is_some()))
+            .filter(|&r| {
+                columns
+                    .iter()
+                    .all(|c| parse_number(&c[r], table.decimal).is_some())
+            })
             .count();
         comment(
             out,
@@ -347,11 +367,13 @@ fn missing_section(out: &mut String, table: &Loaded, inspection: &Inspection) {
     let _ = writeln!(out, "max_feature_missing = {MAX_FEATURE_MISSING}");
 }
 
+/// The transforms, all in comments (the `[transform]` header too), so that the
+/// recipe holds no empty table that a later `[transform]` would repeat.
 fn transform_section(out: &mut String, inspection: &Inspection, rows: usize) {
-    let _ = writeln!(out, "\n[transform]");
+    let _ = writeln!(out);
     comment(
         out,
-        "log10, ln and sqrt each take a list of features (names or patterns), transformed after missing cells are filled and before scaling. A value outside the domain, such as the log of zero, is an error naming the cell. Nothing is transformed unless listed.",
+        "[transform]: log10, ln and sqrt each take a list of features (names or patterns). Transforms come first: they apply to the observed cells, before missing cells are filled (so fills are made on the transformed scale, and imputed.csv gives them back in the original units) and before scaling. A value outside the domain, such as the log of zero, is an error naming the cell. Nothing is transformed unless listed.",
     );
     let skewed = inspection.skewed(rows);
     comment(
@@ -361,7 +383,11 @@ fn transform_section(out: &mut String, inspection: &Inspection, rows: usize) {
         ),
     );
     if skewed.is_empty() {
-        comment(out, "No feature here meets it.");
+        comment(
+            out,
+            "No feature here meets it. To transform features, remove the # on the next two lines and list them:",
+        );
+        let _ = writeln!(out, "# [transform]");
         let _ = writeln!(out, "# log10 = []");
         return;
     }
@@ -390,13 +416,15 @@ fn transform_section(out: &mut String, inspection: &Inspection, rows: usize) {
     let names: Vec<String> = skewed.iter().map(|(d, _)| toml_str(&d.name)).collect();
     let one_line = format!("# log10 = [{}]", names.join(", "));
     if one_line.chars().count() <= WRAP {
-        comment(out, "Remove the # on the next line to use it:");
+        comment(out, "Remove the # on the next two lines to use it:");
+        let _ = writeln!(out, "# [transform]");
         let _ = writeln!(out, "{one_line}");
     } else {
         comment(
             out,
             "Remove the # at the start of the next lines to use it:",
         );
+        let _ = writeln!(out, "# [transform]");
         let _ = writeln!(out, "# log10 = [");
         for name in &names {
             let _ = writeln!(out, "#     {name},");
@@ -456,7 +484,8 @@ fn scaling_section(out: &mut String, inspection: &Inspection, rows: usize) {
     let _ = writeln!(out, "constant_features = \"error\"");
 }
 
-fn components_section(out: &mut String, inspection: &Inspection, rows: usize) {
+/// Writes `[components]`; returns the `compute` it wrote.
+fn components_section(out: &mut String, inspection: &Inspection, rows: usize) -> usize {
     let usable = inspection.usable(rows).len();
     let compute = COMPUTE.min(usable).min(rows - 1).max(1);
     let _ = writeln!(out, "\n[components]");
@@ -470,6 +499,55 @@ fn components_section(out: &mut String, inspection: &Inspection, rows: usize) {
         &format!("compute = {compute}"),
         "how many components the tables report",
     );
+    compute
+}
+
+/// Three figures: the scree plot, the scores of components 1 and 2 coloured
+/// by the likeliest group column, and the loadings of component 1.
+fn plot_section(out: &mut String, inspection: &Inspection, compute: usize) {
+    let _ = writeln!(out);
+    comment(
+        out,
+        "Figures, one [[plot]] table each, written to plots/ in the results folder and shown in the report. Other kinds: \"biplot\", \"correlation-circle\", \"outlier-map\".",
+    );
+    let _ = writeln!(out, "\n[[plot]]");
+    setting(
+        out,
+        "kind = \"scree\"",
+        "variance of each component: how many matter",
+    );
+    if compute >= 2 {
+        let _ = writeln!(out, "\n[[plot]]");
+        setting(
+            out,
+            "kind = \"scores\"",
+            "rows on components 1 and 2 (x = 1, y = 2)",
+        );
+        match inspection.likeliest_group() {
+            Some(g) => setting(
+                out,
+                &format!("color = {}", toml_str(&g.name)),
+                "the group column most likely to separate the rows",
+            ),
+            None => comment(
+                out,
+                "No group column to colour the points by: color = \"column\" takes one of input.groups.",
+            ),
+        }
+        setting(out, "ellipse = 0.95", "Hotelling's T² limit at 95 %");
+    } else {
+        comment(
+            out,
+            "A score plot needs two components, and this table gives one (compute = 1).",
+        );
+    }
+    let _ = writeln!(out, "\n[[plot]]");
+    setting(
+        out,
+        "kind = \"loadings\"",
+        "how each feature weighs in component 1",
+    );
+    let _ = writeln!(out, "component = 1");
 }
 
 #[cfg(test)]

@@ -358,7 +358,8 @@ fn result_files(
         (
             "imputed.csv".into(),
             large_table(staging, "imputed.csv", |sink| {
-                tables::imputed_csv_into(&pre.filled, &analysis.rows, sink)
+                let transforms = filled_transforms(&pre.filled.features, &pre.transforms);
+                tables::imputed_csv_into(&pre.filled, &transforms, &analysis.rows, sink)
             })?,
         ),
         (
@@ -524,4 +525,20 @@ fn diagnostics_json(diag: &Diagnostics, rank: usize, kept: usize, max_rows: usiz
         "contributions_written_for": diag.flagged.min(max_rows),
         "notes": diag.notes,
     })
+}
+
+/// The transform of each feature of the filled cells, by name.
+fn filled_transforms(
+    features: &[String],
+    applied: &[crate::stages::transform::Applied],
+) -> Vec<Option<crate::recipe::plan::Transform>> {
+    features
+        .iter()
+        .map(|f| {
+            applied
+                .iter()
+                .find(|a| &a.feature == f)
+                .map(|a| a.transform)
+        })
+        .collect()
 }

@@ -47,6 +47,7 @@ pub fn explain(recipe: &LoadedRecipe) -> Vec<String> {
         raw.input.file.get_ref(),
         join_words(&tokens).replace(" and ", " or ")
     ));
+    s.extend(number_marks(&input.options));
     if let Some(pin) = &raw.input.sha256 {
         s.push(format!(
             "Refuse to run unless the table's SHA-256 is {}.",
@@ -275,4 +276,43 @@ pub fn render(recipe: &LoadedRecipe) -> String {
         let _ = writeln!(out, "{:>2}. {sentence}", i + 1);
     }
     out
+}
+
+/// The sentences on a decimal comma, a thousands separator and the missing
+/// codes of single columns: none for a table read with the defaults.
+fn number_marks(options: &crate::table::ReadOptions) -> Vec<String> {
+    let mut s = Vec::new();
+    let mark = |b: u8| match b {
+        b' ' => "a space".to_string(),
+        b => format!("`{}`", b as char),
+    };
+    if options.decimal != b'.' || options.thousands.is_some() {
+        let example = match (options.decimal, options.thousands) {
+            (b',', Some(t)) => format!("1{}234,5", t as char),
+            (b',', None) => "3,14".into(),
+            (_, Some(t)) => format!("1{}234.5", t as char),
+            _ => "3.14".into(),
+        };
+        let thousands = options.thousands.map_or(String::new(), |t| {
+            format!(", with {} between groups of three digits", mark(t))
+        });
+        s.push(format!(
+            "Read numbers with {} as the decimal mark{thousands}, as in {example}; a cell in any other form is not a number.",
+            mark(options.decimal)
+        ));
+    }
+    for (column, codes) in &options.missing_per_column {
+        let shown: Vec<String> = codes
+            .iter()
+            .map(|c| match c {
+                crate::table::read::MissingCode::Number(v) => crate::text::number(*v),
+                crate::table::read::MissingCode::Text(t) => format!("\"{t}\""),
+            })
+            .collect();
+        s.push(format!(
+            "In the column `{column}` only, also count {} as missing.",
+            join_words(&shown).replace(" and ", " or ")
+        ));
+    }
+    s
 }

@@ -1,6 +1,7 @@
 //! Recipes: reading the TOML file ([`raw`]) and checking it against the data ([`plan`]).
 
 pub mod applies;
+mod duplicates;
 pub mod explain;
 pub mod plan;
 pub mod plots;
@@ -76,10 +77,20 @@ pub fn parse(path: &Path, text: String) -> Result<LoadedRecipe, RecipeError> {
                 problem: RecipeProblem::ArrayOfTables { name },
             };
         }
+        // The crate names neither the key nor where it was first defined.
+        let twice =
+            e.message().starts_with("duplicate key") || e.message().starts_with("duplicate table");
+        let first = e
+            .span()
+            .filter(|_| twice)
+            .and_then(|s| duplicates::first_definition(&text, s.start));
         RecipeError {
             file: path.to_path_buf(),
             at: e.span().map(|s| Position::locate(&text, s.start)),
-            problem: RecipeProblem::Syntax(plain_words(e.message().trim_end())),
+            problem: match first {
+                Some((key, first)) => RecipeProblem::DefinedTwice { key, first },
+                None => RecipeProblem::Syntax(plain_words(e.message().trim_end())),
+            },
         }
     })?;
     let loaded = LoadedRecipe {
@@ -96,6 +107,7 @@ pub fn parse(path: &Path, text: String) -> Result<LoadedRecipe, RecipeError> {
         ));
     }
     applies::check_applicable(&loaded)?;
+    plan::check_number_marks(&loaded)?;
     Ok(loaded)
 }
 

@@ -124,15 +124,7 @@ pub fn input_plan(recipe: &LoadedRecipe) -> InputPlan {
     let input = &recipe.raw.input;
     let display = input.file.get_ref().clone();
     let file = crate::paths::tidy(&recipe.dir().join(&display));
-    let delimiter = input.delimiter.map(|d| d.0).unwrap_or_else(|| {
-        let ext = Path::new(&display)
-            .extension()
-            .map(|e| e.to_string_lossy().to_ascii_lowercase());
-        match ext.as_deref() {
-            Some("tsv") | Some("tab") => b'\t',
-            _ => b',',
-        }
-    });
+    let delimiter = delimiter_of(input);
     let missing_tokens = input
         .missing
         .clone()
@@ -160,12 +152,75 @@ pub fn input_plan(recipe: &LoadedRecipe) -> InputPlan {
         }),
         options: ReadOptions {
             delimiter,
+            decimal: input.decimal.as_ref().map_or(b'.', |d| d.get_ref().0),
+            thousands: input.thousands.as_ref().map(|t| t.get_ref().0),
             missing_tokens,
+            missing_per_column: input
+                .missing_per_column
+                .iter()
+                .map(|(name, codes)| (name.get_ref().clone(), codes.clone()))
+                .collect(),
             text_columns,
         },
         id,
         groups,
     }
+}
+
+/// The field delimiter: the recipe's, else a tab for a `.tsv` or `.tab` file
+/// and a comma for any other.
+fn delimiter_of(input: &super::raw::RawInput) -> u8 {
+    input.delimiter.map(|d| d.0).unwrap_or_else(|| {
+        let ext = Path::new(input.file.get_ref())
+            .extension()
+            .map(|e| e.to_string_lossy().to_ascii_lowercase());
+        match ext.as_deref() {
+            Some("tsv") | Some("tab") => b'\t',
+            _ => b',',
+        }
+    })
+}
+
+/// Refuses a decimal mark or thousands separator that is also the delimiter
+/// (every such number would be cut in two fields), or both marks alike.
+pub fn check_number_marks(recipe: &LoadedRecipe) -> Result<(), RecipeError> {
+    let input = &recipe.raw.input;
+    let delimiter = delimiter_of(input);
+    let fix = "set input.delimiter to the table's (files with decimal commas usually use \";\")";
+    if let Some(d) = &input.decimal
+        && d.get_ref().0 == delimiter
+    {
+        return Err(recipe.error_at(
+            d.span(),
+            RecipeProblem::MarkIsDelimiter {
+                key: "decimal",
+                mark: delimiter as char,
+                example: "3,14",
+                fix,
+            },
+        ));
+    }
+    if let Some(t) = &input.thousands {
+        let mark = t.get_ref().0;
+        if mark == delimiter {
+            return Err(recipe.error_at(
+                t.span(),
+                RecipeProblem::MarkIsDelimiter {
+                    key: "thousands",
+                    mark: mark as char,
+                    example: "1,234",
+                    fix,
+                },
+            ));
+        }
+        if mark == input.decimal.as_ref().map_or(b'.', |d| d.get_ref().0) {
+            return Err(recipe.error_at(
+                t.span(),
+                RecipeProblem::ThousandsIsDecimal { mark: mark as char },
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// Checks the recipe's column names against the header, before the body is read,
@@ -188,7 +243,7 @@ pub fn check_names(recipe: &LoadedRecipe, header: &Header) -> Result<(), RecipeE
             ));
         }
     }
-    for name in named {
+    for name in named.clone().chain(input.missing_per_column.keys()) {
         if !header.names.contains(name.get_ref()) {
             return Err(unknown_column(recipe, name, &header.names, table));
         }

@@ -32,7 +32,7 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
         None => json!("every numeric column that is not the id, a group or excluded"),
     };
     let iterative = raw.missing.iterative();
-    json!({
+    let mut resolved = json!({
         "format": 1,
         "title": raw.title,
         "notes": raw.notes,
@@ -76,7 +76,36 @@ pub fn resolved_recipe(recipe: &LoadedRecipe, input: &InputPlan) -> Value {
         },
         "plot": plots_value(recipe, input),
         "output": { "folder": raw.output.folder.get_ref() },
-    })
+    });
+    let written = resolved["input"].as_object_mut().expect("an object");
+    written.extend(number_marks(input));
+    resolved
+}
+
+/// The decimal mark, thousands separator and missing codes of single columns,
+/// written only when the recipe departs from the defaults, so that the digest
+/// of a recipe that does not use them stays what it was.
+fn number_marks(input: &InputPlan) -> Vec<(String, Value)> {
+    let options = &input.options;
+    let mut keys = Vec::new();
+    if options.decimal != b'.' {
+        keys.push((
+            "decimal".into(),
+            json!((options.decimal as char).to_string()),
+        ));
+    }
+    if let Some(t) = options.thousands {
+        keys.push(("thousands".into(), json!((t as char).to_string())));
+    }
+    if !options.missing_per_column.is_empty() {
+        let codes: serde_json::Map<String, Value> = options
+            .missing_per_column
+            .iter()
+            .map(|(name, codes)| (name.clone(), json!(codes)))
+            .collect();
+        keys.push(("missing_per_column".into(), Value::Object(codes)));
+    }
+    keys
 }
 
 /// `[components]` with every default written. The randomized method's settings

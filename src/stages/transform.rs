@@ -57,6 +57,16 @@ pub fn transform_value(t: Transform, v: f64) -> Option<f64> {
     })
 }
 
+/// The value in the feature's own units whose transform is `v`: the inverse
+/// of [`transform_value`] (10^v, e^v or v²), for reporting filled cells.
+pub fn original_value(t: Transform, v: f64) -> f64 {
+    match t {
+        Transform::Log10 => libm::pow(10.0, v),
+        Transform::Ln => libm::exp(v),
+        Transform::Sqrt => v * v,
+    }
+}
+
 /// The error for a value outside a transform's domain.
 pub fn domain_error(source: &str, line: u64, column: &str, v: f64, t: Transform) -> InputError {
     InputError::BadTransformValue {

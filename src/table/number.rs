@@ -7,6 +7,11 @@
 //! read floating point numbers accurately", PLDI '90). Anything else (an
 //! exponent, more digits, spaces, text) returns `None` and goes to the standard
 //! parser, so this never changes a value, only the time to get it.
+//!
+//! [`NumberFormat`] is how a table writes its numbers (decimal mark, thousands
+//! separator); a cell in another format is rewritten to the standard form and
+//! read by the same standard parser, so `3,14` under a decimal comma is the
+//! same double as `3.14` under a decimal point.
 
 /// Exact powers of ten up to 10²² (larger ones are not exact doubles).
 const POWERS: [f64; 23] = [
@@ -14,8 +19,80 @@ const POWERS: [f64; 23] = [
     1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
 ];
 
+/// How a table writes its numbers: the decimal mark and, if any, the
+/// separator between groups of three digits.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct NumberFormat {
+    pub decimal: u8,
+    pub thousands: Option<u8>,
+}
+
+impl Default for NumberFormat {
+    fn default() -> Self {
+        NumberFormat {
+            decimal: b'.',
+            thousands: None,
+        }
+    }
+}
+
+impl NumberFormat {
+    /// The value of a trimmed cell, `None` when it is not a number in this
+    /// format (a point in a decimal-comma table, say, is never taken as one).
+    pub fn parse(self, cell: &str) -> Option<f64> {
+        if self == NumberFormat::default() {
+            return cell.parse().ok();
+        }
+        self.standard_form(cell)?.parse().ok()
+    }
+
+    /// The cell rewritten with a decimal point and no group separators:
+    /// `[sign] groups [mark digits] [exponent]`, where the integer part is
+    /// plain digits or, with a separator, 1 to 3 digits then groups of 3.
+    fn standard_form(self, cell: &str) -> Option<String> {
+        let (mantissa, exponent) = match cell.find(['e', 'E']) {
+            Some(i) => (&cell[..i], &cell[i..]),
+            None => (cell, ""),
+        };
+        let unsigned = mantissa.trim_start_matches(['-', '+']);
+        if mantissa.len() - unsigned.len() > 1 {
+            return None;
+        }
+        let sign = &mantissa[..mantissa.len() - unsigned.len()];
+        let (int, frac) = match unsigned.bytes().position(|b| b == self.decimal) {
+            Some(i) => (&unsigned[..i], &unsigned[i + 1..]),
+            None => (unsigned, ""),
+        };
+        let digits = |s: &str| s.bytes().all(|b| b.is_ascii_digit());
+        if !digits(frac) || (int.is_empty() && frac.is_empty()) {
+            return None;
+        }
+        let int = self.ungrouped(int)?;
+        let point = if frac.is_empty() { "" } else { "." };
+        Some(format!("{sign}{int}{point}{frac}{exponent}"))
+    }
+
+    /// The integer part without its group separators, or `None` when it is not
+    /// digits in well-formed groups.
+    fn ungrouped(self, int: &str) -> Option<String> {
+        let digits = |s: &str| s.bytes().all(|b| b.is_ascii_digit());
+        let Some(sep) = self.thousands.filter(|&t| int.as_bytes().contains(&t)) else {
+            return digits(int).then(|| int.to_string());
+        };
+        let groups: Vec<&str> = int.split(sep as char).collect();
+        let first_ok = (1..=3).contains(&groups[0].len());
+        let rest_ok = groups[1..].iter().all(|g| g.len() == 3);
+        (first_ok && rest_ok && groups.iter().all(|g| digits(g))).then(|| groups.concat())
+    }
+}
+
 /// The value of `[+-]digits[.digits]`, when the fast path applies.
 pub fn plain_decimal(bytes: &[u8]) -> Option<f64> {
+    plain_decimal_with(bytes, b'.')
+}
+
+/// [`plain_decimal`] with `decimal` as the decimal mark.
+pub fn plain_decimal_with(bytes: &[u8], decimal: u8) -> Option<f64> {
     let (negative, rest) = match bytes.first()? {
         b'-' => (true, &bytes[1..]),
         b'+' => (false, &bytes[1..]),
@@ -29,7 +106,7 @@ pub fn plain_decimal(bytes: &[u8]) -> Option<f64> {
         if digit <= 9 {
             w = w.checked_mul(10)?.checked_add(u64::from(digit))?;
             digits += 1;
-        } else if b == b'.' && dot.is_none() && digits > 0 {
+        } else if b == decimal && dot.is_none() && digits > 0 {
             dot = Some(i);
         } else {
             return None;
@@ -128,6 +205,60 @@ mod tests {
             assert!(plain_decimal(text.as_bytes()).is_some(), "{text}");
             same_as_std(&text);
         }
+    }
+
+    #[test]
+    fn decimal_comma_and_thousands_give_the_point_decimal_double() {
+        let comma = NumberFormat {
+            decimal: b',',
+            thousands: None,
+        };
+        let grouped = NumberFormat {
+            decimal: b',',
+            thousands: Some(b'.'),
+        };
+        let spaced = NumberFormat {
+            decimal: b',',
+            thousands: Some(b' '),
+        };
+        let point = NumberFormat {
+            decimal: b'.',
+            thousands: Some(b','),
+        };
+        for (format, text, standard) in [
+            (comma, "3,14", "3.14"),
+            (comma, "-0,5", "-0.5"),
+            (comma, "12", "12"),
+            (comma, "1,5e3", "1.5e3"),
+            (comma, ",25", "0.25"),
+            (grouped, "1.234.567,89", "1234567.89"),
+            (grouped, "-12.345", "-12345"),
+            (spaced, "1 234,5", "1234.5"),
+            (point, "1,234.5", "1234.5"),
+            (point, "0.1", "0.1"),
+        ] {
+            let want: f64 = standard.parse().unwrap();
+            assert_eq!(
+                format.parse(text).map(f64::to_bits),
+                Some(want.to_bits()),
+                "{text}"
+            );
+        }
+        for (format, text) in [
+            (comma, "3.14"),
+            (comma, "1,2,3"),
+            (comma, ","),
+            (comma, "--1"),
+            (grouped, "1.23,4"),
+            (grouped, "1234.567"),
+            (grouped, ".123"),
+            (point, "1,23"),
+            (comma, "x"),
+        ] {
+            assert_eq!(format.parse(text), None, "{text}");
+        }
+        assert_eq!(plain_decimal_with(b"2,75", b','), Some(2.75));
+        assert_eq!(plain_decimal_with(b"2.75", b','), None);
     }
 
     #[test]

@@ -15,7 +15,8 @@
 //! end is looked for (`super::scan`). [`RecordFormat`] is what parsing a run of
 //! records needs to know; the passes engine uses it to parse rows chunk by chunk.
 
-use super::read::{ReadOptions, number_cell, read_header};
+use super::number::NumberFormat;
+use super::read::{CellRules, MissingCode, ReadOptions, number_cell, read_header};
 use super::scan::{field_end, scan_number};
 use super::{NumericColumn, Table};
 use crate::error::InputError;
@@ -129,6 +130,9 @@ pub struct RecordFormat {
     pub is_text: Vec<bool>,
     delimiter: u8,
     missing: Vec<String>,
+    /// Each column's own missing codes.
+    codes: Vec<Vec<MissingCode>>,
+    format: NumberFormat,
 }
 
 /// The cells of a run of records, column by column, with each record's line.
@@ -146,12 +150,15 @@ impl RecordFormat {
             .iter()
             .map(|n| options.text_columns.iter().any(|t| t == n))
             .collect();
+        let codes = names.iter().map(|n| options.codes_of(n).to_vec()).collect();
         RecordFormat {
             display: display.to_string(),
             names,
             is_text,
             delimiter: options.delimiter,
             missing: options.missing_tokens.clone(),
+            codes,
+            format: options.number_format(),
         }
     }
 
@@ -184,6 +191,8 @@ impl RecordFormat {
             is_text: &self.is_text,
             delimiter: self.delimiter,
             missing: &self.missing,
+            codes: &self.codes,
+            format: self.format,
             row_major,
         };
         let parsed = cuts
@@ -267,7 +276,9 @@ pub fn unclosed_quote(bytes: &[u8], delimiter: u8, first_record_only: bool) -> O
     scan_record_ends(bytes, delimiter, |_, _| !first_record_only)
 }
 
-/// The 1-based line of byte `offset`.
+/// The file line of byte `offset`: the header starts line 1 and every
+/// newline counts, inside a quoted field too, as an editor shows them. Every
+/// line number a message gives for a table's record or cell is this one.
 pub fn line_of(bytes: &[u8], offset: usize) -> u64 {
     1 + memchr::memchr_iter(b'\n', &bytes[..offset]).count() as u64
 }
@@ -330,8 +341,27 @@ struct Spec<'a> {
     is_text: &'a [bool],
     delimiter: u8,
     missing: &'a [String],
+    codes: &'a [Vec<MissingCode>],
+    format: NumberFormat,
     /// Numbers go row by row into [`Piece::rows`] instead of into their columns.
     row_major: bool,
+}
+
+impl Spec<'_> {
+    /// How column `j`'s cells are read.
+    fn rules(&self, j: usize) -> CellRules<'_> {
+        CellRules {
+            missing: self.missing,
+            codes: &self.codes[j],
+            format: self.format,
+        }
+    }
+
+    /// Whether column `j`'s cells may take a fast path: a numeric column
+    /// without codes of its own (a code such as `-999` reads as a number).
+    fn quick(&self, j: usize) -> bool {
+        !self.is_text[j] && self.codes[j].is_empty()
+    }
 }
 
 /// One piece's rows: text and counts column by column; the numbers by column,
@@ -357,7 +387,7 @@ impl Piece {
 
     /// Reads a numeric cell that is not a plain decimal (see [`number_cell`]).
     fn put_cell(&mut self, spec: &Spec, j: usize, cell: &str, line: u64) {
-        let v = number_cell(&mut self.numbers[j], cell, line, spec.missing);
+        let v = number_cell(&mut self.numbers[j], cell, line, spec.rules(j));
         self.put(spec.row_major, j, v);
     }
 }
@@ -406,7 +436,7 @@ fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec, newlines: u64) -> Piece
     let numeric_tokens = spec
         .missing
         .iter()
-        .any(|m| super::number::plain_decimal(m.as_bytes()).is_some());
+        .any(|m| super::number::plain_decimal_with(m.as_bytes(), spec.format.decimal).is_some());
     while pos < buf.len() {
         let record_line = line;
         if plain
@@ -448,10 +478,10 @@ fn parse_piece(buf: &[u8], first_line: u64, spec: &Spec, newlines: u64) -> Piece
         }
         for (j, field) in fields.iter().enumerate() {
             let bytes = field.bytes(buf);
-            if !spec.is_text[j] && !spec.missing.iter().any(|m| m.as_bytes() == bytes) {
+            if spec.quick(j) && !spec.missing.iter().any(|m| m.as_bytes() == bytes) {
                 // Most cells are plain decimals: read them without the general
                 // parser (same value; see `number`).
-                if let Some(v) = super::number::plain_decimal(bytes) {
+                if let Some(v) = super::number::plain_decimal_with(bytes, spec.format.decimal) {
                     piece.put(spec.row_major, j, v);
                     continue;
                 }
@@ -502,10 +532,10 @@ fn plain_record(
     }
     let mut start = 0;
     for j in 0..spec.width {
-        let (end, value) = if spec.is_text[j] || numeric_tokens {
+        let (end, value) = if !spec.quick(j) || numeric_tokens {
             (field_end(record, start, spec.delimiter), None)
         } else {
-            scan_number(record, start, spec.delimiter)
+            scan_number(record, start, spec.delimiter, spec.format.decimal)
         };
         let cell = &record[start..end];
         match value {

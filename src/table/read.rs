@@ -5,18 +5,78 @@
 //! the `csv` crate; a ragged row, a duplicate or empty column name and an empty file
 //! are reported here with their line.
 
+use super::number::NumberFormat;
 use super::{Header, NumericColumn, Table};
 use crate::error::InputError;
 use std::collections::BTreeMap;
 
-/// How to read a table.
+/// How to read a table: the one place that says how its fields and numbers
+/// are written (delimiter, decimal mark, thousands separator) and which cells
+/// mean "missing".
 #[derive(Debug, Clone)]
 pub struct ReadOptions {
     pub delimiter: u8,
+    /// The decimal mark, `.` or `,`.
+    pub decimal: u8,
+    /// The separator between groups of three digits, if the table uses one.
+    pub thousands: Option<u8>,
     /// Cell texts (after trimming spaces) that mean "missing".
     pub missing_tokens: Vec<String>,
+    /// Codes that mean "missing" in one column only, by column name.
+    pub missing_per_column: Vec<(String, Vec<MissingCode>)>,
     /// Columns kept as text (the id and group columns).
     pub text_columns: Vec<String>,
+}
+
+impl ReadOptions {
+    /// Comma-separated, decimal point, no thousands separator, no missing
+    /// codes of one column: what a table is read with when nothing else is said.
+    pub fn new(delimiter: u8, missing_tokens: Vec<String>, text_columns: Vec<String>) -> Self {
+        ReadOptions {
+            delimiter,
+            decimal: b'.',
+            thousands: None,
+            missing_tokens,
+            missing_per_column: Vec::new(),
+            text_columns,
+        }
+    }
+
+    /// How the table writes its numbers.
+    pub fn number_format(&self) -> NumberFormat {
+        NumberFormat {
+            decimal: self.decimal,
+            thousands: self.thousands,
+        }
+    }
+
+    /// The missing codes of column `name` alone.
+    pub fn codes_of(&self, name: &str) -> &[MissingCode] {
+        self.missing_per_column
+            .iter()
+            .find(|(n, _)| n == name)
+            .map_or(&[], |(_, codes)| codes.as_slice())
+    }
+}
+
+/// A code that means "missing" in one column: a text compared with the
+/// trimmed cell, or a number compared with the cell's value (so `-999`
+/// matches `-999.0` and, under a decimal comma, `-999,0`).
+#[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
+#[serde(untagged)]
+pub enum MissingCode {
+    Number(f64),
+    Text(String),
+}
+
+/// How the cells of one numeric column are read.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct CellRules<'a> {
+    /// The texts that mean missing in every column.
+    pub missing: &'a [String],
+    /// The column's own missing codes.
+    pub codes: &'a [MissingCode],
+    pub format: NumberFormat,
 }
 
 fn csv_reader(bytes: &[u8], delimiter: u8) -> csv::Reader<&[u8]> {
@@ -100,6 +160,11 @@ pub fn read_header(bytes: &[u8], display: &str, delimiter: u8) -> Result<Header,
 
 /// Reads the whole table. Columns in `text_columns` keep their text; every other
 /// column is parsed as numbers, counting cells that are not numbers.
+///
+/// This is the reference the tests hold the parallel reader to; commands read
+/// with [`super::read_table_parallel`], whose line numbers are file lines
+/// (`line_of`), while the `csv` crate's record lines skip blank lines and
+/// miscount CRLF endings inside quotes.
 pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<Table, InputError> {
     let header = read_header(bytes, display, options.delimiter)?;
     // The csv crate would read the rest of the file into the quoted field.
@@ -120,6 +185,15 @@ pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<
     let mut numbers: Vec<NumericColumn> = vec![NumericColumn::default(); width];
     let mut lines = Vec::new();
 
+    let rules: Vec<CellRules> = header
+        .names
+        .iter()
+        .map(|n| CellRules {
+            missing: &options.missing_tokens,
+            codes: options.codes_of(n),
+            format: options.number_format(),
+        })
+        .collect();
     let mut reader = csv_reader(bytes, options.delimiter);
     let mut record = csv::StringRecord::new();
     loop {
@@ -128,6 +202,8 @@ pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<
             Ok(true) => {}
             Err(e) => return Err(csv_error(display, e)),
         }
+        // The `csv` crate's count, which can differ from the file line (see
+        // the module comment): only the tests' reference reads tables here.
         let line = record.position().map_or(0, |p| p.line());
         if record.len() == 1 && record[0].trim().is_empty() && width > 1 {
             continue; // a blank line, e.g. at the end of the file
@@ -146,7 +222,7 @@ pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<
             if is_text[j] {
                 texts[j].push(cell.to_string());
             } else {
-                push_number(&mut numbers[j], cell, line, &options.missing_tokens);
+                push_number(&mut numbers[j], cell, line, rules[j]);
             }
         }
     }
@@ -161,8 +237,8 @@ pub fn read_table(bytes: &[u8], display: &str, options: &ReadOptions) -> Result<
     ))
 }
 
-pub(crate) fn push_number(column: &mut NumericColumn, cell: &str, line: u64, missing: &[String]) {
-    let v = number_cell(column, cell, line, missing);
+fn push_number(column: &mut NumericColumn, cell: &str, line: u64, rules: CellRules) {
+    let v = number_cell(column, cell, line, rules);
     column.values.push(v);
 }
 
@@ -172,14 +248,21 @@ pub(crate) fn number_cell(
     column: &mut NumericColumn,
     cell: &str,
     line: u64,
-    missing: &[String],
+    rules: CellRules,
 ) -> f64 {
-    if missing.iter().any(|m| m == cell) {
+    let is_code = |v: Option<f64>| {
+        rules.codes.iter().any(|c| match c {
+            MissingCode::Text(t) => t.trim() == cell,
+            MissingCode::Number(x) => v == Some(*x),
+        })
+    };
+    let value = rules.format.parse(cell);
+    if rules.missing.iter().any(|m| m == cell) || is_code(value) {
         column.missing += 1;
         return f64::NAN;
     }
-    match cell.parse::<f64>() {
-        Ok(v) if v.is_finite() => v,
+    match value {
+        Some(v) if v.is_finite() => v,
         _ => {
             column.bad += 1;
             if column.first_bad.is_none() {
@@ -196,11 +279,7 @@ mod tests {
     use crate::table::ColumnData;
 
     fn options() -> ReadOptions {
-        ReadOptions {
-            delimiter: b',',
-            missing_tokens: vec!["".into(), "NA".into()],
-            text_columns: vec!["id".into()],
-        }
+        ReadOptions::new(b',', vec!["".into(), "NA".into()], vec!["id".into()])
     }
 
     #[test]

@@ -11,13 +11,19 @@ pub(super) fn field_end(record: &[u8], start: usize, delimiter: u8) -> usize {
 }
 
 /// The end of the field starting at `start` and, when it is a plain decimal
-/// (see [`super::number`]), its value, read in the same sweep.
-pub(super) fn scan_number(record: &[u8], start: usize, delimiter: u8) -> (usize, Option<f64>) {
+/// (see [`super::number`]) with `decimal` as its mark, its value, read in the
+/// same sweep.
+pub(super) fn scan_number(
+    record: &[u8],
+    start: usize,
+    delimiter: u8,
+    decimal: u8,
+) -> (usize, Option<f64>) {
     let (negative, mut i) = leading_sign(record, start);
     let (mut w, mut digits);
     (w, digits, i) = digit_run(record, i, 0, 0);
     let mut decimals = None;
-    if digits > 0 && record.get(i) == Some(&b'.') {
+    if digits > 0 && record.get(i) == Some(&decimal) {
         let before = digits;
         (w, digits, i) = digit_run(record, i + 1, w, digits);
         decimals = Some((digits - before) as usize);
@@ -117,7 +123,12 @@ mod tests {
     use super::*;
 
     /// The byte-at-a-time scan that [`scan_number`] replaced: the reference.
-    fn scan_number_bytewise(record: &[u8], start: usize, delimiter: u8) -> (usize, Option<f64>) {
+    fn scan_number_bytewise(
+        record: &[u8],
+        start: usize,
+        delimiter: u8,
+        decimal: u8,
+    ) -> (usize, Option<f64>) {
         let (negative, mut i) = leading_sign(record, start);
         let mut w: u64 = 0;
         let mut digits = 0u32;
@@ -130,7 +141,7 @@ mod tests {
                 if let Some(d) = decimals.as_mut() {
                     *d += 1;
                 }
-            } else if b == b'.' && decimals.is_none() && digits > 0 {
+            } else if b == decimal && decimals.is_none() && digits > 0 {
                 decimals = Some(0);
             } else if b == delimiter {
                 break;
@@ -146,9 +157,14 @@ mod tests {
     }
 
     fn same(record: &[u8]) {
+        same_with(record, b',', b'.');
+        same_with(record, b';', b',');
+    }
+
+    fn same_with(record: &[u8], delimiter: u8, decimal: u8) {
         for start in 0..=record.len() {
-            let got = scan_number(record, start, b',');
-            let want = scan_number_bytewise(record, start, b',');
+            let got = scan_number(record, start, delimiter, decimal);
+            let want = scan_number_bytewise(record, start, delimiter, decimal);
             assert_eq!(
                 (got.0, got.1.map(f64::to_bits)),
                 (want.0, want.1.map(f64::to_bits)),

@@ -8,8 +8,10 @@ use super::{
     level_label, rows_into,
 };
 use crate::analysis::RowDetail;
+use crate::recipe::plan::Transform;
 use crate::row_results::{FilledCells, RowResults};
 use crate::stages::diagnose::Diagnostics;
+use crate::stages::transform::original_value;
 use std::io;
 
 /// Row labels by table row, for the serial writers in the tests.
@@ -101,22 +103,34 @@ pub fn scores_csv_into(
 }
 
 /// imputed.csv: every filled cell: the row's labels (from `rows`, whose rows
-/// hold every row a cell was filled in), the feature and the value filled in
-/// (on the transformed scale when the feature is transformed).
-pub fn imputed_csv(cells: &FilledCells, rows: &RowResults) -> io::Result<Vec<u8>> {
+/// hold every row a cell was filled in), the feature, the value filled in, in
+/// the feature's own units, then the value on the analysed (transformed)
+/// scale and the transform (`none` when the feature has none; the two values
+/// are then the same). Cells are filled on the transformed scale, so
+/// `filled_value` undoes the transform. `transforms` is indexed like
+/// `cells.features`.
+pub fn imputed_csv(
+    cells: &FilledCells,
+    transforms: &[Option<Transform>],
+    rows: &RowResults,
+) -> io::Result<Vec<u8>> {
     let mut bytes = Vec::new();
-    imputed_csv_into(cells, rows, &mut bytes)?;
+    imputed_csv_into(cells, transforms, rows, &mut bytes)?;
     Ok(bytes)
 }
+
+/// The header's last columns in imputed.csv.
+const IMPUTED_COLUMNS: [&str; 4] = ["feature", "filled_value", "transformed_value", "transform"];
 
 /// [`imputed_csv`] handed to `sink` a stretch at a time, as the cells are read.
 pub fn imputed_csv_into(
     cells: &FilledCells,
+    transforms: &[Option<Transform>],
     rows: &RowResults,
     sink: &mut dyn TableSink,
 ) -> io::Result<()> {
     let mut header = results_label_header(rows);
-    header.extend(["feature", "filled_value"].map(String::from));
+    header.extend(IMPUTED_COLUMNS.map(String::from));
     header_into(&header, sink);
     let mut labels = rows.labels()?;
     let mut failed = None;
@@ -142,7 +156,11 @@ pub fn imputed_csv_into(
                 out.field(text);
             }
             out.field(b.feature(i).as_bytes());
-            scratch.number(out, b.value(i));
+            let transform = transforms.get(b.feature_index(i)).copied().flatten();
+            let v = b.value(i);
+            scratch.number(out, transform.map_or(v, |t| original_value(t, v)));
+            scratch.number(out, v);
+            out.field(transform.map_or("none", Transform::name).as_bytes());
         };
         rows_into(b.len(), write_row, sink);
     })?;
@@ -278,11 +296,20 @@ mod tests {
     fn imputed_csv_serial(labels: &RowLabels, filled: &[FilledCell]) -> Vec<u8> {
         let mut out = CsvOut::new();
         let mut header = label_header(labels);
-        header.extend(["feature", "filled_value"].map(String::from));
+        header.extend(IMPUTED_COLUMNS.map(String::from));
         out.row(&header);
         for cell in filled {
             let mut fields = label_fields(labels, cell.row);
-            fields.extend([cell.feature.to_string(), number(cell.value)]);
+            let (original, name) = match &*cell.feature {
+                "x" => (libm::exp(cell.value), "ln"),
+                _ => (cell.value, "none"),
+            };
+            fields.extend([
+                cell.feature.to_string(),
+                number(original),
+                number(cell.value),
+                name.to_string(),
+            ]);
             out.row(&fields);
         }
         out.finish()
@@ -471,6 +498,7 @@ mod tests {
                 .contains(",\"y,z\",")
         );
         let features: Vec<String> = ["\"w\"", "x", "y,z"].map(String::from).to_vec();
+        let transforms = [None, Some(Transform::Ln), None];
         let no_scores = Matrix {
             rows: n,
             cols: 0,
@@ -480,11 +508,18 @@ mod tests {
         let rows_whole = results(&labels, &no_scores, (&zeros, &zeros), None);
         let whole = FilledCells::from_cells(&filled, &features);
         for threads in [1, 2, 8] {
-            let got = on_threads(threads, || imputed_csv(&whole, &rows_whole).unwrap());
+            let got = on_threads(threads, || {
+                imputed_csv(&whole, &transforms, &rows_whole).unwrap()
+            });
             assert!(got == reference, "imputed.csv differs on {threads} threads");
         }
         assert_eq!(
-            imputed_csv(&FilledCells::from_cells(&[], &features), &rows_whole).unwrap(),
+            imputed_csv(
+                &FilledCells::from_cells(&[], &features),
+                &transforms,
+                &rows_whole
+            )
+            .unwrap(),
             imputed_csv_serial(&labels, &[])
         );
         // Cells and rows read back from scratch files, in runs of 1,000 cells
@@ -513,7 +548,7 @@ mod tests {
             })
             .unwrap();
         assert_eq!(spilled.len(), 3 * n);
-        assert!(imputed_csv(&spilled, &rows_spilled).unwrap() == reference);
+        assert!(imputed_csv(&spilled, &transforms, &rows_spilled).unwrap() == reference);
         // A cell of a row that is not among the rows is an error, not a guess.
         let stray = FilledCells::from_cells(
             &[FilledCell {
@@ -524,7 +559,7 @@ mod tests {
             &features,
         );
         assert!(!rows.contains(&50), "table row 50 is skipped");
-        assert!(imputed_csv(&stray, &rows_whole).is_err());
+        assert!(imputed_csv(&stray, &transforms, &rows_whole).is_err());
     }
 
     /// The serial contributions writer the parallel one replaced.

@@ -134,6 +134,15 @@ pub struct RawInput {
     /// Cell texts that mean "missing".
     pub missing: Option<Vec<String>>,
     pub delimiter: Option<Delimiter>,
+    /// The decimal mark of the table's numbers (`.` when absent).
+    pub decimal: Option<Spanned<DecimalMark>>,
+    /// The separator between groups of three digits (none when absent).
+    pub thousands: Option<Spanned<Thousands>>,
+    /// `[input.missing_per_column]`: column name = codes that mean missing in
+    /// that column only.
+    #[serde(default)]
+    pub missing_per_column:
+        std::collections::BTreeMap<Spanned<String>, Vec<crate::table::read::MissingCode>>,
 }
 
 /// The cell texts read as missing when the recipe does not say.

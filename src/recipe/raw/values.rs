@@ -162,6 +162,42 @@ impl TryFrom<String> for Delimiter {
     }
 }
 
+/// The decimal mark of a table's numbers: `.` or `,`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(try_from = "String")]
+pub struct DecimalMark(pub u8);
+
+impl TryFrom<String> for DecimalMark {
+    type Error = String;
+    fn try_from(v: String) -> Result<Self, String> {
+        match v.as_str() {
+            "." => Ok(DecimalMark(b'.')),
+            "," => Ok(DecimalMark(b',')),
+            _ => Err(format!(
+                "decimal mark `{v}` is not one of \".\" (3.14) or \",\" (3,14)"
+            )),
+        }
+    }
+}
+
+/// The separator a table writes between groups of three digits, as in
+/// 1.234.567,8 or 1 234 567.8.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(try_from = "String")]
+pub struct Thousands(pub u8);
+
+impl TryFrom<String> for Thousands {
+    type Error = String;
+    fn try_from(v: String) -> Result<Self, String> {
+        match v.as_str() {
+            "." | "," | " " | "'" | "_" => Ok(Thousands(v.as_bytes()[0])),
+            _ => Err(format!(
+                "thousands separator `{v}` is not one of \".\", \",\", \" \", \"'\" or \"_\""
+            )),
+        }
+    }
+}
+
 /// A SHA-256 digest written as 64 hexadecimal digits.
 #[derive(Debug, Clone, PartialEq, Eq, Deserialize)]
 #[serde(try_from = "String")]
