@@ -9,9 +9,9 @@
 //! of the model. A decimal comma is taken only when the features' cells read
 //! as numbers with it and never hold a point.
 
+use super::ScoreSettings;
 use crate::error::{Error, InputError};
 use crate::outputs::model::Model;
-use super::ScoreSettings;
 use crate::table::{ColumnData, ReadOptions, Table, read_header, read_table_parallel};
 
 /// Delimiters tried when the analysis' own gives none of the model's features.
@@ -187,7 +187,9 @@ pub fn read_batch(
     if asked_decimal.is_none() && first == b'.' && delimiter != b',' && bad.text.contains(',') {
         let table = read(b',')?;
         if let Ok(features) = numeric_features(&table, &names) {
-            let note = "the table writes decimal commas (3,14 is read as 3.14); pass --decimal to choose".to_string();
+            let note =
+                "the table writes decimal commas (3,14 is read as 3.14); pass --decimal to choose"
+                    .to_string();
             return Ok(batch(table, features, delimiter, b',', vec![note]));
         }
     }
