@@ -380,3 +380,51 @@ fn without_trusted_training_scores_only_the_new_rows_are_drawn() {
     let plot = svg_elements(&html).remove(1);
     assert!(!plot.contains("class=\"training"));
 }
+
+/// Regression: a large batch drew every new row as a point over the training
+/// cells, hiding them. Above 3,000 rows in all, every training and new row is
+/// counted in exactly one density cell of its kind, and only the labelled
+/// flagged rows are also drawn as points.
+#[test]
+fn a_large_batch_counts_every_row_in_the_density_and_draws_only_labelled_points() {
+    let ws = analysed();
+    let april = fs::read_to_string(ws.path().join(APRIL)).unwrap();
+    let mut lines = april.lines();
+    let mut text = format!("{}\n", lines.next().unwrap());
+    let rows: Vec<&str> = lines.collect();
+    for copy in 0..60 {
+        for row in &rows {
+            // A fresh sample id per copy; the values repeat.
+            let (id, rest) = row.split_once(',').unwrap();
+            text.push_str(&format!("{id}-{copy},{rest}\n"));
+        }
+    }
+    fs::write(ws.path().join("big.csv"), text).unwrap();
+    let out = apply(ws.path(), &["big.csv", "--out", "big"]);
+    assert_eq!(out.code, 0, "{}", out.stderr);
+    let html = fs::read_to_string(ws.path().join("big/report.html")).unwrap();
+    let svgs = svg_elements(&html);
+    let plot = roxmltree::Document::parse(&svgs[1]).unwrap_or_else(|e| panic!("{e}"));
+    let counted = |category: &str| -> usize {
+        plot.descendants()
+            .filter(|n| n.attribute("data-category") == Some(category))
+            .flat_map(|g| g.descendants())
+            .filter_map(|n| n.attribute("data-n"))
+            .map(|n| n.parse::<usize>().unwrap())
+            .sum()
+    };
+    let scores = fs::read_to_string(ws.path().join("big/scores.csv")).unwrap();
+    let scored = scores.lines().count() - 1;
+    let flagged = scores.lines().skip(1).filter(|l| l.contains("yes")).count();
+    assert_eq!(counted("training"), 400);
+    assert_eq!(counted("new-within") + counted("new-above"), scored);
+    assert!(flagged >= 60, "two watered samples per copy: {flagged}");
+    let points = plot
+        .descendants()
+        .find(|n| n.attribute("class") == Some("new-rows"))
+        .map_or(0, |g| g.children().filter(|n| n.is_element()).count());
+    assert!(
+        (1..=12).contains(&points),
+        "{points} new rows drawn as points"
+    );
+}

@@ -13,7 +13,7 @@
 use super::frame::{self, Axis, Frame, Layout, Panel, Step, TOP};
 use super::outliers::{root, stat_axis, wants_root};
 use super::scatter::{self, Legend};
-use super::svg::{self, Anchor, HEIGHT, MUTED, N, Shape};
+use super::svg::{self, Anchor, HEIGHT, MUTED, Shape};
 use super::{LEGEND_X, equal_axes, scatter_layout};
 use crate::outputs::batch_view::BatchView;
 use crate::text::{count, readable};
@@ -30,8 +30,9 @@ const DASHES: [&str; 4] = ["6 4", "2 3", "10 3 2 3", "1 2"];
 pub const MAX_BATCH_LABELS: usize = 12;
 /// Above this many rows a chart draws markers only for flagged rows.
 const MARKED_AT_MOST: usize = 2000;
-/// Above this many training rows they are binned into a muted density.
-const TRAINING_POINTS_AT_MOST: usize = 3000;
+/// Above this many rows (training and new together) the score plot draws
+/// every row in a density and only the labelled rows as points.
+const POINTS_AT_MOST: usize = 3000;
 
 /// How far row `i` is beyond the lowest limits (largest ratio of statistic to limit).
 fn severity(view: &BatchView, i: usize) -> f64 {
@@ -301,45 +302,22 @@ pub fn batch_scores(view: &BatchView) -> (String, String) {
     );
     let mut body = String::new();
     frame::origin_lines(&mut body, &panel);
-    let training_drawn = draw_training(&mut body, &panel, view);
     let labelled = most_severe(view, MAX_BATCH_LABELS);
-    let mut marks = Vec::new();
-    body.push_str("<g class=\"new-rows\">\n");
-    let order: Vec<usize> = {
-        // Flagged rows last, so they are drawn on top.
-        let mut o: Vec<usize> = (0..view.scores.len()).collect();
-        o.sort_by_key(|&i| view.is_flagged(i));
-        o
+    let training_rows = view.training.as_ref().map_or(0, Vec::len);
+    let (layers, marks) = if training_rows + view.scores.len() > POINTS_AT_MOST {
+        let drawn = draw_cells(&mut body, &panel, view);
+        (
+            Layers::Cells(drawn),
+            draw_new_points(&mut body, &panel, view, &labelled),
+        )
+    } else {
+        let training = draw_training_points(&mut body, &panel, view);
+        let every: Vec<usize> = (0..view.scores.len()).collect();
+        (
+            Layers::Points { training },
+            draw_new_points(&mut body, &panel, view, &every),
+        )
     };
-    for i in order {
-        let (x, y) = (panel.px(view.scores[i][0]), panel.py(view.scores[i][1]));
-        if !(x.is_finite() && y.is_finite()) {
-            continue;
-        }
-        marks.push((x, y));
-        if view.is_flagged(i) {
-            svg::marker(
-                &mut body,
-                Shape::Diamond,
-                x,
-                y,
-                4.2,
-                &format!(
-                    "class=\"flagged\" fill=\"{ABOVE}\" stroke=\"#000000\" stroke-width=\"0.8\""
-                ),
-            );
-        } else {
-            svg::marker(
-                &mut body,
-                Shape::Circle,
-                x,
-                y,
-                scatter::MARK,
-                &format!("fill=\"{WITHIN}\" stroke=\"#FFFFFF\" stroke-width=\"0.6\""),
-            );
-        }
-    }
-    body.push_str("</g>\n");
     let labels: Vec<(f64, f64, String)> = labelled
         .iter()
         .map(|&i| {
@@ -358,20 +336,68 @@ pub fn batch_scores(view: &BatchView) -> (String, String) {
         (panel.left, panel.top, panel.right, panel.bottom),
     );
     let mut legend = Legend::new(LEGEND_X, f64::from(TOP), panel.bottom);
-    legend.heading("rows");
-    if training_drawn > 0 {
-        legend.marker(TRAINING, Shape::Circle, false, "training");
+    match &layers {
+        Layers::Points { training } => {
+            legend.heading("rows");
+            if *training > 0 {
+                legend.marker(TRAINING, Shape::Circle, false, "training");
+            }
+            legend.marker(WITHIN, Shape::Circle, false, "new, within limits");
+            legend.marker(ABOVE, Shape::Diamond, true, "new, above a limit");
+        }
+        Layers::Cells(drawn) => {
+            legend.density(drawn, &CELL_NAMES);
+            legend.gap();
+            legend.marker(ABOVE, Shape::Diamond, true, "labelled, above a limit");
+        }
     }
-    legend.marker(WITHIN, Shape::Circle, false, "new, within limits");
-    legend.marker(ABOVE, Shape::Diamond, true, "new, above a limit");
     body.push_str(&legend.finish());
-    let caption = scores_caption(view, training_drawn, labelled.len());
+    let caption = scores_caption(view, &layers, labelled.len());
     (frame::finish(back, title, &caption, &body), caption)
 }
 
-/// Draws the training rows, muted: points, or density cells when there are
-/// many. Returns how many were drawn.
-fn draw_training(out: &mut String, panel: &Panel, view: &BatchView) -> usize {
+/// How the score plot drew its rows: every row as a point, or every row in a
+/// density cell of its kind with only the labelled rows as points on top.
+enum Layers {
+    Points { training: usize },
+    Cells(scatter::Drawn),
+}
+
+/// The kinds of row in the density, in drawing order.
+const CELL_NAMES: [&str; 3] = ["training", "new, within", "new, above"];
+
+/// Counts every training and new row into a cell of its kind (`Grid::cell`,
+/// the rule of the run's density) and draws the cells: training rows grey,
+/// new rows blue, new rows above a limit as orange inset squares, so no kind
+/// hides another and no row is left out.
+fn draw_cells(out: &mut String, panel: &Panel, view: &BatchView) -> scatter::Drawn {
+    let grid = scatter::Grid::new(panel, None, None);
+    let categories = [
+        scatter::Category::tinted("training", TRAINING, false),
+        scatter::Category::tinted("new-within", WITHIN, false),
+        scatter::Category::tinted("new-above", ABOVE, true),
+    ];
+    let mut counts = scatter::Counts::new(&grid, categories.len());
+    let mut count = |p: &[f64], kind: usize| {
+        let cell = grid.cell(
+            panel.px(p[0]),
+            panel.py(p[1]),
+            kind,
+            scatter::Sides::default(),
+        );
+        counts.add(cell);
+    };
+    if let Ok(training) = &view.training {
+        training.iter().for_each(|p| count(p, 0));
+    }
+    for (i, p) in view.scores.iter().enumerate() {
+        count(p, if view.is_flagged(i) { 2 } else { 1 });
+    }
+    scatter::draw_counts(out, &grid, &categories, &counts)
+}
+
+/// Draws the training rows as muted points; returns how many were drawn.
+fn draw_training_points(out: &mut String, panel: &Panel, view: &BatchView) -> usize {
     let Ok(training) = &view.training else {
         return 0;
     };
@@ -380,73 +406,101 @@ fn draw_training(out: &mut String, panel: &Panel, view: &BatchView) -> usize {
         .map(|p| (panel.px(p[0]), panel.py(p[1])))
         .filter(|(x, y)| x.is_finite() && y.is_finite())
         .collect();
-    if inside.len() <= TRAINING_POINTS_AT_MOST {
-        let _ = writeln!(
-            out,
-            "<g class=\"training\" fill=\"{TRAINING}\" fill-opacity=\"0.7\">"
-        );
-        for (x, y) in &inside {
-            svg::marker(out, Shape::Circle, *x, *y, 2.2, "");
-        }
-        out.push_str("</g>\n");
-        return inside.len();
-    }
-    // Cells of 6 pixels, shaded by their share of the fullest cell.
-    const CELL: f64 = 6.0;
-    let mut cells: std::collections::BTreeMap<(i64, i64), usize> = Default::default();
+    let _ = writeln!(
+        out,
+        "<g class=\"training\" fill=\"{TRAINING}\" fill-opacity=\"0.7\">"
+    );
     for (x, y) in &inside {
-        let key = (
-            ((x - panel.left) / CELL).floor() as i64,
-            ((y - panel.top) / CELL).floor() as i64,
-        );
-        *cells.entry(key).or_default() += 1;
-    }
-    let most = cells.values().copied().max().unwrap_or(1) as f64;
-    let _ = writeln!(out, "<g class=\"training density\" fill=\"{TRAINING}\">");
-    for ((cx, cy), c) in &cells {
-        let x = panel.left + *cx as f64 * CELL;
-        let y = panel.top + *cy as f64 * CELL;
-        let opacity = 0.25 + 0.75 * (*c as f64 / most).sqrt();
-        svg::rect(
-            out,
-            x,
-            y,
-            x + CELL,
-            y + CELL,
-            &format!("fill-opacity=\"{}\"", N(opacity)),
-        );
+        svg::marker(out, Shape::Circle, *x, *y, 2.2, "");
     }
     out.push_str("</g>\n");
     inside.len()
 }
 
-fn scores_caption(view: &BatchView, training: usize, labelled: usize) -> String {
+/// Draws the new rows `rows` as points, flagged ones last (on top) as
+/// diamonds; returns the drawn positions (for label placement).
+fn draw_new_points(
+    out: &mut String,
+    panel: &Panel,
+    view: &BatchView,
+    rows: &[usize],
+) -> Vec<(f64, f64)> {
+    let mut order = rows.to_vec();
+    order.sort_by_key(|&i| view.is_flagged(i));
+    let mut marks = Vec::new();
+    out.push_str("<g class=\"new-rows\">\n");
+    for i in order {
+        let (x, y) = (panel.px(view.scores[i][0]), panel.py(view.scores[i][1]));
+        if !(x.is_finite() && y.is_finite()) {
+            continue;
+        }
+        marks.push((x, y));
+        if view.is_flagged(i) {
+            svg::marker(
+                out,
+                Shape::Diamond,
+                x,
+                y,
+                4.2,
+                &format!(
+                    "class=\"flagged\" fill=\"{ABOVE}\" stroke=\"#000000\" stroke-width=\"0.8\""
+                ),
+            );
+        } else {
+            svg::marker(
+                out,
+                Shape::Circle,
+                x,
+                y,
+                scatter::MARK,
+                &format!("fill=\"{WITHIN}\" stroke=\"#FFFFFF\" stroke-width=\"0.6\""),
+            );
+        }
+    }
+    out.push_str("</g>\n");
+    marks
+}
+
+fn scores_caption(view: &BatchView, layers: &Layers, labelled: usize) -> String {
     let mut s = String::from(
         "Scores of the new rows on the first two components of the model, with one score unit the same length on both axes.",
     );
-    match &view.training {
-        Ok(_) if training > TRAINING_POINTS_AT_MOST => {
-            let _ = write!(
-                s,
-                " The {} training rows are shown as grey cells, darker where more rows fall.",
-                training
-            );
-        }
-        Ok(_) => {
-            let _ = write!(
-                s,
-                " The {} are the grey points.",
-                count(training, "training row", "training rows")
-            );
-        }
-        Err(why) => {
+    let flagged = (0..view.t2.len()).filter(|&i| view.is_flagged(i)).count();
+    match (&view.training, layers) {
+        (Err(why), _) => {
             let _ = write!(
                 s,
                 " Only the new rows are drawn: the training scores are not shown ({why})."
             );
         }
+        (Ok(_), Layers::Points { training }) => {
+            let _ = write!(
+                s,
+                " The {} are the grey points.",
+                count(*training, "training row", "training rows")
+            );
+        }
+        (Ok(_), Layers::Cells(_)) => {}
     }
-    let flagged = (0..view.t2.len()).filter(|&i| view.is_flagged(i)).count();
+    if let Layers::Cells(drawn) = layers {
+        let [training, within, above] =
+            [0, 1, 2].map(|k| drawn.counts.get(k).copied().unwrap_or(0));
+        let _ = write!(
+            s,
+            " Too many rows to draw one by one, so every row is counted in a square cell of its kind, darker where more rows fall: {}{} within the limits in blue, {} above a T² or SPE limit at the lowest level as smaller orange squares; only the labelled rows are also drawn as orange diamonds.",
+            if view.training.is_ok() {
+                format!(
+                    "{} in grey, ",
+                    count(training, "training row", "training rows")
+                )
+            } else {
+                String::new()
+            },
+            count(within, "new row", "new rows"),
+            count(above, "new row", "new rows"),
+        );
+        return labelled_words(s, flagged, labelled);
+    }
     let _ = write!(
         s,
         " New rows within the limits are blue circles; {} above a T² or SPE limit at the lowest level {}.",
@@ -457,6 +511,11 @@ fn scores_caption(view: &BatchView, training: usize, labelled: usize) -> String 
             "are orange diamonds"
         }
     );
+    labelled_words(s, flagged, labelled)
+}
+
+/// The caption's closing words on the labelled rows.
+fn labelled_words(mut s: String, flagged: usize, labelled: usize) -> String {
     if labelled > 0 {
         let _ = write!(
             s,

@@ -220,14 +220,47 @@ pub struct Drawn {
 /// one `rect` per occupied cell (with its count as `data-n`), category by
 /// category in the given order, each in `density-class` groups by count class.
 pub fn draw_density(out: &mut String, view: &PlotView, binning: &Binning) -> Drawn {
-    let grid = &binning.grid;
-    let cells = grid.nx * grid.ny;
-    let mut counts = vec![0usize; cells * binning.categories.len()];
-    binning.scan(view, |_, cell| {
-        if let Some(c) = cell {
-            counts[c.category * cells + c.cy * grid.nx + c.cx] += 1;
+    let mut counts = Counts::new(&binning.grid, binning.categories.len());
+    binning.scan(view, |_, cell| counts.add(cell));
+    draw_counts(out, &binning.grid, &binning.categories, &counts)
+}
+
+/// Rows counted per cell and category, category-major.
+pub struct Counts {
+    cells: usize,
+    nx: usize,
+    n: Vec<usize>,
+}
+
+impl Counts {
+    pub fn new(grid: &Grid, categories: usize) -> Counts {
+        let cells = grid.nx * grid.ny;
+        Counts {
+            cells,
+            nx: grid.nx,
+            n: vec![0; cells * categories],
         }
-    });
+    }
+
+    /// Counts one row in its cell (a row without a cell is left out).
+    pub fn add(&mut self, cell: Option<Cell>) {
+        if let Some(c) = cell {
+            self.n[c.category * self.cells + c.cy * self.nx + c.cx] += 1;
+        }
+    }
+}
+
+/// Draws counted cells: one `rect` per occupied cell (with its count as
+/// `data-n`), category by category in the given order, each in
+/// `density-class` groups by count class.
+pub fn draw_counts(
+    out: &mut String,
+    grid: &Grid,
+    categories: &[Category],
+    counts: &Counts,
+) -> Drawn {
+    let cells = counts.cells;
+    let counts = &counts.n;
     let max = counts.iter().copied().max().unwrap_or(0);
     let classes = density_classes(max.max(1));
     let mut drawn = Drawn {
@@ -236,7 +269,7 @@ pub fn draw_density(out: &mut String, view: &PlotView, binning: &Binning) -> Dra
         counts: Vec::new(),
     };
     out.push_str("<g class=\"density\" shape-rendering=\"crispEdges\">\n");
-    for (k, category) in binning.categories.iter().enumerate() {
+    for (k, category) in categories.iter().enumerate() {
         let counts = &counts[k * cells..(k + 1) * cells];
         let shades: Vec<String> = (0..classes.len())
             .map(|c| category.shade(c, classes.len()))

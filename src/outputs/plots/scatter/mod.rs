@@ -23,7 +23,7 @@ mod layers;
 mod legend;
 mod selection;
 
-pub use density::{Binning, Category, Cell, Grid, Sides, draw_density};
+pub use density::{Binning, Category, Cell, Counts, Drawn, Grid, Sides, draw_counts, draw_density};
 pub use groups::{Colour, Groups};
 pub use labels::{
     Box2, HALO, Placement, Placements, Spot, draw_labels, place_apart, place_rows, write_labels,
