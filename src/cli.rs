@@ -169,8 +169,9 @@ pub enum Command {
         /// gives the model's features].
         #[arg(long, value_name = "CHAR", value_parser = crate::apply::parse_delimiter)]
         delimiter: Option<u8>,
-        /// The table's decimal mark, `.` or `,` [default: `.`, or `,` when the
-        /// features' cells are written with decimal commas and no points].
+        /// The table's decimal mark, `.` or `,` [default: the analysis' own
+        /// (`input.decimal`); for a point, `,` when the features' cells are
+        /// written with decimal commas and no points].
         #[arg(long, value_name = "MARK", value_parser = crate::apply::parse_decimal)]
         decimal: Option<u8>,
         /// A column (a date, a time or a sequence number) that orders the rows
