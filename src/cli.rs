@@ -528,8 +528,10 @@ pub fn describe_apply(s: &crate::apply::ApplySummary) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "table      {}: {} rows, {} scored",
-        s.table, s.rows_in, s.rows_scored
+        "table      {}: {}, {} scored",
+        s.table,
+        count(s.rows_in, "row", "rows"),
+        s.rows_scored
     );
     if s.filled > 0 {
         let _ = writeln!(

@@ -384,6 +384,10 @@ pub enum InputError {
         rows: usize,
         why: String,
     },
+    #[error(
+        "{path}: no row can be scored: the table has no data rows, or every row misses cells the model cannot fill; one scorable row is enough"
+    )]
+    NoRowsToScore { path: String },
     #[error("{path}: no usable features{why}")]
     NoFeatures { path: String, why: String },
     #[error(

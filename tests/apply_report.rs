@@ -428,3 +428,36 @@ fn a_large_batch_counts_every_row_in_the_density_and_draws_only_labelled_points(
         "{points} new rows drawn as points"
     );
 }
+
+/// Regression: a batch of one sample printed "1 rows, 1 scored", and a batch
+/// with a header only said "0 usable rows that can be scored; at least 2 are
+/// needed", though one row is enough to score.
+#[test]
+fn a_batch_of_one_row_is_scored_and_an_empty_one_says_one_row_is_enough() {
+    let ws = analysed();
+    let april = fs::read_to_string(ws.path().join(APRIL)).unwrap();
+    let mut lines = april.lines();
+    let header = lines.next().unwrap();
+    fs::write(
+        ws.path().join("one.csv"),
+        format!("{header}\n{}\n", lines.next().unwrap()),
+    )
+    .unwrap();
+    let out = apply(ws.path(), &["one.csv", "--out", "one"]);
+    assert_eq!(out.code, 0, "{}", out.stderr);
+    assert!(
+        out.stdout.contains("one.csv: 1 row, 1 scored"),
+        "{}",
+        out.stdout
+    );
+    fs::write(ws.path().join("none.csv"), format!("{header}\n")).unwrap();
+    let out = apply(ws.path(), &["none.csv", "--out", "none"]);
+    assert_eq!(out.code, 2);
+    assert!(
+        out.stderr.contains("no row can be scored")
+            && out.stderr.contains("one scorable row is enough"),
+        "{}",
+        out.stderr
+    );
+    assert!(!ws.path().join("none").exists());
+}

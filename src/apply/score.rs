@@ -224,10 +224,8 @@ pub fn score(
         });
     }
     if scored_rows.is_empty() {
-        return Err(InputError::TooFewRows {
+        return Err(InputError::NoRowsToScore {
             path: shown.to_string(),
-            rows: 0,
-            why: " that can be scored".into(),
         }
         .into());
     }
