@@ -12,6 +12,7 @@
 use super::ScoreSettings;
 use crate::error::{Error, InputError};
 use crate::outputs::model::Model;
+use crate::table::number::NumberFormat;
 use crate::table::{ColumnData, ReadOptions, Table, read_header, read_table_parallel};
 
 /// Delimiters tried when the analysis' own gives none of the model's features.
@@ -250,14 +251,15 @@ fn numeric_features(table: &Table, names: &[String]) -> Result<Vec<Vec<f64>>, Ba
     Ok(out)
 }
 
-/// A finite number written with a decimal comma (`-3,14`, `2`, `1,5e3`); a
-/// point is never read, since with a decimal comma it may group thousands.
+/// A finite number written with a decimal comma (`-3,14`, `2`, `1,5e3`), by
+/// the table reader's own rule; a point is never read, since with a decimal
+/// comma it may group thousands.
 fn comma_number(cell: &str) -> Option<f64> {
-    if cell.contains('.') || cell.matches(',').count() > 1 {
-        return None;
-    }
-    let v: f64 = cell.replacen(',', ".", 1).parse().ok()?;
-    v.is_finite().then_some(v)
+    let comma = NumberFormat {
+        decimal: b',',
+        thousands: None,
+    };
+    comma.parse(cell).filter(|v| v.is_finite())
 }
 
 /// The order of the rows on the control chart: by `column`'s values (as
