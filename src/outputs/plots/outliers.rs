@@ -14,9 +14,10 @@
 
 use super::frame::{self, Axis, Extent, Frame, Panel};
 use super::scatter::{
-    self, Binning, Category, Colour, Grid, Groups, Labelling, Legend, Placements, PointSelection,
-    RowLayers, Sides,
+    self, Binning, Category, Colour, Grid, Groups, Legend, Placements, PointSelection, RowLayers,
+    Sides,
 };
+use super::scores::labelling;
 use super::svg::{self, MUTED, NEUTRAL, Shape};
 use super::{LEGEND_X, scatter_layout, title};
 use crate::outputs::view::PlotView;
@@ -192,13 +193,6 @@ pub(super) fn stat_axis(hi: f64, rooted: bool, pixels: f64, gap: f64) -> Axis {
 
 fn style(kind: usize) -> (&'static str, Shape) {
     [WITHIN, T2_ONLY, SPE_ONLY, BOTH][kind.min(3)]
-}
-
-fn labelling(plan: &PlotPlan) -> Labelling {
-    Labelling {
-        which: plan.labels,
-        most: plan.max_labels,
-    }
 }
 
 /// The density's categories, one per kind of row, in the kinds' colours.
